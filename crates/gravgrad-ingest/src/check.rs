@@ -1,0 +1,369 @@
+//! Everything `gravgrad check` learns about a file: reading, navigation merge, value and time-base
+//! validation, gaps and lines, as plain data for the binary to print.
+
+use crate::columns::{ColumnMap, Expectation};
+use crate::instrument::{Instrument, Needs, check_observability, read_instrument};
+use crate::layout::{LAYOUT as FLIGHT_LAYOUT, NAVIGATION_COLUMNS};
+use crate::read::{Flight, Format, read_flight_file};
+use crate::recipe::{self, Recipe, read_recipe};
+use crate::segment::{LineRules, Segment, segment_lines};
+use crate::validate::{Gap, TimeBase, TimeRules, check_time, check_values};
+use crate::{instrument, navmerge, tomlfile};
+use gravgrad_core::pairs::Observability;
+use gravgrad_core::{Location, Problem, Severity};
+use serde::Serialize;
+use std::path::{Path, PathBuf};
+
+/// Settings of a check.
+#[derive(Clone, Debug, Default)]
+pub struct CheckSettings {
+    pub instrument: Option<Instrument>,
+    pub columns: Option<ColumnMap>,
+    pub navigation: Option<PathBuf>,
+    pub navigation_max_gap_s: f64,
+    pub time: TimeRules,
+    pub lines: LineRules,
+}
+
+impl CheckSettings {
+    /// The settings a recipe implies.
+    pub fn from_recipe(r: &Recipe, instrument: Option<Instrument>) -> Self {
+        Self {
+            time: TimeRules {
+                sample_rate_hz: instrument.as_ref().and_then(|i| i.sample_rate_hz),
+                jitter_tolerance: r.input.jitter_tolerance,
+                ..TimeRules::default()
+            },
+            instrument,
+            columns: Some(r.input.columns.clone()),
+            navigation: r.input.navigation.as_ref().map(|n| r.resolve(n)),
+            navigation_max_gap_s: r.input.navigation_max_gap_s,
+            lines: r.input.line_finder,
+        }
+    }
+}
+
+/// What was found in one flight.
+#[derive(Clone, Debug, Serialize)]
+pub struct FlightReport {
+    pub source: Location,
+    pub format: Format,
+    pub rows: usize,
+    pub time_base: Option<TimeBase>,
+    /// Layout names of the channels read.
+    pub channels: Vec<String>,
+    pub pairs: Vec<String>,
+    /// Columns of the file that are not part of the layout.
+    pub ignored_columns: Vec<String>,
+    pub lines: Vec<Segment>,
+    pub gaps: Vec<Gap>,
+    pub problems: Vec<Problem>,
+    /// Bytes of the parsed table in memory.
+    pub table_bytes: usize,
+}
+
+/// What kind of file was checked.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum FileKind {
+    Flight,
+    Navigation,
+    Instrument,
+    Recipe,
+}
+
+/// The check of one file given on the command line (a recipe also checks the files it names).
+#[derive(Clone, Debug, Serialize)]
+pub struct FileReport {
+    pub file: PathBuf,
+    pub kind: FileKind,
+    pub flights: Vec<FlightReport>,
+    /// Problems of the file as a whole (unreadable, bad TOML, missing columns, …).
+    pub problems: Vec<Problem>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub observability: Option<Observability>,
+}
+
+impl FileReport {
+    fn new(file: &Path, kind: FileKind) -> Self {
+        Self {
+            file: file.to_path_buf(),
+            kind,
+            flights: vec![],
+            problems: vec![],
+            observability: None,
+        }
+    }
+
+    /// Every problem, file-level first.
+    pub fn all_problems(&self) -> impl Iterator<Item = &Problem> {
+        self.problems
+            .iter()
+            .chain(self.flights.iter().flat_map(|f| f.problems.iter()))
+    }
+
+    pub fn has_errors(&self) -> bool {
+        self.all_problems().any(|p| p.severity == Severity::Error)
+    }
+}
+
+/// Checks one flight log.
+pub fn check_flight_file(path: &Path, s: &CheckSettings, nav: Option<&Flight>) -> FileReport {
+    let mut report = FileReport::new(path, FileKind::Flight);
+    let ids = s.instrument.as_ref().map(|i| i.pair_ids());
+    let supplied: Vec<&str> = nav
+        .map(|n| {
+            n.table
+                .names()
+                .iter()
+                .map(String::as_str)
+                .filter(|c| *c != "time")
+                .collect()
+        })
+        .unwrap_or_default();
+    let expect = Expectation {
+        pairs: ids.as_deref(),
+        map: s.columns.as_ref(),
+        supplied_elsewhere: &supplied,
+        only: None,
+    };
+    let outcome = read_flight_file(path, &expect);
+    report.problems = outcome.problems;
+    for mut flight in outcome.flights {
+        let mut problems = Vec::new();
+        if let Some(n) = nav {
+            problems.extend(navmerge::merge_navigation(
+                &mut flight,
+                n,
+                s.navigation_max_gap_s,
+            ));
+        }
+        problems.extend(check_values(&flight));
+        let (tb, p) = check_time(&flight, &s.time);
+        problems.extend(p);
+        let gaps = tb.as_ref().map(|t| t.gaps.clone()).unwrap_or_default();
+        let breaks: Vec<usize> = gaps.iter().map(|g| g.index).collect();
+        let time_ok = !problems
+            .iter()
+            .any(|p| p.is_error() && p.location.column.as_deref() == Some("time"));
+        let lines = if time_ok {
+            segment_lines(&flight.table, &breaks, &s.lines)
+        } else {
+            vec![]
+        };
+        for g in &gaps {
+            problems.push(Problem::warning(
+                flight.row_location(g.index).with_column("time"),
+                format!(
+                    "gap of {:.3} s ({} samples missing) after time {}; the line is split here",
+                    g.length_s, g.missing_samples, g.start_s
+                ),
+            ));
+        }
+        if !flight.plan.ignored.is_empty() {
+            problems.push(Problem::warning(
+                flight.source.clone(),
+                format!(
+                    "columns not in the layout are ignored: {}",
+                    flight.plan.ignored.join(", ")
+                ),
+            ));
+        }
+        if s.instrument.is_none() && flight.plan.pairs.is_empty() {
+            problems.push(
+                Problem::warning(
+                    flight.source.clone(),
+                    "no accelerometer pair columns (<id>_a, <id>_b) found",
+                )
+                .with_hint("give --instrument to name the pairs"),
+            );
+        }
+        problems.sort_by_key(|p| (std::cmp::Reverse(p.severity), p.location.row.unwrap_or(0)));
+        report.flights.push(FlightReport {
+            source: flight.source.clone(),
+            format: flight.format,
+            rows: flight.table.n_rows(),
+            time_base: tb,
+            channels: flight.table.names().to_vec(),
+            pairs: flight.plan.pairs.clone(),
+            ignored_columns: flight.plan.ignored.clone(),
+            lines,
+            gaps,
+            problems,
+            table_bytes: flight.table.data_bytes(),
+        });
+    }
+    report
+}
+
+/// Reads and validates a navigation table; returns it (when readable) and its report.
+pub fn read_navigation(path: &Path, s: &CheckSettings) -> (Option<Flight>, FileReport) {
+    let mut report = FileReport::new(path, FileKind::Navigation);
+    let mut only: Vec<&str> = vec!["time"];
+    only.extend(NAVIGATION_COLUMNS);
+    let expect = Expectation {
+        pairs: None,
+        map: s.columns.as_ref(),
+        supplied_elsewhere: &[],
+        only: Some(&only),
+    };
+    let mut outcome = read_flight_file(path, &expect);
+    report.problems = outcome.problems;
+    if outcome.flights.len() > 1 {
+        report.problems.push(Problem::error(
+            Location::file(path),
+            "a navigation table holds one flight",
+        ));
+    }
+    let nav = outcome.flights.pop();
+    if let Some(n) = &nav {
+        let mut p = check_values(n);
+        let rules = TimeRules {
+            sample_rate_hz: None,
+            jitter_tolerance: 0.5,
+            gap_factor: f64::INFINITY,
+        };
+        p.extend(check_time(n, &rules).1);
+        report.problems.extend(p);
+    }
+    let ok = !report.has_errors();
+    (if ok { nav } else { None }, report)
+}
+
+/// The needs an instrument is checked against when no recipe says otherwise: Gzz is required (every
+/// gridded product derives from it); the other components are reported when missing.
+fn standalone_needs() -> Needs {
+    Needs {
+        components: vec!["Gzz".into()],
+        alpha: None,
+        trace_constraint: false,
+    }
+}
+
+/// Checks an instrument file on its own.
+pub fn check_instrument_file(path: &Path) -> (Option<Instrument>, FileReport) {
+    let mut report = FileReport::new(path, FileKind::Instrument);
+    match read_instrument(path) {
+        Ok(inst) => {
+            let (obs, p) = check_observability(&inst, &standalone_needs(), "rotation.");
+            report.problems.extend(p);
+            let missing = obs.missing_components();
+            if !missing.is_empty() && obs.sees("Gzz") {
+                report.problems.push(Problem::warning(
+                    Location::file(path).with_key("pair"),
+                    format!("the pair set does not observe {}; they will be derived from Gzz on the grid", missing.join(", ")),
+                ));
+            }
+            report.observability = Some(obs);
+            (Some(inst), report)
+        }
+        Err(p) => {
+            report.problems = p;
+            (None, report)
+        }
+    }
+}
+
+/// Checks a recipe, its instrument, navigation table and every flight file it names.
+pub fn check_recipe_file(path: &Path) -> Vec<FileReport> {
+    let mut report = FileReport::new(path, FileKind::Recipe);
+    let r = match read_recipe(path) {
+        Ok(r) => r,
+        Err(p) => {
+            report.problems = p;
+            return vec![report];
+        }
+    };
+    let inst_path = r.resolve(&r.instrument.path);
+    let inst = match read_instrument(&inst_path) {
+        Ok(i) => {
+            let needs = Needs {
+                components: r.rotation.components.clone(),
+                alpha: r.rotation.alpha_source(),
+                trace_constraint: r.rotation.trace_constraint,
+            };
+            let (obs, p) = check_observability(&i, &needs, "rotation.");
+            report.problems.extend(p);
+            report.observability = Some(obs);
+            Some(i)
+        }
+        Err(p) => {
+            report.problems.push(Problem::error(
+                Location::file(path).with_key("instrument.path"),
+                format!("the instrument file {} has problems", inst_path.display()),
+            ));
+            report.problems.extend(p);
+            None
+        }
+    };
+    let settings = CheckSettings::from_recipe(&r, inst);
+    let mut reports = vec![];
+    let files = match r.flight_files(path) {
+        Ok(f) => f,
+        Err(p) => {
+            report.problems.extend(p);
+            vec![]
+        }
+    };
+    let mut nav = None;
+    if let Some(np) = &settings.navigation {
+        let (n, nrep) = read_navigation(np, &settings);
+        nav = n;
+        let failed = nrep.has_errors();
+        reports.push(nrep);
+        if failed {
+            reports.insert(0, report);
+            return reports;
+        }
+    }
+    for f in files {
+        reports.push(check_flight_file(&f, &settings, nav.as_ref()));
+    }
+    reports.insert(0, report);
+    reports
+}
+
+/// Checks any file: a recipe or instrument (by its `layout`), or a flight log. `settings` applies to
+/// flight logs given directly.
+pub fn check_path(path: &Path, settings: &CheckSettings, nav: Option<&Flight>) -> Vec<FileReport> {
+    let is_toml = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .is_some_and(|e| e.eq_ignore_ascii_case("toml"));
+    if !is_toml {
+        return vec![check_flight_file(path, settings, nav)];
+    }
+    let text = match std::fs::read_to_string(path) {
+        Ok(t) => t,
+        Err(e) => {
+            let mut r = FileReport::new(path, FileKind::Recipe);
+            r.problems.push(Problem::error(
+                Location::file(path),
+                format!("cannot read: {e}"),
+            ));
+            return vec![r];
+        }
+    };
+    match tomlfile::layout_of(&text).as_deref() {
+        Some(instrument::LAYOUT) => vec![check_instrument_file(path).1],
+        Some(recipe::LAYOUT) => check_recipe_file(path),
+        other => {
+            let mut r = FileReport::new(path, FileKind::Recipe);
+            let found = other.map_or("no `layout` key".to_string(), |l| format!("layout `{l}`"));
+            r.problems.push(
+                Problem::error(
+                    Location::file(path).with_key("layout"),
+                    format!(
+                        "{found}; expected `{}` or `{}`",
+                        recipe::LAYOUT,
+                        instrument::LAYOUT
+                    ),
+                )
+                .with_hint(format!(
+                    "flight logs are CSV, Parquet or HDF5 ({FLIGHT_LAYOUT})"
+                )),
+            );
+            vec![r]
+        }
+    }
+}

@@ -1,0 +1,26 @@
+//! Getting raw gradiometer data into memory, and knowing exactly what is wrong with it when it
+//! cannot be trusted.
+//!
+//! Reads raw flight logs (layout `raw-flight/1`, `docs/formats.md`) from CSV, Parquet and HDF5 into
+//! [`gravgrad_core::table::FlightTable`]s in layout units; reads instrument and recipe files; merges
+//! a slower navigation table onto the gradiometer's time base; validates values and time stamps
+//! with exact locations (file, row, column, key); estimates the sample rate, finds gaps and cuts
+//! flights into lines.
+//!
+//! This crate reads files but writes none and prints nothing: it returns data and
+//! [`gravgrad_core::Problem`]s, and the binary decides what to show.
+
+pub mod check;
+pub mod columns;
+pub mod csv;
+pub mod hdf5_reader;
+pub mod instrument;
+pub mod layout;
+pub mod navmerge;
+pub mod parquet_reader;
+pub mod read;
+pub mod recipe;
+pub mod segment;
+mod sink;
+pub mod tomlfile;
+pub mod validate;

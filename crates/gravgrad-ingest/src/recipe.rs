@@ -1,0 +1,492 @@
+//! The processing recipe (`docs/formats.md`, layout `recipe/1`): one TOML file that drives a whole
+//! run. Every key has a default documented in `docs/recipe.md`; an unknown key is an error naming
+//! its path. Paths are relative to the recipe's folder.
+
+use crate::columns::ColumnMap;
+use crate::segment::LineRules;
+use crate::tomlfile;
+use gravgrad_core::ellipsoid::EllipsoidName;
+use gravgrad_core::pairs::AlphaSource;
+use gravgrad_core::{Location, Problem};
+use serde::{Deserialize, Serialize};
+use std::path::{Path, PathBuf};
+
+pub const LAYOUT: &str = "recipe/1";
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct Recipe {
+    pub layout: String,
+    #[serde(default)]
+    pub survey: Survey,
+    pub input: Input,
+    pub instrument: InstrumentRef,
+    #[serde(default)]
+    pub calibration: Calibration,
+    #[serde(default)]
+    pub rotation: Rotation,
+    #[serde(default)]
+    pub normal: Normal,
+    #[serde(default)]
+    pub terrain: Option<Terrain>,
+    #[serde(default)]
+    pub filter: Filter,
+    #[serde(default)]
+    pub level: Level,
+    #[serde(default)]
+    pub grid: Grid,
+    #[serde(default)]
+    pub output: Output,
+    #[serde(default)]
+    pub qc: Qc,
+    /// The recipe's folder, which relative paths start from (not a key of the file).
+    #[serde(skip)]
+    pub folder: PathBuf,
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Survey {
+    pub name: String,
+    /// `"utm"` (zone from the survey centre) or `"EPSG:<code>"`.
+    pub projection: String,
+    pub ellipsoid: EllipsoidName,
+}
+
+impl Default for Survey {
+    fn default() -> Self {
+        Self {
+            name: "survey".into(),
+            projection: "utm".into(),
+            ellipsoid: EllipsoidName::Grs80,
+        }
+    }
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct Input {
+    /// Flight files or glob patterns.
+    pub flights: Vec<String>,
+    /// Optional navigation table merged onto the gradiometer's time base.
+    #[serde(default)]
+    pub navigation: Option<String>,
+    /// Longest navigation gap interpolated across, s.
+    #[serde(default = "default_nav_gap")]
+    pub navigation_max_gap_s: f64,
+    /// Allowed sample-interval deviation, relative to the nominal interval.
+    #[serde(default = "default_jitter")]
+    pub jitter_tolerance: f64,
+    /// Layout name → logger's column and unit conversion.
+    #[serde(default)]
+    pub columns: ColumnMap,
+    #[serde(default)]
+    pub line_finder: LineRules,
+}
+
+fn default_nav_gap() -> f64 {
+    1.0
+}
+fn default_jitter() -> f64 {
+    0.01
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct InstrumentRef {
+    pub path: String,
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Deserialize, Serialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum CalibrationMode {
+    #[default]
+    Estimate,
+    File,
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Calibration {
+    pub mode: CalibrationMode,
+    pub file: Option<String>,
+    /// Band where aircraft motion dominates, Hz.
+    pub band_hz: [f64; 2],
+    /// Polynomial order of the drift in time.
+    pub drift_order: u32,
+}
+
+impl Default for Calibration {
+    fn default() -> Self {
+        Self {
+            mode: CalibrationMode::Estimate,
+            file: None,
+            band_hz: [0.05, 1.0],
+            drift_order: 1,
+        }
+    }
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Deserialize, Serialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum AlphaChoice {
+    /// From the pairs where they observe it, else from the gyros.
+    #[default]
+    Auto,
+    Pairs,
+    Gyros,
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Rotation {
+    pub angular_acceleration: AlphaChoice,
+    pub trace_constraint: bool,
+    /// Components the run must deliver.
+    pub components: Vec<String>,
+    /// Low-pass applied to gyro rates before differentiation, Hz.
+    pub gyro_lowpass_hz: f64,
+}
+
+impl Default for Rotation {
+    fn default() -> Self {
+        Self {
+            angular_acceleration: AlphaChoice::Auto,
+            trace_constraint: false,
+            components: ["Gxx", "Gxy", "Gxz", "Gyy", "Gyz", "Gzz"]
+                .map(String::from)
+                .to_vec(),
+            gyro_lowpass_hz: 2.0,
+        }
+    }
+}
+
+impl Rotation {
+    pub fn alpha_source(&self) -> Option<AlphaSource> {
+        match self.angular_acceleration {
+            AlphaChoice::Auto => None,
+            AlphaChoice::Pairs => Some(AlphaSource::Pairs),
+            AlphaChoice::Gyros => Some(AlphaSource::Gyros),
+        }
+    }
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct Normal {
+    /// Defaults to the survey's ellipsoid.
+    pub ellipsoid: Option<EllipsoidName>,
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct Terrain {
+    pub dem: String,
+    #[serde(default = "default_density")]
+    pub density_kg_m3: f64,
+    #[serde(default)]
+    pub water_density_kg_m3: Option<f64>,
+    #[serde(default = "default_margin")]
+    pub margin_m: f64,
+    /// Target accuracy of the fast terrain engine, E.
+    #[serde(default = "default_terrain_accuracy")]
+    pub accuracy_e: f64,
+}
+
+fn default_density() -> f64 {
+    2670.0
+}
+fn default_margin() -> f64 {
+    5000.0
+}
+fn default_terrain_accuracy() -> f64 {
+    0.1
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Filter {
+    pub cutoff_wavelength_m: f64,
+}
+
+impl Default for Filter {
+    fn default() -> Self {
+        Self {
+            cutoff_wavelength_m: 400.0,
+        }
+    }
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Deserialize, Serialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum TieHandling {
+    /// Tie lines are the reference; survey lines move to them.
+    #[default]
+    Reference,
+    /// All lines adjust, with zero mean adjustment.
+    ZeroMean,
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Level {
+    pub tie_lines: TieHandling,
+    /// Line numbers from this one up are tie lines.
+    pub first_tie_line: i64,
+    /// Also fit a linear trend in time per line.
+    pub trend: bool,
+}
+
+impl Default for Level {
+    fn default() -> Self {
+        Self {
+            tie_lines: TieHandling::Reference,
+            first_tie_line: 9000,
+            trend: false,
+        }
+    }
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Grid {
+    pub cell_m: f64,
+    /// Tension of minimum-curvature gridding, 0 (pure minimum curvature) to 1.
+    pub tension: f64,
+    /// Cells farther than this from data are left empty, m.
+    pub blanking_m: f64,
+}
+
+impl Default for Grid {
+    fn default() -> Self {
+        Self {
+            cell_m: 50.0,
+            tension: 0.25,
+            blanking_m: 250.0,
+        }
+    }
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Output {
+    pub folder: String,
+    pub lines_csv: bool,
+    pub formats: Vec<String>,
+}
+
+impl Default for Output {
+    fn default() -> Self {
+        Self {
+            folder: "products".into(),
+            lines_csv: false,
+            formats: ["parquet", "netcdf", "geotiff", "hdf5", "png"]
+                .map(String::from)
+                .to_vec(),
+        }
+    }
+}
+
+#[derive(Clone, Debug, Deserialize, Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Qc {
+    /// Largest cross-track deviation from the planned line, m.
+    pub max_line_deviation_m: f64,
+    /// Largest departure of clearance from the drape plan, m.
+    pub clearance_tolerance_m: f64,
+    /// Largest RMS vertical acceleration, m/s².
+    pub max_turbulence_m_s2: f64,
+    /// Largest noise after filtering, E RMS.
+    pub max_noise_e: f64,
+    /// Longest gap inside a line, s.
+    pub max_gap_s: f64,
+}
+
+impl Default for Qc {
+    fn default() -> Self {
+        Self {
+            max_line_deviation_m: 50.0,
+            clearance_tolerance_m: 30.0,
+            max_turbulence_m_s2: 1.0,
+            max_noise_e: 5.0,
+            max_gap_s: 2.0,
+        }
+    }
+}
+
+const COMPONENTS: [&str; 6] = ["Gxx", "Gxy", "Gxz", "Gyy", "Gyz", "Gzz"];
+const FORMATS: [&str; 6] = ["parquet", "csv", "netcdf", "geotiff", "hdf5", "png"];
+
+/// Reads a recipe and checks every value that can be checked without reading the data.
+pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
+    let mut r: Recipe = tomlfile::read(path).map_err(|p| vec![p])?;
+    r.folder = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    let loc = |key: &str| Location::file(path).with_key(key);
+    let mut p = Vec::new();
+    let mut positive = |key: &str, v: f64| {
+        if !(v.is_finite() && v > 0.0) {
+            p.push(Problem::error(
+                loc(key),
+                format!("{v} is not a positive number"),
+            ));
+        }
+    };
+    positive("input.navigation_max_gap_s", r.input.navigation_max_gap_s);
+    positive("input.jitter_tolerance", r.input.jitter_tolerance);
+    positive(
+        "input.line_finder.min_duration_s",
+        r.input.line_finder.min_duration_s,
+    );
+    positive(
+        "input.line_finder.max_turn_rate_deg_s",
+        r.input.line_finder.max_turn_rate_deg_s,
+    );
+    positive("input.line_finder.window_s", r.input.line_finder.window_s);
+    positive(
+        "input.line_finder.max_deviation_m",
+        r.input.line_finder.max_deviation_m,
+    );
+    positive("rotation.gyro_lowpass_hz", r.rotation.gyro_lowpass_hz);
+    positive("filter.cutoff_wavelength_m", r.filter.cutoff_wavelength_m);
+    positive("grid.cell_m", r.grid.cell_m);
+    positive("grid.blanking_m", r.grid.blanking_m);
+    positive("qc.max_line_deviation_m", r.qc.max_line_deviation_m);
+    positive("qc.clearance_tolerance_m", r.qc.clearance_tolerance_m);
+    positive("qc.max_turbulence_m_s2", r.qc.max_turbulence_m_s2);
+    positive("qc.max_noise_e", r.qc.max_noise_e);
+    positive("qc.max_gap_s", r.qc.max_gap_s);
+    if let Some(t) = &r.terrain {
+        positive("terrain.density_kg_m3", t.density_kg_m3);
+        positive("terrain.margin_m", t.margin_m);
+        positive("terrain.accuracy_e", t.accuracy_e);
+        if let Some(w) = t.water_density_kg_m3 {
+            positive("terrain.water_density_kg_m3", w);
+        }
+    }
+    let [lo, hi] = r.calibration.band_hz;
+    if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo) {
+        p.push(Problem::error(
+            loc("calibration.band_hz"),
+            format!("[{lo}, {hi}] is not a band: expected 0 < low < high (Hz)"),
+        ));
+    }
+    if r.calibration.drift_order > 5 {
+        p.push(Problem::error(
+            loc("calibration.drift_order"),
+            "drift polynomials above order 5 fit geology, not drift",
+        ));
+    }
+    if r.calibration.mode == CalibrationMode::File && r.calibration.file.is_none() {
+        p.push(Problem::error(
+            loc("calibration.file"),
+            "mode = \"file\" needs `file = \"…\"`",
+        ));
+    }
+    if !(0.0..=1.0).contains(&r.grid.tension) {
+        p.push(Problem::error(
+            loc("grid.tension"),
+            format!("{} is outside 0 to 1", r.grid.tension),
+        ));
+    }
+    if r.layout != LAYOUT {
+        p.push(Problem::error(
+            loc("layout"),
+            format!("layout is `{}`, expected `{LAYOUT}`", r.layout),
+        ));
+    }
+    let proj = r.survey.projection.as_str();
+    let epsg_ok = proj
+        .strip_prefix("EPSG:")
+        .is_some_and(|c| !c.is_empty() && c.chars().all(|d| d.is_ascii_digit()));
+    if proj != "utm" && !epsg_ok {
+        p.push(Problem::error(
+            loc("survey.projection"),
+            format!("`{proj}`: expected \"utm\" or \"EPSG:<code>\""),
+        ));
+    }
+    for (i, c) in r.rotation.components.iter().enumerate() {
+        if !COMPONENTS.contains(&c.as_str()) {
+            p.push(Problem::error(
+                loc(&format!("rotation.components[{i}]")),
+                format!("`{c}`: expected one of {}", COMPONENTS.join(", ")),
+            ));
+        }
+    }
+    for (i, f) in r.output.formats.iter().enumerate() {
+        if !FORMATS.contains(&f.as_str()) {
+            p.push(Problem::error(
+                loc(&format!("output.formats[{i}]")),
+                format!("`{f}`: expected one of {}", FORMATS.join(", ")),
+            ));
+        }
+    }
+    for (name, src) in &r.input.columns {
+        if !(src.scale.is_finite() && src.scale != 0.0 && src.offset.is_finite()) {
+            p.push(Problem::error(
+                loc(&format!("input.columns.{name}")),
+                "scale must be finite and non-zero, offset finite",
+            ));
+        }
+    }
+    if r.input.flights.is_empty() {
+        p.push(Problem::error(
+            loc("input.flights"),
+            "no flight files listed",
+        ));
+    }
+    if p.is_empty() { Ok(r) } else { Err(p) }
+}
+
+impl Recipe {
+    /// A path from the recipe, resolved against the recipe's folder.
+    pub fn resolve(&self, rel: &str) -> PathBuf {
+        let p = Path::new(rel);
+        if p.is_absolute() {
+            p.to_path_buf()
+        } else {
+            self.folder.join(p)
+        }
+    }
+
+    /// The flight files, globs expanded, in sorted order; a pattern that matches nothing is an error.
+    pub fn flight_files(&self, recipe_path: &Path) -> Result<Vec<PathBuf>, Vec<Problem>> {
+        let mut out = Vec::new();
+        let mut problems = Vec::new();
+        for (i, pat) in self.input.flights.iter().enumerate() {
+            let full = self.resolve(pat);
+            let key = format!("input.flights[{i}]");
+            let Some(text) = full.to_str() else {
+                problems.push(Problem::error(
+                    Location::file(recipe_path).with_key(key),
+                    "path is not valid UTF-8",
+                ));
+                continue;
+            };
+            match glob::glob(text) {
+                Ok(paths) => {
+                    let mut found: Vec<PathBuf> = paths.filter_map(Result::ok).collect();
+                    found.sort();
+                    if found.is_empty() {
+                        problems.push(
+                            Problem::error(
+                                Location::file(recipe_path).with_key(key),
+                                format!("`{pat}` matches no file"),
+                            )
+                            .with_hint("paths are relative to the recipe's folder"),
+                        );
+                    }
+                    out.extend(found);
+                }
+                Err(e) => problems.push(Problem::error(
+                    Location::file(recipe_path).with_key(key),
+                    format!("bad pattern `{pat}`: {e}"),
+                )),
+            }
+        }
+        if problems.is_empty() {
+            Ok(out)
+        } else {
+            Err(problems)
+        }
+    }
+}

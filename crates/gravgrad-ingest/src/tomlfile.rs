@@ -1,0 +1,59 @@
+//! Reading our TOML files (instrument, recipe) with errors that name the key path and line.
+
+use gravgrad_core::{Location, Problem};
+use serde::de::DeserializeOwned;
+use std::path::Path;
+
+/// Parses `text` (from `path`) into `T`, rejecting unknown keys; the error names the dotted key
+/// path and the line.
+pub fn parse<T: DeserializeOwned>(path: &Path, text: &str) -> Result<T, Problem> {
+    let loc = Location::file(path);
+    let de = match toml::de::Deserializer::parse(text) {
+        Ok(d) => d,
+        Err(e) => {
+            return Err(with_span(
+                Problem::error(loc, format!("not valid TOML: {}", e.message())),
+                text,
+                e.span(),
+            ));
+        }
+    };
+    serde_path_to_error::deserialize::<_, T>(de).map_err(|e| {
+        let key = e.path().to_string();
+        let inner = e.into_inner();
+        let mut l = loc.clone();
+        if key != "." && !key.is_empty() {
+            l = l.with_key(key);
+        }
+        with_span(
+            Problem::error(l, inner.message().to_string()),
+            text,
+            inner.span(),
+        )
+    })
+}
+
+fn with_span(mut p: Problem, text: &str, span: Option<std::ops::Range<usize>>) -> Problem {
+    if let Some(s) = span {
+        let line = text.as_bytes()[..s.start.min(text.len())]
+            .iter()
+            .filter(|b| **b == b'\n')
+            .count() as u64
+            + 1;
+        p.location.line = Some(line);
+    }
+    p
+}
+
+/// Reads and parses a TOML file.
+pub fn read<T: DeserializeOwned>(path: &Path) -> Result<T, Problem> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| Problem::error(Location::file(path), format!("cannot read: {e}")))?;
+    parse(path, &text)
+}
+
+/// The `layout` string of a TOML file, if it has one (to tell instrument from recipe files).
+pub fn layout_of(text: &str) -> Option<String> {
+    let v: toml::Table = toml::from_str(text).ok()?;
+    v.get("layout")?.as_str().map(str::to_string)
+}
