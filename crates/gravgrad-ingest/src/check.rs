@@ -49,6 +49,9 @@ pub struct FlightReport {
     pub source: Location,
     pub format: Format,
     pub rows: usize,
+    /// File row number of the first data row (2 in CSV, 1 in Parquet and HDF5); segment and gap
+    /// indices count from it.
+    pub first_row: u64,
     pub time_base: Option<TimeBase>,
     /// Layout names of the channels read.
     pub channels: Vec<String>,
@@ -183,6 +186,7 @@ pub fn check_flight_file(path: &Path, s: &CheckSettings, nav: Option<&Flight>) -
             source: flight.source.clone(),
             format: flight.format,
             rows: flight.table.n_rows(),
+            first_row: flight.first_row,
             time_base: tb,
             channels: flight.table.names().to_vec(),
             pairs: flight.plan.pairs.clone(),

@@ -1,0 +1,71 @@
+//! The `gravgrad` command. Thin glue over the stage crates: parse arguments, call the stages,
+//! print, and map outcomes to exit codes (0 success, 1 processing failure, 2 bad input or usage).
+
+mod check_cmd;
+mod demo_cmd;
+mod logging;
+mod report;
+
+use clap::{Parser, Subcommand};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+/// Airborne gravity-gradiometer logs to gridded gradient products, with a QC verdict per line.
+///
+/// Products are for geological interpretation only: never for navigation or flight safety,
+/// terrain clearance included.
+#[derive(Parser, Debug)]
+#[command(name = "gravgrad", version, about, long_about = None, max_term_width = 100)]
+struct Cli {
+    /// Print nothing but results and errors.
+    #[arg(long, global = true)]
+    quiet: bool,
+    /// Machine-readable output: reports as JSON on stdout, log messages as JSON lines on stderr.
+    #[arg(long, global = true)]
+    json: bool,
+    /// Worker threads (default: all cores). Results do not depend on it.
+    #[arg(long, global = true, value_name = "N")]
+    threads: Option<usize>,
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Validate raw flight logs, instrument files and recipes; exit 2 if any has an error.
+    Check(check_cmd::CheckArgs),
+    /// Check the bundled demo survey and show what gravgrad reports on it.
+    Demo {
+        /// Folder of the demo survey (default: the repository's data/demo).
+        #[arg(long, value_name = "DIR")]
+        data: Option<PathBuf>,
+    },
+}
+
+/// Exit code for bad input or usage.
+pub const EXIT_BAD_INPUT: u8 = 2;
+/// Exit code for a processing failure.
+pub const EXIT_FAILURE: u8 = 1;
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let log = logging::Log::new(cli.quiet, cli.json);
+    if let Some(n) = cli.threads {
+        if n == 0 {
+            eprintln!("error: --threads: expected at least 1");
+            return ExitCode::from(EXIT_BAD_INPUT);
+        }
+        if let Err(e) = rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global()
+        {
+            eprintln!("error: cannot start {n} threads: {e}");
+            return ExitCode::from(EXIT_FAILURE);
+        }
+    }
+    let code = match cli.command {
+        Command::Check(args) => check_cmd::run(&args, &log, cli.json),
+        Command::Demo { data } => demo_cmd::run(data, &log, cli.json),
+    };
+    ExitCode::from(code)
+}

@@ -1,0 +1,153 @@
+//! Developer tasks: `cargo run -p xtask -- <task>`.
+//!
+//! - `sample-log`: write a sample raw flight log of any size (tests, benchmarks).
+//! - `demo-data`: regenerate the bundled demo survey in `data/demo/` bit for bit.
+
+mod synthlog;
+mod writers;
+
+use clap::{Parser, Subcommand};
+use std::path::{Path, PathBuf};
+use synthlog::{LogSpec, generate, pair_geometry, pair_ids};
+
+#[derive(Parser)]
+struct Cli {
+    #[command(subcommand)]
+    task: Task,
+}
+
+#[derive(Subcommand)]
+enum Task {
+    /// Write a sample raw flight log (format from the extension: .csv, .parquet, .h5).
+    SampleLog {
+        #[arg(long)]
+        out: PathBuf,
+        #[arg(long, default_value_t = 100_000)]
+        rows: usize,
+        /// Number of accelerometer pairs (9 = full tensor; more repeat the layout).
+        #[arg(long, default_value_t = 9)]
+        pairs: usize,
+        #[arg(long, default_value_t = 50.0)]
+        rate: f64,
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Leave out the `line` column.
+        #[arg(long)]
+        no_line: bool,
+        /// Leave out `temp` and `clearance`.
+        #[arg(long)]
+        no_extras: bool,
+        /// Also write the matching instrument file here.
+        #[arg(long)]
+        instrument: Option<PathBuf>,
+    },
+    /// Regenerate data/demo (flight log, instrument file, recipe).
+    DemoData {
+        #[arg(long, default_value = "data/demo")]
+        out: PathBuf,
+    },
+}
+
+fn main() -> Result<(), Box<dyn std::error::Error>> {
+    match Cli::parse().task {
+        Task::SampleLog {
+            out,
+            rows,
+            pairs,
+            rate,
+            seed,
+            no_line,
+            no_extras,
+            instrument,
+        } => {
+            let ids = pair_ids(pairs);
+            let spec = LogSpec {
+                rows,
+                rate_hz: rate,
+                seed,
+                pairs: ids.clone(),
+                with_line_column: !no_line,
+                with_extras: !no_extras,
+                line_length_m: 6000.0,
+            };
+            let log = generate(&spec);
+            write_log(&log, &out)?;
+            if let Some(p) = instrument {
+                std::fs::write(p, instrument_toml("sample triad", rate, &ids))?;
+            }
+        }
+        Task::DemoData { out } => demo_data(&out)?,
+    }
+    Ok(())
+}
+
+fn write_log(log: &synthlog::SampleLog, out: &Path) -> Result<(), Box<dyn std::error::Error>> {
+    match out.extension().and_then(|e| e.to_str()) {
+        Some("csv") => writers::write_csv(log, out),
+        Some("parquet") => writers::write_parquet(log, out),
+        Some("h5") => writers::write_hdf5(log, out, "flight"),
+        _ => Err(format!("{}: extension must be .csv, .parquet or .h5", out.display()).into()),
+    }
+}
+
+/// The instrument file for a pair set of the standard layout.
+pub fn instrument_toml(name: &str, rate: f64, ids: &[String]) -> String {
+    let mut s =
+        format!("layout = \"instrument/1\"\nname = \"{name}\"\nsample_rate_hz = {rate:?}\n");
+    for id in ids {
+        if let Some((c, b, a)) = pair_geometry(id) {
+            s.push_str(&format!(
+                "\n[[pair]]\nid = \"{id}\"\ncenter_m = [{:?}, {:?}, {:?}]\nbaseline_m = [{:?}, {:?}, {:?}]\naxis = [{:?}, {:?}, {:?}]\n",
+                c[0], c[1], c[2], b[0], b[1], b[2], a[0], a[1], a[2]
+            ));
+        }
+    }
+    s
+}
+
+/// The demo survey: the Corella Downs prospect, an invented scenario. One flight of four survey
+/// lines at 20 Hz with a navigation-quality log in Parquet, the instrument file and the recipe.
+fn demo_data(out: &Path) -> Result<(), Box<dyn std::error::Error>> {
+    std::fs::create_dir_all(out.join("flights"))?;
+    let ids = pair_ids(9);
+    let rate = 20.0;
+    let line_s = 6000.0 / 60.0;
+    let rows = ((4.0 * line_s + 3.0 * 60.0) * rate) as usize;
+    let spec = LogSpec {
+        rows,
+        rate_hz: rate,
+        seed: 2026,
+        pairs: ids.clone(),
+        with_line_column: true,
+        with_extras: true,
+        line_length_m: 6000.0,
+    };
+    writers::write_parquet(&generate(&spec), &out.join("flights/corella-f01.parquet"))?;
+    std::fs::write(
+        out.join("instrument.toml"),
+        instrument_toml("demo nine-pair gradiometer", rate, &ids),
+    )?;
+    std::fs::write(out.join("recipe.toml"), DEMO_RECIPE)?;
+    Ok(())
+}
+
+const DEMO_RECIPE: &str = r#"# Corella Downs demo survey: an invented scenario, not real data.
+layout = "recipe/1"
+
+[survey]
+name = "Corella Downs demo"
+projection = "utm"
+ellipsoid = "GRS80"
+
+[input]
+flights = ["flights/*.parquet"]
+
+[instrument]
+path = "instrument.toml"
+
+[filter]
+cutoff_wavelength_m = 400.0
+
+[grid]
+cell_m = 50.0
+"#;
