@@ -131,7 +131,7 @@ pub fn check_flight_file(path: &Path, s: &CheckSettings, nav: Option<&Flight>) -
         only: None,
     };
     let outcome = read_flight_file(path, &expect);
-    report.problems = outcome.problems;
+    report.problems = drop_repeats(&[], outcome.problems);
     for mut flight in outcome.flights {
         let mut problems = Vec::new();
         if let Some(n) = nav {
@@ -141,7 +141,9 @@ pub fn check_flight_file(path: &Path, s: &CheckSettings, nav: Option<&Flight>) -
                 s.navigation_max_gap_s,
             ));
         }
+        // A cell the reader already rejected (or a row it found short) is not reported again.
         problems.extend(check_values(&flight));
+        problems = drop_repeats(&report.problems, problems);
         let (tb, p) = check_time(&flight, &s.time);
         problems.extend(p);
         let gaps = tb.as_ref().map(|t| t.gaps.clone()).unwrap_or_default();
@@ -198,6 +200,42 @@ pub fn check_flight_file(path: &Path, s: &CheckSettings, nav: Option<&Flight>) -
         });
     }
     report
+}
+
+/// Drops errors located at a cell (or in a row) that an earlier error already covers: a cell the
+/// reader could not parse is not reported again as a missing value, and a short row is reported
+/// once, not once per missing cell.
+fn drop_repeats(earlier: &[Problem], later: Vec<Problem>) -> Vec<Problem> {
+    type Cell = (Option<String>, Option<u64>, Option<String>);
+    let mut cells: Vec<Cell> = Vec::new();
+    let mut rows: Vec<(Option<String>, Option<u64>)> = Vec::new();
+    let note =
+        |p: &Problem, cells: &mut Vec<Cell>, rows: &mut Vec<(Option<String>, Option<u64>)>| {
+            let l = &p.location;
+            if l.column.is_none() {
+                rows.push((l.part.clone(), l.row));
+            }
+            cells.push((l.part.clone(), l.row, l.column.clone()));
+        };
+    for p in earlier
+        .iter()
+        .filter(|p| p.is_error() && p.location.row.is_some())
+    {
+        note(p, &mut cells, &mut rows);
+    }
+    let mut out = Vec::with_capacity(later.len());
+    for p in later {
+        let l = &p.location;
+        if p.is_error() && l.row.is_some() {
+            let cell = (l.part.clone(), l.row, l.column.clone());
+            if cells.contains(&cell) || rows.contains(&(l.part.clone(), l.row)) {
+                continue;
+            }
+            note(&p, &mut cells, &mut rows);
+        }
+        out.push(p);
+    }
+    out
 }
 
 /// Reads and validates a navigation table; returns it (when readable) and its report.
@@ -348,7 +386,15 @@ pub fn check_path(path: &Path, settings: &CheckSettings, nav: Option<&Flight>) -
             return vec![r];
         }
     };
-    match tomlfile::layout_of(&text).as_deref() {
+    let layout = match tomlfile::layout_of(path, &text) {
+        Ok(l) => l,
+        Err(p) => {
+            let mut r = FileReport::new(path, FileKind::Recipe);
+            r.problems.push(p);
+            return vec![r];
+        }
+    };
+    match layout.as_deref() {
         Some(instrument::LAYOUT) => vec![check_instrument_file(path).1],
         Some(recipe::LAYOUT) => check_recipe_file(path),
         other => {

@@ -131,6 +131,14 @@ pub fn to_table(
                 for (i, x) in v.iter().enumerate() {
                     if x.is_finite() && x.fract() == 0.0 && x.abs() < 1e15 {
                         lines.push(*x as i64);
+                    } else if x.is_nan() {
+                        sink.add("line", &slot.name, i as u64, || {
+                            Problem::error(
+                                Location::default().with_column(slot.name.clone()),
+                                "missing line number",
+                            )
+                        });
+                        lines.push(0);
                     } else {
                         sink.add("line", &slot.name, i as u64, || {
                             Problem::error(

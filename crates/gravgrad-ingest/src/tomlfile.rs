@@ -52,8 +52,9 @@ pub fn read<T: DeserializeOwned>(path: &Path) -> Result<T, Problem> {
     parse(path, &text)
 }
 
-/// The `layout` string of a TOML file, if it has one (to tell instrument from recipe files).
-pub fn layout_of(text: &str) -> Option<String> {
-    let v: toml::Table = toml::from_str(text).ok()?;
-    v.get("layout")?.as_str().map(str::to_string)
+/// The `layout` string of a TOML file (to tell instrument from recipe files); `Ok(None)` when the
+/// file is TOML without one, an error naming the line when it is not TOML.
+pub fn layout_of(path: &Path, text: &str) -> Result<Option<String>, Problem> {
+    let v: toml::Table = parse(path, text)?;
+    Ok(v.get("layout").and_then(|l| l.as_str()).map(str::to_string))
 }

@@ -117,7 +117,8 @@ pub fn check_values(flight: &Flight) -> Vec<Problem> {
                         Problem::error(
                             Location::default().with_column(name),
                             format!(
-                                "value {v} is outside the plausible range {lo} to {hi} {}",
+                                "value {} is outside the plausible range {lo} to {hi} {}",
+                                show(v),
                                 q.unit()
                             ),
                         )
@@ -133,6 +134,15 @@ pub fn check_values(flight: &Flight) -> Vec<Problem> {
         all.merge_shifted(s, 0);
     }
     all.into_problems(&flight.source, flight.first_row)
+}
+
+/// A value as the user would write it: plain for ordinary magnitudes, exponent form otherwise.
+fn show(v: f64) -> String {
+    if v != 0.0 && !(1e-4..1e7).contains(&v.abs()) {
+        format!("{v:e}")
+    } else {
+        format!("{v}")
+    }
 }
 
 fn range_hint(q: Quantity) -> &'static str {
