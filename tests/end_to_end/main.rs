@@ -1,0 +1,44 @@
+//! End-to-end tests: run the real `gravgrad` binary on files and read what it prints and returns.
+
+mod commands;
+mod corpus;
+
+use std::path::PathBuf;
+use std::process::Output;
+
+/// The repository root.
+pub fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../..")
+}
+
+/// Runs `gravgrad` with `args` from the repository root.
+pub fn gravgrad(args: &[&str]) -> Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_gravgrad"))
+        .args(args)
+        .current_dir(root())
+        .output()
+        .expect("the gravgrad binary runs")
+}
+
+/// The JSON report of `gravgrad check --json …`.
+pub fn check_json(args: &[&str]) -> (i32, serde_json::Value, String) {
+    let mut all = vec!["check", "--json", "--quiet"];
+    all.extend_from_slice(args);
+    let out = gravgrad(&all);
+    let stderr = String::from_utf8_lossy(&out.stderr).into_owned();
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout)
+        .unwrap_or_else(|e| panic!("stdout is not JSON ({e}): {}\nstderr: {stderr}", String::from_utf8_lossy(&out.stdout)));
+    (out.status.code().unwrap_or(-1), v, stderr)
+}
+
+/// Every problem of a JSON report, file-level and per flight.
+pub fn problems(report: &serde_json::Value) -> Vec<serde_json::Value> {
+    let mut out = Vec::new();
+    for file in report.as_array().into_iter().flatten() {
+        out.extend(file["problems"].as_array().into_iter().flatten().cloned());
+        for f in file["flights"].as_array().into_iter().flatten() {
+            out.extend(f["problems"].as_array().into_iter().flatten().cloned());
+        }
+    }
+    out
+}
