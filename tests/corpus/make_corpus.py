@@ -103,6 +103,19 @@ def main():
             for c in COLUMNS:
                 g.create_dataset(c, data=cols[c], chunks=(16,), compression="gzip")
 
+    # --- a gradiometer log without navigation, and a 2 Hz navigation table for it -------------
+    nav_cols = ["lat", "lon", "height", "roll", "pitch", "heading"]
+    grad_cols = [c for c in COLUMNS if c not in nav_cols]
+    grad_lines = [",".join(grad_cols)] + [",".join(cell(c, cols[c][i]) for c in grad_cols) for i in range(N)]
+    write_text(os.path.join(GOOD, "grad_only.csv"), grad_lines)
+    tn = 1.4e9 - 0.5 + 0.5 * np.arange(11)  # 2 Hz, from 0.5 s before to 4.5 s after the log start
+    nav = [",".join(["time"] + nav_cols)]
+    for i, t in enumerate(tn):
+        heading = (358.0 + 1.0 * i) % 360.0  # crosses north between rows
+        nav.append(f"{t:.4f},{-27.35 + 1e-5 * i:.9f},{134.1 + 3e-3 * i:.9f},{420.0:.3f},{0.01:.5f},{-0.02:.5f},{heading:.5f}")
+    write_text(os.path.join(GOOD, "nav_2hz.csv"), nav)
+    write_text(os.path.join(BAD, "nav_ends_early.csv"), nav[:8])  # last nav time 1.4e9 + 2.5 s
+
     # --- bad CSV files ------------------------------------------------------------------------
     def bad(name, edit, **kw):
         ls = list(lines)

@@ -18,9 +18,17 @@ fn good_files_from_every_writer_pass_and_agree() {
     args.extend(files);
     let (code, report, stderr) = check_json(&args);
     assert_eq!(code, 0, "{stderr}\n{report:#}");
-    let errors: Vec<_> = problems(&report).into_iter().filter(|p| p["severity"] == "error").collect();
+    let errors: Vec<_> = problems(&report)
+        .into_iter()
+        .filter(|p| p["severity"] == "error")
+        .collect();
     assert!(errors.is_empty(), "{errors:?}");
-    let flights: Vec<&serde_json::Value> = report.as_array().unwrap().iter().flat_map(|f| f["flights"].as_array().unwrap()).collect();
+    let flights: Vec<&serde_json::Value> = report
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|f| f["flights"].as_array().unwrap())
+        .collect();
     assert_eq!(flights.len(), 6);
     for f in flights {
         assert_eq!(f["rows"], 40);
@@ -39,14 +47,24 @@ fn good_files_from_every_writer_pass_and_agree() {
 fn a_recipe_checks_its_instrument_and_flights() {
     let (code, report, stderr) = check_json(&["tests/corpus/good/recipe.toml"]);
     assert_eq!(code, 0, "{stderr}\n{report:#}");
-    let kinds: Vec<&str> = report.as_array().unwrap().iter().map(|f| f["kind"].as_str().unwrap()).collect();
+    let kinds: Vec<&str> = report
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|f| f["kind"].as_str().unwrap())
+        .collect();
     assert_eq!(kinds, vec!["recipe", "flight", "flight"]);
 }
 
 #[test]
 fn the_demo_runs() {
     let out = gravgrad(&["demo", "--quiet"]);
-    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("corella-f01.parquet"), "{text}");
     assert!(text.contains("lines        4"), "{text}");
@@ -56,8 +74,18 @@ fn the_demo_runs() {
 fn usage_errors_exit_2() {
     assert_eq!(gravgrad(&["check"]).status.code(), Some(2));
     assert_eq!(gravgrad(&["no-such-command"]).status.code(), Some(2));
-    assert_eq!(gravgrad(&["check", "--jitter-tolerance", "-1", "x.csv"]).status.code(), Some(2));
-    assert_eq!(gravgrad(&["check", "tests/corpus/good/no-such-file.csv"]).status.code(), Some(2));
+    assert_eq!(
+        gravgrad(&["check", "--jitter-tolerance", "-1", "x.csv"])
+            .status
+            .code(),
+        Some(2)
+    );
+    assert_eq!(
+        gravgrad(&["check", "tests/corpus/good/no-such-file.csv"])
+            .status
+            .code(),
+        Some(2)
+    );
 }
 
 #[test]
@@ -67,7 +95,39 @@ fn json_logs_are_json_lines() {
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(!stderr.trim().is_empty());
     for line in stderr.lines() {
-        let v: serde_json::Value = serde_json::from_str(line).unwrap_or_else(|e| panic!("not JSON: {line}: {e}"));
+        let v: serde_json::Value =
+            serde_json::from_str(line).unwrap_or_else(|e| panic!("not JSON: {line}: {e}"));
         assert!(v["level"].is_string());
     }
+}
+
+#[test]
+fn a_slower_navigation_table_fills_the_navigation_columns() {
+    // grad_only.csv has no position or attitude; nav_2hz.csv supplies them at 2 Hz.
+    let (code, report, stderr) = check_json(&[
+        "--navigation",
+        "tests/corpus/good/nav_2hz.csv",
+        "tests/corpus/good/grad_only.csv",
+    ]);
+    assert_eq!(code, 0, "{stderr}\n{report:#}");
+    let flight = &report[1]["flights"][0];
+    let channels: Vec<&str> = flight["channels"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c.as_str().unwrap())
+        .collect();
+    for c in ["lat", "lon", "height", "roll", "pitch", "heading"] {
+        assert!(channels.contains(&c), "{c} missing from {channels:?}");
+    }
+    // Without the navigation table the same log lacks six required columns.
+    let (code, report, _) = check_json(&["tests/corpus/good/grad_only.csv"]);
+    assert_eq!(code, 2);
+    assert_eq!(
+        problems(&report)
+            .iter()
+            .filter(|p| p["severity"] == "error")
+            .count(),
+        6
+    );
 }

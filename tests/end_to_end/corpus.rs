@@ -15,53 +15,206 @@ struct Case {
     says: &'static str,
 }
 
-const fn case(file: &'static str, row: Option<u64>, column: Option<&'static str>, says: &'static str) -> Case {
-    Case { file, args: &[], row, column, key: None, part: None, says }
+const fn case(
+    file: &'static str,
+    row: Option<u64>,
+    column: Option<&'static str>,
+    says: &'static str,
+) -> Case {
+    Case {
+        file,
+        args: &[],
+        row,
+        column,
+        key: None,
+        part: None,
+        says,
+    }
 }
 
 const fn keyed(file: &'static str, key: &'static str, says: &'static str) -> Case {
-    Case { file, args: &[], row: None, column: None, key: Some(key), part: None, says }
+    Case {
+        file,
+        args: &[],
+        row: None,
+        column: None,
+        key: Some(key),
+        part: None,
+        says,
+    }
 }
 
 const CASES: &[Case] = &[
-    case("missing_column.csv", Some(1), Some("fz"), "required column `fz` is missing"),
-    case("text_in_number.csv", Some(7), Some("fy"), "expected a number, found `0.0x12`"),
+    case(
+        "missing_column.csv",
+        Some(1),
+        Some("fz"),
+        "required column `fz` is missing",
+    ),
+    case(
+        "text_in_number.csv",
+        Some(7),
+        Some("fy"),
+        "expected a number, found `0.0x12`",
+    ),
     case("nan_value.csv", Some(9), Some("wz"), "missing value"),
     case("empty_cell.csv", Some(4), Some("height"), "empty cell"),
-    case("time_backwards.csv", Some(13), Some("time"), "time goes backwards"),
-    case("time_repeated.csv", Some(15), Some("time"), "repeats the previous row"),
-    case("jittered_interval.csv", Some(20), Some("time"), "differs from the nominal"),
-    case("latitude_95.csv", Some(6), Some("lat"), "value 95 is outside the plausible range -90 to 90"),
-    case("longitude_200.csv", Some(8), Some("lon"), "outside the plausible range -180 to 180"),
-    case("huge_value.csv", Some(10), Some("fx"), "value 1e308 is outside the plausible range"),
+    case(
+        "time_backwards.csv",
+        Some(13),
+        Some("time"),
+        "time goes backwards",
+    ),
+    case(
+        "time_repeated.csv",
+        Some(15),
+        Some("time"),
+        "repeats the previous row",
+    ),
+    case(
+        "jittered_interval.csv",
+        Some(20),
+        Some("time"),
+        "differs from the nominal",
+    ),
+    case(
+        "latitude_95.csv",
+        Some(6),
+        Some("lat"),
+        "value 95 is outside the plausible range -90 to 90",
+    ),
+    case(
+        "longitude_200.csv",
+        Some(8),
+        Some("lon"),
+        "outside the plausible range -180 to 180",
+    ),
+    case(
+        "huge_value.csv",
+        Some(10),
+        Some("fx"),
+        "value 1e308 is outside the plausible range",
+    ),
     case("rate_in_degrees.csv", Some(11), Some("wz"), "rad/s"),
-    case("infinite_value.csv", Some(5), Some("zz_a"), "infinite value"),
-    case("line_not_integer.csv", Some(16), Some("line"), "not an integer"),
-    case("truncated_last_row.csv", Some(41), None, "9 cells where the header has 18"),
+    case(
+        "infinite_value.csv",
+        Some(5),
+        Some("zz_a"),
+        "infinite value",
+    ),
+    case(
+        "line_not_integer.csv",
+        Some(16),
+        Some("line"),
+        "not an integer",
+    ),
+    case(
+        "truncated_last_row.csv",
+        Some(41),
+        None,
+        "9 cells where the header has 18",
+    ),
     case("semicolons.csv", Some(1), None, "separated by semicolons"),
     case("blank_row_inside.csv", Some(21), None, "empty row"),
     // A byte-order mark and CRLF endings are accepted (docs/formats.md); these two files carry an
     // error elsewhere to prove that neither shifts rows nor leaks into the last cell.
-    case("bom_with_error.csv", Some(5), Some("fz"), "expected a number, found `abc`"),
-    case("crlf_with_error.csv", Some(41), Some("line"), "expected a number, found `x`"),
+    case(
+        "bom_with_error.csv",
+        Some(5),
+        Some("fz"),
+        "expected a number, found `abc`",
+    ),
+    case(
+        "crlf_with_error.csv",
+        Some(41),
+        Some("line"),
+        "expected a number, found `x`",
+    ),
     case("empty.csv", Some(1), None, "the file is empty"),
     case("header_only.csv", Some(2), None, "no data rows"),
-    case("missing_column.parquet", None, Some("heading"), "required column `heading` is missing"),
-    case("text_column.parquet", None, Some("pitch"), "numeric column stored as BYTE_ARRAY"),
+    case(
+        "missing_column.parquet",
+        None,
+        Some("heading"),
+        "required column `heading` is missing",
+    ),
+    case(
+        "text_column.parquet",
+        None,
+        Some("pitch"),
+        "numeric column stored as BYTE_ARRAY",
+    ),
     case("null_value.parquet", Some(23), Some("fy"), "missing value"),
-    case("not_parquet.parquet", None, None, "not a readable Parquet file"),
-    Case { part: Some("flight_1"), ..case("wrong_type.h5", None, Some("roll"), "numeric column stored as text") },
-    Case { part: Some("flight_1"), ..case("unequal_length.h5", None, Some("wy"), "has 37 rows where `time` has 40") },
-    case("no_layout.h5", None, None, "no group carries the attribute layout"),
-    keyed("unknown_key_recipe.toml", "filter.cutof_wavelength_m", "unknown field `cutof_wavelength_m`"),
-    keyed("axis_not_unit.toml", "pair[1].axis", "expected a unit vector"),
-    keyed("duplicate_pair.toml", "pair[1].id", "pair id `zz` is used twice"),
-    keyed("zero_baseline.toml", "pair[0].baseline_m", "baseline is zero"),
+    case(
+        "not_parquet.parquet",
+        None,
+        None,
+        "not a readable Parquet file",
+    ),
+    Case {
+        part: Some("flight_1"),
+        ..case(
+            "wrong_type.h5",
+            None,
+            Some("roll"),
+            "numeric column stored as text",
+        )
+    },
+    Case {
+        part: Some("flight_1"),
+        ..case(
+            "unequal_length.h5",
+            None,
+            Some("wy"),
+            "has 37 rows where `time` has 40",
+        )
+    },
+    case(
+        "no_layout.h5",
+        None,
+        None,
+        "no group carries the attribute layout",
+    ),
+    keyed(
+        "unknown_key_recipe.toml",
+        "filter.cutof_wavelength_m",
+        "unknown field `cutof_wavelength_m`",
+    ),
+    keyed(
+        "axis_not_unit.toml",
+        "pair[1].axis",
+        "expected a unit vector",
+    ),
+    keyed(
+        "duplicate_pair.toml",
+        "pair[1].id",
+        "pair id `zz` is used twice",
+    ),
+    keyed(
+        "zero_baseline.toml",
+        "pair[0].baseline_m",
+        "baseline is zero",
+    ),
     keyed("blind_to_gzz.toml", "pair", "cannot observe Gzz"),
     keyed("recipe_bad_tension.toml", "grid.tension", "outside 0 to 1"),
-    keyed("recipe_no_flights_match.toml", "input.flights[1]", "matches no file"),
+    keyed(
+        "recipe_no_flights_match.toml",
+        "input.flights[1]",
+        "matches no file",
+    ),
     keyed("recipe_needs_gxz.toml", "pair", "cannot observe Gxz"),
     case("not_toml.toml", None, None, "not valid TOML"),
+    // A navigation table that ends 1.4 s before the log: the first uncovered sample is located
+    // in the gradiometer log (index 26, t = 2.6 s after the start: CSV row 28).
+    Case {
+        args: &["--navigation", "tests/corpus/bad/nav_ends_early.csv"],
+        ..case(
+            "../good/grad_only.csv",
+            Some(28),
+            Some("time"),
+            "outside the navigation table's span",
+        )
+    },
 ];
 
 #[test]
@@ -80,7 +233,10 @@ fn every_bad_file_is_located_and_exits_2() {
         if code != 2 {
             failures.push(format!("{}: exit code {code}, expected 2", c.file));
         }
-        let errors: Vec<serde_json::Value> = problems(&report).into_iter().filter(|p| p["severity"] == "error").collect();
+        let errors: Vec<serde_json::Value> = problems(&report)
+            .into_iter()
+            .filter(|p| p["severity"] == "error")
+            .collect();
         let hit = errors.iter().any(|p| {
             let l = &p["location"];
             p["message"].as_str().is_some_and(|m| m.contains(c.says))
@@ -88,7 +244,9 @@ fn every_bad_file_is_located_and_exits_2() {
                 && l["column"].as_str() == c.column
                 && l["key"].as_str() == c.key
                 && l["part"].as_str() == c.part
-                && l["file"].as_str().is_some_and(|f| f.ends_with(c.file.trim_start_matches("../")) || c.key.is_some())
+                && l["file"].as_str().is_some_and(|f| {
+                    f.ends_with(c.file.trim_start_matches("../")) || c.key.is_some()
+                })
         });
         if !hit {
             failures.push(format!(
@@ -103,7 +261,12 @@ fn every_bad_file_is_located_and_exits_2() {
         }
         // One defect, one error: nothing reported twice for the same cause.
         if errors.len() != 1 {
-            failures.push(format!("{}: {} errors, expected exactly 1: {}", c.file, errors.len(), serde_json::to_string(&errors).unwrap_or_default()));
+            failures.push(format!(
+                "{}: {} errors, expected exactly 1: {}",
+                c.file,
+                errors.len(),
+                serde_json::to_string(&errors).unwrap_or_default()
+            ));
         }
     }
     assert!(failures.is_empty(), "\n{}", failures.join("\n"));
@@ -114,5 +277,8 @@ fn text_report_names_the_place_too() {
     let out = crate::gravgrad(&["check", "--quiet", "tests/corpus/bad/text_in_number.csv"]);
     assert_eq!(out.status.code(), Some(2));
     let text = String::from_utf8_lossy(&out.stdout);
-    assert!(text.contains("tests/corpus/bad/text_in_number.csv, row 7, column `fy`: expected a number"), "{text}");
+    assert!(
+        text.contains("tests/corpus/bad/text_in_number.csv, row 7, column `fy`: expected a number"),
+        "{text}"
+    );
 }

@@ -26,8 +26,12 @@ pub fn check_json(args: &[&str]) -> (i32, serde_json::Value, String) {
     all.extend_from_slice(args);
     let out = gravgrad(&all);
     let stderr = String::from_utf8_lossy(&out.stderr).into_owned();
-    let v: serde_json::Value = serde_json::from_slice(&out.stdout)
-        .unwrap_or_else(|e| panic!("stdout is not JSON ({e}): {}\nstderr: {stderr}", String::from_utf8_lossy(&out.stdout)));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap_or_else(|e| {
+        panic!(
+            "stdout is not JSON ({e}): {}\nstderr: {stderr}",
+            String::from_utf8_lossy(&out.stdout)
+        )
+    });
     (out.status.code().unwrap_or(-1), v, stderr)
 }
 

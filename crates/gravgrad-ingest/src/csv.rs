@@ -54,7 +54,12 @@ pub fn read_csv_from(
     loc: &Location,
     expect: &Expectation<'_>,
 ) -> (Option<RawColumns>, Vec<Problem>) {
-    let mut buf: Vec<u8> = Vec::with_capacity(BLOCK + 4096);
+    let hint = if size_hint > 0 {
+        (size_hint as usize).min(BLOCK)
+    } else {
+        1 << 16
+    };
+    let mut buf: Vec<u8> = Vec::with_capacity(hint + 4096);
     let mut eof = false;
     // Header: skip BOM and comment lines.
     let header_end = loop {
@@ -231,24 +236,9 @@ pub fn read_csv_from(
     )
 }
 
-/// Reads up to `want` more bytes into `buf`; returns the number read (0 at end of file).
+/// Reads up to `want` more bytes onto the end of `buf`; returns the number read (0 at end of file).
 fn fill(src: &mut impl Read, buf: &mut Vec<u8>, want: usize) -> std::io::Result<usize> {
-    let start = buf.len();
-    buf.resize(start + want, 0);
-    let mut got = 0;
-    while got < want {
-        match src.read(&mut buf[start + got..]) {
-            Ok(0) => break,
-            Ok(k) => got += k,
-            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
-            Err(e) => {
-                buf.truncate(start + got);
-                return Err(e);
-            }
-        }
-    }
-    buf.truncate(start + got);
-    Ok(got)
+    src.take(want as u64).read_to_end(buf)
 }
 
 /// Byte offset after the BOM and the `#` comment lines.

@@ -193,7 +193,11 @@ pub fn check_time(flight: &Flight, rules: &TimeRules) -> (Option<TimeBase>, Vec<
             .map(|w| w[1] - w[0])
             .filter(|d| *d > 0.5 * median && *d < 1.5 * median)
             .fold((0.0, 0usize), |(s, c), d| (s + d, c + 1));
-        if count > 0 { count as f64 / sum } else { 1.0 / median }
+        if count > 0 {
+            count as f64 / sum
+        } else {
+            1.0 / median
+        }
     };
     let mut problems = Vec::new();
     let rate = match rules.sample_rate_hz {
