@@ -149,7 +149,7 @@ fn read_column(
         let group = reader.get_row_group(rg)?;
         let rows = group.metadata().num_rows().max(0) as usize;
         match group.get_column_reader(index)? {
-            ColumnReader::DoubleColumnReader(r) => drain(r, rows, max_def, &mut out, |v| v)?,
+            ColumnReader::DoubleColumnReader(r) => drain_f64(r, rows, max_def, &mut out)?,
             ColumnReader::FloatColumnReader(r) => drain(r, rows, max_def, &mut out, f64::from)?,
             ColumnReader::Int32ColumnReader(r) => drain(r, rows, max_def, &mut out, f64::from)?,
             ColumnReader::Int64ColumnReader(r) => drain(r, rows, max_def, &mut out, |v| v as f64)?,
@@ -161,6 +161,46 @@ fn read_column(
         }
     }
     Ok(out)
+}
+
+/// Reads `rows` records of a DOUBLE column straight into `out` (no intermediate copy), nulls as NaN.
+fn drain_f64(
+    mut r: ColumnReaderImpl<parquet::data_type::DoubleType>,
+    rows: usize,
+    max_def: i16,
+    out: &mut Vec<f64>,
+) -> parquet::errors::Result<()> {
+    let mut defs: Vec<i16> = Vec::new();
+    let mut left = rows;
+    while left > 0 {
+        let start = out.len();
+        defs.clear();
+        let (recs, nvals, _) = if max_def > 0 {
+            r.read_records(left, Some(&mut defs), None, out)?
+        } else {
+            r.read_records(left, None, None, out)?
+        };
+        if recs == 0 {
+            return Err(parquet::errors::ParquetError::General(format!(
+                "column ended {left} rows early"
+            )));
+        }
+        if nvals < recs {
+            // Spread the non-null values over their rows, from the back, NaN in the null rows.
+            out.resize(start + recs, f64::NAN);
+            let mut v = nvals;
+            for k in (0..recs).rev() {
+                if defs.get(k).copied().unwrap_or(0) == max_def && v > 0 {
+                    v -= 1;
+                    out[start + k] = out[start + v];
+                } else {
+                    out[start + k] = f64::NAN;
+                }
+            }
+        }
+        left -= recs;
+    }
+    Ok(())
 }
 
 /// Reads `rows` records of one row group into `out`, nulls as NaN.
