@@ -6,8 +6,8 @@ The expected location of each bad file's error is listed in ../end_to_end/corpus
 test that checks it. Run from this folder: python3 make_corpus.py (needs numpy, pyarrow, polars,
 h5py). The outputs are committed, so the tests need no Python.
 """
-import math
 import os
+import sys
 
 import h5py
 import numpy as np
@@ -16,8 +16,10 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-GOOD = os.path.join(HERE, "good")
-BAD = os.path.join(HERE, "bad")
+# `--out DIR` writes elsewhere (CI regenerates the corpus with the current writers and checks it).
+OUT = sys.argv[sys.argv.index("--out") + 1] if "--out" in sys.argv else HERE
+GOOD = os.path.join(OUT, "good")
+BAD = os.path.join(OUT, "bad")
 
 COLUMNS = ["time", "lat", "lon", "height", "roll", "pitch", "heading", "wx", "wy", "wz",
            "fx", "fy", "fz", "zz_a", "zz_b", "xx_a", "xx_b", "line"]

@@ -131,3 +131,43 @@ fn a_slower_navigation_table_fills_the_navigation_columns() {
         6
     );
 }
+
+#[test]
+fn one_thread_or_two_give_the_same_report() {
+    // A 120k-row CSV (several parallel pieces) with a bad cell and a gap in it.
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("big.csv");
+    let mut text =
+        String::from("time,lat,lon,height,roll,pitch,heading,wx,wy,wz,fx,fy,fz,zz_a,zz_b\n");
+    for i in 0..120_000u64 {
+        if i == 70_000 {
+            continue; // one missing sample: a gap
+        }
+        let t = 1.4e9 + i as f64 * 0.02;
+        let fz = if i == 90_001 {
+            "x".to_string()
+        } else {
+            format!("{:.7}", -9.79 + 1e-3 * (i % 17) as f64)
+        };
+        text.push_str(&format!(
+            "{t:.4},-27.35,134.1,420.0,0.01,-0.02,{:.3},0,0,0,0.01,0.02,{fz},-9.79,-9.79\n",
+            (i / 3000) as f64 * 0.1
+        ));
+    }
+    std::fs::write(&path, text).unwrap();
+    let p = path.to_str().unwrap();
+    let one = gravgrad(&["--threads", "1", "check", "--json", "--quiet", p]);
+    let two = gravgrad(&["--threads", "2", "check", "--json", "--quiet", p]);
+    assert_eq!(one.status.code(), Some(2));
+    assert_eq!(one.stdout, two.stdout);
+    let report: serde_json::Value = serde_json::from_slice(&one.stdout).unwrap();
+    let errors: Vec<_> = problems(&report)
+        .into_iter()
+        .filter(|p| p["severity"] == "error")
+        .collect();
+    // Index 90_001 is CSV row 90_003, less the one skipped sample: row 90_002.
+    assert_eq!(errors.len(), 1, "{errors:?}");
+    assert_eq!(errors[0]["location"]["row"], 90_002);
+    // The sample after the gap (i = 70_001) sits at table index 70_000: CSV row 70_002.
+    assert_eq!(report[0]["flights"][0]["gaps"][0]["row"], 70_002);
+}
