@@ -2,7 +2,9 @@
 //!
 //! - `sample-log`: write a sample raw flight log of any size (tests, benchmarks).
 //! - `demo-data`: regenerate the bundled demo survey in `data/demo/` bit for bit.
+//! - `prism-accuracy`: the prism kernels' error against distance.
 
+mod accuracy;
 mod synthlog;
 mod writers;
 
@@ -41,6 +43,8 @@ enum Task {
         #[arg(long)]
         instrument: Option<PathBuf>,
     },
+    /// Print the prism kernels' error against distance (docs/methods/forward.md).
+    PrismAccuracy,
     /// Regenerate data/demo (flight log, instrument file, recipe).
     DemoData {
         #[arg(long, default_value = "data/demo")]
@@ -77,6 +81,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             }
         }
         Task::DemoData { out } => demo_data(&out)?,
+        Task::PrismAccuracy => accuracy::run(),
     }
     Ok(())
 }
