@@ -3,8 +3,10 @@
 //! - `sample-log`: write a sample raw flight log of any size (tests, benchmarks).
 //! - `demo-data`: regenerate the bundled demo survey in `data/demo/` bit for bit.
 //! - `prism-accuracy`: the prism kernels' error against distance.
+//! - `bench-prisms`: timing of the prism tensor (driven by bench/prisms.py).
 
 mod accuracy;
+mod benchprisms;
 mod synthlog;
 mod writers;
 
@@ -45,6 +47,19 @@ enum Task {
     },
     /// Print the prism kernels' error against distance (docs/methods/forward.md).
     PrismAccuracy,
+    /// Time the prism tensor on the benchmark geometry of bench/prisms.py (JSON on stdout).
+    BenchPrisms {
+        /// Prisms per side of the terrain block.
+        #[arg(long, default_value_t = 60)]
+        side: usize,
+        /// Observation points per side of the lattice.
+        #[arg(long, default_value_t = 20)]
+        points: usize,
+        #[arg(long, default_value_t = 1)]
+        threads: usize,
+        #[arg(long, default_value_t = 5)]
+        repeat: usize,
+    },
     /// Regenerate data/demo (flight log, instrument file, recipe).
     DemoData {
         #[arg(long, default_value = "data/demo")]
@@ -82,6 +97,12 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         }
         Task::DemoData { out } => demo_data(&out)?,
         Task::PrismAccuracy => accuracy::run(),
+        Task::BenchPrisms {
+            side,
+            points,
+            threads,
+            repeat,
+        } => benchprisms::run(side, points, threads, repeat)?,
     }
     Ok(())
 }
