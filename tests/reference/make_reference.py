@@ -13,6 +13,7 @@ Run: python3 tests/reference/make_reference.py   (needs harmonica, boule, numpy)
 """
 import json
 import os
+import sys
 
 import boule
 import harmonica as hm
@@ -129,9 +130,11 @@ def main():
         "prisms": prism_reference(),
         "normal_gravity": normal_gravity_reference(),
     }
-    with open(os.path.join(HERE, "forward_reference.json"), "w") as f:
+    # `--out FILE` writes elsewhere (CI regenerates the file and compares it with the stored one).
+    out = sys.argv[sys.argv.index("--out") + 1] if "--out" in sys.argv else os.path.join(HERE, "forward_reference.json")
+    with open(out, "w") as f:
         json.dump(ref, f, indent=1)
-    print("wrote", os.path.join(HERE, "forward_reference.json"))
+    print("wrote", out)
 
 
 if __name__ == "__main__":
