@@ -131,7 +131,7 @@ pub fn instrument_toml(name: &str, rate: f64, ids: &[String]) -> String {
     s
 }
 
-/// The demo survey: the Corella Downs prospect, an invented scenario. One flight of four survey
+/// The demo survey: the Kestrand Flats prospect, an invented scenario. One flight of four survey
 /// lines at 20 Hz with a navigation-quality log in Parquet, the instrument file and the recipe.
 fn demo_data(out: &Path) -> Result<(), Box<dyn std::error::Error>> {
     std::fs::create_dir_all(out.join("flights"))?;
@@ -148,7 +148,7 @@ fn demo_data(out: &Path) -> Result<(), Box<dyn std::error::Error>> {
         with_extras: true,
         line_length_m: 6000.0,
     };
-    writers::write_parquet(&generate(&spec), &out.join("flights/corella-f01.parquet"))?;
+    writers::write_parquet(&generate(&spec), &out.join("flights/kestrand-f01.parquet"))?;
     std::fs::write(
         out.join("instrument.toml"),
         instrument_toml("demo nine-pair gradiometer", rate, &ids),
@@ -157,11 +157,11 @@ fn demo_data(out: &Path) -> Result<(), Box<dyn std::error::Error>> {
     Ok(())
 }
 
-const DEMO_RECIPE: &str = r#"# Corella Downs demo survey: an invented scenario, not real data.
+const DEMO_RECIPE: &str = r#"# Kestrand Flats demo survey: an invented scenario, not real data.
 layout = "recipe/1"
 
 [survey]
-name = "Corella Downs demo"
+name = "Kestrand Flats demo"
 projection = "utm"
 ellipsoid = "GRS80"
 
