@@ -1,0 +1,1 @@
+//! Gridded products: for now the GeoTIFF writer of single-band rasters (DEMs and grids).

@@ -1,0 +1,1 @@
+//! Synthetic surveys whose answer is known (work in progress, issue 4).
