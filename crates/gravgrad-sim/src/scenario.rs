@@ -1,0 +1,286 @@
+//! The scenario file (`scenario/1`, TOML): geology, terrain, survey plan, flight dynamics and
+//! instrument errors of a synthetic survey. Every key has a default; unknown keys are errors.
+//! Units are in the key names; local coordinates are metres north and east of the area origin.
+
+use serde::Deserialize;
+
+pub const LAYOUT: &str = "scenario/1";
+
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Scenario {
+    pub layout: String,
+    #[serde(default = "default_name")]
+    pub name: String,
+    #[serde(default = "default_seed")]
+    pub seed: u64,
+    #[serde(default)]
+    pub area: Area,
+    #[serde(default)]
+    pub geology: Geology,
+    #[serde(default)]
+    pub terrain: Terrain,
+    #[serde(default)]
+    pub plan: Plan,
+    #[serde(default)]
+    pub dynamics: Dynamics,
+    #[serde(default)]
+    pub instrument: InstrumentErrors,
+}
+
+fn default_name() -> String {
+    "synthetic survey".into()
+}
+fn default_seed() -> u64 {
+    1
+}
+
+/// Where the survey is: the origin of the local north/east frame, and the GPS time of the start.
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Area {
+    pub origin_lat_deg: f64,
+    pub origin_lon_deg: f64,
+    /// Mean ground height above the ellipsoid, m (the terrain model varies about it).
+    pub ground_height_m: f64,
+    /// GPS seconds at the first sample.
+    pub start_time_s: f64,
+}
+
+impl Default for Area {
+    fn default() -> Self {
+        Self {
+            origin_lat_deg: -27.35,
+            origin_lon_deg: 134.10,
+            ground_height_m: 100.0,
+            start_time_s: 1.4e9,
+        }
+    }
+}
+
+/// A rectangular block, NED-aligned: north and east extents (m) and depth below the mean ground (m).
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BlockBody {
+    pub north_m: [f64; 2],
+    pub east_m: [f64; 2],
+    pub depth_m: [f64; 2],
+    pub density_kg_m3: f64,
+}
+
+/// A sphere: centre north, east (m), depth of the centre below the mean ground (m), radius (m).
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SphereBody {
+    pub north_m: f64,
+    pub east_m: f64,
+    pub depth_m: f64,
+    pub radius_m: f64,
+    pub density_kg_m3: f64,
+}
+
+/// Bodies with density contrasts (kg/m³) relative to the host rock.
+#[derive(Clone, Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct Geology {
+    pub prism: Vec<BlockBody>,
+    pub sphere: Vec<SphereBody>,
+}
+
+/// A Gaussian hill: centre (m), height (m, may be negative for a basin), e-folding half-width (m).
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Hill {
+    pub north_m: f64,
+    pub east_m: f64,
+    pub height_m: f64,
+    pub width_m: f64,
+}
+
+/// A ridge: centre (m), azimuth of its crest (degrees from north), crest length, height, half-width.
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Ridge {
+    pub north_m: f64,
+    pub east_m: f64,
+    pub azimuth_deg: f64,
+    pub length_m: f64,
+    pub height_m: f64,
+    pub width_m: f64,
+}
+
+/// The terrain model: hills, ridges and rough ground on the mean ground height, as a DEM of square
+/// cells covering the survey plus a margin; its mass (density kg/m³) is part of the simulated field.
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Terrain {
+    pub cell_m: f64,
+    pub margin_m: f64,
+    pub density_kg_m3: f64,
+    pub hill: Vec<Hill>,
+    pub ridge: Vec<Ridge>,
+    /// RMS of the rough ground, m, and its correlation length, m.
+    pub rough_rms_m: f64,
+    pub rough_length_m: f64,
+}
+
+impl Default for Terrain {
+    fn default() -> Self {
+        Self {
+            cell_m: 50.0,
+            margin_m: 2000.0,
+            density_kg_m3: 2670.0,
+            hill: vec![],
+            ridge: vec![],
+            rough_rms_m: 0.0,
+            rough_length_m: 300.0,
+        }
+    }
+}
+
+/// The survey plan: parallel lines, tie lines across them, drape clearance, speed, rate, turns.
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Plan {
+    /// Direction of the survey lines, degrees clockwise from north (their first pass).
+    pub line_azimuth_deg: f64,
+    pub line_length_m: f64,
+    pub line_spacing_m: f64,
+    pub lines: usize,
+    pub first_line: i64,
+    /// Tie lines across the survey lines, evenly spaced over the line length.
+    pub ties: usize,
+    pub first_tie: i64,
+    /// Drape clearance above the terrain, m.
+    pub clearance_m: f64,
+    pub speed_m_s: f64,
+    pub sample_rate_hz: f64,
+    /// Rate of the turns between lines, °/s.
+    pub turn_rate_deg_s: f64,
+}
+
+impl Default for Plan {
+    fn default() -> Self {
+        Self {
+            line_azimuth_deg: 90.0,
+            line_length_m: 4000.0,
+            line_spacing_m: 200.0,
+            lines: 4,
+            first_line: 101,
+            ties: 1,
+            first_tie: 9001,
+            clearance_m: 100.0,
+            speed_m_s: 60.0,
+            sample_rate_hz: 20.0,
+            turn_rate_deg_s: 3.0,
+        }
+    }
+}
+
+/// Flight dynamics: turbulence and the residual motion of the stabilised platform.
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Dynamics {
+    /// RMS vertical acceleration from turbulence, m/s²; horizontal is a third of it.
+    pub turbulence_m_s2: f64,
+    /// Correlation time of turbulence, s.
+    pub turbulence_time_s: f64,
+    /// RMS of the platform's residual angular rate about each axis, rad/s.
+    pub platform_rate_rad_s: f64,
+    /// Band of the residual platform motion, Hz.
+    pub platform_band_hz: [f64; 2],
+    /// Crab angle into the wind, degrees.
+    pub crab_deg: f64,
+    /// Time constant with which the drape height follows the terrain, s.
+    pub drape_time_s: f64,
+}
+
+impl Default for Dynamics {
+    fn default() -> Self {
+        Self {
+            turbulence_m_s2: 0.3,
+            turbulence_time_s: 2.0,
+            platform_rate_rad_s: 1e-5,
+            platform_band_hz: [0.1, 1.5],
+            crab_deg: 2.0,
+            drape_time_s: 5.0,
+        }
+    }
+}
+
+/// Instrument and navigation errors (all RMS over accelerometers or channels; 0 = none).
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct InstrumentErrors {
+    /// Pair ids of the standard layout (`xx`, `yy`, `zz`, `xy`, `yx`, `xz`, `zx`, `yz`, `zy`).
+    pub pairs: Vec<String>,
+    pub baseline_m: f64,
+    /// White noise of each pair's difference, E/√Hz.
+    pub noise_e_rt_hz: f64,
+    /// Corner below which 1/f noise rises above the white level, Hz (0 = no 1/f noise).
+    pub flicker_corner_hz: f64,
+    pub scale_rms: f64,
+    pub misalignment_rms_rad: f64,
+    pub bias_rms_m_s2: f64,
+    /// Linear drift, m/s² per hour.
+    pub drift_rms_m_s2_h: f64,
+    /// Temperature coefficient, m/s² per °C; the sensor temperature wanders by `temperature_swing_c`.
+    pub temperature_coefficient_rms_m_s2_c: f64,
+    pub temperature_swing_c: f64,
+    pub gyro_noise_rad_s: f64,
+    pub gyro_bias_rad_s: f64,
+    pub accel_noise_m_s2: f64,
+    pub position_noise_m: f64,
+    pub attitude_noise_deg: f64,
+    /// Amplitude of the aircraft's self-gradient, E (0 = none); needs aircraft attitude in the log.
+    pub self_gradient_e: f64,
+}
+
+impl Default for InstrumentErrors {
+    fn default() -> Self {
+        Self {
+            pairs: ["xx", "yy", "zz", "xy", "yx", "xz", "zx", "yz", "zy"]
+                .map(String::from)
+                .to_vec(),
+            baseline_m: 0.2,
+            noise_e_rt_hz: 5.0,
+            flicker_corner_hz: 0.01,
+            scale_rms: 1e-5,
+            misalignment_rms_rad: 1e-5,
+            bias_rms_m_s2: 1e-5,
+            drift_rms_m_s2_h: 1e-8,
+            temperature_coefficient_rms_m_s2_c: 1e-9,
+            temperature_swing_c: 0.5,
+            gyro_noise_rad_s: 1e-6,
+            gyro_bias_rad_s: 1e-7,
+            accel_noise_m_s2: 1e-3,
+            position_noise_m: 0.05,
+            attitude_noise_deg: 0.005,
+            self_gradient_e: 0.0,
+        }
+    }
+}
+
+impl InstrumentErrors {
+    /// The same instrument with every error set to zero (noise-free, perfectly calibrated).
+    pub fn perfect(&self) -> Self {
+        Self {
+            pairs: self.pairs.clone(),
+            baseline_m: self.baseline_m,
+            noise_e_rt_hz: 0.0,
+            flicker_corner_hz: 0.0,
+            scale_rms: 0.0,
+            misalignment_rms_rad: 0.0,
+            bias_rms_m_s2: 0.0,
+            drift_rms_m_s2_h: 0.0,
+            temperature_coefficient_rms_m_s2_c: 0.0,
+            temperature_swing_c: self.temperature_swing_c,
+            gyro_noise_rad_s: 0.0,
+            gyro_bias_rad_s: 0.0,
+            accel_noise_m_s2: 0.0,
+            position_noise_m: 0.0,
+            attitude_noise_deg: 0.0,
+            self_gradient_e: 0.0,
+        }
+    }
+}

@@ -1,0 +1,605 @@
+//! The simulation: flight path, truth field, platform motion and the instrument equation
+//! f(r) = f(O) + (Ω̇ + ΩΩ − G)·r (`docs/physics.md`; Jekeli 2001; Rummel et al. 2011) with the error
+//! model a_j = (1 + ε_j)(n_k + δ_j)·f(r_j) + β_j + β̇_j·t + τ_j·(T − T0) + noise_j.
+//!
+//! Frames: the truth is in NED (local north/east metres, heights above the ellipsoid), the instrument
+//! in the sensor frame; accelerations m/s², rates rad/s, tensors s⁻², angles in the log in degrees.
+
+use crate::noise::{self, Rng};
+use crate::path::{self, Track};
+use crate::scenario::{LAYOUT, Scenario};
+use crate::terrain::{self, Dem, Surface};
+use gravgrad_core::SymTensor;
+use gravgrad_core::attitude::Attitude;
+use gravgrad_core::ellipsoid::GRS80;
+use gravgrad_core::mat3::{self, Mat3, Vec3};
+use gravgrad_core::pairs::PairGeometry;
+use gravgrad_core::units::EOTVOS;
+use gravgrad_forward::normal::NormalField;
+use gravgrad_forward::point;
+use gravgrad_forward::prism::Prism;
+use rayon::prelude::*;
+
+/// A scenario that cannot be simulated.
+#[derive(Debug, thiserror::Error, PartialEq)]
+pub enum SimError {
+    #[error("layout is `{0}`, expected `{LAYOUT}`")]
+    Layout(String),
+    #[error("`{key}` = {value}: {what}")]
+    Value {
+        key: &'static str,
+        value: f64,
+        what: &'static str,
+    },
+    #[error(
+        "`instrument.pairs`: `{0}` is not a pair of the standard layout (xx yy zz xy yx xz zx yz zy)"
+    )]
+    Pair(String),
+}
+
+/// The standard pair layout: axis along the first letter, baseline along the second, centres a few
+/// centimetres apart (sensor frame, metres).
+pub fn standard_pair(id: &str, baseline_m: f64) -> Option<PairGeometry> {
+    let unit = |c: char| match c {
+        'x' => Some([1.0, 0.0, 0.0]),
+        'y' => Some([0.0, 1.0, 0.0]),
+        'z' => Some([0.0, 0.0, 1.0]),
+        _ => None,
+    };
+    let mut ch = id.chars();
+    let (a, b) = (ch.next()?, ch.next()?);
+    if ch.next().is_some() {
+        return None;
+    }
+    let axis = unit(a)?;
+    let dir = unit(b)?;
+    let k = (a as u32 * 7 + b as u32 * 3) % 5;
+    Some(PairGeometry {
+        id: id.to_string(),
+        center: [0.01 * k as f64, -0.01 * k as f64, 0.005 * k as f64],
+        baseline: dir.map(|v| v * baseline_m),
+        axis,
+    })
+}
+
+/// The truth along the path (NED, s⁻²) and where it was taken.
+#[derive(Clone, Debug, Default)]
+pub struct Truth {
+    pub north: Vec<f64>,
+    pub east: Vec<f64>,
+    pub height: Vec<f64>,
+    pub geology: Vec<SymTensor>,
+    pub terrain: Vec<SymTensor>,
+    /// Normal gravitational tensor of GRS80.
+    pub normal: Vec<SymTensor>,
+}
+
+impl Truth {
+    /// Normal + terrain + geology at sample i: what an ideal gradiometer senses.
+    pub fn total(&self, i: usize) -> SymTensor {
+        self.normal[i] + self.terrain[i] + self.geology[i]
+    }
+}
+
+/// The geology tensor on a grid at the survey's mean height.
+#[derive(Clone, Debug, Default)]
+pub struct TruthGrid {
+    pub height_m: f64,
+    pub north: Vec<f64>,
+    pub east: Vec<f64>,
+    /// `values[i * east.len() + j]` at (north[i], east[j]).
+    pub values: Vec<SymTensor>,
+}
+
+/// Everything a simulation produces.
+#[derive(Clone, Debug)]
+pub struct Simulation {
+    /// Raw-log channels in layout order and units (`docs/formats.md`).
+    pub columns: Vec<(String, Vec<f64>)>,
+    pub line: Vec<i64>,
+    pub pairs: Vec<PairGeometry>,
+    pub sample_rate_hz: f64,
+    pub truth: Truth,
+    pub grid: TruthGrid,
+    pub dem: Dem,
+    pub reference_level_m: f64,
+    pub track: Track,
+}
+
+impl Simulation {
+    pub fn column(&self, name: &str) -> Option<&[f64]> {
+        self.columns
+            .iter()
+            .find(|c| c.0 == name)
+            .map(|c| c.1.as_slice())
+    }
+}
+
+/// Geology bodies as prisms and spheres in NED (z down from the ellipsoid).
+fn geology_tensor(s: &Scenario, obs_ned: [f64; 3]) -> SymTensor {
+    let ground = s.area.ground_height_m;
+    let mut t = SymTensor::default();
+    for b in &s.geology.prism {
+        let p = Prism::new(
+            b.north_m,
+            b.east_m,
+            [b.depth_m[0] - ground, b.depth_m[1] - ground],
+            b.density_kg_m3,
+        );
+        t = t + p.tensor(obs_ned);
+    }
+    for b in &s.geology.sphere {
+        let f = point::sphere(
+            b.radius_m,
+            b.density_kg_m3,
+            [b.north_m, b.east_m, b.depth_m - ground],
+            obs_ned,
+        );
+        t = t + f.tensor;
+    }
+    t
+}
+
+fn validate(s: &Scenario) -> Result<(), SimError> {
+    if s.layout != LAYOUT {
+        return Err(SimError::Layout(s.layout.clone()));
+    }
+    let positive = [
+        ("plan.speed_m_s", s.plan.speed_m_s),
+        ("plan.sample_rate_hz", s.plan.sample_rate_hz),
+        ("plan.line_length_m", s.plan.line_length_m),
+        ("plan.line_spacing_m", s.plan.line_spacing_m),
+        ("plan.turn_rate_deg_s", s.plan.turn_rate_deg_s),
+        ("plan.clearance_m", s.plan.clearance_m),
+        ("terrain.cell_m", s.terrain.cell_m),
+        ("instrument.baseline_m", s.instrument.baseline_m),
+        ("dynamics.turbulence_time_s", s.dynamics.turbulence_time_s),
+    ];
+    for (key, value) in positive {
+        if !(value.is_finite() && value > 0.0) {
+            return Err(SimError::Value {
+                key,
+                value,
+                what: "expected a positive number",
+            });
+        }
+    }
+    if s.plan.lines == 0 {
+        return Err(SimError::Value {
+            key: "plan.lines",
+            value: 0.0,
+            what: "expected at least one line",
+        });
+    }
+    for id in &s.instrument.pairs {
+        if standard_pair(id, 1.0).is_none() {
+            return Err(SimError::Pair(id.clone()));
+        }
+    }
+    Ok(())
+}
+
+/// Runs a scenario.
+pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
+    validate(s)?;
+    let seed = s.seed;
+    let rate = s.plan.sample_rate_hz;
+    let surface = Surface::new(&s.area, &s.terrain, seed);
+    let track = path::fly(&s.plan, &s.dynamics, &surface, s.area.start_time_s);
+    let n = track.time_s.len();
+
+    // DEM over the path plus the margin, and its mass relative to its mean elevation.
+    let (nmin, nmax) = minmax(&track.north);
+    let (emin, emax) = minmax(&track.east);
+    let m = s.terrain.margin_m;
+    let dem = surface.dem([nmin - m, nmax + m], [emin - m, emax + m]);
+    let reference = dem.mean();
+    let prisms = terrain::terrain_prisms(&dem, reference, s.terrain.density_kg_m3);
+
+    // Positions (truth) and geodetic coordinates on the ellipsoid's local radii (small-area frame).
+    let lat0 = s.area.origin_lat_deg.to_radians();
+    let e2 = GRS80.e2();
+    let w = (1.0 - e2 * lat0.sin().powi(2)).sqrt();
+    let r_n = GRS80.a / w;
+    let r_m = GRS80.a * (1.0 - e2) / (w * w * w);
+    let lat: Vec<f64> = track.north.iter().map(|nn| lat0 + nn / r_m).collect();
+    let lon: Vec<f64> = track
+        .east
+        .iter()
+        .map(|ee| s.area.origin_lon_deg.to_radians() + ee / (r_n * lat0.cos()))
+        .collect();
+
+    let points: Vec<[f64; 3]> = (0..n)
+        .map(|i| [track.north[i], track.east[i], track.height[i]])
+        .collect();
+    let terrain_t = terrain::terrain_tensor(&prisms, &points);
+    let nf = NormalField::new(&GRS80);
+    let normal_t: Vec<SymTensor> = (0..n)
+        .into_par_iter()
+        .map(|i| nf.gravitational_tensor_ned(lat[i], track.height[i]))
+        .collect();
+    let geology_t: Vec<SymTensor> = points
+        .par_iter()
+        .map(|p| geology_tensor(s, [p[0], p[1], -p[2]]))
+        .collect();
+    let gravity_n: Vec<[f64; 3]> = (0..n)
+        .into_par_iter()
+        .map(|i| nf.gravity_ned(lat[i], track.height[i]))
+        .collect();
+
+    // Residual platform rotation: sinusoids in the platform band, analytic rate and acceleration.
+    let mut rng = Rng::new(seed, 1);
+    let [f_lo, f_hi] = s.dynamics.platform_band_hz;
+    let waves: Vec<(Vec3, f64, f64)> = (0..8)
+        .map(|_| {
+            let a = s.dynamics.platform_rate_rad_s / 2.0;
+            (
+                [a * rng.normal(), a * rng.normal(), a * rng.normal()],
+                f_lo + (f_hi - f_lo) * rng.uniform(),
+                2.0 * std::f64::consts::PI * rng.uniform(),
+            )
+        })
+        .collect();
+    let tau = s.dynamics.turbulence_time_s;
+    let turb: Vec<Vec<f64>> = (0..3)
+        .map(|k| {
+            let sigma = if k == 2 {
+                s.dynamics.turbulence_m_s2
+            } else {
+                s.dynamics.turbulence_m_s2 / 3.0
+            };
+            noise::gauss_markov(&mut Rng::new(seed, 10 + k), n, sigma, tau, rate)
+        })
+        .collect();
+
+    // Attitude of the stabilised platform and its angular rate in the sensor frame.
+    let mut att = Vec::with_capacity(n);
+    let mut omega = Vec::with_capacity(n);
+    #[allow(clippy::needless_range_loop)] // i indexes six parallel series
+    for i in 0..n {
+        let t = i as f64 / rate;
+        let mut w_res = [0.0; 3];
+        let mut ang = [0.0; 3];
+        for (a, f, ph) in &waves {
+            let arg = 2.0 * std::f64::consts::PI * f * t + ph;
+            for k in 0..3 {
+                w_res[k] += a[k] * arg.sin();
+                ang[k] -= a[k] * arg.cos() / (2.0 * std::f64::consts::PI * f);
+            }
+        }
+        let heading = (track.track_deg[i] + s.dynamics.crab_deg).to_radians() + ang[2];
+        let a = Attitude {
+            roll: ang[0],
+            pitch: ang[1],
+            heading,
+        };
+        let c = a.c_sn();
+        let (vn, ve) = (track.velocity[i][0], track.velocity[i][1]);
+        let (sl, cl) = lat[i].sin_cos();
+        let h = track.height[i];
+        let w_n = [
+            GRS80.omega * cl + ve / (r_n + h),
+            -vn / (r_m + h),
+            -GRS80.omega * sl - ve * sl / cl / (r_n + h) + track.track_rate[i],
+        ];
+        let w_s = mat3::mul_vec(&mat3::transpose(&c), &w_n);
+        omega.push([w_s[0] + w_res[0], w_s[1] + w_res[1], w_s[2] + w_res[2]]);
+        att.push(a);
+    }
+    // Angular acceleration: central differences of the sensor-frame rate.
+    let alpha: Vec<Vec3> = (0..n)
+        .map(|i| {
+            let (a, b) = (i.saturating_sub(1), (i + 1).min(n - 1));
+            let span = (b - a) as f64 / rate;
+            if span > 0.0 {
+                std::array::from_fn(|k| (omega[b][k] - omega[a][k]) / span)
+            } else {
+                [0.0; 3]
+            }
+        })
+        .collect();
+
+    // Instrument errors, per accelerometer.
+    let ie = &s.instrument;
+    let pairs: Vec<PairGeometry> = ie
+        .pairs
+        .iter()
+        .filter_map(|id| standard_pair(id, ie.baseline_m))
+        .collect();
+    let white_density = ie.noise_e_rt_hz * EOTVOS * ie.baseline_m / std::f64::consts::SQRT_2;
+    let temp_rng = &mut Rng::new(seed, 20);
+    let temperature: Vec<f64> = {
+        let slow = noise::gauss_markov(temp_rng, n, ie.temperature_swing_c, 600.0, rate);
+        slow.iter().map(|v| 31.0 + v).collect()
+    };
+    let t0 = temperature.first().copied().unwrap_or(31.0);
+
+    struct Acc {
+        scale: f64,
+        misalign: Vec3,
+        bias: f64,
+        drift: f64,
+        tempco: f64,
+        noise: Vec<f64>,
+    }
+    let accels: Vec<[Acc; 2]> = pairs
+        .iter()
+        .enumerate()
+        .map(|(k, p)| {
+            std::array::from_fn(|j| {
+                let mut r = Rng::new(seed, 100 + 2 * k as u64 + j as u64);
+                // Misalignment perpendicular to the axis.
+                let any = if p.axis[0].abs() < 0.9 {
+                    [1.0, 0.0, 0.0]
+                } else {
+                    [0.0, 1.0, 0.0]
+                };
+                let u = unit(mat3::cross(&p.axis, &any));
+                let v = mat3::cross(&p.axis, &u);
+                let (m1, m2) = (
+                    ie.misalignment_rms_rad * r.normal(),
+                    ie.misalignment_rms_rad * r.normal(),
+                );
+                let mut nz = noise::white(&mut r, n, white_density, rate);
+                let fl = noise::flicker(&mut r, n, white_density, ie.flicker_corner_hz, rate);
+                for (a, b) in nz.iter_mut().zip(fl) {
+                    *a += b;
+                }
+                Acc {
+                    scale: ie.scale_rms * r.normal(),
+                    misalign: [
+                        m1 * u[0] + m2 * v[0],
+                        m1 * u[1] + m2 * v[1],
+                        m1 * u[2] + m2 * v[2],
+                    ],
+                    bias: ie.bias_rms_m_s2 * r.normal(),
+                    drift: ie.drift_rms_m_s2_h * r.normal() / 3600.0,
+                    tempco: ie.temperature_coefficient_rms_m_s2_c * r.normal(),
+                    noise: nz,
+                }
+            })
+        })
+        .collect();
+
+    // Self-gradient: a fixed trace-free pattern scaled by the aircraft's attitude relative to the
+    // platform (bank in turns, gusts on lines).
+    let mut sg_rng = Rng::new(seed, 30);
+    let pattern = |r: &mut Rng| -> SymTensor {
+        let mut t = SymTensor::from_array(std::array::from_fn(|_| r.normal()));
+        let tr = t.trace() / 3.0;
+        t.xx -= tr;
+        t.yy -= tr;
+        t.zz -= tr;
+        t
+    };
+    let (pat_roll, pat_pitch) = (pattern(&mut sg_rng), pattern(&mut sg_rng));
+    let gust = noise::gauss_markov(&mut Rng::new(seed, 31), n, 1.5f64.to_radians(), 3.0, rate);
+    let ac_roll: Vec<f64> = (0..n)
+        .map(|i| (track.track_rate[i] * s.plan.speed_m_s / 9.81).atan() + gust[i])
+        .collect();
+    let ac_pitch: Vec<f64> = (0..n)
+        .map(|i| 2f64.to_radians() + 0.3 * gust[(i + n / 2) % n.max(1)])
+        .collect();
+
+    let truth = Truth {
+        north: track.north.clone(),
+        east: track.east.clone(),
+        height: track.height.clone(),
+        geology: geology_t,
+        terrain: terrain_t,
+        normal: normal_t,
+    };
+
+    // Pair outputs.
+    let mut pair_cols: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 2 * pairs.len()];
+    let mut fs_all = Vec::with_capacity(n);
+    for i in 0..n {
+        let c = att[i].c_sn();
+        let ct = mat3::transpose(&c);
+        let a_kin = [
+            track.accel[i][0] + turb[0][i],
+            track.accel[i][1] + turb[1][i],
+            track.accel[i][2] + turb[2][i],
+        ];
+        let f_n = [
+            a_kin[0] - gravity_n[i][0],
+            a_kin[1] - gravity_n[i][1],
+            a_kin[2] - gravity_n[i][2],
+        ];
+        let f_s = mat3::mul_vec(&ct, &f_n);
+        fs_all.push(f_s);
+        let mut g_s = truth.total(i).rotated(&ct);
+        if ie.self_gradient_e != 0.0 {
+            let amp = ie.self_gradient_e * EOTVOS;
+            g_s = g_s
+                + pat_roll.scaled(amp * ac_roll[i].sin())
+                + pat_pitch.scaled(amp * (ac_pitch[i] - 2f64.to_radians()).sin() * 10.0);
+        }
+        let w = omega[i];
+        let wd = skew(&alpha[i]);
+        let ww = mat3::mul(&skew(&w), &skew(&w));
+        let gm = g_s.to_matrix();
+        let m: Mat3 =
+            std::array::from_fn(|a| std::array::from_fn(|b| wd[a][b] + ww[a][b] - gm[a][b]));
+        let t = i as f64 / rate;
+        for (k, p) in pairs.iter().enumerate() {
+            for (j, sign) in [(0usize, 0.5), (1usize, -0.5)] {
+                let r = [
+                    p.center[0] + sign * p.baseline[0],
+                    p.center[1] + sign * p.baseline[1],
+                    p.center[2] + sign * p.baseline[2],
+                ];
+                let mr = mat3::mul_vec(&m, &r);
+                let f = [f_s[0] + mr[0], f_s[1] + mr[1], f_s[2] + mr[2]];
+                let e = &accels[k][j];
+                let axis = [
+                    p.axis[0] + e.misalign[0],
+                    p.axis[1] + e.misalign[1],
+                    p.axis[2] + e.misalign[2],
+                ];
+                let out = (1.0 + e.scale) * mat3::dot(&axis, &f)
+                    + e.bias
+                    + e.drift * t
+                    + e.tempco * (temperature[i] - t0)
+                    + e.noise[i];
+                pair_cols[2 * k + j].push(out);
+            }
+        }
+    }
+
+    // Logged navigation with its errors.
+    let nav_rng = |stream: u64| Rng::new(seed, 200 + stream);
+    let pos_noise =
+        |r: &mut Rng, sd: f64| -> Vec<f64> { (0..n).map(|_| sd * r.normal()).collect() };
+    let (dn, de, dh) = (
+        pos_noise(&mut nav_rng(0), ie.position_noise_m),
+        pos_noise(&mut nav_rng(1), ie.position_noise_m),
+        pos_noise(&mut nav_rng(2), ie.position_noise_m),
+    );
+    let att_noise: Vec<Vec<f64>> = (0..3)
+        .map(|k| pos_noise(&mut nav_rng(3 + k), ie.attitude_noise_deg))
+        .collect();
+    let gyro: Vec<Vec<f64>> = (0..3)
+        .map(|k| {
+            let mut r = nav_rng(10 + k);
+            let bias = ie.gyro_bias_rad_s * r.normal();
+            (0..n)
+                .map(|i| omega[i][k as usize] + bias + ie.gyro_noise_rad_s * r.normal())
+                .collect()
+        })
+        .collect();
+    let accel: Vec<Vec<f64>> = (0..3)
+        .map(|k| {
+            let mut r = nav_rng(20 + k);
+            (0..n)
+                .map(|i| fs_all[i][k as usize] + ie.accel_noise_m_s2 * r.normal())
+                .collect()
+        })
+        .collect();
+    let mut clear_rng = nav_rng(30);
+
+    let mut columns: Vec<(String, Vec<f64>)> = vec![
+        ("time".into(), track.time_s.clone()),
+        (
+            "lat".into(),
+            (0..n)
+                .map(|i| (lat[i] + dn[i] / r_m).to_degrees())
+                .collect(),
+        ),
+        (
+            "lon".into(),
+            (0..n)
+                .map(|i| (lon[i] + de[i] / (r_n * lat0.cos())).to_degrees())
+                .collect(),
+        ),
+        (
+            "height".into(),
+            (0..n).map(|i| track.height[i] + dh[i]).collect(),
+        ),
+        (
+            "roll".into(),
+            (0..n)
+                .map(|i| att[i].roll.to_degrees() + att_noise[0][i])
+                .collect(),
+        ),
+        (
+            "pitch".into(),
+            (0..n)
+                .map(|i| att[i].pitch.to_degrees() + att_noise[1][i])
+                .collect(),
+        ),
+        (
+            "heading".into(),
+            (0..n)
+                .map(|i| (att[i].heading.to_degrees() + att_noise[2][i]).rem_euclid(360.0))
+                .collect(),
+        ),
+    ];
+    for (k, name) in ["wx", "wy", "wz"].iter().enumerate() {
+        columns.push((name.to_string(), gyro[k].clone()));
+    }
+    for (k, name) in ["fx", "fy", "fz"].iter().enumerate() {
+        columns.push((name.to_string(), accel[k].clone()));
+    }
+    columns.push(("temp".into(), temperature.clone()));
+    columns.push((
+        "clearance".into(),
+        (0..n)
+            .map(|i| {
+                track.height[i] - surface.height(track.north[i], track.east[i])
+                    + 0.5 * clear_rng.normal()
+            })
+            .collect(),
+    ));
+    if ie.self_gradient_e != 0.0 {
+        columns.push((
+            "ac_roll".into(),
+            ac_roll.iter().map(|v| v.to_degrees()).collect(),
+        ));
+        columns.push((
+            "ac_pitch".into(),
+            ac_pitch.iter().map(|v| v.to_degrees()).collect(),
+        ));
+        columns.push((
+            "ac_heading".into(),
+            (0..n)
+                .map(|i| att[i].heading.to_degrees().rem_euclid(360.0))
+                .collect(),
+        ));
+    }
+    for (k, p) in pairs.iter().enumerate() {
+        columns.push((format!("{}_a", p.id), std::mem::take(&mut pair_cols[2 * k])));
+        columns.push((
+            format!("{}_b", p.id),
+            std::mem::take(&mut pair_cols[2 * k + 1]),
+        ));
+    }
+
+    // Geology truth on a grid at the mean survey height over the surveyed area.
+    let mean_h = track.height.iter().sum::<f64>() / n.max(1) as f64;
+    let cell = s.plan.line_spacing_m / 2.0;
+    let gn: Vec<f64> = (0..=((nmax - nmin) / cell).ceil() as usize)
+        .map(|k| nmin + k as f64 * cell)
+        .collect();
+    let ge: Vec<f64> = (0..=((emax - emin) / cell).ceil() as usize)
+        .map(|k| emin + k as f64 * cell)
+        .collect();
+    let values: Vec<SymTensor> = (0..gn.len() * ge.len())
+        .into_par_iter()
+        .map(|k| geology_tensor(s, [gn[k / ge.len()], ge[k % ge.len()], -mean_h]))
+        .collect();
+    let grid = TruthGrid {
+        height_m: mean_h,
+        north: gn,
+        east: ge,
+        values,
+    };
+
+    Ok(Simulation {
+        columns,
+        line: track.line.clone(),
+        pairs,
+        sample_rate_hz: rate,
+        truth,
+        grid,
+        dem,
+        reference_level_m: reference,
+        track,
+    })
+}
+
+fn minmax(v: &[f64]) -> (f64, f64) {
+    v.iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| {
+            (a.min(*x), b.max(*x))
+        })
+}
+
+fn skew(w: &Vec3) -> Mat3 {
+    [[0.0, -w[2], w[1]], [w[2], 0.0, -w[0]], [-w[1], w[0], 0.0]]
+}
+
+fn unit(v: Vec3) -> Vec3 {
+    let n = mat3::norm(&v).max(1e-300);
+    [v[0] / n, v[1] / n, v[2] / n]
+}
