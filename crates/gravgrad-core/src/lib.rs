@@ -15,6 +15,7 @@ pub mod ellipsoid;
 pub mod error;
 pub mod mat3;
 pub mod pairs;
+pub mod projection;
 pub mod table;
 pub mod tensor;
 pub mod units;
