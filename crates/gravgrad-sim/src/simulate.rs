@@ -14,6 +14,7 @@ use gravgrad_core::attitude::Attitude;
 use gravgrad_core::ellipsoid::GRS80;
 use gravgrad_core::mat3::{self, Mat3, Vec3};
 use gravgrad_core::pairs::PairGeometry;
+use gravgrad_core::projection::TransverseMercator;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_forward::normal::NormalField;
 use gravgrad_forward::point;
@@ -91,6 +92,25 @@ pub struct TruthGrid {
     pub values: Vec<SymTensor>,
 }
 
+/// The map frame: UTM zone and the grid coordinates of the local origin (easting, northing, m).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Projection {
+    pub zone: u32,
+    pub south: bool,
+    pub false_origin: [f64; 2],
+}
+
+impl Projection {
+    /// EPSG code of the UTM zone on WGS84 (GRS80 differs from it by 0.1 mm in b).
+    pub fn epsg(&self) -> u32 {
+        if self.south {
+            32700 + self.zone
+        } else {
+            32600 + self.zone
+        }
+    }
+}
+
 /// Everything a simulation produces.
 #[derive(Clone, Debug)]
 pub struct Simulation {
@@ -104,6 +124,7 @@ pub struct Simulation {
     pub dem: Dem,
     pub reference_level_m: f64,
     pub track: Track,
+    pub projection: Projection,
 }
 
 impl Simulation {
@@ -196,23 +217,44 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
     let reference = dem.mean();
     let prisms = terrain::terrain_prisms(&dem, reference, s.terrain.density_kg_m3);
 
-    // Positions (truth) and geodetic coordinates on the ellipsoid's local radii (small-area frame).
-    let lat0 = s.area.origin_lat_deg.to_radians();
-    let e2 = GRS80.e2();
-    let w = (1.0 - e2 * lat0.sin().powi(2)).sqrt();
-    let r_n = GRS80.a / w;
-    let r_m = GRS80.a * (1.0 - e2) / (w * w * w);
-    let lat: Vec<f64> = track.north.iter().map(|nn| lat0 + nn / r_m).collect();
-    let lon: Vec<f64> = track
-        .east
-        .iter()
-        .map(|ee| s.area.origin_lon_deg.to_radians() + ee / (r_n * lat0.cos()))
+    // Local coordinates are UTM grid metres from the origin's projection (zone of the origin): the
+    // frame the DEM and the products use. Geodetic positions by the inverse projection; tensors
+    // computed in the grid frame are turned to true north by the meridian convergence γ.
+    let south = s.area.origin_lat_deg < 0.0;
+    let zone = TransverseMercator::utm_zone_of(s.area.origin_lon_deg);
+    let tm = TransverseMercator::utm(&GRS80, zone, south).map_err(|_| SimError::Value {
+        key: "area.origin_lon_deg",
+        value: s.area.origin_lon_deg,
+        what: "outside −180 to 180",
+    })?;
+    let (e0, n0, _, _) = tm.forward(
+        s.area.origin_lat_deg.to_radians(),
+        s.area.origin_lon_deg.to_radians(),
+    );
+    let geo: Vec<(f64, f64, f64)> = (0..n)
+        .into_par_iter()
+        .map(|i| {
+            let (la, lo) = tm.inverse(e0 + track.east[i], n0 + track.north[i]);
+            let (_, _, gamma, _) = tm.forward(la, lo);
+            (la, lo, gamma)
+        })
         .collect();
+    let lat: Vec<f64> = geo.iter().map(|g| g.0).collect();
+    let lon: Vec<f64> = geo.iter().map(|g| g.1).collect();
+    let gamma: Vec<f64> = geo.iter().map(|g| g.2).collect();
+    let to_true = |t: SymTensor, g: f64| t.rotated(&rz(g));
+    let e2 = GRS80.e2();
+    let r_n = |la: f64| GRS80.a / (1.0 - e2 * la.sin().powi(2)).sqrt();
+    let r_m = |la: f64| GRS80.a * (1.0 - e2) / (1.0 - e2 * la.sin().powi(2)).powf(1.5);
 
     let points: Vec<[f64; 3]> = (0..n)
         .map(|i| [track.north[i], track.east[i], track.height[i]])
         .collect();
-    let terrain_t = terrain::terrain_tensor(&prisms, &points);
+    let terrain_t: Vec<SymTensor> = terrain::terrain_tensor(&prisms, &points)
+        .into_iter()
+        .zip(&gamma)
+        .map(|(t, g)| to_true(t, *g))
+        .collect();
     let nf = NormalField::new(&GRS80);
     let normal_t: Vec<SymTensor> = (0..n)
         .into_par_iter()
@@ -220,7 +262,8 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         .collect();
     let geology_t: Vec<SymTensor> = points
         .par_iter()
-        .map(|p| geology_tensor(s, [p[0], p[1], -p[2]]))
+        .zip(&gamma)
+        .map(|(p, g)| to_true(geology_tensor(s, [p[0], p[1], -p[2]]), *g))
         .collect();
     let gravity_n: Vec<[f64; 3]> = (0..n)
         .into_par_iter()
@@ -267,20 +310,22 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
                 ang[k] -= a[k] * arg.cos() / (2.0 * std::f64::consts::PI * f);
             }
         }
-        let heading = (track.track_deg[i] + s.dynamics.crab_deg).to_radians() + ang[2];
+        // True heading = grid track + convergence + crab.
+        let heading = (track.track_deg[i] + s.dynamics.crab_deg).to_radians() + gamma[i] + ang[2];
         let a = Attitude {
             roll: ang[0],
             pitch: ang[1],
             heading,
         };
         let c = a.c_sn();
-        let (vn, ve) = (track.velocity[i][0], track.velocity[i][1]);
+        let v_true = mat3::mul_vec(&rz(gamma[i]), &track.velocity[i]);
+        let (vn, ve) = (v_true[0], v_true[1]);
         let (sl, cl) = lat[i].sin_cos();
         let h = track.height[i];
         let w_n = [
-            GRS80.omega * cl + ve / (r_n + h),
-            -vn / (r_m + h),
-            -GRS80.omega * sl - ve * sl / cl / (r_n + h) + track.track_rate[i],
+            GRS80.omega * cl + ve / (r_n(lat[i]) + h),
+            -vn / (r_m(lat[i]) + h),
+            -GRS80.omega * sl - ve * sl / cl / (r_n(lat[i]) + h) + track.track_rate[i],
         ];
         let w_s = mat3::mul_vec(&mat3::transpose(&c), &w_n);
         omega.push([w_s[0] + w_res[0], w_s[1] + w_res[1], w_s[2] + w_res[2]]);
@@ -396,10 +441,11 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
     for i in 0..n {
         let c = att[i].c_sn();
         let ct = mat3::transpose(&c);
+        let acc_true = mat3::mul_vec(&rz(gamma[i]), &track.accel[i]);
         let a_kin = [
-            track.accel[i][0] + turb[0][i],
-            track.accel[i][1] + turb[1][i],
-            track.accel[i][2] + turb[2][i],
+            acc_true[0] + turb[0][i],
+            acc_true[1] + turb[1][i],
+            acc_true[2] + turb[2][i],
         ];
         let f_n = [
             a_kin[0] - gravity_n[i][0],
@@ -483,13 +529,13 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         (
             "lat".into(),
             (0..n)
-                .map(|i| (lat[i] + dn[i] / r_m).to_degrees())
+                .map(|i| (lat[i] + dn[i] / r_m(lat[i])).to_degrees())
                 .collect(),
         ),
         (
             "lon".into(),
             (0..n)
-                .map(|i| (lon[i] + de[i] / (r_n * lat0.cos())).to_degrees())
+                .map(|i| (lon[i] + de[i] / (r_n(lat[i]) * lat[i].cos())).to_degrees())
                 .collect(),
         ),
         (
@@ -585,6 +631,11 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         dem,
         reference_level_m: reference,
         track,
+        projection: Projection {
+            zone,
+            south,
+            false_origin: [e0, n0],
+        },
     })
 }
 
@@ -593,6 +644,12 @@ fn minmax(v: &[f64]) -> (f64, f64) {
         .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| {
             (a.min(*x), b.max(*x))
         })
+}
+
+/// Rotation about the down axis by γ: grid-frame vectors into true NED (grid north has true azimuth γ).
+fn rz(g: f64) -> Mat3 {
+    let (s, c) = g.sin_cos();
+    [[c, -s, 0.0], [s, c, 0.0], [0.0, 0.0, 1.0]]
 }
 
 fn skew(w: &Vec3) -> Mat3 {
