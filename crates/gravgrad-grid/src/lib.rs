@@ -1,1 +1,3 @@
 //! Gridded products: for now the GeoTIFF writer of single-band rasters (DEMs and grids).
+
+pub mod geotiff;

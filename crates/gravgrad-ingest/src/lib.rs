@@ -5,7 +5,8 @@
 //! [`gravgrad_core::table::FlightTable`]s in layout units; reads instrument and recipe files; merges
 //! a slower navigation table onto the gradiometer's time base; validates values and time stamps
 //! with exact locations (file, row, column, key); estimates the sample rate, finds gaps and cuts
-//! flights into lines.
+//! flights into lines. Reads single-band GeoTIFF rasters (terrain models) into
+//! [`gravgrad_core::Raster`]s.
 //!
 //! This crate reads files but writes none and prints nothing: it returns data and
 //! [`gravgrad_core::Problem`]s, and the binary decides what to show.
@@ -13,6 +14,7 @@
 pub mod check;
 pub mod columns;
 pub mod csv;
+pub mod geotiff_reader;
 pub mod hdf5_reader;
 pub mod instrument;
 pub mod layout;

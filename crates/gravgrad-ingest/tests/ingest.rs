@@ -143,3 +143,142 @@ fn the_column_map_renames_and_converts_units() {
     assert_eq!(table.get("fz").unwrap(), &[-9.80665]);
     assert!((table.get("temp").unwrap()[0] - 27.0).abs() < 1e-12);
 }
+
+// ---------------------------------------------------------------------------------------------
+// GeoTIFF rasters written by rasterio (GDAL): tests/corpus/make_rasters.py writes them with
+// invented values; the numbers below are that script's, not our writer's. CI regenerates the files
+// with the current rasterio and points GRAVGRAD_RASTER_CORPUS at them.
+
+mod geotiff {
+    use gravgrad_ingest::geotiff_reader::read_geotiff;
+    use std::path::PathBuf;
+
+    fn corpus(rel: &str) -> PathBuf {
+        let root = std::env::var_os("GRAVGRAD_RASTER_CORPUS")
+            .map(PathBuf::from)
+            .unwrap_or_else(|| {
+                PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../tests/corpus")
+            });
+        root.join(rel)
+    }
+
+    /// Float32, deflate, 16 × 16 tiles, EPSG:32753, 25 m cells from (512000 E, 7120000 N),
+    /// value = 140 + 0.5 col − 0.25 row, nodata −9999 at (col 0, row 0) and (col 33, row 17).
+    #[test]
+    fn rasterio_float32_tiled_deflate() {
+        let r = read_geotiff(&corpus("good/dem_rasterio.tif")).unwrap();
+        assert_eq!((r.nx, r.ny), (40, 30));
+        assert_eq!(
+            (r.x_min, r.y_max, r.dx, r.dy),
+            (512_000.0, 7_120_000.0, 25.0, 25.0)
+        );
+        assert_eq!(r.epsg, Some(32753));
+        assert_eq!(r.nodata, Some(-9999.0));
+        for row in 0..30 {
+            for col in 0..40 {
+                let v = r.get(col, row).unwrap();
+                if (col, row) == (0, 0) || (col, row) == (33, 17) {
+                    assert!(r.is_missing(v), "({col}, {row}) = {v}");
+                } else {
+                    assert_eq!(
+                        v,
+                        140.0 + 0.5 * col as f64 - 0.25 * row as f64,
+                        "({col}, {row})"
+                    );
+                }
+            }
+        }
+    }
+
+    /// Int16, LZW, strips of 4 rows, EPSG:4326, 0.00125° cells from (134.5 E, 24 S),
+    /// value = 300 + col − 3 row, nodata −32768 at (col 11, row 9).
+    #[test]
+    fn rasterio_int16_geographic_lzw() {
+        let r = read_geotiff(&corpus("good/dem_rasterio_int16.tif")).unwrap();
+        assert_eq!((r.nx, r.ny), (12, 10));
+        assert_eq!(
+            (r.x_min, r.y_max, r.dx, r.dy),
+            (134.5, -24.0, 0.00125, 0.00125)
+        );
+        assert_eq!(r.epsg, Some(4326));
+        assert_eq!(r.nodata, Some(-32768.0));
+        assert_eq!(r.get(0, 0), Some(300.0));
+        assert_eq!(r.get(5, 7), Some(284.0));
+        assert_eq!(r.get(11, 9), Some(-32768.0));
+        assert_eq!(r.get(10, 9), Some(283.0));
+    }
+
+    /// AREA_OR_POINT=Point: GDAL stores the first cell's centre (512012.5, 7119975) as the tie
+    /// point with PixelIsPoint; the outer corner is still (512000, 7120000), 25 m × 50 m cells.
+    #[test]
+    fn rasterio_pixel_is_point() {
+        let path = corpus("good/dem_rasterio_point.tif");
+        let mut dec = tiff::decoder::Decoder::new(std::fs::File::open(&path).unwrap()).unwrap();
+        let tie = dec
+            .get_tag_f64_vec(tiff::tags::Tag::ModelTiepointTag)
+            .unwrap();
+        assert_eq!(&tie[3..5], &[512_012.5, 7_119_975.0]);
+        let r = read_geotiff(&path).unwrap();
+        assert_eq!(
+            (r.x_min, r.y_max, r.dx, r.dy),
+            (512_000.0, 7_120_000.0, 25.0, 50.0)
+        );
+        assert_eq!(r.epsg, Some(32753));
+        assert_eq!(r.nodata, None);
+        assert_eq!(r.get(2, 3), Some(15.0)); // 10 + col + row
+    }
+
+    /// Each bad file is refused with one error, located at the file, naming the tag at fault.
+    #[test]
+    fn rasterio_bad_files_are_refused() {
+        for (file, tag) in [
+            ("bad/dem_rotated.tif", "ModelTransformationTag (34264)"),
+            ("bad/dem_two_bands.tif", "SamplesPerPixel tag 277"),
+            ("bad/dem_no_georef.tif", "ModelPixelScaleTag (33550)"),
+        ] {
+            let path = corpus(file);
+            let problems = read_geotiff(&path).unwrap_err();
+            assert_eq!(problems.len(), 1, "{file}: {problems:?}");
+            let p = &problems[0];
+            assert!(p.is_error());
+            assert_eq!(p.location.file.as_deref(), Some(path.as_path()), "{file}");
+            assert!(p.message.contains(tag), "{file}: {}", p.message);
+        }
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig { cases: 500, .. Default::default() })]
+
+        /// A rasterio file with bytes overwritten anywhere (tags, offsets, compressed data): the
+        /// reader returns a raster or problems and never panics.
+        #[test]
+        fn damaged_files_never_panic(
+            hits in proptest::collection::vec((0usize..4096, proptest::prelude::any::<u8>()), 1..8),
+            which in 0usize..3,
+        ) {
+            let name = ["good/dem_rasterio.tif", "good/dem_rasterio_int16.tif", "good/dem_rasterio_point.tif"][which];
+            let mut bytes = std::fs::read(corpus(name)).unwrap();
+            for (at, b) in hits {
+                let n = bytes.len();
+                bytes[at % n] = b;
+            }
+            let dir = tempfile::tempdir().unwrap();
+            let path = dir.path().join("damaged.tif");
+            std::fs::write(&path, &bytes).unwrap();
+            let _ = read_geotiff(&path);
+        }
+    }
+
+    /// Not a TIFF at all, and a missing file: one located error each, no panic.
+    #[test]
+    fn not_a_tiff() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dem.tif");
+        std::fs::write(&path, b"height\n1\n").unwrap();
+        let p = read_geotiff(&path).unwrap_err();
+        assert_eq!(p.len(), 1);
+        assert_eq!(p[0].location.file.as_deref(), Some(path.as_path()));
+        let p = read_geotiff(&dir.path().join("none.tif")).unwrap_err();
+        assert!(p[0].message.contains("cannot open"), "{}", p[0].message);
+    }
+}

@@ -1,0 +1,357 @@
+//! Reader for single-band GeoTIFF rasters (terrain models and grids, `docs/formats.md`, section
+//! "GeoTIFF rasters").
+//!
+//! Frame: the file's map frame by EPSG code — projected (metres) or geographic (degrees); the
+//! result is a north-up [`Raster`] whose `x_min`, `y_max` are the outer north-west corner of the
+//! grid, with positive cell sizes in the same units. Samples (float32/64, signed and unsigned
+//! integers up to 32 bits) come back as f64 in whatever unit the file holds. Strips or tiles,
+//! uncompressed, deflate, LZW or PackBits, as the `tiff` crate decodes them. Only the first image of
+//! the file is read; further images (overviews, masks) are ignored.
+//!
+//! Refused, each with the file and the tag at fault: more than one band; no georeferencing (no
+//! pixel scale and tie point, no transformation matrix); a rotated or sheared grid; a south-up or
+//! otherwise flipped grid; a CRS not given by an EPSG code; units other than metres or degrees.
+
+use gravgrad_core::{Location, Problem, Raster};
+use std::fs::File;
+use std::io::BufReader;
+use std::path::Path;
+use tiff::decoder::{Decoder, DecodingResult, Limits};
+use tiff::tags::Tag;
+
+/// GeoKey ids and values (OGC GeoTIFF 1.1 standard).
+mod key {
+    pub const GT_MODEL_TYPE: u16 = 1024;
+    pub const GT_RASTER_TYPE: u16 = 1025;
+    pub const GEOGRAPHIC_TYPE: u16 = 2048;
+    pub const GEOG_ANGULAR_UNITS: u16 = 2054;
+    pub const PROJECTED_CS_TYPE: u16 = 3072;
+    pub const PROJ_LINEAR_UNITS: u16 = 3076;
+    pub const MODEL_PROJECTED: u16 = 1;
+    pub const MODEL_GEOGRAPHIC: u16 = 2;
+    pub const RASTER_PIXEL_IS_POINT: u16 = 2;
+    pub const USER_DEFINED: u16 = 32767;
+    /// EPSG unit codes: metre; degree and "degree (supplier to define representation)".
+    pub const UNIT_METRE: u16 = 9001;
+    pub const UNIT_DEGREE: [u16; 2] = [9102, 9122];
+}
+
+/// Largest decoded image accepted, in bytes (a 16 000 × 16 000 float32 terrain model).
+const MAX_IMAGE_BYTES: usize = 1 << 30;
+
+/// Reads a single-band GeoTIFF into a north-up raster (frame and units in the module
+/// documentation). Every problem carries the file's location and names the tag at fault.
+pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
+    let loc = Location::file(path);
+    let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
+    let file = File::open(path).map_err(|e| fail(format!("cannot open: {e}")))?;
+    let mut limits = Limits::default();
+    limits.decoding_buffer_size = MAX_IMAGE_BYTES;
+    let mut dec = Decoder::new(BufReader::new(file))
+        .map_err(|e| fail(format!("not a readable TIFF file: {e}")))?
+        .with_limits(limits);
+
+    let samples: u16 = dec
+        .find_tag_unsigned(Tag::SamplesPerPixel)
+        .map_err(|e| fail(format!("unreadable SamplesPerPixel tag (277): {e}")))?
+        .unwrap_or(1);
+    if samples != 1 {
+        return Err(vec![
+            Problem::error(
+                loc.clone(),
+                format!("{samples} bands (SamplesPerPixel tag 277); a raster here has one band"),
+            )
+            .with_hint("write each band to its own file"),
+        ]);
+    }
+    let (width, height) = dec.dimensions().map_err(|e| {
+        fail(format!(
+            "unreadable ImageWidth/ImageLength tags (256, 257): {e}"
+        ))
+    })?;
+    let (nx, ny) = (width as usize, height as usize);
+
+    let geometry = read_geometry(&mut dec, &loc)?;
+    let epsg = read_crs(&mut dec, &loc)?;
+    let nodata = match dec.find_tag(Tag::GdalNodata) {
+        Ok(None) => None,
+        Ok(Some(v)) => {
+            let text = v
+                .into_string()
+                .map_err(|e| fail(format!("GDAL_NODATA tag (42113) is not text: {e}")))?;
+            Some(parse_nodata(&text).ok_or_else(|| {
+                fail(format!(
+                    "GDAL_NODATA tag (42113) holds {text:?}, which is not a number"
+                ))
+            })?)
+        }
+        Err(e) => return Err(fail(format!("unreadable GDAL_NODATA tag (42113): {e}"))),
+    };
+
+    let image = dec
+        .read_image()
+        .map_err(|e| fail(format!("cannot decode the image data: {e}")))?;
+    let values: Vec<f64> = match image {
+        DecodingResult::F32(v) => v.into_iter().map(f64::from).collect(),
+        DecodingResult::F64(v) => v,
+        DecodingResult::F16(v) => v.into_iter().map(|x| x.to_f64()).collect(),
+        DecodingResult::I8(v) => v.into_iter().map(f64::from).collect(),
+        DecodingResult::I16(v) => v.into_iter().map(f64::from).collect(),
+        DecodingResult::I32(v) => v.into_iter().map(f64::from).collect(),
+        DecodingResult::U8(v) => v.into_iter().map(f64::from).collect(),
+        DecodingResult::U16(v) => v.into_iter().map(f64::from).collect(),
+        DecodingResult::U32(v) => v.into_iter().map(f64::from).collect(),
+        DecodingResult::I64(_) | DecodingResult::U64(_) => {
+            return Err(fail(
+                "64-bit integer samples (BitsPerSample tag 258) are not read; store float64".into(),
+            ));
+        }
+    };
+    let (x_min, y_max, dx, dy) = geometry;
+    let mut raster = Raster::new(nx, ny, (x_min, y_max), (dx, dy), values)
+        .map_err(|e| fail(format!("the image does not form a raster: {e}")))?;
+    raster.epsg = epsg;
+    raster.nodata = nodata;
+    Ok(raster)
+}
+
+/// GDAL_NODATA text to a number: decimal, or `nan`/`inf` in any case, surrounded by spaces.
+fn parse_nodata(text: &str) -> Option<f64> {
+    let t = text.trim_matches(|c: char| c.is_whitespace() || c == '\0');
+    t.parse::<f64>().ok()
+}
+
+type Geometry = (f64, f64, f64, f64);
+
+/// (x_min, y_max, dx, dy) of the grid's outer corner and cells, in the frame's units.
+fn read_geometry<R: std::io::Read + std::io::Seek>(
+    dec: &mut Decoder<R>,
+    loc: &Location,
+) -> Result<Geometry, Vec<Problem>> {
+    let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
+    let f64s = |dec: &mut Decoder<R>, tag: Tag, name: &str| -> Result<Option<Vec<f64>>, _> {
+        match dec.find_tag(tag) {
+            Ok(None) => Ok(None),
+            Ok(Some(v)) => v
+                .into_f64_vec()
+                .map(Some)
+                .map_err(|e| fail(format!("{name} holds no numbers: {e}"))),
+            Err(e) => Err(fail(format!("unreadable {name}: {e}"))),
+        }
+    };
+    let scale = f64s(dec, Tag::ModelPixelScaleTag, "ModelPixelScaleTag (33550)")?;
+    let ties = f64s(dec, Tag::ModelTiepointTag, "ModelTiepointTag (33922)")?;
+    let matrix = f64s(
+        dec,
+        Tag::ModelTransformationTag,
+        "ModelTransformationTag (34264)",
+    )?;
+    let point = raster_is_point(dec, loc)?;
+
+    let (mut x_min, mut y_max, dx, dy) = match (scale, ties, matrix) {
+        (Some(s), Some(t), _) => {
+            if s.len() < 2 {
+                return Err(fail(format!(
+                    "ModelPixelScaleTag (33550) holds {} values, needs at least 2",
+                    s.len()
+                )));
+            }
+            if t.len() != 6 {
+                return Err(vec![
+                    Problem::error(
+                        loc.clone(),
+                        format!(
+                            "ModelTiepointTag (33922) holds {} values: a grid tied by several \
+                             control points is not a regular raster",
+                            t.len()
+                        ),
+                    )
+                    .with_hint("resample it onto a regular north-up grid first"),
+                ]);
+            }
+            let (dx, dy) = (s[0], s[1]);
+            (t[3] - t[0] * dx, t[4] + t[1] * dy, dx, dy)
+        }
+        (_, _, Some(m)) => {
+            if m.len() != 16 {
+                return Err(fail(format!(
+                    "ModelTransformationTag (34264) holds {} values, needs 16",
+                    m.len()
+                )));
+            }
+            if m[1] != 0.0 || m[4] != 0.0 {
+                return Err(vec![
+                    Problem::error(
+                        loc.clone(),
+                        "ModelTransformationTag (34264) rotates or shears the grid; only north-up \
+                         rasters are read",
+                    )
+                    .with_hint("resample it onto a north-up grid first"),
+                ]);
+            }
+            (m[3], m[7], m[0], -m[5])
+        }
+        (None, None, None) => {
+            return Err(vec![
+                Problem::error(
+                    loc.clone(),
+                    "no georeferencing: neither ModelPixelScaleTag (33550) with ModelTiepointTag \
+                     (33922) nor ModelTransformationTag (34264)",
+                )
+                .with_hint("a plain image carries no position; write it as a GeoTIFF"),
+            ]);
+        }
+        (Some(_), None, None) => {
+            return Err(fail(
+                "ModelPixelScaleTag (33550) without ModelTiepointTag (33922): the grid has no \
+                 position"
+                    .into(),
+            ));
+        }
+        (None, Some(_), None) => {
+            return Err(fail(
+                "ModelTiepointTag (33922) without ModelPixelScaleTag (33550): the cell size is \
+                 unknown"
+                    .into(),
+            ));
+        }
+    };
+    if !(dx.is_finite() && dx > 0.0 && dy.is_finite() && dy > 0.0) {
+        return Err(vec![
+            Problem::error(
+                loc.clone(),
+                format!(
+                    "cell size {dx} × {dy} from the georeferencing tags (33550/33922 or 34264): \
+                     only north-up grids with positive cell sizes are read"
+                ),
+            )
+            .with_hint("flip the grid to north-up first"),
+        ]);
+    }
+    if point {
+        // PixelIsPoint: the tie point is the first cell's centre; move it to the outer corner.
+        x_min -= 0.5 * dx;
+        y_max += 0.5 * dy;
+    }
+    if !(x_min.is_finite() && y_max.is_finite()) {
+        return Err(fail(format!(
+            "grid corner ({x_min}, {y_max}) from the georeferencing tags is not finite"
+        )));
+    }
+    Ok((x_min, y_max, dx, dy))
+}
+
+/// The GeoKeyDirectory as (id, value) pairs of the keys stored inline (location 0); `None` when
+/// the file has none.
+fn geokeys<R: std::io::Read + std::io::Seek>(
+    dec: &mut Decoder<R>,
+    loc: &Location,
+) -> Result<Option<Vec<(u16, u16)>>, Vec<Problem>> {
+    let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
+    let dir = match dec.find_tag(Tag::GeoKeyDirectoryTag) {
+        Ok(None) => return Ok(None),
+        Ok(Some(v)) => v
+            .into_u16_vec()
+            .map_err(|e| fail(format!("GeoKeyDirectoryTag (34735) holds no shorts: {e}")))?,
+        Err(e) => return Err(fail(format!("unreadable GeoKeyDirectoryTag (34735): {e}"))),
+    };
+    let n = dir.get(3).copied().unwrap_or(0) as usize;
+    if dir.len() < 4 || dir.len() < 4 + 4 * n {
+        return Err(fail(format!(
+            "GeoKeyDirectoryTag (34735) announces {n} keys but holds {} values",
+            dir.len()
+        )));
+    }
+    Ok(Some(
+        dir[4..4 + 4 * n]
+            .chunks_exact(4)
+            .filter(|k| k[1] == 0)
+            .map(|k| (k[0], k[3]))
+            .collect(),
+    ))
+}
+
+fn raster_is_point<R: std::io::Read + std::io::Seek>(
+    dec: &mut Decoder<R>,
+    loc: &Location,
+) -> Result<bool, Vec<Problem>> {
+    let keys = geokeys(dec, loc)?.unwrap_or_default();
+    Ok(lookup(&keys, key::GT_RASTER_TYPE) == Some(key::RASTER_PIXEL_IS_POINT))
+}
+
+fn lookup(keys: &[(u16, u16)], id: u16) -> Option<u16> {
+    keys.iter().find(|k| k.0 == id).map(|k| k.1)
+}
+
+/// The EPSG code of the file's frame; `None` when the file states no frame at all.
+fn read_crs<R: std::io::Read + std::io::Seek>(
+    dec: &mut Decoder<R>,
+    loc: &Location,
+) -> Result<Option<u32>, Vec<Problem>> {
+    let refuse = |msg: String| {
+        vec![
+            Problem::error(loc.clone(), msg)
+                .with_hint("reproject the raster into a frame with an EPSG code, in m or degrees"),
+        ]
+    };
+    let Some(keys) = geokeys(dec, loc)? else {
+        return Ok(None);
+    };
+    let model = lookup(&keys, key::GT_MODEL_TYPE);
+    let projected = lookup(&keys, key::PROJECTED_CS_TYPE);
+    let geographic = lookup(&keys, key::GEOGRAPHIC_TYPE);
+    let code = match (model, projected, geographic) {
+        (Some(key::MODEL_PROJECTED), Some(c), _) | (None, Some(c), _) => {
+            if let Some(u) = lookup(&keys, key::PROJ_LINEAR_UNITS)
+                && u != key::UNIT_METRE
+            {
+                return Err(refuse(format!(
+                    "ProjLinearUnitsGeoKey (3076) is unit {u}, not metres (9001) \
+                     (GeoKeyDirectoryTag 34735)"
+                )));
+            }
+            ("ProjectedCSTypeGeoKey (3072)", c)
+        }
+        (Some(key::MODEL_GEOGRAPHIC), _, Some(c)) | (None, None, Some(c)) => {
+            if let Some(u) = lookup(&keys, key::GEOG_ANGULAR_UNITS)
+                && !key::UNIT_DEGREE.contains(&u)
+            {
+                return Err(refuse(format!(
+                    "GeogAngularUnitsGeoKey (2054) is unit {u}, not degrees (9102) \
+                     (GeoKeyDirectoryTag 34735)"
+                )));
+            }
+            ("GeographicTypeGeoKey (2048)", c)
+        }
+        (None, None, None) => return Ok(None),
+        (Some(m), _, _) => {
+            return Err(refuse(format!(
+                "GTModelTypeGeoKey (1024) is {m} with no EPSG code for that kind of frame \
+                 (GeoKeyDirectoryTag 34735); only projected (1) and geographic (2) frames \
+                 given by EPSG code are read"
+            )));
+        }
+    };
+    let (name, c) = code;
+    if c == key::USER_DEFINED || c == 0 {
+        return Err(refuse(format!(
+            "{name} is {c}: the frame is not given by an EPSG code (GeoKeyDirectoryTag 34735)"
+        )));
+    }
+    Ok(Some(u32::from(c)))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn nodata_spellings() {
+        // Spellings GDAL writes into GDAL_NODATA (from memory): plain decimals, "nan", "-inf".
+        assert_eq!(parse_nodata("-9999"), Some(-9999.0));
+        assert_eq!(parse_nodata("-32768\0"), Some(-32768.0));
+        assert!(parse_nodata("nan").unwrap().is_nan());
+        assert_eq!(parse_nodata("-inf"), Some(f64::NEG_INFINITY));
+        assert_eq!(parse_nodata("none"), None);
+    }
+}
