@@ -5,6 +5,8 @@ mod check_cmd;
 mod demo_cmd;
 mod logging;
 mod report;
+mod simulate_cmd;
+mod tables;
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
@@ -34,6 +36,8 @@ struct Cli {
 enum Command {
     /// Validate raw flight logs, instrument files and recipes; exit 2 if any has an error.
     Check(check_cmd::CheckArgs),
+    /// Simulate a survey with known truth from a scenario file: raw log, instrument, DEM, recipe, truth.
+    Simulate(simulate_cmd::SimulateArgs),
     /// Check the bundled demo survey and show what gravgrad reports on it.
     Demo {
         /// Folder of the demo survey (default: the repository's data/demo).
@@ -71,6 +75,7 @@ fn main() -> ExitCode {
     let code = match cli.command {
         Command::Check(args) => check_cmd::run(&args, &log, cli.json),
         Command::Demo { data } => demo_cmd::run(data, &log, cli.json),
+        Command::Simulate(args) => simulate_cmd::run(&args, &log),
     };
     ExitCode::from(code)
 }

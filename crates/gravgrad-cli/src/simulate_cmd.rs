@@ -1,0 +1,235 @@
+//! `gravgrad simulate SCENARIO --out DIR`: a synthetic survey with its truth, written as the files a
+//! real survey would bring (raw log, instrument file, DEM, recipe) plus the truth tables.
+
+use crate::logging::Log;
+use crate::tables::{Column, write_csv, write_parquet};
+use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
+use clap::Args;
+use gravgrad_core::raster::Raster;
+use gravgrad_core::units::EOTVOS;
+use gravgrad_grid::geotiff::{WriteOptions, write_geotiff};
+use gravgrad_ingest::tomlfile;
+use gravgrad_sim::scenario::Scenario;
+use gravgrad_sim::simulate::{Simulation, simulate};
+use std::path::{Path, PathBuf};
+
+#[derive(Args, Debug)]
+pub struct SimulateArgs {
+    /// Scenario file (layout `scenario/1`, TOML).
+    #[arg(value_name = "SCENARIO")]
+    pub scenario: PathBuf,
+    /// Output folder (created; files in it are replaced).
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+}
+
+const COMPONENTS: [&str; 6] = ["xx", "xy", "xz", "yy", "yz", "zz"];
+
+pub fn run(args: &SimulateArgs, log: &Log) -> u8 {
+    let scenario: Scenario = match tomlfile::read(&args.scenario) {
+        Ok(s) => s,
+        Err(p) => {
+            eprintln!("{p}");
+            return EXIT_BAD_INPUT;
+        }
+    };
+    log.info(&format!(
+        "simulating {} (seed {})",
+        scenario.name, scenario.seed
+    ));
+    let sim = match simulate(&scenario) {
+        Ok(s) => s,
+        Err(e) => {
+            eprintln!("error: {}: {e}", args.scenario.display());
+            return EXIT_BAD_INPUT;
+        }
+    };
+    match write_all(&args.scenario, &scenario, &sim, &args.out, log) {
+        Ok(()) => {
+            log.info(&format!(
+                "{} samples, {} lines; written to {}",
+                sim.line.len(),
+                count_lines(&sim),
+                args.out.display()
+            ));
+            0
+        }
+        Err(e) => {
+            eprintln!("error: {e}");
+            EXIT_FAILURE
+        }
+    }
+}
+
+fn count_lines(sim: &Simulation) -> usize {
+    let mut ids: Vec<i64> = sim.line.iter().copied().filter(|l| *l > 0).collect();
+    ids.dedup();
+    ids.sort();
+    ids.dedup();
+    ids.len()
+}
+
+/// A file-name-safe form of the scenario name.
+fn slug(name: &str) -> String {
+    let s: String = name
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() {
+                c.to_ascii_lowercase()
+            } else {
+                '-'
+            }
+        })
+        .collect();
+    let s = s.trim_matches('-').to_string();
+    if s.is_empty() { "survey".into() } else { s }
+}
+
+fn write_all(
+    scenario_path: &Path,
+    s: &Scenario,
+    sim: &Simulation,
+    out: &Path,
+    log: &Log,
+) -> Result<(), String> {
+    let name = slug(&s.name);
+    // Raw flight log: layout columns plus `line`.
+    let mut cols: Vec<(&str, Column<'_>)> = sim
+        .columns
+        .iter()
+        .map(|(n, v)| (n.as_str(), Column::F64(v)))
+        .collect();
+    cols.push(("line", Column::I64(&sim.line)));
+    let flights = out.join("flights");
+    write_parquet(&flights.join(format!("{name}-f01.parquet")), &cols)
+        .map_err(|e| e.to_string())?;
+    write_csv(
+        &flights.join(format!("{name}-f01.csv")),
+        "layout: raw-flight/1 (simulated)",
+        &cols,
+    )
+    .map_err(|e| e.to_string())?;
+    log.info("raw flight log written (Parquet and CSV)");
+
+    // Instrument file.
+    let mut inst = format!(
+        "layout = \"instrument/1\"\nname = \"simulated nine-pair gradiometer\"\nsample_rate_hz = {:?}\n",
+        sim.sample_rate_hz
+    );
+    for p in &sim.pairs {
+        inst.push_str(&format!(
+            "\n[[pair]]\nid = \"{}\"\ncenter_m = [{:?}, {:?}, {:?}]\nbaseline_m = [{:?}, {:?}, {:?}]\naxis = [{:?}, {:?}, {:?}]\n",
+            p.id, p.center[0], p.center[1], p.center[2], p.baseline[0], p.baseline[1], p.baseline[2], p.axis[0], p.axis[1], p.axis[2]
+        ));
+    }
+    write_text(&out.join("instrument.toml"), &inst)?;
+
+    // DEM in the survey's UTM zone, float32, north-up.
+    let [e0, n0] = sim.projection.false_origin;
+    let dem = &sim.dem;
+    let raster = Raster::new(
+        dem.ncol,
+        dem.nrow,
+        (e0 + dem.east_min, n0 + dem.north_max),
+        (dem.cell_m, dem.cell_m),
+        dem.values.clone(),
+    )
+    .map_err(|e| format!("DEM: {e}"))?
+    .with_epsg(sim.projection.epsg());
+    write_geotiff(&raster, &out.join("dem.tif"), &WriteOptions::default())
+        .map_err(|e| e.to_string())?;
+
+    // Recipe that processes the survey.
+    let recipe = format!(
+        "# Processes the simulated survey `{}` (seed {}).\nlayout = \"recipe/1\"\n\n[survey]\nname = \"{}\"\nprojection = \"EPSG:{}\"\n\n[input]\nflights = [\"flights/*.parquet\"]\n\n[instrument]\npath = \"instrument.toml\"\n\n[terrain]\ndem = \"dem.tif\"\ndensity_kg_m3 = {:?}\nmargin_m = {:?}\n\n[level]\nfirst_tie_line = {}\n\n[grid]\ncell_m = {:?}\n",
+        s.name,
+        s.seed,
+        s.name,
+        sim.projection.epsg(),
+        s.terrain.density_kg_m3,
+        s.terrain.margin_m,
+        s.plan.first_tie,
+        s.plan.line_spacing_m / 4.0
+    );
+    write_text(&out.join("recipe.toml"), &recipe)?;
+
+    // Truth along the path (NED, Eötvös) and on the grid (map frame, Eötvös).
+    let t = &sim.truth;
+    let n = t.north.len();
+    let e_abs: Vec<f64> = t.east.iter().map(|v| v + e0).collect();
+    let n_abs: Vec<f64> = t.north.iter().map(|v| v + n0).collect();
+    let mut truth_cols: Vec<(String, Vec<f64>)> = Vec::new();
+    for (label, series) in [
+        ("geology", &t.geology),
+        ("terrain", &t.terrain),
+        ("normal", &t.normal),
+    ] {
+        for (k, c) in COMPONENTS.iter().enumerate() {
+            truth_cols.push((
+                format!("{label}_{c}"),
+                series.iter().map(|x| x.to_array()[k] / EOTVOS).collect(),
+            ));
+        }
+    }
+    let total: Vec<Vec<f64>> = (0..6)
+        .map(|k| (0..n).map(|i| t.total(i).to_array()[k] / EOTVOS).collect())
+        .collect();
+    let time = sim.column("time").unwrap_or(&[]);
+    let mut tc: Vec<(&str, Column<'_>)> = vec![
+        ("time", Column::F64(time)),
+        ("line", Column::I64(&sim.line)),
+        ("easting", Column::F64(&e_abs)),
+        ("northing", Column::F64(&n_abs)),
+        ("height", Column::F64(&t.height)),
+    ];
+    for (name, v) in &truth_cols {
+        tc.push((name.as_str(), Column::F64(v)));
+    }
+    let total_names: Vec<String> = COMPONENTS.iter().map(|c| format!("total_{c}")).collect();
+    for (name, v) in total_names.iter().zip(&total) {
+        tc.push((name.as_str(), Column::F64(v)));
+    }
+    write_parquet(&out.join("truth/lines.parquet"), &tc).map_err(|e| e.to_string())?;
+
+    let g = &sim.grid;
+    let (mut ge, mut gn) = (Vec::new(), Vec::new());
+    for nn in &g.north {
+        for ee in &g.east {
+            gn.push(nn + n0);
+            ge.push(ee + e0);
+        }
+    }
+    let gh = vec![g.height_m; ge.len()];
+    let gcols: Vec<(String, Vec<f64>)> = COMPONENTS
+        .iter()
+        .enumerate()
+        .map(|(k, c)| {
+            (
+                format!("geology_{c}"),
+                g.values.iter().map(|x| x.to_array()[k] / EOTVOS).collect(),
+            )
+        })
+        .collect();
+    let mut gc: Vec<(&str, Column<'_>)> = vec![
+        ("easting", Column::F64(&ge)),
+        ("northing", Column::F64(&gn)),
+        ("height", Column::F64(&gh)),
+    ];
+    for (name, v) in &gcols {
+        gc.push((name.as_str(), Column::F64(v)));
+    }
+    write_parquet(&out.join("truth/grid.parquet"), &gc).map_err(|e| e.to_string())?;
+    let scenario_text = std::fs::read_to_string(scenario_path)
+        .map_err(|e| format!("{}: {e}", scenario_path.display()))?;
+    write_text(&out.join("truth/scenario.toml"), &scenario_text)?;
+    log.info("truth written (truth/lines.parquet, truth/grid.parquet)");
+    Ok(())
+}
+
+fn write_text(path: &Path, text: &str) -> Result<(), String> {
+    crate::tables::write_atomic(path, |f| {
+        use std::io::Write;
+        f.write_all(text.as_bytes()).map_err(|e| e.to_string())
+    })
+    .map_err(|e| e.to_string())
+}

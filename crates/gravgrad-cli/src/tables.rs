@@ -1,0 +1,159 @@
+//! Writers of plain tables (raw flight logs, truth tables) as Parquet and CSV. Every file is written
+//! under a temporary name in its folder and renamed when complete, so an interrupted run never leaves
+//! a half-written file under the final name; the same table always gives the same bytes.
+
+use parquet::basic::{Compression, ZstdLevel};
+use parquet::data_type::{DoubleType, Int64Type};
+use parquet::file::properties::WriterProperties;
+use parquet::file::writer::SerializedFileWriter;
+use parquet::schema::parser::parse_message_type;
+use std::io::{BufWriter, Write};
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+/// One column of a table.
+pub enum Column<'a> {
+    F64(&'a [f64]),
+    I64(&'a [i64]),
+}
+
+impl Column<'_> {
+    fn len(&self) -> usize {
+        match self {
+            Column::F64(v) => v.len(),
+            Column::I64(v) => v.len(),
+        }
+    }
+}
+
+/// A failed write, with the file it concerned.
+#[derive(Debug)]
+pub struct WriteError {
+    pub path: PathBuf,
+    pub what: String,
+}
+
+impl std::fmt::Display for WriteError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}: cannot write: {}", self.path.display(), self.what)
+    }
+}
+
+fn err(path: &Path, e: impl std::fmt::Display) -> WriteError {
+    WriteError {
+        path: path.to_path_buf(),
+        what: e.to_string(),
+    }
+}
+
+/// The temporary name beside `path`.
+fn temp_of(path: &Path) -> PathBuf {
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    path.with_file_name(format!(".{name}.partial"))
+}
+
+/// Writes bytes produced by `fill` to `path` through a temporary file and a rename.
+pub fn write_atomic(
+    path: &Path,
+    fill: impl FnOnce(&mut std::fs::File) -> Result<(), String>,
+) -> Result<(), WriteError> {
+    if let Some(dir) = path.parent() {
+        std::fs::create_dir_all(dir).map_err(|e| err(path, e))?;
+    }
+    let tmp = temp_of(path);
+    let mut f = std::fs::File::create(&tmp).map_err(|e| err(path, e))?;
+    if let Err(e) = fill(&mut f).and_then(|_| f.sync_all().map_err(|e| e.to_string())) {
+        let _ = std::fs::remove_file(&tmp);
+        return Err(err(path, e));
+    }
+    std::fs::rename(&tmp, path).map_err(|e| err(path, e))
+}
+
+/// Parquet: REQUIRED DOUBLE / INT64 columns, zstd, row groups of 128k rows.
+pub fn write_parquet(path: &Path, columns: &[(&str, Column<'_>)]) -> Result<(), WriteError> {
+    let n = columns.first().map_or(0, |c| c.1.len());
+    if let Some((name, _)) = columns.iter().find(|c| c.1.len() != n) {
+        return Err(err(path, format!("column `{name}` has a different length")));
+    }
+    let fields: Vec<String> = columns
+        .iter()
+        .map(|(name, c)| match c {
+            Column::F64(_) => format!("REQUIRED DOUBLE {name};"),
+            Column::I64(_) => format!("REQUIRED INT64 {name};"),
+        })
+        .collect();
+    write_atomic(path, |file| {
+        let schema = Arc::new(
+            parse_message_type(&format!("message table {{ {} }}", fields.join(" ")))
+                .map_err(|e| e.to_string())?,
+        );
+        let level = ZstdLevel::try_new(3).map_err(|e| e.to_string())?;
+        let props = Arc::new(
+            WriterProperties::builder()
+                .set_compression(Compression::ZSTD(level))
+                .set_created_by("gravgrad".into())
+                .build(),
+        );
+        let mut w = SerializedFileWriter::new(file, schema, props).map_err(|e| e.to_string())?;
+        let mut start = 0;
+        while start < n.max(1) {
+            let end = (start + 131_072).min(n);
+            let mut rg = w.next_row_group().map_err(|e| e.to_string())?;
+            for (_, c) in columns {
+                if let Some(mut col) = rg.next_column().map_err(|e| e.to_string())? {
+                    match c {
+                        Column::F64(v) => {
+                            col.typed::<DoubleType>()
+                                .write_batch(&v[start..end], None, None)
+                        }
+                        Column::I64(v) => {
+                            col.typed::<Int64Type>()
+                                .write_batch(&v[start..end], None, None)
+                        }
+                    }
+                    .map_err(|e| e.to_string())?;
+                    col.close().map_err(|e| e.to_string())?;
+                }
+            }
+            rg.close().map_err(|e| e.to_string())?;
+            start = end.max(start + 1);
+        }
+        w.close().map_err(|e| e.to_string())?;
+        Ok(())
+    })
+}
+
+/// CSV with a `#` comment line, the header, and numbers in shortest round-trip form (exact).
+pub fn write_csv(
+    path: &Path,
+    comment: &str,
+    columns: &[(&str, Column<'_>)],
+) -> Result<(), WriteError> {
+    let n = columns.first().map_or(0, |c| c.1.len());
+    write_atomic(path, |file| {
+        let mut w = BufWriter::with_capacity(1 << 20, file);
+        let head: Vec<&str> = columns.iter().map(|c| c.0).collect();
+        let mut text = format!("# {comment}\n{}\n", head.join(","));
+        for i in 0..n {
+            for (k, (_, c)) in columns.iter().enumerate() {
+                if k > 0 {
+                    text.push(',');
+                }
+                match c {
+                    Column::F64(v) => text.push_str(&format!("{}", v[i])),
+                    Column::I64(v) => text.push_str(&format!("{}", v[i])),
+                }
+            }
+            text.push('\n');
+            if text.len() > 1 << 20 {
+                w.write_all(text.as_bytes()).map_err(|e| e.to_string())?;
+                text.clear();
+            }
+        }
+        w.write_all(text.as_bytes()).map_err(|e| e.to_string())?;
+        w.flush().map_err(|e| e.to_string())
+    })
+}
