@@ -66,8 +66,8 @@ fn the_demo_runs() {
         String::from_utf8_lossy(&out.stderr)
     );
     let text = String::from_utf8_lossy(&out.stdout);
-    assert!(text.contains("kestrand-f01.parquet"), "{text}");
-    assert!(text.contains("lines        4"), "{text}");
+    assert!(text.contains("kestrand-flats-demo-f01.parquet"), "{text}");
+    assert!(text.contains("lines        5"), "{text}");
 }
 
 #[test]

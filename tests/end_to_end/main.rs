@@ -2,6 +2,7 @@
 
 mod commands;
 mod corpus;
+mod simulate;
 
 use std::path::PathBuf;
 use std::process::Output;

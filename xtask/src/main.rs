@@ -1,7 +1,6 @@
 //! Developer tasks: `cargo run -p xtask -- <task>`.
 //!
 //! - `sample-log`: write a sample raw flight log of any size (tests, benchmarks).
-//! - `demo-data`: regenerate the bundled demo survey in `data/demo/` bit for bit.
 //! - `prism-accuracy`: the prism kernels' error against distance.
 //! - `bench-prisms`: timing of the prism tensor (driven by bench/prisms.py).
 
@@ -60,11 +59,6 @@ enum Task {
         #[arg(long, default_value_t = 5)]
         repeat: usize,
     },
-    /// Regenerate data/demo (flight log, instrument file, recipe).
-    DemoData {
-        #[arg(long, default_value = "data/demo")]
-        out: PathBuf,
-    },
 }
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
@@ -95,7 +89,6 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
                 std::fs::write(p, instrument_toml("sample triad", rate, &ids))?;
             }
         }
-        Task::DemoData { out } => demo_data(&out)?,
         Task::PrismAccuracy => accuracy::run(),
         Task::BenchPrisms {
             side,
@@ -130,50 +123,3 @@ pub fn instrument_toml(name: &str, rate: f64, ids: &[String]) -> String {
     }
     s
 }
-
-/// The demo survey: the Kestrand Flats prospect, an invented scenario. One flight of four survey
-/// lines at 20 Hz with a navigation-quality log in Parquet, the instrument file and the recipe.
-fn demo_data(out: &Path) -> Result<(), Box<dyn std::error::Error>> {
-    std::fs::create_dir_all(out.join("flights"))?;
-    let ids = pair_ids(9);
-    let rate = 20.0;
-    let line_s = 6000.0 / 60.0;
-    let rows = ((4.0 * line_s + 3.0 * 60.0) * rate) as usize;
-    let spec = LogSpec {
-        rows,
-        rate_hz: rate,
-        seed: 2026,
-        pairs: ids.clone(),
-        with_line_column: true,
-        with_extras: true,
-        line_length_m: 6000.0,
-    };
-    writers::write_parquet(&generate(&spec), &out.join("flights/kestrand-f01.parquet"))?;
-    std::fs::write(
-        out.join("instrument.toml"),
-        instrument_toml("demo nine-pair gradiometer", rate, &ids),
-    )?;
-    std::fs::write(out.join("recipe.toml"), DEMO_RECIPE)?;
-    Ok(())
-}
-
-const DEMO_RECIPE: &str = r#"# Kestrand Flats demo survey: an invented scenario, not real data.
-layout = "recipe/1"
-
-[survey]
-name = "Kestrand Flats demo"
-projection = "utm"
-ellipsoid = "GRS80"
-
-[input]
-flights = ["flights/*.parquet"]
-
-[instrument]
-path = "instrument.toml"
-
-[filter]
-cutoff_wavelength_m = 400.0
-
-[grid]
-cell_m = 50.0
-"#;

@@ -243,3 +243,74 @@ fn noise_has_the_configured_density_and_seeds_change_only_the_realisation() {
     }
     assert!(series[0].iter().zip(&series[1]).any(|(a, b)| a != b));
 }
+
+#[test]
+fn demo_statistics_are_realistic_and_as_configured() {
+    // data/demo/scenario.toml: turbulence 0.3 m/s² RMS, clearance 100 m, 60 m/s, 5 E/√Hz.
+    // Realistic ranges (common practice, no source): light-to-moderate survey turbulence 0.05–1.5
+    // m/s² RMS vertical; drape within ±15 m of plan on average over gentle terrain; survey speeds
+    // 50–80 m/s.
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../../data/demo/scenario.toml"
+    ))
+    .unwrap();
+    let s = scenario(&text);
+    let sim = simulate(&s).unwrap();
+    let on: Vec<usize> = (0..sim.line.len())
+        .filter(|&i| sim.line[i] > 0 && sim.line[i] < s.plan.first_tie)
+        .collect();
+    let mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
+    let std = |v: &[f64]| {
+        let m = mean(v);
+        (v.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / v.len() as f64).sqrt()
+    };
+    let fz: Vec<f64> = on.iter().map(|&i| col(&sim, "fz")[i]).collect();
+    let turb = std(&fz);
+    assert!(
+        (0.05..1.5).contains(&turb) && (turb / s.dynamics.turbulence_m_s2 - 1.0).abs() < 0.25,
+        "vertical acceleration RMS {turb}"
+    );
+    let clear: Vec<f64> = on.iter().map(|&i| col(&sim, "clearance")[i]).collect();
+    assert!(
+        (mean(&clear) - s.plan.clearance_m).abs() < 15.0,
+        "mean clearance {}",
+        mean(&clear)
+    );
+    let dt = 1.0 / s.plan.sample_rate_hz;
+    let speeds: Vec<f64> = on
+        .windows(2)
+        .filter(|w| w[1] == w[0] + 1)
+        .map(|w| {
+            ((sim.track.north[w[1]] - sim.track.north[w[0]]).powi(2)
+                + (sim.track.east[w[1]] - sim.track.east[w[0]]).powi(2))
+            .sqrt()
+                / dt
+        })
+        .collect();
+    assert!(
+        (mean(&speeds) - s.plan.speed_m_s).abs() < 0.01 * s.plan.speed_m_s
+            && (50.0..80.0).contains(&mean(&speeds))
+    );
+    // Noise density as configured: the same scenario with noise as the only instrument error.
+    let mut quiet = s.clone();
+    quiet.instrument = s.instrument.perfect();
+    quiet.instrument.noise_e_rt_hz = s.instrument.noise_e_rt_hz;
+    quiet.instrument.flicker_corner_hz = s.instrument.flicker_corner_hz;
+    let q = simulate(&quiet).unwrap();
+    for id in ["xx", "yy", "zz"] {
+        let d: Vec<f64> = on
+            .iter()
+            .map(|&i| {
+                (col(&q, &format!("{id}_a"))[i] - col(&q, &format!("{id}_b"))[i]) / 0.2 / 1e-9
+            })
+            .collect();
+        let dd: Vec<f64> = d.windows(3).map(|w| w[2] - 2.0 * w[1] + w[0]).collect();
+        let rms = (dd.iter().map(|v| v * v).sum::<f64>() / dd.len() as f64).sqrt();
+        let density = rms / (6f64.sqrt() * (s.plan.sample_rate_hz / 2.0).sqrt());
+        assert!(
+            (density / s.instrument.noise_e_rt_hz - 1.0).abs() < 0.15,
+            "{id}: {density} E/√Hz"
+        );
+    }
+}

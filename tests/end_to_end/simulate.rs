@@ -1,0 +1,123 @@
+//! `gravgrad simulate`: same scenario, same bytes (with one thread or two); what it writes is read
+//! back by our own readers and the check command; a bad scenario is located and exits 2.
+
+use crate::{check_json, gravgrad, problems};
+use std::path::Path;
+
+fn simulate(out: &Path, threads: &str) {
+    let o = gravgrad(&[
+        "--quiet",
+        "--threads",
+        threads,
+        "simulate",
+        "tests/end_to_end/small_scenario.toml",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+}
+
+/// Every file below `dir`, relative path → bytes.
+fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut out = Vec::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        for e in std::fs::read_dir(&d).unwrap() {
+            let p = e.unwrap().path();
+            if p.is_dir() {
+                stack.push(p);
+            } else {
+                out.push((
+                    p.strip_prefix(dir).unwrap().display().to_string(),
+                    std::fs::read(&p).unwrap(),
+                ));
+            }
+        }
+    }
+    out.sort();
+    out
+}
+
+#[test]
+fn same_scenario_same_bytes_with_one_thread_or_two() {
+    let (a, b) = (tempfile::tempdir().unwrap(), tempfile::tempdir().unwrap());
+    simulate(a.path(), "1");
+    simulate(b.path(), "2");
+    let (fa, fb) = (files(a.path()), files(b.path()));
+    let names: Vec<&str> = fa.iter().map(|f| f.0.as_str()).collect();
+    assert_eq!(
+        names,
+        vec![
+            "dem.tif",
+            "flights/test-patch-f01.csv",
+            "flights/test-patch-f01.parquet",
+            "instrument.toml",
+            "recipe.toml",
+            "truth/grid.parquet",
+            "truth/lines.parquet",
+            "truth/scenario.toml"
+        ]
+    );
+    for ((na, ba), (_, bb)) in fa.iter().zip(&fb) {
+        assert!(ba == bb, "{na} differs between runs");
+    }
+}
+
+#[test]
+fn what_simulate_writes_reads_back() {
+    let dir = tempfile::tempdir().unwrap();
+    simulate(dir.path(), "2");
+    // The recipe, its instrument and the flight pass the check; CSV and Parquet carry the same table.
+    let recipe = dir.path().join("recipe.toml");
+    let (code, report, stderr) = check_json(&[recipe.to_str().unwrap()]);
+    assert_eq!(code, 0, "{stderr}\n{report:#}");
+    assert!(problems(&report).iter().all(|p| p["severity"] != "error"));
+    let csv = dir.path().join("flights/test-patch-f01.csv");
+    let pq = dir.path().join("flights/test-patch-f01.parquet");
+    let expect = gravgrad_ingest::columns::Expectation::default();
+    let a = gravgrad_ingest::read::read_flight_file(&csv, &expect);
+    let b = gravgrad_ingest::read::read_flight_file(&pq, &expect);
+    assert!(a.problems.is_empty() && b.problems.is_empty());
+    let (ta, tb) = (&a.flights[0].table, &b.flights[0].table);
+    assert_eq!(ta.n_rows(), tb.n_rows());
+    for (name, va) in ta.iter() {
+        let vb = tb.get(name).unwrap();
+        assert!(
+            va.iter().zip(vb).all(|(x, y)| x.to_bits() == y.to_bits()),
+            "{name}: CSV and Parquet differ"
+        );
+    }
+    // The DEM opens with its CRS: the scenario's origin (−27.35°, 134.10°) is in UTM zone 53 south.
+    let dem = gravgrad_ingest::geotiff_reader::read_geotiff(&dir.path().join("dem.tif")).unwrap();
+    assert_eq!(dem.epsg, Some(32753));
+    assert_eq!(dem.dx, 200.0);
+}
+
+#[test]
+fn a_bad_scenario_is_located() {
+    let dir = tempfile::tempdir().unwrap();
+    let bad = dir.path().join("bad.toml");
+    std::fs::write(
+        &bad,
+        "layout = \"scenario/1\"\n[plan]\nline_lenght_m = 5.0\n",
+    )
+    .unwrap();
+    let o = gravgrad(&[
+        "simulate",
+        bad.to_str().unwrap(),
+        "--out",
+        dir.path().join("o").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("key `plan.line_lenght_m`") && err.contains("line 3"),
+        "{err}"
+    );
+    assert!(!dir.path().join("o").exists());
+}
