@@ -32,28 +32,50 @@ pub struct BadZone(pub u32);
 
 impl TransverseMercator {
     /// A transverse Mercator projection with the given central meridian (rad), scale and false origin.
-    pub fn new(ell: &Ellipsoid, lon0: f64, k0: f64, false_easting: f64, false_northing: f64) -> Self {
+    pub fn new(
+        ell: &Ellipsoid,
+        lon0: f64,
+        k0: f64,
+        false_easting: f64,
+        false_northing: f64,
+    ) -> Self {
         let f = ell.f;
         let n = f / (2.0 - f);
         let (n2, n3, n4, n5, n6) = (n * n, n.powi(3), n.powi(4), n.powi(5), n.powi(6));
         let big_a = ell.a / (1.0 + n) * (1.0 + n2 / 4.0 + n4 / 64.0 + n6 / 256.0);
         let alpha = [
-            n / 2.0 - 2.0 * n2 / 3.0 + 5.0 * n3 / 16.0 + 41.0 * n4 / 180.0 - 127.0 * n5 / 288.0 + 7891.0 * n6 / 37800.0,
-            13.0 * n2 / 48.0 - 3.0 * n3 / 5.0 + 557.0 * n4 / 1440.0 + 281.0 * n5 / 630.0 - 1983433.0 * n6 / 1935360.0,
-            61.0 * n3 / 240.0 - 103.0 * n4 / 140.0 + 15061.0 * n5 / 26880.0 + 167603.0 * n6 / 181440.0,
+            n / 2.0 - 2.0 * n2 / 3.0 + 5.0 * n3 / 16.0 + 41.0 * n4 / 180.0 - 127.0 * n5 / 288.0
+                + 7891.0 * n6 / 37800.0,
+            13.0 * n2 / 48.0 - 3.0 * n3 / 5.0 + 557.0 * n4 / 1440.0 + 281.0 * n5 / 630.0
+                - 1983433.0 * n6 / 1935360.0,
+            61.0 * n3 / 240.0 - 103.0 * n4 / 140.0
+                + 15061.0 * n5 / 26880.0
+                + 167603.0 * n6 / 181440.0,
             49561.0 * n4 / 161280.0 - 179.0 * n5 / 168.0 + 6601661.0 * n6 / 7257600.0,
             34729.0 * n5 / 80640.0 - 3418889.0 * n6 / 1995840.0,
             212378941.0 * n6 / 319334400.0,
         ];
         let beta = [
-            n / 2.0 - 2.0 * n2 / 3.0 + 37.0 * n3 / 96.0 - n4 / 360.0 - 81.0 * n5 / 512.0 + 96199.0 * n6 / 604800.0,
-            n2 / 48.0 + n3 / 15.0 - 437.0 * n4 / 1440.0 + 46.0 * n5 / 105.0 - 1118711.0 * n6 / 3870720.0,
+            n / 2.0 - 2.0 * n2 / 3.0 + 37.0 * n3 / 96.0 - n4 / 360.0 - 81.0 * n5 / 512.0
+                + 96199.0 * n6 / 604800.0,
+            n2 / 48.0 + n3 / 15.0 - 437.0 * n4 / 1440.0 + 46.0 * n5 / 105.0
+                - 1118711.0 * n6 / 3870720.0,
             17.0 * n3 / 480.0 - 37.0 * n4 / 840.0 - 209.0 * n5 / 4480.0 + 5569.0 * n6 / 90720.0,
             4397.0 * n4 / 161280.0 - 11.0 * n5 / 504.0 - 830251.0 * n6 / 7257600.0,
             4583.0 * n5 / 161280.0 - 108847.0 * n6 / 3991680.0,
             20648693.0 * n6 / 638668800.0,
         ];
-        Self { lon0, k0, false_easting, false_northing, a: ell.a, e: ell.e2().sqrt(), big_a, alpha, beta }
+        Self {
+            lon0,
+            k0,
+            false_easting,
+            false_northing,
+            a: ell.a,
+            e: ell.e2().sqrt(),
+            big_a,
+            alpha,
+            beta,
+        }
     }
 
     /// UTM zone `zone` (1–60), northern or southern hemisphere.
@@ -62,7 +84,13 @@ impl TransverseMercator {
             return Err(BadZone(zone));
         }
         let lon0 = (zone as f64 * 6.0 - 183.0).to_radians();
-        Ok(Self::new(ell, lon0, 0.9996, 500_000.0, if south { 10_000_000.0 } else { 0.0 }))
+        Ok(Self::new(
+            ell,
+            lon0,
+            0.9996,
+            500_000.0,
+            if south { 10_000_000.0 } else { 0.0 },
+        ))
     }
 
     /// The UTM zone of a longitude (degrees), without the Norway and Svalbard exceptions.
@@ -95,7 +123,9 @@ impl TransverseMercator {
         let gamma = (t / (1.0 + t * t).sqrt() * dl.tan()).atan() + tau.atan2(sigma);
         // Karney 2011, eq. 25: k = k0·(A/a)·√(1 − e² sin²φ)·√(1 + tan²φ)/√(t² + cos²λ)·√(σ² + τ²).
         let tan_lat = lat.tan();
-        let k = self.k0 * self.big_a / self.a * (1.0 - e * e * s * s).sqrt() * (1.0 + tan_lat * tan_lat).sqrt()
+        let k = self.k0 * self.big_a / self.a
+            * (1.0 - e * e * s * s).sqrt()
+            * (1.0 + tan_lat * tan_lat).sqrt()
             / (t * t + cl * cl).sqrt()
             * (sigma * sigma + tau * tau).sqrt();
         (easting, northing, gamma, k)
@@ -119,7 +149,8 @@ impl TransverseMercator {
         for _ in 0..10 {
             let si = (e * (e * ti / (1.0 + ti * ti).sqrt()).atanh()).sinh();
             let ti1 = ti * (1.0 + si * si).sqrt() - si * (1.0 + ti * ti).sqrt();
-            let d = (tau1 - ti1) / (1.0 + ti1 * ti1).sqrt() * (1.0 + (1.0 - e * e) * ti * ti) / ((1.0 - e * e) * (1.0 + ti * ti).sqrt());
+            let d = (tau1 - ti1) / (1.0 + ti1 * ti1).sqrt() * (1.0 + (1.0 - e * e) * ti * ti)
+                / ((1.0 - e * e) * (1.0 + ti * ti).sqrt());
             ti += d;
             if d.abs() < 1e-14 {
                 break;

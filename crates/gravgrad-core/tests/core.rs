@@ -5,8 +5,12 @@ use gravgrad_core::ellipsoid::WGS84;
 use gravgrad_core::projection::TransverseMercator;
 
 fn reference() -> serde_json::Value {
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/../../tests/reference/utm_reference.json");
-    serde_json::from_str(&std::fs::read_to_string(path).expect("reference file")).expect("reference JSON")
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../../tests/reference/utm_reference.json"
+    );
+    serde_json::from_str(&std::fs::read_to_string(path).expect("reference file"))
+        .expect("reference JSON")
 }
 
 #[test]
@@ -16,16 +20,28 @@ fn utm_agrees_with_pyproj_to_a_millimetre() {
     let r = reference();
     for p in r["points"].as_array().unwrap() {
         let f = |k: &str| p[k].as_f64().unwrap();
-        let tm = TransverseMercator::utm(&WGS84, p["zone"].as_u64().unwrap() as u32, p["south"].as_bool().unwrap()).unwrap();
+        let tm = TransverseMercator::utm(
+            &WGS84,
+            p["zone"].as_u64().unwrap() as u32,
+            p["south"].as_bool().unwrap(),
+        )
+        .unwrap();
         let (lat, lon) = (f("lat_deg").to_radians(), f("lon_deg").to_radians());
         let (e, n, gamma, k) = tm.forward(lat, lon);
         assert!((e - f("easting_m")).abs() < 1e-3, "{p}: E {e}");
         assert!((n - f("northing_m")).abs() < 1e-3, "{p}: N {n}");
-        assert!((gamma.to_degrees() - f("convergence_deg")).abs() < 1e-9, "{p}: γ {}", gamma.to_degrees());
+        assert!(
+            (gamma.to_degrees() - f("convergence_deg")).abs() < 1e-9,
+            "{p}: γ {}",
+            gamma.to_degrees()
+        );
         assert!((k - f("scale")).abs() < 1e-9, "{p}: k {k}");
         // And back: the inverse recovers the position to 1e-11 rad (0.06 mm).
         let (lat2, lon2) = tm.inverse(e, n);
-        assert!((lat2 - lat).abs() < 1e-11 && (lon2 - lon).abs() < 1e-11, "{p}: inverse {lat2} {lon2}");
+        assert!(
+            (lat2 - lat).abs() < 1e-11 && (lon2 - lon).abs() < 1e-11,
+            "{p}: inverse {lat2} {lon2}"
+        );
     }
 }
 
