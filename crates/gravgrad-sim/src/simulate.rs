@@ -418,13 +418,28 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         t
     };
     let (pat_roll, pat_pitch) = (pattern(&mut sg_rng), pattern(&mut sg_rng));
-    let gust = noise::gauss_markov(&mut Rng::new(seed, 31), n, 1.5f64.to_radians(), 3.0, rate);
+    // Aircraft attitude relative to the level platform: bank in turns plus gusts (1.5° RMS in roll,
+    // 0.5° in pitch about a 2° cruise pitch), independent streams.
+    const ROLL_GUST: f64 = 1.5;
+    const PITCH_GUST: f64 = 0.5;
+    let gust = noise::gauss_markov(
+        &mut Rng::new(seed, 31),
+        n,
+        ROLL_GUST.to_radians(),
+        3.0,
+        rate,
+    );
+    let gust_pitch = noise::gauss_markov(
+        &mut Rng::new(seed, 32),
+        n,
+        PITCH_GUST.to_radians(),
+        3.0,
+        rate,
+    );
     let ac_roll: Vec<f64> = (0..n)
         .map(|i| (track.track_rate[i] * s.plan.speed_m_s / 9.81).atan() + gust[i])
         .collect();
-    let ac_pitch: Vec<f64> = (0..n)
-        .map(|i| 2f64.to_radians() + 0.3 * gust[(i + n / 2) % n.max(1)])
-        .collect();
+    let ac_pitch: Vec<f64> = (0..n).map(|i| 2f64.to_radians() + gust_pitch[i]).collect();
 
     let truth = Truth {
         north: track.north.clone(),
@@ -456,10 +471,12 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         fs_all.push(f_s);
         let mut g_s = truth.total(i).rotated(&ct);
         if ie.self_gradient_e != 0.0 {
+            // The amplitude is the contribution of one gust-RMS of relative roll (or pitch) per unit
+            // pattern component: G_self = A·(Δφ/σφ)·P_roll + A·(Δθ/σθ)·P_pitch.
             let amp = ie.self_gradient_e * EOTVOS;
-            g_s = g_s
-                + pat_roll.scaled(amp * ac_roll[i].sin())
-                + pat_pitch.scaled(amp * (ac_pitch[i] - 2f64.to_radians()).sin() * 10.0);
+            let d_roll = ac_roll[i] / ROLL_GUST.to_radians();
+            let d_pitch = (ac_pitch[i] - 2f64.to_radians()) / PITCH_GUST.to_radians();
+            g_s = g_s + pat_roll.scaled(amp * d_roll) + pat_pitch.scaled(amp * d_pitch);
         }
         let w = omega[i];
         let wd = skew(&alpha[i]);
