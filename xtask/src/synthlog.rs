@@ -11,6 +11,8 @@ use gravgrad_core::ellipsoid::GRS80;
 use gravgrad_core::mat3::{self, Mat3, Vec3};
 use gravgrad_core::tensor::{SymTensor, point_mass_tensor};
 use gravgrad_core::units::{EOTVOS, G};
+use gravgrad_sim::noise::Rng;
+use gravgrad_sim::simulate::standard_pair;
 
 /// Settings of a sample log.
 #[derive(Clone, Debug)]
@@ -34,51 +36,10 @@ pub struct SampleLog {
     pub line: Option<Vec<i64>>,
 }
 
-/// A deterministic random source (SplitMix64, Steele, Lea & Flood 2014), so the generator needs no
-/// dependency and gives the same numbers on every platform.
-pub struct Rng(u64);
-
-impl Rng {
-    pub fn new(seed: u64) -> Self {
-        Self(seed ^ 0x9E37_79B9_7F4A_7C15)
-    }
-    pub fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
-    /// Uniform in [0, 1).
-    pub fn uniform(&mut self) -> f64 {
-        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
-    }
-    /// Standard normal (Box–Muller).
-    pub fn normal(&mut self) -> f64 {
-        let u1 = self.uniform().max(1e-300);
-        let u2 = self.uniform();
-        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
-    }
-}
-
-/// The standard pair layout: in-line pairs along each axis and cross pairs for each plane,
-/// 0.2 m baselines, centres a few centimetres apart.
+/// The standard pair layout of the simulator: (centre, baseline, axis), sensor frame, metres.
 pub fn pair_geometry(id: &str) -> Option<(Vec3, Vec3, Vec3)> {
-    let unit = |c: char| match c {
-        'x' => Some([1.0, 0.0, 0.0]),
-        'y' => Some([0.0, 1.0, 0.0]),
-        'z' => Some([0.0, 0.0, 1.0]),
-        _ => None,
-    };
-    let mut ch = id.chars();
-    let (a, b) = (ch.next()?, ch.next()?);
-    let extra: u32 = ch.as_str().parse().unwrap_or(0);
-    let axis = unit(a)?;
-    let dir = unit(b)?;
-    let baseline = [0.2 * dir[0], 0.2 * dir[1], 0.2 * dir[2]];
-    let k = (a as u32 * 7 + b as u32 * 3 + extra * 11) % 5;
-    let center = [0.01 * k as f64, -0.01 * k as f64, 0.005 * k as f64];
-    Some((center, baseline, axis))
+    let base = id.get(..2)?;
+    standard_pair(base, 0.2).map(|p| (p.center, p.baseline, p.axis))
 }
 
 /// The nine pair ids of a full-tensor instrument, then more in-line repeats for wider logs.
@@ -110,7 +71,7 @@ const TURN_RATE_DEG: f64 = 3.0;
 pub fn generate(spec: &LogSpec) -> SampleLog {
     let n = spec.rows;
     let dt = 1.0 / spec.rate_hz;
-    let mut rng = Rng::new(spec.seed);
+    let mut rng = Rng::new(spec.seed, 0);
     // Residual platform rotation: a few sinusoids, so Ω̇ is analytic (rad/s).
     let waves: Vec<([f64; 3], f64, f64)> = (0..6)
         .map(|_| {

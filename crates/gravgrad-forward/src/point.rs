@@ -3,6 +3,7 @@
 //! source (e.g. Blakely 1995, "Potential Theory in Gravity and Magnetic Applications", ch. 3).
 
 use gravgrad_core::SymTensor;
+use gravgrad_core::tensor::point_mass_tensor;
 use gravgrad_core::units::G;
 
 /// The potential, gravity and gradient tensor at one point.
@@ -27,18 +28,10 @@ pub fn point_mass_rel(gm: f64, r: [f64; 3]) -> Field {
     let r2 = r[0] * r[0] + r[1] * r[1] + r[2] * r[2];
     let rn = r2.sqrt();
     let k3 = gm / (r2 * rn);
-    let k5 = k3 / r2;
     Field {
         potential: gm / rn,
         g: [-k3 * r[0], -k3 * r[1], -k3 * r[2]],
-        tensor: SymTensor {
-            xx: k5 * (3.0 * r[0] * r[0] - r2),
-            xy: k5 * 3.0 * r[0] * r[1],
-            xz: k5 * 3.0 * r[0] * r[2],
-            yy: k5 * (3.0 * r[1] * r[1] - r2),
-            yz: k5 * 3.0 * r[1] * r[2],
-            zz: k5 * (3.0 * r[2] * r[2] - r2),
-        },
+        tensor: point_mass_tensor(gm, r),
     }
 }
 
