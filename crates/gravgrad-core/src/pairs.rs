@@ -195,7 +195,7 @@ fn describe_combination(v: &[f64]) -> String {
 
 /// Eigen-decomposition of a small symmetric matrix by cyclic Jacobi rotations (Golub & Van Loan,
 /// "Matrix Computations", §8.5). Returns eigenvalues and the matrix whose columns are eigenvectors.
-fn jacobi_eigen(mut a: Vec<Vec<f64>>) -> (Vec<f64>, Vec<Vec<f64>>) {
+pub fn jacobi_eigen(mut a: Vec<Vec<f64>>) -> (Vec<f64>, Vec<Vec<f64>>) {
     let n = a.len();
     let mut v = vec![vec![0.0; n]; n];
     for (i, row) in v.iter_mut().enumerate() {

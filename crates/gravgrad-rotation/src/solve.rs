@@ -1,0 +1,341 @@
+//! The per-sample tensor solve, rotation-term removal and rotation to NED.
+
+use crate::gyro::angular_acceleration;
+use gravgrad_core::SymTensor;
+use gravgrad_core::attitude::Attitude;
+use gravgrad_core::mat3::{self, Mat3, Vec3};
+use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, jacobi_eigen, observability};
+use rayon::prelude::*;
+
+/// How to solve.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SolveSettings {
+    pub alpha: AlphaSource,
+    pub trace_constraint: bool,
+    /// Cutoff of the gyro low-pass before differentiation, Hz.
+    pub gyro_lowpass_hz: f64,
+    /// Components that must come out (`Gxx` … `Gzz`); the solve refuses if one is not observable.
+    pub components: Vec<String>,
+}
+
+/// One pair's calibrated outputs (m/s²) with its geometry.
+pub struct PairSeries<'a> {
+    pub geometry: &'a PairGeometry,
+    pub a: &'a [f64],
+    pub b: &'a [f64],
+}
+
+/// Everything the solve reads, on one time base.
+pub struct Inputs<'a> {
+    pub pairs: Vec<PairSeries<'a>>,
+    /// Inertial angular rate, sensor axes, rad/s.
+    pub omega: [&'a [f64]; 3],
+    /// Attitude of the sensor frame in NED, degrees.
+    pub roll_deg: &'a [f64],
+    pub pitch_deg: &'a [f64],
+    pub heading_deg: &'a [f64],
+    pub rate_hz: f64,
+}
+
+/// Why a solve cannot be done.
+#[derive(Debug, thiserror::Error, PartialEq)]
+pub enum RotationError {
+    #[error("the pair set cannot observe {} (blind combinations: {})", .missing.join(", "), .blind.join("; "))]
+    Unobservable {
+        missing: Vec<String>,
+        blind: Vec<String>,
+    },
+    #[error("`{name}` has {got} samples where the angular rates have {want}")]
+    Length {
+        name: String,
+        got: usize,
+        want: usize,
+    },
+    #[error("no pairs to solve from")]
+    NoPairs,
+}
+
+/// The solved tensor per sample, and the QC series.
+#[derive(Clone, Debug)]
+pub struct Solution {
+    /// Gradient tensor in NED, s⁻²; NaN in components the pair set does not observe.
+    pub tensor_ned: Vec<SymTensor>,
+    /// Gradient tensor in the sensor frame, s⁻² (G_s = S + ΩΩ).
+    pub tensor_sensor: Vec<SymTensor>,
+    /// Angular acceleration from the pairs, rad/s², when they see it.
+    pub alpha_pairs: Option<Vec<Vec3>>,
+    /// Angular acceleration from the gyros (low-passed derivative), rad/s².
+    pub alpha_gyro: Vec<Vec3>,
+    /// Trace of G from the solve without the trace constraint (QC), s⁻²; NaN where not observable.
+    pub trace: Vec<f64>,
+    /// Which of Gxx Gxy Gxz Gyy Gyz Gzz are given.
+    pub observed: [bool; 6],
+    /// True when only the heading rotates the tensor into NED (partial instruments; the error this
+    /// leaves is at most |Gxz, Gyz|·max(|roll|, |pitch|)).
+    pub heading_only: bool,
+}
+
+/// A least-squares operator: unknowns = P·y, with the unknowns it determines.
+struct Operator {
+    p: Vec<Vec<f64>>,
+    observed: Vec<bool>,
+}
+
+/// The pseudo-inverse of A (rows × k) from the eigenvectors of AᵀA (minimum-norm in the blind
+/// directions, which are reported as unobserved).
+fn pseudo_inverse(rows: &[Vec<f64>], k: usize) -> Operator {
+    let mut n = vec![vec![0.0; k]; k];
+    for r in rows {
+        for i in 0..k {
+            for j in 0..k {
+                n[i][j] += r[i] * r[j];
+            }
+        }
+    }
+    let (vals, vecs) = jacobi_eigen(n);
+    let vmax = vals.iter().cloned().fold(0.0f64, f64::max);
+    let keep: Vec<usize> = (0..k)
+        .filter(|&e| vals[e] > 1e-10 * vmax.max(1e-300))
+        .collect();
+    // N⁺ = Σ v vᵀ / λ over kept eigenpairs; P = N⁺ Aᵀ.
+    let mut ninv = vec![vec![0.0; k]; k];
+    for &e in &keep {
+        for i in 0..k {
+            for j in 0..k {
+                ninv[i][j] += vecs[i][e] * vecs[j][e] / vals[e];
+            }
+        }
+    }
+    let p = (0..k)
+        .map(|i| {
+            rows.iter()
+                .map(|r| (0..k).map(|j| ninv[i][j] * r[j]).sum())
+                .collect()
+        })
+        .collect();
+    let observed = (0..k)
+        .map(|i| {
+            let leak: f64 = (0..k)
+                .filter(|e| !keep.contains(e))
+                .map(|e| vecs[i][e] * vecs[i][e])
+                .sum();
+            leak < 1e-12
+        })
+        .collect();
+    Operator { p, observed }
+}
+
+/// Solves every sample.
+pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationError> {
+    if inp.pairs.is_empty() {
+        return Err(RotationError::NoPairs);
+    }
+    let n = inp.omega[0].len();
+    let mut series: Vec<(String, usize)> = vec![
+        ("wy".into(), inp.omega[1].len()),
+        ("wz".into(), inp.omega[2].len()),
+        ("roll".into(), inp.roll_deg.len()),
+        ("pitch".into(), inp.pitch_deg.len()),
+        ("heading".into(), inp.heading_deg.len()),
+    ];
+    for p in &inp.pairs {
+        series.push((format!("{}_a", p.geometry.id), p.a.len()));
+        series.push((format!("{}_b", p.geometry.id), p.b.len()));
+    }
+    if let Some((name, got)) = series.into_iter().find(|x| x.1 != n) {
+        return Err(RotationError::Length { name, got, want: n });
+    }
+    let geoms: Vec<PairGeometry> = inp.pairs.iter().map(|p| p.geometry.clone()).collect();
+    let obs = observability(&geoms, s.alpha, s.trace_constraint);
+    let missing: Vec<String> = s
+        .components
+        .iter()
+        .filter(|c| !obs.sees(c))
+        .cloned()
+        .collect();
+    if !missing.is_empty() {
+        return Err(RotationError::Unobservable {
+            missing,
+            blind: obs.blind_combinations.clone(),
+        });
+    }
+    let observed: [bool; 6] = std::array::from_fn(|i| obs.sees(UNKNOWNS[i]));
+
+    let with_alpha = s.alpha == AlphaSource::Pairs;
+    let k_full = if with_alpha { 9 } else { 6 };
+    let rows: Vec<[f64; 9]> = geoms.iter().map(PairGeometry::design_row).collect();
+    // Constrained design: Szz eliminated by Szz = 2|ω|² − Sxx − Syy.
+    let reduce = |r: &[f64; 9]| -> Vec<f64> {
+        let mut v: Vec<f64> = r[..k_full].to_vec();
+        if s.trace_constraint {
+            v[0] -= r[5];
+            v[3] -= r[5];
+            v.remove(5);
+        }
+        v
+    };
+    let op = pseudo_inverse(
+        &rows.iter().map(reduce).collect::<Vec<_>>(),
+        if s.trace_constraint {
+            k_full - 1
+        } else {
+            k_full
+        },
+    );
+    let op_free = s.trace_constraint.then(|| {
+        pseudo_inverse(
+            &rows
+                .iter()
+                .map(|r| r[..k_full].to_vec())
+                .collect::<Vec<_>>(),
+            k_full,
+        )
+    });
+
+    let alpha_g: Vec<Vec<f64>> = (0..3)
+        .map(|k| angular_acceleration(inp.omega[k], inp.rate_hz, s.gyro_lowpass_hz))
+        .collect();
+    let alpha_gyro: Vec<Vec3> = (0..n)
+        .map(|i| [alpha_g[0][i], alpha_g[1][i], alpha_g[2][i]])
+        .collect();
+    let full_rotation = observed.iter().all(|o| *o);
+
+    struct Out {
+        ned: SymTensor,
+        sensor: SymTensor,
+        alpha: Vec3,
+        trace: f64,
+    }
+    let outs: Vec<Out> = (0..n)
+        .into_par_iter()
+        .map(|i| {
+            let w = [inp.omega[0][i], inp.omega[1][i], inp.omega[2][i]];
+            let w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
+            let y: Vec<f64> = inp
+                .pairs
+                .iter()
+                .zip(&rows)
+                .map(|(p, r)| {
+                    let mut v = -(p.a[i] - p.b[i]);
+                    if !with_alpha {
+                        v -= r[6] * alpha_gyro[i][0]
+                            + r[7] * alpha_gyro[i][1]
+                            + r[8] * alpha_gyro[i][2];
+                    }
+                    v
+                })
+                .collect();
+            let y_con: Vec<f64> = if s.trace_constraint {
+                y.iter()
+                    .zip(&rows)
+                    .map(|(v, r)| v - r[5] * 2.0 * w2)
+                    .collect()
+            } else {
+                y.clone()
+            };
+            let u: Vec<f64> =
+                op.p.iter()
+                    .map(|row| row.iter().zip(&y_con).map(|(a, b)| a * b).sum())
+                    .collect();
+            let mut sv = [f64::NAN; 6];
+            let mut alpha = [f64::NAN; 3];
+            if s.trace_constraint {
+                let map = [0usize, 1, 2, 3, 4];
+                for (j, &c) in map.iter().enumerate() {
+                    sv[c] = if op.observed[j] { u[j] } else { f64::NAN };
+                }
+                sv[5] = 2.0 * w2 - sv[0] - sv[3];
+                if with_alpha {
+                    for k in 0..3 {
+                        alpha[k] = if op.observed[5 + k] {
+                            u[5 + k]
+                        } else {
+                            f64::NAN
+                        };
+                    }
+                }
+            } else {
+                for c in 0..6 {
+                    sv[c] = if op.observed[c] { u[c] } else { f64::NAN };
+                }
+                if with_alpha {
+                    for k in 0..3 {
+                        alpha[k] = if op.observed[6 + k] {
+                            u[6 + k]
+                        } else {
+                            f64::NAN
+                        };
+                    }
+                }
+            }
+            // G_s = S + ΩΩ, ΩΩ = ωωᵀ − |ω|²I.
+            let ww = [
+                w[0] * w[0] - w2,
+                w[0] * w[1],
+                w[0] * w[2],
+                w[1] * w[1] - w2,
+                w[1] * w[2],
+                w[2] * w[2] - w2,
+            ];
+            let gs = SymTensor::from_array(std::array::from_fn(|c| sv[c] + ww[c]));
+            let trace = match &op_free {
+                Some(f) => {
+                    let uf: Vec<f64> =
+                        f.p.iter()
+                            .map(|row| row.iter().zip(&y).map(|(a, b)| a * b).sum())
+                            .collect();
+                    if f.observed[0] && f.observed[3] && f.observed[5] {
+                        uf[0] + uf[3] + uf[5] - 2.0 * w2
+                    } else {
+                        f64::NAN
+                    }
+                }
+                None => gs.trace(),
+            };
+            let att = Attitude::from_degrees(inp.roll_deg[i], inp.pitch_deg[i], inp.heading_deg[i]);
+            let ned = if full_rotation {
+                gs.rotated(&att.c_sn())
+            } else {
+                rotate_heading_only(&gs, att.heading)
+            };
+            Out {
+                ned,
+                sensor: gs,
+                alpha,
+                trace,
+            }
+        })
+        .collect();
+    Ok(Solution {
+        tensor_ned: outs.iter().map(|o| o.ned).collect(),
+        tensor_sensor: outs.iter().map(|o| o.sensor).collect(),
+        alpha_pairs: with_alpha.then(|| outs.iter().map(|o| o.alpha).collect()),
+        alpha_gyro,
+        trace: outs.iter().map(|o| o.trace).collect(),
+        observed,
+        heading_only: !full_rotation,
+    })
+}
+
+/// Rz(ψ)·G·Rz(ψ)ᵀ, keeping the horizontal block (xx, xy, yy), the vertical pair (xz, yz) and zz
+/// apart so that an unobserved component spoils only its own block.
+fn rotate_heading_only(g: &SymTensor, heading: f64) -> SymTensor {
+    let (s, c) = heading.sin_cos();
+    let r: Mat3 = [[c, -s, 0.0], [s, c, 0.0], [0.0, 0.0, 1.0]];
+    let horiz = SymTensor {
+        xz: 0.0,
+        yz: 0.0,
+        zz: 0.0,
+        ..*g
+    }
+    .rotated(&r);
+    let vert_in = mat3::mul_vec(&r, &[g.xz, g.yz, 0.0]);
+    SymTensor {
+        xx: horiz.xx,
+        xy: horiz.xy,
+        yy: horiz.yy,
+        xz: vert_in[0],
+        yz: vert_in[1],
+        zz: g.zz,
+    }
+}
