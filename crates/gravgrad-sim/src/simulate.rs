@@ -125,6 +125,22 @@ pub struct Simulation {
     pub reference_level_m: f64,
     pub track: Track,
     pub projection: Projection,
+    /// The injected errors of each pair's difference a − b, in the order of `pairs`.
+    pub pair_errors: Vec<PairErrors>,
+}
+
+/// The injected errors of one pair's difference d = a − b, to first order:
+/// d = κ·f(O) + Δβ + Δβ̇·t + Δτ·(T − T0) + … (`docs/physics.md`).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct PairErrors {
+    /// κ = (1 + ε_a)(n + δ_a) − (1 + ε_b)(n + δ_b), sensor frame, dimensionless.
+    pub kappa: Vec3,
+    /// Δβ, m/s².
+    pub bias: f64,
+    /// Δβ̇, m/s² per second.
+    pub drift: f64,
+    /// Δτ, m/s² per °C.
+    pub tempco: f64,
 }
 
 impl Simulation {
@@ -406,6 +422,20 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         })
         .collect();
 
+    let pair_errors: Vec<PairErrors> = pairs
+        .iter()
+        .zip(&accels)
+        .map(|(p, [ea, eb])| PairErrors {
+            kappa: std::array::from_fn(|k| {
+                (1.0 + ea.scale) * (p.axis[k] + ea.misalign[k])
+                    - (1.0 + eb.scale) * (p.axis[k] + eb.misalign[k])
+            }),
+            bias: ea.bias - eb.bias,
+            drift: ea.drift - eb.drift,
+            tempco: ea.tempco - eb.tempco,
+        })
+        .collect();
+
     // Self-gradient: a fixed trace-free pattern scaled by the aircraft's attitude relative to the
     // platform (bank in turns, gusts on lines).
     let mut sg_rng = Rng::new(seed, 30);
@@ -653,6 +683,7 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
             south,
             false_origin: [e0, n0],
         },
+        pair_errors,
     })
 }
 

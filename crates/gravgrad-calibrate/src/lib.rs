@@ -1,0 +1,15 @@
+//! Per-pair calibration from the survey data itself (`docs/physics.md`): to first order a pair's
+//! difference d = a − b picks up κ·f(O) (scale and misalignment mismatch, κ of order 1e-5, which must
+//! be known to about 1e-10), plus bias, drift and a temperature term. κ is estimated by least squares
+//! of d against the specific force in a band where aircraft motion dominates and geology is weak
+//! (0.05–1 Hz by default, common practice), with the gyro-derived angular acceleration as extra
+//! regressors so that cross pairs' rotation signal does not leak into κ; bias, drift and temperature
+//! are then fitted to what remains over the whole band. Every coefficient comes with a standard error
+//! that accounts for the residuals' autocorrelation (effective sample size, Bretherton et al. 1999,
+//! J. Climate 12:1990–2009).
+//!
+//! Units: m/s² for pair outputs and f, rad/s² for α, seconds, °C. No I/O. Work in progress (issue 5):
+//! the calibration file, self-gradient regression and the `calibrate` command follow.
+
+pub mod bandpass;
+pub mod estimate;

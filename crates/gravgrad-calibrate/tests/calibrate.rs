@@ -1,0 +1,129 @@
+//! Calibration against the simulator's injected errors (issue 5).
+
+use gravgrad_calibrate::estimate::{PairData, Settings, estimate};
+use gravgrad_rotation::gyro::angular_acceleration;
+use gravgrad_sim::scenario::Scenario;
+use gravgrad_sim::simulate::{Simulation, simulate};
+
+const SCENARIO: &str = r#"
+layout = "scenario/1"
+seed = 31
+[[geology.sphere]]
+north_m = 300.0
+east_m = 1500.0
+depth_m = 250.0
+radius_m = 150.0
+density_kg_m3 = 400.0
+[terrain]
+cell_m = 200.0
+margin_m = 800.0
+rough_rms_m = 3.0
+[plan]
+line_length_m = 8000.0
+line_spacing_m = 1200.0
+turn_rate_deg_s = 6.0
+lines = 4
+ties = 1
+sample_rate_hz = 20.0
+[dynamics]
+turbulence_m_s2 = 0.4
+[instrument]
+scale_rms = 1e-5
+misalignment_rms_rad = 1e-5
+drift_rms_m_s2_h = 3e-8
+temperature_coefficient_rms_m_s2_c = 2e-9
+"#;
+
+fn col<'a>(s: &'a Simulation, n: &str) -> &'a [f64] {
+    s.column(n).unwrap()
+}
+
+#[test]
+fn coupling_drift_and_temperature_are_recovered_within_three_standard_errors() {
+    let sc: Scenario = toml::from_str(SCENARIO).unwrap();
+    let sim = simulate(&sc).unwrap();
+    let rate = sc.plan.sample_rate_hz;
+    let alpha: Vec<Vec<f64>> = ["wx", "wy", "wz"]
+        .iter()
+        .map(|w| angular_acceleration(col(&sim, w), rate, 2.0))
+        .collect();
+    let settings = Settings {
+        band_hz: [0.05, 1.0],
+        drift_order: 1,
+        rate_hz: rate,
+    };
+    let usable: Vec<bool> = sim.line.iter().map(|l| *l > 0).collect();
+    let mut worst = 0.0f64;
+    let mut kappa_se = Vec::new();
+    for (p, truth) in sim.pairs.iter().zip(&sim.pair_errors) {
+        let d: Vec<f64> = col(&sim, &format!("{}_a", p.id))
+            .iter()
+            .zip(col(&sim, &format!("{}_b", p.id)))
+            .map(|(a, b)| a - b)
+            .collect();
+        let data = PairData {
+            geometry: p,
+            difference: &d,
+            omega: [col(&sim, "wx"), col(&sim, "wy"), col(&sim, "wz")],
+            f: [col(&sim, "fx"), col(&sim, "fy"), col(&sim, "fz")],
+            alpha: [&alpha[0], &alpha[1], &alpha[2]],
+            time: col(&sim, "time"),
+            temperature: Some(col(&sim, "temp")),
+            usable: Some(&usable),
+        };
+        let c = estimate(&data, &settings);
+        let zd = (c.polynomial[1].value - truth.drift) / c.polynomial[1].std_error;
+        let t = c.temperature.unwrap();
+        let zt = (t.value - truth.tempco) / t.std_error;
+        eprintln!(
+            "{}: κ z-scores {:.2} {:.2} {:.2}, SE {:.1e}; drift z {:.2} (SE {:.1e}); temperature z {:.2} (SE {:.1e}); band residual {:.1e}",
+            p.id,
+            (c.kappa[0].value - truth.kappa[0]) / c.kappa[0].std_error,
+            (c.kappa[1].value - truth.kappa[1]) / c.kappa[1].std_error,
+            (c.kappa[2].value - truth.kappa[2]) / c.kappa[2].std_error,
+            c.kappa[2].std_error,
+            zd,
+            c.polynomial[1].std_error,
+            zt,
+            t.std_error,
+            c.band_residual_rms
+        );
+        for k in 0..3 {
+            let z = (c.kappa[k].value - truth.kappa[k]) / c.kappa[k].std_error;
+            worst = worst.max(z.abs());
+            kappa_se.push(c.kappa[k].std_error);
+            assert!(
+                z.abs() < 3.0,
+                "pair {} κ[{k}]: {:e} vs truth {:e} (SE {:e})",
+                p.id,
+                c.kappa[k].value,
+                truth.kappa[k],
+                c.kappa[k].std_error
+            );
+        }
+        assert!(
+            zd.abs() < 3.0,
+            "pair {} drift {:e} vs {:e} (SE {:e})",
+            p.id,
+            c.polynomial[1].value,
+            truth.drift,
+            c.polynomial[1].std_error
+        );
+        assert!(
+            zt.abs() < 3.0,
+            "pair {} temperature {:e} vs {:e} (SE {:e})",
+            p.id,
+            t.value,
+            truth.tempco,
+            t.std_error
+        );
+    }
+    // What this data determines is printed, not asserted (docs/methods/calibration.md records it):
+    // the in-line pairs' κ to a few 1e-9, the cross pairs' to about 1e-7, limited by the
+    // gyro-derived angular acceleration they are fitted against. docs/physics.md needs about 1e-10:
+    // not reached yet (issue 5 stays open).
+    let max_se = kappa_se.iter().cloned().fold(0.0, f64::max);
+    eprintln!("worst |z| {worst:.2}, largest κ standard error {max_se:.1e}");
+    let inline_se = kappa_se[..9].iter().cloned().fold(0.0, f64::max);
+    eprintln!("largest κ standard error of the in-line pairs {inline_se:.1e}");
+}
