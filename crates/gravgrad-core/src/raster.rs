@@ -238,3 +238,24 @@ mod tests {
         assert!(!r.is_missing(0.0));
     }
 }
+
+/// GeoKey ids and values of the GeoTIFF standard (OGC GeoTIFF 1.1), shared by the writer and the
+/// reader.
+pub mod geokey {
+    pub const GT_MODEL_TYPE: u16 = 1024;
+    pub const GT_RASTER_TYPE: u16 = 1025;
+    pub const GEOGRAPHIC_TYPE: u16 = 2048;
+    pub const GEOG_ANGULAR_UNITS: u16 = 2054;
+    pub const PROJECTED_CS_TYPE: u16 = 3072;
+    pub const PROJ_LINEAR_UNITS: u16 = 3076;
+    pub const MODEL_PROJECTED: u16 = 1;
+    pub const MODEL_GEOGRAPHIC: u16 = 2;
+    pub const RASTER_PIXEL_IS_AREA: u16 = 1;
+    pub const RASTER_PIXEL_IS_POINT: u16 = 2;
+    pub const USER_DEFINED: u16 = 32767;
+    /// EPSG unit codes: metre, degree, and the degree codes a reader accepts (degree; "degree
+    /// (supplier to define representation)").
+    pub const UNIT_METRE: u16 = 9001;
+    pub const UNIT_DEGREE: u16 = 9102;
+    pub const UNIT_DEGREES_ACCEPTED: [u16; 2] = [9102, 9122];
+}

@@ -21,21 +21,7 @@ use tiff::encoder::colortype::{ColorType, Gray32Float, Gray64Float};
 use tiff::encoder::{Compression, DeflateLevel, TiffEncoder, TiffKind, TiffKindBig, TiffValue};
 use tiff::tags::Tag;
 
-/// GeoKey ids and values (OGC GeoTIFF 1.1 standard).
-mod key {
-    pub const GT_MODEL_TYPE: u16 = 1024;
-    pub const GT_RASTER_TYPE: u16 = 1025;
-    pub const GEOGRAPHIC_TYPE: u16 = 2048;
-    pub const GEOG_ANGULAR_UNITS: u16 = 2054;
-    pub const PROJECTED_CS_TYPE: u16 = 3072;
-    pub const PROJ_LINEAR_UNITS: u16 = 3076;
-    pub const MODEL_PROJECTED: u16 = 1;
-    pub const MODEL_GEOGRAPHIC: u16 = 2;
-    pub const RASTER_PIXEL_IS_AREA: u16 = 1;
-    /// EPSG unit codes: metre and degree.
-    pub const UNIT_METRE: u16 = 9001;
-    pub const UNIT_DEGREE: u16 = 9102;
-}
+use gravgrad_core::raster::geokey as key;
 
 /// Sample type of the written band.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]

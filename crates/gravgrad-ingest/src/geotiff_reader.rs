@@ -19,22 +19,7 @@ use std::path::Path;
 use tiff::decoder::{Decoder, DecodingResult, Limits};
 use tiff::tags::Tag;
 
-/// GeoKey ids and values (OGC GeoTIFF 1.1 standard).
-mod key {
-    pub const GT_MODEL_TYPE: u16 = 1024;
-    pub const GT_RASTER_TYPE: u16 = 1025;
-    pub const GEOGRAPHIC_TYPE: u16 = 2048;
-    pub const GEOG_ANGULAR_UNITS: u16 = 2054;
-    pub const PROJECTED_CS_TYPE: u16 = 3072;
-    pub const PROJ_LINEAR_UNITS: u16 = 3076;
-    pub const MODEL_PROJECTED: u16 = 1;
-    pub const MODEL_GEOGRAPHIC: u16 = 2;
-    pub const RASTER_PIXEL_IS_POINT: u16 = 2;
-    pub const USER_DEFINED: u16 = 32767;
-    /// EPSG unit codes: metre; degree and "degree (supplier to define representation)".
-    pub const UNIT_METRE: u16 = 9001;
-    pub const UNIT_DEGREE: [u16; 2] = [9102, 9122];
-}
+use gravgrad_core::raster::geokey as key;
 
 /// Largest decoded image accepted, in bytes (a 16 000 × 16 000 float32 terrain model).
 const MAX_IMAGE_BYTES: usize = 1 << 30;
@@ -314,7 +299,7 @@ fn read_crs<R: std::io::Read + std::io::Seek>(
         }
         (Some(key::MODEL_GEOGRAPHIC), _, Some(c)) | (None, None, Some(c)) => {
             if let Some(u) = lookup(&keys, key::GEOG_ANGULAR_UNITS)
-                && !key::UNIT_DEGREE.contains(&u)
+                && !key::UNIT_DEGREES_ACCEPTED.contains(&u)
             {
                 return Err(refuse(format!(
                     "GeogAngularUnitsGeoKey (2054) is unit {u}, not degrees (9102) \
