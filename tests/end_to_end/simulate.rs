@@ -121,3 +121,53 @@ fn a_bad_scenario_is_located() {
     );
     assert!(!dir.path().join("o").exists());
 }
+
+#[test]
+fn the_recipe_check_reads_the_terrain_model_and_its_coverage() {
+    let dir = tempfile::tempdir().unwrap();
+    simulate(dir.path(), "2");
+    let recipe = dir.path().join("recipe.toml");
+    let text = std::fs::read_to_string(&recipe).unwrap();
+    let dem_problems = |report: &serde_json::Value| -> Vec<serde_json::Value> {
+        problems(report)
+            .into_iter()
+            .filter(|p| p["location"]["key"] == "terrain.dem")
+            .collect()
+    };
+    // As simulated: the DEM spans the path plus the scenario's margin, which the recipe states.
+    let (code, report, _) = check_json(&[recipe.to_str().unwrap()]);
+    assert_eq!(code, 0);
+    assert!(
+        dem_problems(&report).is_empty(),
+        "{:?}",
+        dem_problems(&report)
+    );
+    // A margin wider than the DEM: a warning naming the key, not an error.
+    std::fs::write(
+        &recipe,
+        text.replace("margin_m = 600.0", "margin_m = 50000.0"),
+    )
+    .unwrap();
+    let (code, report, _) = check_json(&[recipe.to_str().unwrap()]);
+    assert_eq!(code, 0);
+    let w = dem_problems(&report);
+    assert!(
+        w.len() == 1
+            && w[0]["severity"] == "warning"
+            && w[0]["message"].as_str().unwrap().contains("does not cover"),
+        "{w:?}"
+    );
+    // No DEM at the path: an error naming the key, exit 2.
+    std::fs::write(
+        &recipe,
+        text.replace("dem = \"dem.tif\"", "dem = \"missing.tif\""),
+    )
+    .unwrap();
+    let (code, report, _) = check_json(&[recipe.to_str().unwrap()]);
+    assert_eq!(code, 2);
+    assert!(
+        dem_problems(&report)
+            .iter()
+            .any(|p| p["severity"] == "error")
+    );
+}

@@ -63,6 +63,11 @@ pub struct FlightReport {
     pub problems: Vec<Problem>,
     /// Bytes of the parsed table in memory.
     pub table_bytes: usize,
+    /// Geodetic extent of the flight, degrees: [lat min, lat max, lon min, lon max].
+    pub extent_deg: Option<[f64; 4]>,
+    /// Positions (lat, lon in degrees), at most about 20,000 of them evenly taken, for coverage checks.
+    #[serde(skip)]
+    pub track_deg: Vec<[f64; 2]>,
 }
 
 /// What kind of file was checked.
@@ -197,6 +202,8 @@ pub fn check_flight_file(path: &Path, s: &CheckSettings, nav: Option<&Flight>) -
             gaps,
             problems,
             table_bytes: flight.table.data_bytes(),
+            extent_deg: extent(&flight),
+            track_deg: track(&flight),
         });
     }
     report
@@ -234,6 +241,138 @@ fn drop_repeats(earlier: &[Problem], later: Vec<Problem>) -> Vec<Problem> {
             note(&p, &mut cells, &mut rows);
         }
         out.push(p);
+    }
+    out
+}
+
+/// The finite geodetic extent of a flight, degrees.
+fn extent(f: &Flight) -> Option<[f64; 4]> {
+    let (lat, lon) = (f.table.get("lat")?, f.table.get("lon")?);
+    let mut e = [
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+    ];
+    for (a, o) in lat.iter().zip(lon) {
+        if a.is_finite() && o.is_finite() && a.abs() <= 90.0 && o.abs() <= 180.0 {
+            e = [e[0].min(*a), e[1].max(*a), e[2].min(*o), e[3].max(*o)];
+        }
+    }
+    e[0].is_finite().then_some(e)
+}
+
+/// Every k-th finite position of a flight (k so that at most about 20,000 remain), degrees.
+fn track(f: &Flight) -> Vec<[f64; 2]> {
+    let (Some(lat), Some(lon)) = (f.table.get("lat"), f.table.get("lon")) else {
+        return vec![];
+    };
+    let step = (lat.len() / 20_000).max(1);
+    let mut out: Vec<[f64; 2]> = lat
+        .iter()
+        .zip(lon)
+        .step_by(step)
+        .map(|(a, o)| [*a, *o])
+        .collect();
+    if let (Some(a), Some(o)) = (lat.last(), lon.last()) {
+        out.push([*a, *o]);
+    }
+    out.retain(|p| {
+        p[0].is_finite() && p[1].is_finite() && p[0].abs() <= 90.0 && p[1].abs() <= 180.0
+    });
+    out
+}
+
+/// Checks the recipe's terrain model: readable, and covering every flight plus the margin.
+fn check_dem(r: &Recipe, recipe_path: &Path, flights: &[FileReport]) -> Vec<Problem> {
+    let Some(t) = &r.terrain else { return vec![] };
+    let dem_path = r.resolve(&t.dem);
+    let key = Location::file(recipe_path).with_key("terrain.dem");
+    let dem = match crate::geotiff_reader::read_geotiff(&dem_path) {
+        Ok(d) => d,
+        Err(p) => {
+            let mut out = vec![Problem::error(
+                key,
+                format!("the terrain model {} cannot be used", dem_path.display()),
+            )];
+            out.extend(p);
+            return out;
+        }
+    };
+    let (x_max, y_min) = (
+        dem.x_min + dem.nx as f64 * dem.dx,
+        dem.y_max - dem.ny as f64 * dem.dy,
+    );
+    let code = dem.epsg.unwrap_or(0);
+    let utm = match code {
+        32601..=32660 => Some((code - 32600, false)),
+        32701..=32760 => Some((code - 32700, true)),
+        _ => None,
+    };
+    let geographic = matches!(
+        gravgrad_core::raster::frame_kind_of_epsg(code),
+        gravgrad_core::raster::FrameKind::Geographic
+    );
+    let mut out = Vec::new();
+    for rep in flights {
+        for f in &rep.flights {
+            let Some([la0, la1, _, _]) = f.extent_deg else {
+                continue;
+            };
+            let corners: Vec<(f64, f64)> = f.track_deg.iter().map(|p| (p[0], p[1])).collect();
+            let (mut ex, mut ny) = (
+                [f64::INFINITY, f64::NEG_INFINITY],
+                [f64::INFINITY, f64::NEG_INFINITY],
+            );
+            let margin;
+            if let Some((zone, south)) = utm {
+                let Ok(tm) = gravgrad_core::projection::TransverseMercator::utm(
+                    &gravgrad_core::ellipsoid::WGS84,
+                    zone,
+                    south,
+                ) else {
+                    continue;
+                };
+                for (la, lo) in corners {
+                    let (e, n, _, _) = tm.forward(la.to_radians(), lo.to_radians());
+                    ex = [ex[0].min(e), ex[1].max(e)];
+                    ny = [ny[0].min(n), ny[1].max(n)];
+                }
+                margin = (t.margin_m, t.margin_m);
+            } else if geographic {
+                for (la, lo) in corners {
+                    ex = [ex[0].min(lo), ex[1].max(lo)];
+                    ny = [ny[0].min(la), ny[1].max(la)];
+                }
+                // Metres to degrees on the mean Earth radius (IUGG R1), for a warning only.
+                let deg = t.margin_m / (6_371_008.8 * std::f64::consts::PI / 180.0);
+                margin = (
+                    deg / la0.abs().max(la1.abs()).to_radians().cos().max(0.01),
+                    deg,
+                );
+            } else {
+                out.push(Problem::warning(key.clone(), format!("the terrain model's CRS (EPSG:{code}) is not a UTM zone or a geographic frame; its coverage is not checked")));
+                return out;
+            }
+            // Within one cell: the positions are samples of the path, and a DEM is cut at whole cells.
+            let (tx, ty) = (dem.dx, dem.dy);
+            let covered = dem.x_min <= ex[0] - margin.0 + tx
+                && x_max >= ex[1] + margin.0 - tx
+                && y_min <= ny[0] - margin.1 + ty
+                && dem.y_max >= ny[1] + margin.1 - ty;
+            if !covered {
+                out.push(
+                    Problem::warning(
+                        key.clone(),
+                        format!(
+                            "the terrain model does not cover {} plus the {} m margin: it spans x {:.0} to {:.0}, y {:.0} to {:.0}; the flight with its margin needs x {:.0} to {:.0}, y {:.0} to {:.0}",
+                            f.source, t.margin_m, dem.x_min, x_max, y_min, dem.y_max, ex[0] - margin.0, ex[1] + margin.0, ny[0] - margin.1, ny[1] + margin.1
+                        ),
+                    )
+                    .with_hint("extend the terrain model, or lower `terrain.margin_m` knowing the terrain effect near the edges is then incomplete"),
+                );
+            }
+        }
     }
     out
 }
@@ -361,6 +500,7 @@ pub fn check_recipe_file(path: &Path) -> Vec<FileReport> {
     for f in files {
         reports.push(check_flight_file(&f, &settings, nav.as_ref()));
     }
+    report.problems.extend(check_dem(&r, path, &reports));
     reports.insert(0, report);
     reports
 }
