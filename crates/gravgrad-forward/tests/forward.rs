@@ -336,10 +336,26 @@ fn finite_on_edges_and_corners() {
     }
 }
 
+/// The body of the grid tests: 1.2 × 0.8 km, 300–800 m below the plane, 300 kg/m³.
+fn body() -> Prism {
+    Prism::new([-600.0, 600.0], [-400.0, 400.0], [300.0, 800.0], 300.0)
+}
+
+/// The analytic g_z (m/s², down) of [`body`] at the nodes of `grid`, on the plane z = 0.
+fn analytic_gz(grid: &Grid) -> Vec<f64> {
+    let b = body();
+    (0..grid.nx * grid.ny)
+        .map(|k| {
+            let (x, y) = grid.node(k / grid.ny, k % grid.ny);
+            b.field([x, y, 0.0]).g[2]
+        })
+        .collect()
+}
+
 /// An n × n grid at 40 m over a body 1.2 × 0.8 km, 300–800 m below the plane, at the centre.
 fn analytic_grid(n: usize, height_above: f64) -> (Grid, Vec<[f64; 6]>) {
     let d = 40.0;
-    let body = Prism::new([-600.0, 600.0], [-400.0, 400.0], [300.0, 800.0], 300.0);
+    let body = body();
     let x0 = -(n as f64 - 1.0) * d / 2.0;
     let mut comps = Vec::with_capacity(n * n);
     for i in 0..n {
@@ -406,13 +422,7 @@ fn wavenumber_operators_derive_every_component_from_gzz() {
 fn gz_from_gzz_matches_the_prism_gravity_tied_to_the_mean() {
     // gz = Gzz/|k|; its mean is undefined, so it is tied to the reference's mean (docs/physics.md).
     let (gzz, _) = analytic_grid(512, 0.0);
-    let body = Prism::new([-600.0, 600.0], [-400.0, 400.0], [300.0, 800.0], 300.0);
-    let want: Vec<f64> = (0..gzz.nx * gzz.ny)
-        .map(|k| {
-            let (x, y) = gzz.node(k / gzz.ny, k % gzz.ny);
-            body.field([x, y, 0.0]).g[2]
-        })
-        .collect();
+    let want = analytic_gz(&gzz);
     let got = from_gzz(&gzz, Component::Gz).unwrap();
     let mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
     let shift = mean(&want) - mean(&got.values);
@@ -437,15 +447,8 @@ fn first_derivatives_of_gz_are_gxz_and_gzz() {
     // ∂g_z/∂x = Gxz and ∂g_z/∂z = Gzz (G symmetric, docs/physics.md): the derivative operators on an
     // analytic gz grid against the analytic tensor, 1% RMS over a 20.5 km grid.
     let (gzz, comps) = analytic_grid(512, 0.0);
-    let body = Prism::new([-600.0, 600.0], [-400.0, 400.0], [300.0, 800.0], 300.0);
-    let gz: Vec<f64> = (0..gzz.nx * gzz.ny)
-        .map(|k| {
-            let (x, y) = gzz.node(k / gzz.ny, k % gzz.ny);
-            body.field([x, y, 0.0]).g[2]
-        })
-        .collect();
     let gz = Grid {
-        values: gz,
+        values: analytic_gz(&gzz),
         ..gzz.clone()
     };
     for (axis, k) in [(0usize, 2usize), (1, 4), (2, 5)] {
