@@ -41,6 +41,13 @@ pub struct PairData<'a> {
     /// misalignment times the centripetal ΩΩ·r, 1e-8 m/s² at 6°/s) that the first-order model leaves
     /// out. `None`: all samples.
     pub usable: Option<&'a [bool]>,
+    /// The pair difference the known field predicts (normal field and terrain turned into the sensor
+    /// frame, nᵀ·G·b), m/s²: removed before bias and drift are fitted, so that they do not absorb
+    /// the normal gradient's thousands of Eötvös. `None`: nothing removed.
+    pub expected: Option<&'a [f64]>,
+    /// Aircraft attitude relative to the platform, radians: [roll, pitch] (aircraft minus sensor),
+    /// when the aircraft's attitude is logged; the self-gradient regressors.
+    pub relative_attitude: Option<[&'a [f64]; 2]>,
 }
 
 /// One pair's calibration.
@@ -54,6 +61,9 @@ pub struct PairCalibration {
     pub polynomial: Vec<Coefficient>,
     /// Temperature coefficient, m/s² per °C, when temperature was logged.
     pub temperature: Option<Coefficient>,
+    /// Self-gradient coefficients, m/s² per radian of relative roll and of relative pitch, when the
+    /// aircraft attitude was logged.
+    pub self_gradient: Option<[Coefficient; 2]>,
     /// Mid time of the flight, s (the polynomial's origin).
     pub t_mid: f64,
     /// Mean temperature, °C (the temperature term's origin).
@@ -62,33 +72,48 @@ pub struct PairCalibration {
     pub band_residual_rms: f64,
 }
 
-/// The usable samples, less `margin` samples at either side of every unusable one (the band-pass
-/// spreads a turn's content over about one period of the band's low edge).
-fn erode(usable: &[bool], margin: usize) -> Vec<usize> {
-    let n = usable.len();
-    let mut last_bad: Option<usize> = None;
-    let mut dist_left = vec![usize::MAX; n];
-    for i in 0..n {
-        if !usable[i] {
-            last_bad = Some(i);
+/// The runs of usable samples at least `min_len` long (all samples when `usable` is `None`), as
+/// index ranges.
+fn usable_runs(usable: Option<&[bool]>, n: usize, min_len: usize) -> Vec<std::ops::Range<usize>> {
+    let Some(u) = usable else {
+        return vec![0..n];
+    };
+    let mut out = Vec::new();
+    let mut i = 0;
+    while i < n {
+        if !u[i] {
+            i += 1;
+            continue;
         }
-        dist_left[i] = last_bad.map_or(usize::MAX, |b| i - b);
-    }
-    let mut next_bad: Option<usize> = None;
-    let mut keep = Vec::new();
-    let mut dist_right = vec![usize::MAX; n];
-    for i in (0..n).rev() {
-        if !usable[i] {
-            next_bad = Some(i);
+        let start = i;
+        while i < n && u[i] {
+            i += 1;
         }
-        dist_right[i] = next_bad.map_or(usize::MAX, |b| b - i);
-    }
-    for i in 0..n {
-        if usable[i] && dist_left[i] > margin && dist_right[i] > margin {
-            keep.push(i);
+        if i - start >= min_len {
+            out.push(start..i);
         }
     }
-    keep
+    out
+}
+
+/// Band-passes each run of `x` on its own and concatenates the runs less a quarter of the longest
+/// period (`rate/lo/4` samples) at either end, where the mirrored extension still shows.
+fn band_pass_runs(
+    x: &[f64],
+    runs: &[std::ops::Range<usize>],
+    rate: f64,
+    lo: f64,
+    hi: f64,
+) -> Vec<f64> {
+    let margin = (rate / lo / 4.0).ceil() as usize;
+    let mut out = Vec::new();
+    for r in runs {
+        let y = band_pass(&x[r.clone()], rate, lo, hi);
+        if y.len() > 2 * margin {
+            out.extend_from_slice(&y[margin..y.len() - margin]);
+        }
+    }
+    out
 }
 
 /// Least squares y ≈ X·β with standard errors inflated for autocorrelated residuals.
@@ -196,13 +221,10 @@ fn invert(m: &[Vec<f64>]) -> Vec<Vec<f64>> {
         .collect()
 }
 
-/// Estimates one pair's calibration.
-pub fn estimate(d: &PairData<'_>, s: &Settings) -> PairCalibration {
-    let [lo, hi] = s.band_hz;
-    let bp = |x: &[f64]| band_pass(x, s.rate_hz, lo, hi);
-    // d − nᵀ·ΩΩ·b, with ΩΩ·b = ω(ω·b) − |ω|²b.
+/// d − nᵀ·ΩΩ·b, m/s², with ΩΩ·b = ω(ω·b) − |ω|²b: the known centrifugal term removed.
+pub(crate) fn without_centrifugal(d: &PairData<'_>) -> Vec<f64> {
     let (nv, b) = (d.geometry.axis, d.geometry.baseline);
-    let diff: Vec<f64> = (0..d.difference.len())
+    (0..d.difference.len())
         .map(|i| {
             let w = [d.omega[0][i], d.omega[1][i], d.omega[2][i]];
             let wb = w[0] * b[0] + w[1] * b[1] + w[2] * b[2];
@@ -214,55 +236,156 @@ pub fn estimate(d: &PairData<'_>, s: &Settings) -> PairCalibration {
             ];
             d.difference[i] - (nv[0] * wwb[0] + nv[1] * wwb[1] + nv[2] * wwb[2])
         })
-        .collect();
-    // Step 1: κ (and the rotation regressors) in the band where aircraft motion dominates.
-    let mut cols: Vec<Vec<f64>> = d.f.iter().map(|c| bp(c)).collect();
-    cols.extend(d.alpha.iter().map(|c| bp(c)));
-    let ybp = bp(&diff);
-    let rows: Vec<usize> = match d.usable {
-        Some(u) => erode(u, (s.rate_hz / lo).ceil() as usize),
-        None => (0..diff.len()).collect(),
-    };
-    let pick = |v: &[f64]| -> Vec<f64> { rows.iter().map(|&i| v[i]).collect() };
-    let (c1, resid) = regress(
-        &cols.iter().map(|c| pick(c)).collect::<Vec<_>>(),
-        &pick(&ybp),
-    );
-    let band_residual_rms =
-        (resid.iter().map(|r| r * r).sum::<f64>() / resid.len().max(1) as f64).sqrt();
-    // Step 2: bias, drift and temperature from what remains over the whole band.
+        .collect()
+}
+
+/// Keeps a calibration's κ, rotation, temperature and self-gradient coefficients (from a
+/// calibration flight) and fits only bias and drift to this flight's data: they change from flight
+/// to flight.
+pub fn refit_bias_and_drift(
+    d: &PairData<'_>,
+    s: &Settings,
+    cal: &PairCalibration,
+) -> PairCalibration {
+    let diff = without_centrifugal(d);
     let n = diff.len();
-    let t_mid = 0.5 * (d.time[0] + d.time[n - 1]);
+    let mut fixed = cal.clone();
+    fixed.polynomial.clear();
     let rest: Vec<f64> = (0..n)
         .map(|i| {
             diff[i]
+                - d.expected.map_or(0.0, |e| e[i])
+                - fixed.correction_at(d, i)
                 - (0..3)
-                    .map(|k| c1[k].value * d.f[k][i] + c1[3 + k].value * d.alpha[k][i])
+                    .map(|k| cal.rotation[k].value * d.alpha[k][i])
                     .sum::<f64>()
         })
         .collect();
-    let mut cols2: Vec<Vec<f64>> = (0..=s.drift_order)
-        .map(|p| d.time.iter().map(|t| (t - t_mid).powi(p as i32)).collect())
+    let (poly, t_mid) = fit_polynomial(&rest, d.time, s.drift_order, d.usable);
+    fixed.polynomial = poly;
+    fixed.t_mid = t_mid;
+    fixed
+}
+
+/// Estimates one pair's calibration on its own, with the gyro angular acceleration as regressors of
+/// the rotation term. [`crate::joint::estimate_flight`] does better for a whole instrument: it fits
+/// in the space of the solved unknowns, where the angular acceleration drops out.
+pub fn estimate(d: &PairData<'_>, s: &Settings) -> PairCalibration {
+    let diff: Vec<f64> = without_centrifugal(d)
+        .iter()
+        .enumerate()
+        .map(|(i, v)| v - d.expected.map_or(0.0, |e| e[i]))
         .collect();
+    fit_series(&diff, d, true, s)
+}
+
+/// The calibration model fitted to one series `y` (m/s²) whose known field is already removed: κ
+/// (with the gyro angular acceleration as extra regressors when `with_alpha`) in the band where
+/// aircraft motion dominates, then bias, drift, temperature and self-gradient over the whole band.
+/// The known field must come off first: the terrain's signal along track is strong in the band and
+/// would otherwise leak into κ through chance correlation with f.
+pub(crate) fn fit_series(
+    y: &[f64],
+    d: &PairData<'_>,
+    with_alpha: bool,
+    s: &Settings,
+) -> PairCalibration {
+    let [lo, hi] = s.band_hz;
+    // Step 1: κ (and the rotation regressors) in the band where aircraft motion dominates. Each line
+    // is filtered on its own, so that nothing of the turns (where rotation terms are thousands of
+    // times larger) leaks into the line samples, and the ends of each line are dropped.
+    let runs = usable_runs(d.usable, y.len(), (s.rate_hz / lo).ceil() as usize);
+    let bp = |x: &[f64]| -> Vec<f64> { band_pass_runs(x, &runs, s.rate_hz, lo, hi) };
+    let mut cols: Vec<Vec<f64>> = d.f.iter().map(|c| bp(c)).collect();
+    if with_alpha {
+        cols.extend(d.alpha.iter().map(|c| bp(c)));
+    }
+    let (c1, resid) = regress(&cols, &bp(y));
+    let band_residual_rms =
+        (resid.iter().map(|r| r * r).sum::<f64>() / resid.len().max(1) as f64).sqrt();
+    let zero = Coefficient {
+        value: 0.0,
+        std_error: 0.0,
+    };
+    let rotation = if with_alpha {
+        [c1[3], c1[4], c1[5]]
+    } else {
+        [zero; 3]
+    };
+    // Step 2: bias, drift and temperature from what remains over the whole band.
+    let n = y.len();
+    let t_mid = 0.5 * (d.time[0] + d.time[n - 1]);
+    let rest: Vec<f64> = (0..n)
+        .map(|i| {
+            y[i] - (0..3)
+                .map(|k| c1[k].value * d.f[k][i] + rotation[k].value * d.alpha[k][i])
+                .sum::<f64>()
+        })
+        .collect();
+    let mut cols2 = polynomial_columns(d.time, t_mid, s.drift_order);
     let temperature_mean = d
         .temperature
         .map_or(0.0, |t| t.iter().sum::<f64>() / t.len() as f64);
+    let n_poly = cols2.len();
     if let Some(t) = d.temperature {
         cols2.push(t.iter().map(|v| v - temperature_mean).collect());
     }
-    let (c2, _) = regress(&cols2, &rest);
-    let (polynomial, temperature) = if d.temperature.is_some() {
-        (c2[..c2.len() - 1].to_vec(), c2.last().copied())
-    } else {
-        (c2, None)
+    if let Some(rel) = d.relative_attitude {
+        cols2.extend(rel.iter().map(|c| c.to_vec()));
+    }
+    // Over line samples only: in turns the rotation terms are thousands of times larger and carry
+    // second-order terms the model leaves out.
+    let line_rows: Vec<usize> = match d.usable {
+        Some(u) => (0..n).filter(|&i| u[i]).collect(),
+        None => (0..n).collect(),
     };
+    let on_lines = |v: &[f64]| -> Vec<f64> { line_rows.iter().map(|&i| v[i]).collect() };
+    let (c2, _) = regress(
+        &cols2.iter().map(|c| on_lines(c)).collect::<Vec<_>>(),
+        &on_lines(&rest),
+    );
+    let polynomial = c2[..n_poly].to_vec();
+    let temperature = d.temperature.map(|_| c2[n_poly]);
+    let self_gradient = d.relative_attitude.map(|_| {
+        let k = c2.len();
+        [c2[k - 2], c2[k - 1]]
+    });
     PairCalibration {
         kappa: [c1[0], c1[1], c1[2]],
-        rotation: [c1[3], c1[4], c1[5]],
+        rotation,
         polynomial,
         temperature,
+        self_gradient,
         t_mid,
         temperature_mean,
         band_residual_rms,
     }
+}
+
+/// Columns (t − t_mid)^p, p = 0 … order.
+pub(crate) fn polynomial_columns(time: &[f64], t_mid: f64, order: usize) -> Vec<Vec<f64>> {
+    (0..=order)
+        .map(|p| time.iter().map(|t| (t - t_mid).powi(p as i32)).collect())
+        .collect()
+}
+
+/// Bias and drift of a series `y` (m/s²) from which everything else is removed, fitted over the
+/// `usable` samples (all when `None`).
+pub(crate) fn fit_polynomial(
+    y: &[f64],
+    time: &[f64],
+    order: usize,
+    usable: Option<&[bool]>,
+) -> (Vec<Coefficient>, f64) {
+    let t_mid = 0.5 * (time[0] + time[time.len() - 1]);
+    let rows: Vec<usize> = (0..y.len())
+        .filter(|&i| usable.is_none_or(|u| u[i]))
+        .collect();
+    let pick = |v: &[f64]| -> Vec<f64> { rows.iter().map(|&i| v[i]).collect() };
+    let cols: Vec<Vec<f64>> = polynomial_columns(time, t_mid, order)
+        .iter()
+        .map(|c| pick(c))
+        .collect();
+    let (c, _) = regress(&cols, &pick(y));
+    (c, t_mid)
 }

@@ -8,8 +8,13 @@
 //! that accounts for the residuals' autocorrelation (effective sample size, Bretherton et al. 1999,
 //! J. Climate 12:1990–2009).
 //!
-//! Units: m/s² for pair outputs and f, rad/s² for α, seconds, °C. No I/O. Work in progress (issue 5):
-//! the calibration file, self-gradient regression and the `calibrate` command follow.
+//! Units: m/s² for pair outputs and f, rad/s² for α, seconds, °C. No I/O. Self-gradient: when the aircraft's attitude is logged, its
+//! roll and pitch relative to the platform join bias, drift and temperature as regressors (the
+//! aircraft's own mass moves relative to the sensor as it banks and pitches). A calibration file
+//! ([`file`]) carries the coefficients to later flights.
 
+pub mod apply;
 pub mod bandpass;
 pub mod estimate;
+pub mod file;
+pub mod joint;

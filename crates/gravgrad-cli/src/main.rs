@@ -1,12 +1,17 @@
 //! The `gravgrad` command. Thin glue over the stage crates: parse arguments, call the stages,
 //! print, and map outcomes to exit codes (0 success, 1 processing failure, 2 bad input or usage).
 
+mod calibrate_cmd;
 mod check_cmd;
 mod demo_cmd;
+mod lines_out;
 mod logging;
+mod pipeline;
 mod report;
+mod run_cmd;
 mod simulate_cmd;
 mod tables;
+mod terrain_stage;
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
@@ -38,6 +43,11 @@ enum Command {
     Check(check_cmd::CheckArgs),
     /// Simulate a survey with known truth from a scenario file: raw log, instrument, DEM, recipe, truth.
     Simulate(simulate_cmd::SimulateArgs),
+    /// Process a survey from its recipe: calibration, rotation removal, normal and terrain
+    /// reduction, into the recipe's output folder.
+    Run(run_cmd::RunArgs),
+    /// Estimate each pair's calibration from the recipe's flights; write the calibration file.
+    Calibrate(calibrate_cmd::CalibrateArgs),
     /// Check the bundled demo survey and show what gravgrad reports on it.
     Demo {
         /// Folder of the demo survey (default: the repository's data/demo).
@@ -76,6 +86,8 @@ fn main() -> ExitCode {
         Command::Check(args) => check_cmd::run(&args, &log, cli.json),
         Command::Demo { data } => demo_cmd::run(data, &log, cli.json),
         Command::Simulate(args) => simulate_cmd::run(&args, &log),
+        Command::Run(args) => run_cmd::run(&args, &log),
+        Command::Calibrate(args) => calibrate_cmd::run(&args, &log),
     };
     ExitCode::from(code)
 }

@@ -4,6 +4,7 @@
 
 use parquet::basic::{Compression, ZstdLevel};
 use parquet::data_type::{DoubleType, Int64Type};
+use parquet::file::metadata::KeyValue;
 use parquet::file::properties::WriterProperties;
 use parquet::file::writer::SerializedFileWriter;
 use parquet::schema::parser::parse_message_type;
@@ -74,6 +75,15 @@ pub fn write_atomic(
 
 /// Parquet: REQUIRED DOUBLE / INT64 columns, zstd, row groups of 128k rows.
 pub fn write_parquet(path: &Path, columns: &[(&str, Column<'_>)]) -> Result<(), WriteError> {
+    write_parquet_with_metadata(path, columns, &[])
+}
+
+/// [`write_parquet`] with key–value metadata in the file footer (layout version, units, names).
+pub fn write_parquet_with_metadata(
+    path: &Path,
+    columns: &[(&str, Column<'_>)],
+    metadata: &[(String, String)],
+) -> Result<(), WriteError> {
     let n = columns.first().map_or(0, |c| c.1.len());
     if let Some((name, _)) = columns.iter().find(|c| c.1.len() != n) {
         return Err(err(path, format!("column `{name}` has a different length")));
@@ -95,6 +105,12 @@ pub fn write_parquet(path: &Path, columns: &[(&str, Column<'_>)]) -> Result<(), 
             WriterProperties::builder()
                 .set_compression(Compression::ZSTD(level))
                 .set_created_by("gravgrad".into())
+                .set_key_value_metadata((!metadata.is_empty()).then(|| {
+                    metadata
+                        .iter()
+                        .map(|(k, v)| KeyValue::new(k.clone(), v.clone()))
+                        .collect()
+                }))
                 .build(),
         );
         let mut w = SerializedFileWriter::new(file, schema, props).map_err(|e| e.to_string())?;

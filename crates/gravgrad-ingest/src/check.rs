@@ -115,8 +115,29 @@ impl FileReport {
     }
 }
 
+/// A flight read and checked, ready for processing.
+#[derive(Debug)]
+pub struct LoadedFlight {
+    pub flight: Flight,
+    /// Line segments (table index ranges), gaps and time base as the check found them.
+    pub lines: Vec<Segment>,
+    pub gaps: Vec<Gap>,
+    pub time_base: Option<TimeBase>,
+}
+
 /// Checks one flight log.
 pub fn check_flight_file(path: &Path, s: &CheckSettings, nav: Option<&Flight>) -> FileReport {
+    load_flight_file(path, s, nav).0
+}
+
+/// Reads and checks one flight log: the report, and the flights that were read (also those with
+/// errors; the caller decides from the report).
+pub fn load_flight_file(
+    path: &Path,
+    s: &CheckSettings,
+    nav: Option<&Flight>,
+) -> (FileReport, Vec<LoadedFlight>) {
+    let mut loaded = Vec::new();
     let mut report = FileReport::new(path, FileKind::Flight);
     let ids = s.instrument.as_ref().map(|i| i.pair_ids());
     let supplied: Vec<&str> = nav
@@ -205,8 +226,15 @@ pub fn check_flight_file(path: &Path, s: &CheckSettings, nav: Option<&Flight>) -
             extent_deg: extent(&flight),
             track_deg: track(&flight),
         });
+        let fr = report.flights.last().expect("pushed above");
+        loaded.push(LoadedFlight {
+            lines: fr.lines.clone(),
+            gaps: fr.gaps.clone(),
+            time_base: fr.time_base.clone(),
+            flight,
+        });
     }
-    report
+    (report, loaded)
 }
 
 /// Drops errors located at a cell (or in a row) that an earlier error already covers: a cell the
@@ -447,12 +475,36 @@ pub fn check_instrument_file(path: &Path) -> (Option<Instrument>, FileReport) {
 
 /// Checks a recipe, its instrument, navigation table and every flight file it names.
 pub fn check_recipe_file(path: &Path) -> Vec<FileReport> {
+    load_recipe(path).reports
+}
+
+/// A recipe with everything it names, read and checked.
+#[derive(Debug, Default)]
+pub struct Survey {
+    /// The recipe's report first, then navigation and flight files.
+    pub reports: Vec<FileReport>,
+    pub recipe: Option<Recipe>,
+    pub instrument: Option<Instrument>,
+    pub flights: Vec<LoadedFlight>,
+}
+
+impl Survey {
+    pub fn has_errors(&self) -> bool {
+        self.reports.iter().any(FileReport::has_errors)
+    }
+}
+
+/// Reads and checks a recipe, its instrument, navigation table and every flight file it names.
+pub fn load_recipe(path: &Path) -> Survey {
     let mut report = FileReport::new(path, FileKind::Recipe);
     let r = match read_recipe(path) {
         Ok(r) => r,
         Err(p) => {
             report.problems = p;
-            return vec![report];
+            return Survey {
+                reports: vec![report],
+                ..Survey::default()
+            };
         }
     };
     let inst_path = r.resolve(&r.instrument.path);
@@ -477,8 +529,9 @@ pub fn check_recipe_file(path: &Path) -> Vec<FileReport> {
             None
         }
     };
-    let settings = CheckSettings::from_recipe(&r, inst);
+    let settings = CheckSettings::from_recipe(&r, inst.clone());
     let mut reports = vec![];
+    let mut flights = vec![];
     let files = match r.flight_files(path) {
         Ok(f) => f,
         Err(p) => {
@@ -494,15 +547,27 @@ pub fn check_recipe_file(path: &Path) -> Vec<FileReport> {
         reports.push(nrep);
         if failed {
             reports.insert(0, report);
-            return reports;
+            return Survey {
+                reports,
+                recipe: Some(r),
+                instrument: inst,
+                flights,
+            };
         }
     }
     for f in files {
-        reports.push(check_flight_file(&f, &settings, nav.as_ref()));
+        let (rep, fl) = load_flight_file(&f, &settings, nav.as_ref());
+        reports.push(rep);
+        flights.extend(fl);
     }
     report.problems.extend(check_dem(&r, path, &reports));
     reports.insert(0, report);
-    reports
+    Survey {
+        reports,
+        recipe: Some(r),
+        instrument: inst,
+        flights,
+    }
 }
 
 /// Checks any file: a recipe or instrument (by its `layout`), or a flight log. `settings` applies to

@@ -103,6 +103,9 @@ pub enum CalibrationMode {
     #[default]
     Estimate,
     File,
+    /// No calibration: pair outputs are used as logged (error-free simulations, or data calibrated
+    /// upstream).
+    None,
 }
 
 #[derive(Clone, Debug, Deserialize, Serialize)]
@@ -191,6 +194,10 @@ pub struct Terrain {
     /// Target accuracy of the fast terrain engine, E.
     #[serde(default = "default_terrain_accuracy")]
     pub accuracy_e: f64,
+    /// Level (m above the ellipsoid) from which the terrain mass is counted: above it with +density,
+    /// below it with −density. Absent: the DEM's mean elevation.
+    #[serde(default)]
+    pub reference_m: Option<f64>,
 }
 
 fn default_density() -> f64 {

@@ -4,7 +4,7 @@ use crate::gyro::angular_acceleration;
 use gravgrad_core::SymTensor;
 use gravgrad_core::attitude::Attitude;
 use gravgrad_core::mat3::{self, Mat3, Vec3};
-use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, jacobi_eigen, observability};
+use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, observability, pseudo_inverse};
 use rayon::prelude::*;
 
 /// How to solve.
@@ -73,56 +73,6 @@ pub struct Solution {
     /// True when only the heading rotates the tensor into NED (partial instruments; the error this
     /// leaves is at most |Gxz, Gyz|·max(|roll|, |pitch|)).
     pub heading_only: bool,
-}
-
-/// A least-squares operator: unknowns = P·y, with the unknowns it determines.
-struct Operator {
-    p: Vec<Vec<f64>>,
-    observed: Vec<bool>,
-}
-
-/// The pseudo-inverse of A (rows × k) from the eigenvectors of AᵀA (minimum-norm in the blind
-/// directions, which are reported as unobserved).
-fn pseudo_inverse(rows: &[Vec<f64>], k: usize) -> Operator {
-    let mut n = vec![vec![0.0; k]; k];
-    for r in rows {
-        for i in 0..k {
-            for j in 0..k {
-                n[i][j] += r[i] * r[j];
-            }
-        }
-    }
-    let (vals, vecs) = jacobi_eigen(n);
-    let vmax = vals.iter().cloned().fold(0.0f64, f64::max);
-    let keep: Vec<usize> = (0..k)
-        .filter(|&e| vals[e] > 1e-10 * vmax.max(1e-300))
-        .collect();
-    // N⁺ = Σ v vᵀ / λ over kept eigenpairs; P = N⁺ Aᵀ.
-    let mut ninv = vec![vec![0.0; k]; k];
-    for &e in &keep {
-        for i in 0..k {
-            for j in 0..k {
-                ninv[i][j] += vecs[i][e] * vecs[j][e] / vals[e];
-            }
-        }
-    }
-    let p = (0..k)
-        .map(|i| {
-            rows.iter()
-                .map(|r| (0..k).map(|j| ninv[i][j] * r[j]).sum())
-                .collect()
-        })
-        .collect();
-    let observed = (0..k)
-        .map(|i| {
-            let leak: f64 = (0..k)
-                .filter(|e| !keep.contains(e))
-                .map(|e| vecs[i][e] * vecs[i][e])
-                .sum();
-            leak < 1e-12
-        })
-        .collect();
-    Operator { p, observed }
 }
 
 /// Solves every sample.

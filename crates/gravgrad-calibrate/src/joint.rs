@@ -1,0 +1,241 @@
+//! The calibration of a whole instrument, fitted where the solve will use it.
+//!
+//! Each pair's difference is d_k = κ_k·f + c_k(t) − A_k·u with u = [S; α] the unknowns of the
+//! solve (`docs/physics.md`), c_k bias, drift, temperature and self-gradient terms. The solve forms
+//! û = P·(−d) with P the pseudo-inverse of A; a calibration error δκ reaches the tensor only as
+//! P·δκ·f. So κ is estimated as K = P·κ, one regression per unknown on û, plus (I − A·P)·κ from
+//! the pairs' residuals r = −d − A·û; per pair κ = A·K + (I − A·P)·κ. When the pairs determine α
+//! themselves, the tensor rows of û do not contain α at all: their regression needs no gyro
+//! regressor, and the gyros' differentiated noise, which dominates a single cross pair's fit, stays
+//! out of the tensor's calibration. The α rows are regressed after the gyro α is subtracted.
+//! Standard errors combine the rows' errors as if independent.
+//!
+//! Units: m/s² for differences, s⁻² for S, rad/s² for α.
+
+use crate::estimate::{
+    Coefficient, PairCalibration, PairData, Settings, fit_polynomial, fit_series,
+    without_centrifugal,
+};
+use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
+
+/// One flight of a whole instrument, on one time base.
+pub struct FlightData<'a> {
+    pub pairs: &'a [PairGeometry],
+    /// a − b per pair, m/s².
+    pub differences: Vec<&'a [f64]>,
+    /// The known field's part of each difference (−nᵀ·G·b), m/s²; empty: none.
+    pub expected: Vec<&'a [f64]>,
+    /// Angular rate, sensor axes, rad/s.
+    pub omega: [&'a [f64]; 3],
+    /// Specific force, sensor axes, m/s².
+    pub f: [&'a [f64]; 3],
+    /// Angular acceleration from the gyros, sensor axes, rad/s².
+    pub alpha: [&'a [f64]; 3],
+    pub time: &'a [f64],
+    pub temperature: Option<&'a [f64]>,
+    pub usable: Option<&'a [bool]>,
+    pub relative_attitude: Option<[&'a [f64]; 2]>,
+    /// True when the solve takes α from the pairs; false: from the gyros.
+    pub alpha_from_pairs: bool,
+}
+
+impl<'a> FlightData<'a> {
+    fn series(&self, k: usize, y: &'a [f64]) -> PairData<'a> {
+        PairData {
+            geometry: &self.pairs[k],
+            difference: y,
+            omega: self.omega,
+            f: self.f,
+            alpha: self.alpha,
+            time: self.time,
+            temperature: self.temperature,
+            usable: self.usable,
+            expected: self.expected.get(k).copied(),
+            relative_attitude: self.relative_attitude,
+        }
+    }
+}
+
+fn combine(parts: &[(f64, Coefficient)]) -> Coefficient {
+    Coefficient {
+        value: parts.iter().map(|(w, c)| w * c.value).sum(),
+        std_error: parts
+            .iter()
+            .map(|(w, c)| (w * c.std_error).powi(2))
+            .sum::<f64>()
+            .sqrt(),
+    }
+}
+
+/// Estimates every pair's calibration from one flight. With `fixed` (a calibration flight's
+/// coefficients, one per pair in order), κ, temperature and self-gradient are kept and only bias and
+/// drift are fitted, also in the space of the unknowns.
+pub fn estimate_flight(
+    d: &FlightData<'_>,
+    s: &Settings,
+    fixed: Option<&[PairCalibration]>,
+) -> Vec<PairCalibration> {
+    let np = d.pairs.len();
+    let n = d.time.len();
+    let k = if d.alpha_from_pairs { 9 } else { 6 };
+    let rows: Vec<[f64; 9]> = d.pairs.iter().map(PairGeometry::design_row).collect();
+    let a: Vec<Vec<f64>> = rows.iter().map(|r| r[..k].to_vec()).collect();
+    let op = pseudo_inverse(&a, k);
+    // z_k = −(d_k − centrifugal − expected − fixed part), less the gyro α term when the solve uses it.
+    let z: Vec<Vec<f64>> = (0..np)
+        .map(|p| {
+            let data = d.series(p, d.differences[p]);
+            let y = without_centrifugal(&data);
+            (0..n)
+                .map(|i| {
+                    let mut v = y[i] - data.expected.map_or(0.0, |e| e[i]);
+                    if let Some(fx) = fixed {
+                        let mut c = fx[p].clone();
+                        c.polynomial.clear();
+                        v -= c.correction_at(&data, i);
+                    }
+                    let mut zv = -v;
+                    if !d.alpha_from_pairs {
+                        zv -= (0..3).map(|m| rows[p][6 + m] * d.alpha[m][i]).sum::<f64>();
+                    }
+                    zv
+                })
+                .collect()
+        })
+        .collect();
+    // PA, to predict the α the unknown rows carry from the gyros.
+    let pa: Vec<Vec<f64>> = (0..k)
+        .map(|j| {
+            (0..k)
+                .map(|m| (0..np).map(|p| op.p[j][p] * a[p][m]).sum())
+                .collect()
+        })
+        .collect();
+    let u: Vec<Vec<f64>> = (0..k)
+        .map(|j| {
+            (0..n)
+                .map(|i| (0..np).map(|p| op.p[j][p] * z[p][i]).sum())
+                .collect()
+        })
+        .collect();
+    // Targets: −û_j (+ the gyro prediction of its α content), and −r_p.
+    let mut targets: Vec<Vec<f64>> = (0..k)
+        .map(|j| {
+            (0..n)
+                .map(|i| {
+                    let mut t = -u[j][i];
+                    if d.alpha_from_pairs {
+                        t += (0..3).map(|m| pa[j][6 + m] * d.alpha[m][i]).sum::<f64>();
+                    }
+                    t
+                })
+                .collect()
+        })
+        .collect();
+    // The residual projector I − A·P; rows that vanish carry nothing.
+    let proj: Vec<Vec<f64>> = (0..np)
+        .map(|p| {
+            (0..np)
+                .map(|q| {
+                    let ap: f64 = (0..k).map(|j| a[p][j] * op.p[j][q]).sum();
+                    if p == q { 1.0 - ap } else { -ap }
+                })
+                .collect()
+        })
+        .collect();
+    let has_residual: Vec<bool> = proj
+        .iter()
+        .map(|r| r.iter().any(|v| v.abs() > 1e-9))
+        .collect();
+    for p in 0..np {
+        targets.push(if has_residual[p] {
+            (0..n)
+                .map(|i| -(z[p][i] - (0..k).map(|j| a[p][j] * u[j][i]).sum::<f64>()))
+                .collect()
+        } else {
+            Vec::new()
+        });
+    }
+    // Fit each target: the full model, or bias and drift only.
+    let fits: Vec<Option<PairCalibration>> = targets
+        .iter()
+        .map(|y| {
+            if y.is_empty() {
+                return None;
+            }
+            let data = d.series(0, y);
+            Some(match fixed {
+                None => fit_series(y, &data, false, s),
+                Some(fx) => {
+                    let (poly, t_mid) = fit_polynomial(y, d.time, s.drift_order, d.usable);
+                    let mut c = fx[0].clone();
+                    c.polynomial = poly;
+                    c.t_mid = t_mid;
+                    c.band_residual_rms = 0.0;
+                    c
+                }
+            })
+        })
+        .collect();
+    (0..np)
+        .map(|p| {
+            // Weights: A_pj for the unknown rows, 1 for the pair's own residual row.
+            let mut parts: Vec<(f64, &PairCalibration)> = (0..k)
+                .filter_map(|j| fits[j].as_ref().map(|c| (a[p][j], c)))
+                .collect();
+            if let Some(c) = &fits[k + p] {
+                parts.push((1.0, c));
+            }
+            let pick =
+                |get: &dyn Fn(&PairCalibration) -> Option<Coefficient>| -> Option<Coefficient> {
+                    let v: Vec<(f64, Coefficient)> = parts
+                        .iter()
+                        .filter_map(|(w, c)| get(c).map(|x| (*w, x)))
+                        .collect();
+                    (!v.is_empty()).then(|| combine(&v))
+                };
+            let zero = Coefficient {
+                value: 0.0,
+                std_error: 0.0,
+            };
+            let first = parts.first().map(|x| x.1);
+            let n_poly = first.map_or(0, |c| c.polynomial.len());
+            let polynomial = (0..n_poly)
+                .map(|q| pick(&|c| c.polynomial.get(q).copied()).unwrap_or(zero))
+                .collect();
+            let band = parts
+                .iter()
+                .map(|(w, c)| (w * c.band_residual_rms).powi(2))
+                .sum::<f64>()
+                .sqrt();
+            let base = match fixed {
+                Some(fx) => fx[p].clone(),
+                None => PairCalibration {
+                    kappa: std::array::from_fn(|m| pick(&|c| Some(c.kappa[m])).unwrap_or(zero)),
+                    rotation: [zero; 3],
+                    polynomial: vec![],
+                    temperature: pick(&|c| c.temperature),
+                    self_gradient: {
+                        let r = pick(&|c| c.self_gradient.map(|x| x[0]));
+                        let q = pick(&|c| c.self_gradient.map(|x| x[1]));
+                        r.zip(q).map(|(r, q)| [r, q])
+                    },
+                    t_mid: 0.0,
+                    temperature_mean: first.map_or(0.0, |c| c.temperature_mean),
+                    band_residual_rms: band,
+                },
+            };
+            // The rotation term is geometry: d carries (b × n)·α.
+            let rotation = std::array::from_fn(|m| Coefficient {
+                value: -rows[p][6 + m],
+                std_error: 0.0,
+            });
+            PairCalibration {
+                rotation,
+                polynomial,
+                t_mid: first.map_or(0.0, |c| c.t_mid),
+                ..base
+            }
+        })
+        .collect()
+}

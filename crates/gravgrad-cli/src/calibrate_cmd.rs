@@ -1,0 +1,136 @@
+//! `gravgrad calibrate RECIPE`: estimate every pair's calibration from the recipe's flights, write the
+//! calibration file (one per flight when there are several) and a short report.
+
+use crate::logging::Log;
+use crate::run_cmd::{self, Processed};
+use crate::tables::write_atomic;
+use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
+use clap::Args;
+use gravgrad_calibrate::file::CalibrationFile;
+use gravgrad_core::units::EOTVOS;
+use gravgrad_ingest::recipe::CalibrationMode;
+use std::fmt::Write as _;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+#[derive(Args, Debug)]
+pub struct CalibrateArgs {
+    /// Processing recipe (layout `recipe/1`, TOML).
+    #[arg(value_name = "RECIPE")]
+    pub recipe: PathBuf,
+    /// Calibration file to write (default: the recipe's `calibration.file`, else
+    /// `calibration.toml` beside the recipe). With several flights, each gets its own file named
+    /// after the flight.
+    #[arg(long, value_name = "FILE")]
+    pub out: Option<PathBuf>,
+}
+
+/// The report: one row per pair with its coefficients and standard errors.
+pub fn report(name: &str, file: &CalibrationFile, baselines: &[(String, f64)]) -> String {
+    let mut s = format!(
+        "calibration of {name} (band {}–{} Hz)\n{:<6} {:>24} {:>24} {:>24} {:>14} {:>12} {:>10}\n",
+        file.band_hz[0],
+        file.band_hz[1],
+        "pair",
+        "κx ± SE",
+        "κy ± SE",
+        "κz ± SE",
+        "drift E/h",
+        "temp E/°C",
+        "resid E"
+    );
+    for p in &file.pair {
+        let b = baselines
+            .iter()
+            .find(|(id, _)| *id == p.id)
+            .map_or(1.0, |x| x.1);
+        let to_e = |v: f64| v / b / EOTVOS;
+        let k = |i: usize| format!("{:+.3e} ± {:.1e}", p.kappa[i], p.kappa_se[i]);
+        let _ = writeln!(
+            s,
+            "{:<6} {:>24} {:>24} {:>24} {:>14} {:>12} {:>10.3}",
+            p.id,
+            k(0),
+            k(1),
+            k(2),
+            p.drift
+                .first()
+                .map_or("—".into(), |d| format!("{:+.3}", to_e(*d) * 3600.0)),
+            p.temperature_m_s2_per_c
+                .map_or("—".into(), |t| format!("{:+.3}", to_e(t))),
+            to_e(p.band_residual_m_s2)
+        );
+    }
+    s
+}
+
+fn target_paths(p: &Processed, args: &CalibrateArgs) -> Vec<PathBuf> {
+    let base = match (&args.out, p.survey.recipe.as_ref()) {
+        (Some(o), _) => o.clone(),
+        (None, Some(r)) => r.resolve(r.calibration.file.as_deref().unwrap_or("calibration.toml")),
+        (None, None) => PathBuf::from("calibration.toml"),
+    };
+    if p.names.len() == 1 {
+        return vec![base];
+    }
+    let stem = base
+        .file_stem()
+        .map_or("calibration".into(), |s| s.to_string_lossy().into_owned());
+    p.names
+        .iter()
+        .map(|n| base.with_file_name(format!("{stem}-{n}.toml")))
+        .collect()
+}
+
+fn write_text(path: &Path, text: &str) -> Result<(), String> {
+    write_atomic(path, |f| {
+        f.write_all(text.as_bytes()).map_err(|e| e.to_string())
+    })
+    .map_err(|e| e.to_string())
+}
+
+pub fn run(args: &CalibrateArgs, log: &Log) -> u8 {
+    let p = match run_cmd::process(&args.recipe, log, Some(CalibrationMode::Estimate)) {
+        Ok(p) => p,
+        Err(code) => return code,
+    };
+    if p.results.is_empty() {
+        eprintln!(
+            "error: {}: no flights to calibrate from",
+            args.recipe.display()
+        );
+        return EXIT_BAD_INPUT;
+    }
+    let band = p
+        .survey
+        .recipe
+        .as_ref()
+        .map_or([0.05, 1.0], |r| r.calibration.band_hz);
+    let baselines: Vec<(String, f64)> = p
+        .survey
+        .instrument
+        .as_ref()
+        .map(|i| {
+            i.pairs
+                .iter()
+                .map(|g| (g.id.clone(), gravgrad_core::mat3::norm(&g.baseline)))
+                .collect()
+        })
+        .unwrap_or_default();
+    for ((name, r), path) in p.names.iter().zip(&p.results).zip(target_paths(&p, args)) {
+        let file = CalibrationFile::new(name, band, &r.calibration);
+        let text = report(name, &file, &baselines);
+        let report_path = path.with_extension("report.txt");
+        if let Err(e) =
+            write_text(&path, &file.to_toml()).and_then(|_| write_text(&report_path, &text))
+        {
+            eprintln!("error: {e}");
+            return EXIT_FAILURE;
+        }
+        if !log.quiet {
+            print!("{text}");
+        }
+        log.info(&format!("calibration written to {}", path.display()));
+    }
+    0
+}

@@ -1,0 +1,454 @@
+//! One flight from raw log to the reduced tensor along its samples, for `gravgrad run` and
+//! `gravgrad calibrate`: positions in the survey's projection, the normal and terrain fields,
+//! calibration, rotation-term removal and rotation to NED, then the reductions. The stages are the
+//! library crates'; this module only feeds them and collects their results. It reads no file and
+//! prints nothing.
+//!
+//! Frames and units: tensors in s⁻² here (Eötvös only in files), NED with true north unless a name
+//! says grid; positions in degrees (geodetic) and projected metres.
+
+use gravgrad_calibrate::estimate::{self, PairCalibration, PairData};
+use gravgrad_calibrate::file::CalibrationFile;
+use gravgrad_calibrate::joint::{FlightData, estimate_flight};
+use gravgrad_core::attitude::Attitude;
+use gravgrad_core::ellipsoid::Ellipsoid;
+use gravgrad_core::mat3::{self, Mat3};
+use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, observability};
+use gravgrad_core::projection::TransverseMercator;
+use gravgrad_core::{Location, Problem, SymTensor};
+use gravgrad_forward::normal::NormalField;
+use gravgrad_ingest::check::LoadedFlight;
+use gravgrad_ingest::instrument::Instrument;
+use gravgrad_ingest::recipe::{AlphaChoice, Recipe};
+use gravgrad_rotation::gyro::angular_acceleration;
+use gravgrad_rotation::solve::{Inputs, PairSeries, SolveSettings, solve};
+use rayon::prelude::*;
+
+/// The survey's map projection: UTM, with its EPSG code.
+#[derive(Clone, Copy, Debug)]
+pub struct MapFrame {
+    pub projection: TransverseMercator,
+    pub epsg: u32,
+}
+
+/// The projection the recipe asks for: `"utm"` picks the zone of the survey's mean longitude (and
+/// the southern variant when the mean latitude is south), `"EPSG:326zz"`/`"EPSG:327zz"` a given zone.
+pub fn map_frame(
+    recipe: &Recipe,
+    recipe_path: &std::path::Path,
+    flights: &[LoadedFlight],
+) -> Result<MapFrame, Problem> {
+    let ell = recipe.survey.ellipsoid.params();
+    let key = || Location::file(recipe_path).with_key("survey.projection");
+    let p = recipe.survey.projection.trim();
+    let (zone, south) = if p.eq_ignore_ascii_case("utm") {
+        let (mut lat, mut lon, mut n) = (0.0, 0.0, 0usize);
+        for f in flights {
+            if let (Some(la), Some(lo)) = (f.flight.table.get("lat"), f.flight.table.get("lon")) {
+                lat += la.iter().sum::<f64>();
+                lon += lo.iter().sum::<f64>();
+                n += la.len();
+            }
+        }
+        if n == 0 {
+            return Err(Problem::error(
+                key(),
+                "no positions to choose a UTM zone from",
+            ));
+        }
+        let (lat, lon) = (lat / n as f64, lon / n as f64);
+        (TransverseMercator::utm_zone_of(lon), lat < 0.0)
+    } else {
+        let code = p
+            .strip_prefix("EPSG:")
+            .or_else(|| p.strip_prefix("epsg:"))
+            .and_then(|c| c.parse::<u32>().ok())
+            .ok_or_else(|| {
+                Problem::error(key(), format!("`{p}`: expected \"utm\" or \"EPSG:<code>\""))
+            })?;
+        match code {
+            32601..=32660 => (code - 32600, false),
+            32701..=32760 => (code - 32700, true),
+            _ => {
+                return Err(Problem::error(
+                    key(),
+                    format!(
+                        "EPSG:{code} is not a UTM zone; gravgrad projects to UTM (EPSG:326zz north, 327zz south)"
+                    ),
+                ));
+            }
+        }
+    };
+    let projection = TransverseMercator::utm(ell, zone, south)
+        .map_err(|e| Problem::error(key(), e.to_string()))?;
+    Ok(MapFrame {
+        projection,
+        epsg: if south { 32700 } else { 32600 } + zone,
+    })
+}
+
+/// Where every sample is: geodetic, projected, and the convergence.
+#[derive(Clone, Debug, Default)]
+pub struct Positions {
+    pub lat_deg: Vec<f64>,
+    pub lon_deg: Vec<f64>,
+    pub height_m: Vec<f64>,
+    pub easting_m: Vec<f64>,
+    pub northing_m: Vec<f64>,
+    /// Meridian convergence γ, rad: grid azimuth = true azimuth − γ.
+    pub convergence_rad: Vec<f64>,
+}
+
+/// Projects a flight's positions.
+pub fn positions(frame: &MapFrame, lat: &[f64], lon: &[f64], height: &[f64]) -> Positions {
+    let proj: Vec<(f64, f64, f64)> = lat
+        .par_iter()
+        .zip(lon)
+        .map(|(la, lo)| {
+            let (e, n, g, _) = frame.projection.forward(la.to_radians(), lo.to_radians());
+            (e, n, g)
+        })
+        .collect();
+    Positions {
+        lat_deg: lat.to_vec(),
+        lon_deg: lon.to_vec(),
+        height_m: height.to_vec(),
+        easting_m: proj.iter().map(|p| p.0).collect(),
+        northing_m: proj.iter().map(|p| p.1).collect(),
+        convergence_rad: proj.iter().map(|p| p.2).collect(),
+    }
+}
+
+/// Rotation about the down axis by `a` (rad): turns a tensor from grid-north axes to true-north axes
+/// when `a` is the convergence γ.
+pub fn rz(a: f64) -> Mat3 {
+    let (s, c) = a.sin_cos();
+    [[c, -s, 0.0], [s, c, 0.0], [0.0, 0.0, 1.0]]
+}
+
+/// The normal (ellipsoidal) gravitational tensor at every sample, NED, s⁻². Gravitational, not
+/// gravity: the solve removes the whole inertial rotation (Earth rate included) through ΩΩ.
+pub fn normal_tensor(ell: &Ellipsoid, p: &Positions) -> Vec<SymTensor> {
+    let nf = NormalField::new(ell);
+    p.lat_deg
+        .par_iter()
+        .zip(&p.height_m)
+        .map(|(la, h)| nf.gravitational_tensor_ned(la.to_radians(), *h))
+        .collect()
+}
+
+/// How the calibration is obtained.
+pub enum CalibrationSource<'a> {
+    Estimate,
+    File(&'a CalibrationFile),
+    None,
+}
+
+/// The result of processing one flight.
+pub struct FlightResult {
+    pub positions: Positions,
+    pub time: Vec<f64>,
+    /// Line number per sample (0 outside lines).
+    pub line: Vec<i64>,
+    pub clearance: Option<Vec<f64>>,
+    /// What the pairs give after calibration: S = sym(G − ΩΩ), sensor frame.
+    pub measured: Vec<SymTensor>,
+    /// G in NED after ΩΩ removal and rotation.
+    pub rotated: Vec<SymTensor>,
+    pub normal: Vec<SymTensor>,
+    pub terrain: Option<Vec<SymTensor>>,
+    /// Trace of the unconstrained solve, s⁻² (NaN where not observed).
+    pub trace: Vec<f64>,
+    /// Pair-derived minus gyro-derived angular acceleration, rad/s², when the pairs see it.
+    pub alpha_difference: Option<Vec<[f64; 3]>>,
+    /// Which of Gxx … Gzz are given.
+    pub observed: [bool; 6],
+    pub heading_only: bool,
+    pub alpha_source: AlphaSource,
+    pub calibration: Vec<(String, PairCalibration)>,
+}
+
+/// A required column of the flight, or an error naming it.
+fn column<'a>(f: &'a LoadedFlight, name: &str) -> Result<&'a [f64], Problem> {
+    f.flight.table.get(name).ok_or_else(|| {
+        Problem::error(
+            f.flight.source.clone().with_column(name),
+            "required column missing",
+        )
+    })
+}
+
+/// The angular-acceleration source: the recipe's, or for `auto` the pairs when they see α and every
+/// requested component, else the gyros.
+pub fn alpha_source(recipe: &Recipe, pairs: &[PairGeometry]) -> AlphaSource {
+    match recipe.rotation.angular_acceleration {
+        AlphaChoice::Pairs => AlphaSource::Pairs,
+        AlphaChoice::Gyros => AlphaSource::Gyros,
+        AlphaChoice::Auto => {
+            let obs = observability(pairs, AlphaSource::Pairs, recipe.rotation.trace_constraint);
+            let all = UNKNOWNS[6..].iter().all(|a| obs.sees(a))
+                && recipe.rotation.components.iter().all(|c| obs.sees(c));
+            if all {
+                AlphaSource::Pairs
+            } else {
+                AlphaSource::Gyros
+            }
+        }
+    }
+}
+
+/// Processes one flight: calibration, solve and rotation, normal field; the terrain tensor (NED,
+/// true north) is supplied by the caller when the recipe has a DEM.
+pub fn process_flight(
+    recipe: &Recipe,
+    instrument: &Instrument,
+    flight: &LoadedFlight,
+    frame: &MapFrame,
+    calibration: CalibrationSource<'_>,
+    terrain: impl FnOnce(&Positions) -> Result<Option<Vec<SymTensor>>, Problem>,
+) -> Result<FlightResult, Problem> {
+    let time = column(flight, "time")?;
+    let n = time.len();
+    let rate = flight
+        .time_base
+        .as_ref()
+        .map(|t| t.rate_hz)
+        .ok_or_else(|| {
+            Problem::error(
+                flight.flight.source.clone().with_column("time"),
+                "no usable time base",
+            )
+        })?;
+    let get3 = |names: [&str; 3]| -> Result<[&[f64]; 3], Problem> {
+        Ok([
+            column(flight, names[0])?,
+            column(flight, names[1])?,
+            column(flight, names[2])?,
+        ])
+    };
+    let omega = get3(["wx", "wy", "wz"])?;
+    let f = get3(["fx", "fy", "fz"])?;
+    let [roll, pitch, heading] = get3(["roll", "pitch", "heading"])?;
+    let pos = positions(
+        frame,
+        column(flight, "lat")?,
+        column(flight, "lon")?,
+        column(flight, "height")?,
+    );
+    let ell = recipe
+        .normal
+        .ellipsoid
+        .unwrap_or(recipe.survey.ellipsoid)
+        .params();
+    let normal = normal_tensor(ell, &pos);
+    let terrain = terrain(&pos)?;
+
+    let mut line = vec![0i64; n];
+    for s in &flight.lines {
+        for l in &mut line[s.start..s.end.min(n)] {
+            *l = s.line;
+        }
+    }
+    let usable: Vec<bool> = line.iter().map(|l| *l > 0).collect();
+
+    // The known field in the sensor frame, for the calibration's bias fit.
+    let known_sensor: Vec<SymTensor> = (0..n)
+        .into_par_iter()
+        .map(|i| {
+            let mut g = normal[i];
+            if let Some(t) = &terrain {
+                g = g + t[i];
+            }
+            let c = Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn();
+            g.rotated(&mat3::transpose(&c))
+        })
+        .collect();
+    let alpha_gyro: Vec<Vec<f64>> = (0..3)
+        .map(|k| angular_acceleration(omega[k], rate, recipe.rotation.gyro_lowpass_hz))
+        .collect();
+    let temperature = flight.flight.table.get("temp");
+    let relative: Option<[Vec<f64>; 2]> = match (
+        flight.flight.table.get("ac_roll"),
+        flight.flight.table.get("ac_pitch"),
+    ) {
+        (Some(ar), Some(ap)) => Some([
+            ar.iter()
+                .zip(roll)
+                .map(|(a, s)| (a - s).to_radians())
+                .collect(),
+            ap.iter()
+                .zip(pitch)
+                .map(|(a, s)| (a - s).to_radians())
+                .collect(),
+        ]),
+        _ => None,
+    };
+    let settings = estimate::Settings {
+        band_hz: recipe.calibration.band_hz,
+        drift_order: recipe.calibration.drift_order as usize,
+        rate_hz: rate,
+    };
+
+    // Per pair: the difference and the known field's part of it.
+    let alpha_source = alpha_source(recipe, &instrument.pairs);
+    let pair_a: Vec<&[f64]> = instrument
+        .pairs
+        .iter()
+        .map(|g| column(flight, &format!("{}_a", g.id)))
+        .collect::<Result<_, _>>()?;
+    let pair_b: Vec<&[f64]> = instrument
+        .pairs
+        .iter()
+        .map(|g| column(flight, &format!("{}_b", g.id)))
+        .collect::<Result<_, _>>()?;
+    let diffs: Vec<Vec<f64>> = pair_a
+        .iter()
+        .zip(&pair_b)
+        .map(|(a, b)| a.iter().zip(*b).map(|(x, y)| x - y).collect())
+        .collect();
+    let expected: Vec<Vec<f64>> = instrument
+        .pairs
+        .par_iter()
+        .map(|g| {
+            known_sensor
+                .iter()
+                .map(|t| {
+                    let gb = mat3::mul_vec(&t.to_matrix(), &g.baseline);
+                    -mat3::dot(&g.axis, &gb)
+                })
+                .collect()
+        })
+        .collect();
+    let data = FlightData {
+        pairs: &instrument.pairs,
+        differences: diffs.iter().map(|v| &v[..]).collect(),
+        expected: expected.iter().map(|v| &v[..]).collect(),
+        omega,
+        f,
+        alpha: [&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]],
+        time,
+        temperature,
+        usable: Some(&usable),
+        relative_attitude: relative.as_ref().map(|r| [&r[0][..], &r[1][..]]),
+        alpha_from_pairs: alpha_source == AlphaSource::Pairs,
+    };
+    let cals: Option<Vec<PairCalibration>> = match &calibration {
+        CalibrationSource::Estimate => Some(estimate_flight(&data, &settings, None)),
+        CalibrationSource::File(file) => {
+            let stored: Vec<PairCalibration> = instrument
+                .pairs
+                .iter()
+                .map(|g| {
+                    file.get(&g.id).ok_or_else(|| {
+                        Problem::error(
+                            Location::file(&instrument.path).with_key("pair"),
+                            format!("the calibration file has no pair `{}`", g.id),
+                        )
+                    })
+                })
+                .collect::<Result<_, _>>()?;
+            Some(estimate_flight(&data, &settings, Some(&stored)))
+        }
+        CalibrationSource::None => None,
+    };
+    // The corrected `a` outputs (a − correction; b as logged).
+    let corrected_a: Vec<Vec<f64>> = (0..instrument.pairs.len())
+        .into_par_iter()
+        .map(|k| match &cals {
+            Some(c) => {
+                let pd = PairData {
+                    geometry: &instrument.pairs[k],
+                    difference: &diffs[k],
+                    omega,
+                    f,
+                    alpha: data.alpha,
+                    time,
+                    temperature,
+                    usable: None,
+                    expected: None,
+                    relative_attitude: data.relative_attitude,
+                };
+                (0..n)
+                    .map(|i| pair_a[k][i] - c[k].correction_at(&pd, i))
+                    .collect()
+            }
+            None => pair_a[k].to_vec(),
+        })
+        .collect();
+
+    let series: Vec<PairSeries<'_>> = instrument
+        .pairs
+        .iter()
+        .zip(&corrected_a)
+        .zip(&pair_b)
+        .map(|((g, a), b)| PairSeries { geometry: g, a, b })
+        .collect();
+    let inputs = Inputs {
+        pairs: series,
+        omega,
+        roll_deg: roll,
+        pitch_deg: pitch,
+        heading_deg: heading,
+        rate_hz: rate,
+    };
+    let solve_settings = SolveSettings {
+        alpha: alpha_source,
+        trace_constraint: recipe.rotation.trace_constraint,
+        gyro_lowpass_hz: recipe.rotation.gyro_lowpass_hz,
+        components: recipe.rotation.components.clone(),
+    };
+    let sol = solve(&inputs, &solve_settings).map_err(|e| {
+        Problem::error(
+            Location::file(&instrument.path).with_key("pair"),
+            e.to_string(),
+        )
+    })?;
+    let alpha_difference = sol.alpha_pairs.as_ref().map(|ap| {
+        ap.iter()
+            .zip(&sol.alpha_gyro)
+            .map(|(p, g)| [p[0] - g[0], p[1] - g[1], p[2] - g[2]])
+            .collect()
+    });
+    let measured = sol
+        .tensor_sensor
+        .iter()
+        .zip(omega[0].iter().zip(omega[1]).zip(omega[2]))
+        .map(|(g, ((x, y), z))| {
+            // S = G_s − ΩΩ, ΩΩ = ωωᵀ − |ω|²I.
+            let w2 = x * x + y * y + z * z;
+            SymTensor::from_array([
+                g.xx - (x * x - w2),
+                g.xy - x * y,
+                g.xz - x * z,
+                g.yy - (y * y - w2),
+                g.yz - y * z,
+                g.zz - (z * z - w2),
+            ])
+        })
+        .collect();
+    let calibration = match cals {
+        Some(c) => instrument
+            .pairs
+            .iter()
+            .map(|g| g.id.clone())
+            .zip(c)
+            .collect(),
+        None => Vec::new(),
+    };
+    Ok(FlightResult {
+        positions: pos,
+        time: time.to_vec(),
+        line,
+        clearance: flight.flight.table.get("clearance").map(<[f64]>::to_vec),
+        measured,
+        rotated: sol.tensor_ned,
+        normal,
+        terrain,
+        trace: sol.trace,
+        alpha_difference,
+        observed: sol.observed,
+        heading_only: sol.heading_only,
+        alpha_source,
+        calibration,
+    })
+}

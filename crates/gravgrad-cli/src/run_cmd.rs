@@ -1,0 +1,208 @@
+//! `gravgrad run RECIPE`: every stage the recipe asks for, into one output folder. Today: calibration,
+//! rotation-term removal and rotation to NED, normal-field and terrain reduction, written to
+//! `lines.parquet` (and `lines.csv` on request) with the calibration of every flight.
+
+use crate::lines_out;
+use crate::logging::Log;
+use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
+use crate::report;
+use crate::tables::write_atomic;
+use crate::terrain_stage::TerrainStage;
+use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
+use clap::Args;
+use gravgrad_calibrate::file::CalibrationFile;
+use gravgrad_core::{Location, Problem};
+use gravgrad_ingest::check::{Survey, load_recipe};
+use gravgrad_ingest::recipe::CalibrationMode;
+use gravgrad_ingest::tomlfile;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+#[derive(Args, Debug)]
+pub struct RunArgs {
+    /// Processing recipe (layout `recipe/1`, TOML).
+    #[arg(value_name = "RECIPE")]
+    pub recipe: PathBuf,
+    /// Output folder (default: the recipe's `output.folder`, relative to the recipe).
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+}
+
+/// A processed survey: what every flight gave, and where.
+pub struct Processed {
+    pub survey: Survey,
+    pub frame: MapFrame,
+    pub names: Vec<String>,
+    pub results: Vec<FlightResult>,
+}
+
+/// Prints problems and returns the exit code for bad input.
+pub fn bad_input(problems: &[Problem]) -> u8 {
+    for p in problems {
+        eprintln!("{p}");
+    }
+    EXIT_BAD_INPUT
+}
+
+/// The short name of a flight: its file stem, plus the HDF5 group when there is one.
+fn flight_name(loc: &Location) -> String {
+    let stem = loc
+        .file
+        .as_deref()
+        .and_then(Path::file_stem)
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "flight".into());
+    match &loc.part {
+        Some(p) => format!("{stem}-{}", p.trim_matches('/').replace('/', "-")),
+        None => stem,
+    }
+}
+
+/// Reads the recipe and everything it names, and processes every flight through the pipeline.
+/// `Err(code)` after printing what was wrong.
+pub fn process(
+    recipe_path: &Path,
+    log: &Log,
+    calibration_override: Option<CalibrationMode>,
+) -> Result<Processed, u8> {
+    log.info(&format!("reading {}", recipe_path.display()));
+    let survey = load_recipe(recipe_path);
+    if survey.has_errors() {
+        print!("{}", report::render(&survey.reports));
+        return Err(EXIT_BAD_INPUT);
+    }
+    let (Some(recipe), Some(instrument)) = (&survey.recipe, &survey.instrument) else {
+        print!("{}", report::render(&survey.reports));
+        return Err(EXIT_BAD_INPUT);
+    };
+    let frame =
+        pipeline::map_frame(recipe, recipe_path, &survey.flights).map_err(|p| bad_input(&[p]))?;
+    let mode = calibration_override.unwrap_or(recipe.calibration.mode);
+    let file: Option<CalibrationFile> = if mode == CalibrationMode::File {
+        let rel = recipe
+            .calibration
+            .file
+            .as_deref()
+            .unwrap_or("calibration.toml");
+        let path = recipe.resolve(rel);
+        let f: CalibrationFile = tomlfile::read(&path).map_err(|p| bad_input(&[p]))?;
+        let ids = instrument.pair_ids();
+        let ids: Vec<&str> = ids.iter().map(String::as_str).collect();
+        let problems: Vec<Problem> = f
+            .validate(&ids)
+            .into_iter()
+            .map(|fp| Problem::error(Location::file(&path).with_key(fp.key), fp.message))
+            .collect();
+        if !problems.is_empty() {
+            return Err(bad_input(&problems));
+        }
+        Some(f)
+    } else {
+        None
+    };
+    let terrain = match &recipe.terrain {
+        Some(t) => {
+            log.info(&format!("reading the terrain model {}", t.dem));
+            Some(TerrainStage::new(recipe, recipe_path, t, &frame).map_err(|p| bad_input(&p))?)
+        }
+        None => None,
+    };
+    let mut results = Vec::new();
+    let mut names = Vec::new();
+    let total = survey.flights.len();
+    for (k, flight) in survey.flights.iter().enumerate() {
+        let name = flight_name(&flight.flight.source);
+        log.progress(k, total, &format!("processing {name}"));
+        let source = match (&mode, &file) {
+            (CalibrationMode::File, Some(f)) => CalibrationSource::File(f),
+            (CalibrationMode::None, _) => CalibrationSource::None,
+            _ => CalibrationSource::Estimate,
+        };
+        let r = pipeline::process_flight(recipe, instrument, flight, &frame, source, |p| {
+            terrain.as_ref().map(|t| t.tensor_true_north(p)).transpose()
+        })
+        .map_err(|p| {
+            log.clear_progress();
+            bad_input(&[p])
+        })?;
+        results.push(r);
+        names.push(name);
+    }
+    log.progress(total, total, "flights processed");
+    log.clear_progress();
+    Ok(Processed {
+        survey,
+        frame,
+        names,
+        results,
+    })
+}
+
+/// The output folder: `--out`, else the recipe's `output.folder` beside the recipe.
+pub fn output_folder(p: &Processed, out: Option<&Path>) -> PathBuf {
+    match out {
+        Some(o) => o.to_path_buf(),
+        None => p
+            .survey
+            .recipe
+            .as_ref()
+            .map(|r| r.resolve(&r.output.folder))
+            .unwrap_or_else(|| PathBuf::from("products")),
+    }
+}
+
+/// Writes each flight's calibration to `<dir>/calibration/<flight>.toml`.
+pub fn write_calibrations(p: &Processed, dir: &Path) -> Result<Vec<PathBuf>, String> {
+    let band = p
+        .survey
+        .recipe
+        .as_ref()
+        .map_or([0.05, 1.0], |r| r.calibration.band_hz);
+    let mut written = Vec::new();
+    for (name, r) in p.names.iter().zip(&p.results) {
+        if r.calibration.is_empty() {
+            continue;
+        }
+        let file = CalibrationFile::new(name, band, &r.calibration);
+        let path = dir.join("calibration").join(format!("{name}.toml"));
+        write_atomic(&path, |f| {
+            f.write_all(file.to_toml().as_bytes())
+                .map_err(|e| e.to_string())
+        })
+        .map_err(|e| e.to_string())?;
+        written.push(path);
+    }
+    Ok(written)
+}
+
+pub fn run(args: &RunArgs, log: &Log) -> u8 {
+    let p = match process(&args.recipe, log, None) {
+        Ok(p) => p,
+        Err(code) => return code,
+    };
+    let dir = output_folder(&p, args.out.as_deref());
+    let table = lines_out::build(&p.results);
+    let lines = dir.join("lines.parquet");
+    if let Err(e) = table.write_parquet(&lines, &p.names, p.frame.epsg) {
+        eprintln!("error: {e}");
+        return EXIT_FAILURE;
+    }
+    let recipe = p.survey.recipe.as_ref();
+    if recipe.is_some_and(|r| r.output.lines_csv)
+        && let Err(e) = table.write_csv(&dir.join("lines.csv"))
+    {
+        eprintln!("error: {e}");
+        return EXIT_FAILURE;
+    }
+    if let Err(e) = write_calibrations(&p, &dir) {
+        eprintln!("error: {e}");
+        return EXIT_FAILURE;
+    }
+    let samples: usize = p.results.iter().map(|r| r.time.len()).sum();
+    log.info(&format!(
+        "{} flights, {samples} samples; lines written to {}",
+        p.results.len(),
+        lines.display()
+    ));
+    0
+}
