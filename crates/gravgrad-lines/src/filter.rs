@@ -16,10 +16,15 @@
 //! sample spacings, so the grid is at least as dense as the data over nine tenths of the line (a slow
 //! stretch is not aliased), and at most four grid points per sample are used.
 //!
-//! End effects: before filtering, the line is extended at each end by its point reflection about the
-//! end sample (odd extension: value and slope continue) over eight cutoff wavelengths (or the whole
-//! line if shorter), and each pass starts from the steady state for the first value it meets — the
-//! same scheme as `scipy.signal.sosfiltfilt` with `padtype="odd"`. The start-up transient decays as
+//! End effects: before filtering, the line is extended at each end by its point reflection (odd
+//! extension: value and slope continue) over eight cutoff wavelengths (or the whole line if shorter),
+//! and each pass starts from the steady state for the first value it meets — the scheme of
+//! `scipy.signal.sosfiltfilt` with `padtype="odd"` ([`forward_backward`] is exactly that). One
+//! change for noisy data: the reflection is about the end value of a least-squares straight line
+//! fitted to the last cutoff wavelength of the line, not about the end sample, which would pin the
+//! filtered end to a single noisy sample (the whole raw noise there instead of the filtered noise).
+//! The fitted end value carries noise σ·2/√W for W samples in the fit, comparable to the filtered
+//! noise, and a straight line is still reflected into itself. The start-up transient decays as
 //! exp(−2π·sin(π/2N)·d/λc) over a distance d of padding (the least damped Butterworth pole), so eight
 //! cutoff wavelengths leave 4e-9 of it for N = 4: a straight line passes to the ends. Curvature does
 //! not: within about one cutoff wavelength of each end the result follows the reflected continuation
@@ -175,15 +180,29 @@ fn steady_state(sections: &[Section], level: f64) -> Vec<[f64; 2]> {
 /// `scipy.signal.sosfiltfilt(sos, x, padtype="odd", padlen=pad)`. Fewer than two samples come back
 /// unchanged.
 pub fn forward_backward(sections: &[Section], x: &[f64], pad: usize) -> Vec<f64> {
+    match (x.first(), x.last()) {
+        (Some(&a), Some(&b)) => forward_backward_about(sections, x, pad, [a, b]),
+        _ => Vec::new(),
+    }
+}
+
+/// [`forward_backward`] with the odd extension made about the given values at the two ends
+/// (`pivots[0]` before the first sample, `pivots[1]` after the last) instead of the end samples.
+pub fn forward_backward_about(
+    sections: &[Section],
+    x: &[f64],
+    pad: usize,
+    pivots: [f64; 2],
+) -> Vec<f64> {
     let n = x.len();
     if n < 2 {
         return x.to_vec();
     }
     let pad = pad.min(n - 1);
     let mut ext = Vec::with_capacity(n + 2 * pad);
-    ext.extend((1..=pad).rev().map(|i| 2.0 * x[0] - x[i]));
+    ext.extend((1..=pad).rev().map(|i| 2.0 * pivots[0] - x[i]));
     ext.extend_from_slice(x);
-    ext.extend((1..=pad).map(|i| 2.0 * x[n - 1] - x[n - 1 - i]));
+    ext.extend((1..=pad).map(|i| 2.0 * pivots[1] - x[n - 1 - i]));
     let mut z = steady_state(sections, ext[0]);
     run(sections, &mut ext, &mut z);
     ext.reverse();
@@ -191,6 +210,20 @@ pub fn forward_backward(sections: &[Section], x: &[f64], pad: usize) -> Vec<f64>
     run(sections, &mut ext, &mut z);
     ext.reverse();
     ext[pad..pad + n].to_vec()
+}
+
+/// Value at index 0 of the least-squares straight line through `x` (in sample index).
+fn line_fit_at_start(x: &[f64]) -> f64 {
+    let n = x.len() as f64;
+    let im = (n - 1.0) / 2.0;
+    let xm = x.iter().sum::<f64>() / n;
+    let (mut sxy, mut sxx) = (0.0, 0.0);
+    for (i, v) in x.iter().enumerate() {
+        let d = i as f64 - im;
+        sxy += d * (v - xm);
+        sxx += d * d;
+    }
+    if sxx > 0.0 { xm - im * sxy / sxx } else { xm }
 }
 
 /// Cumulative along-track distance (m) of a track given in projected metres; starts at 0.
@@ -308,7 +341,12 @@ pub fn low_pass_along_track(
     let on_grid = interpolate(distance_m, values, &grid);
     let sections = butterworth_sections(lp.order, 2.0 * ds / lc)?;
     let pad = (PAD_WAVELENGTHS * lc / ds).ceil() as usize;
-    let filtered = forward_backward(&sections, &on_grid, pad);
+    // Pivots: the end values of straight lines fitted over one cutoff wavelength at each end.
+    let w = ((lc / ds).ceil() as usize + 1).min(m);
+    let left = line_fit_at_start(&on_grid[..w]);
+    let tail: Vec<f64> = on_grid[m - w..].iter().rev().copied().collect();
+    let right = line_fit_at_start(&tail);
+    let filtered = forward_backward_about(&sections, &on_grid, pad, [left, right]);
     Ok(interpolate(&grid, &filtered, distance_m))
 }
 
