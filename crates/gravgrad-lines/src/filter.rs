@@ -19,17 +19,22 @@
 //! End effects: before filtering, the line is extended at each end by its point reflection (odd
 //! extension: value and slope continue) over eight cutoff wavelengths (or the whole line if shorter),
 //! and each pass starts from the steady state for the first value it meets — the scheme of
-//! `scipy.signal.sosfiltfilt` with `padtype="odd"` ([`forward_backward`] is exactly that). One
-//! change for noisy data: the reflection is about the end value of a least-squares straight line
-//! fitted to the last cutoff wavelength of the line, not about the end sample, which would pin the
-//! filtered end to a single noisy sample (the whole raw noise there instead of the filtered noise).
-//! The fitted end value carries noise σ·2/√W for W samples in the fit, comparable to the filtered
-//! noise, and a straight line is still reflected into itself. The start-up transient decays as
-//! exp(−2π·sin(π/2N)·d/λc) over a distance d of padding (the least damped Butterworth pole), so eight
-//! cutoff wavelengths leave 4e-9 of it for N = 4: a straight line passes to the ends. Curvature does
-//! not: within about one cutoff wavelength of each end the result follows the reflected continuation
-//! rather than data that were never flown, and is less reliable there. A line shorter than eight
-//! cutoff wavelengths also keeps more of the transient.
+//! `scipy.signal.sosfiltfilt` with `padtype="odd"` ([`forward_backward`] is exactly that). Two
+//! changes along the line:
+//! - the least-squares straight line of the whole line (against distance) is removed before and
+//!   added back after filtering. A straight line passes the filter unchanged, so this changes only
+//!   the start-up transient, which would otherwise carry the line's overall slope: a straight line
+//!   then passes exactly, and a line much shorter than the cutoff comes out close to its straight fit;
+//! - the reflection is about the end value of a least-squares straight line fitted to the last cutoff
+//!   wavelength of the line, not about the end sample, which would pin the filtered end to a single
+//!   noisy sample (the whole raw noise there instead of the filtered noise). The fitted end value
+//!   carries noise σ·2/√W for W samples in the fit, comparable to the filtered noise.
+//!
+//! What remains of the start-up transient decays as exp(−2π·sin(π/2N)·d/λc) over a distance d of
+//! padding (the least damped Butterworth pole): eight cutoff wavelengths leave 4e-9 of it for N = 4.
+//! Curvature near the ends is not preserved: within about one cutoff wavelength of each end the
+//! result follows the reflected continuation rather than data that were never flown, and is less
+//! reliable there. A line shorter than eight cutoff wavelengths keeps more of the transient.
 
 use crate::error::{LinesError, check_finite, check_len, check_positive};
 
@@ -212,8 +217,9 @@ pub fn forward_backward_about(
     ext[pad..pad + n].to_vec()
 }
 
-/// Value at index 0 of the least-squares straight line through `x` (in sample index).
-fn line_fit_at_start(x: &[f64]) -> f64 {
+/// Least-squares straight line through `x` against sample index: (mean, slope per sample), the line
+/// being mean + slope·(i − (n − 1)/2).
+fn straight_fit(x: &[f64]) -> (f64, f64) {
     let n = x.len() as f64;
     let im = (n - 1.0) / 2.0;
     let xm = x.iter().sum::<f64>() / n;
@@ -223,7 +229,7 @@ fn line_fit_at_start(x: &[f64]) -> f64 {
         sxy += d * (v - xm);
         sxx += d * d;
     }
-    if sxx > 0.0 { xm - im * sxy / sxx } else { xm }
+    (xm, if sxx > 0.0 { sxy / sxx } else { 0.0 })
 }
 
 /// Cumulative along-track distance (m) of a track given in projected metres; starts at 0.
@@ -333,6 +339,15 @@ pub fn low_pass_along_track(
     }
     // The grid runs from the first to the last sample exactly (spacing shrunk to fit), so nothing is
     // extrapolated before the padding.
+    if ds / lc < 1e-6 {
+        return Err(LinesError::Setting {
+            name: "filter.cutoff_wavelength_m".into(),
+            value: lc,
+            why: format!(
+                "more than a million grid spacings ({ds:.3} m); the filter's coefficients lose their precision"
+            ),
+        });
+    }
     let s0 = distance_m[0];
     let length = distance_m[n - 1] - s0;
     let m = (length / ds).ceil() as usize + 1;
@@ -341,12 +356,27 @@ pub fn low_pass_along_track(
     let on_grid = interpolate(distance_m, values, &grid);
     let sections = butterworth_sections(lp.order, 2.0 * ds / lc)?;
     let pad = (PAD_WAVELENGTHS * lc / ds).ceil() as usize;
+    // The least-squares straight line of the whole line is taken out first and put back after: it
+    // passes the filter unchanged, and without it the start-up transient would carry the line's
+    // overall slope.
+    let (mean, slope) = straight_fit(&on_grid);
+    let centre = (m - 1) as f64 / 2.0;
+    let trend = |i: usize| mean + slope * (i as f64 - centre);
+    let rest: Vec<f64> = on_grid
+        .iter()
+        .enumerate()
+        .map(|(i, v)| v - trend(i))
+        .collect();
     // Pivots: the end values of straight lines fitted over one cutoff wavelength at each end.
-    let w = ((lc / ds).ceil() as usize + 1).min(m);
-    let left = line_fit_at_start(&on_grid[..w]);
-    let tail: Vec<f64> = on_grid[m - w..].iter().rev().copied().collect();
-    let right = line_fit_at_start(&tail);
-    let filtered = forward_backward_about(&sections, &on_grid, pad, [left, right]);
+    let w = ((lc / ds).ceil() as usize).saturating_add(1).min(m);
+    let (lm, ls) = straight_fit(&rest[..w]);
+    let left = lm - ls * (w - 1) as f64 / 2.0;
+    let (rm, rs) = straight_fit(&rest[m - w..]);
+    let right = rm + rs * (w - 1) as f64 / 2.0;
+    let mut filtered = forward_backward_about(&sections, &rest, pad, [left, right]);
+    for (i, v) in filtered.iter_mut().enumerate() {
+        *v += trend(i);
+    }
     Ok(interpolate(&grid, &filtered, distance_m))
 }
 
@@ -391,16 +421,16 @@ mod tests {
 
     #[test]
     fn a_straight_line_passes_to_the_ends() {
-        // Odd extension continues a straight line exactly, and forward–backward filtering with unit
-        // gain at zero frequency passes a ramp without lag. What is left is the start-up transient,
-        // of order slope·λc = 8 at the start of the padding, times exp(−2π·sin(π/8)·8) ≈ 4e-9.
+        // A straight line passes the forward–backward filter (unit gain and zero slope of the gain
+        // at zero frequency); the line's own straight fit is taken out first, so nothing is left
+        // to filter but rounding.
         let s: Vec<f64> = (0..3000)
             .map(|i| i as f64 * 3.0 + (i as f64 * 0.7).sin())
             .collect();
         let v: Vec<f64> = s.iter().map(|d| 12.0 - 0.02 * d).collect();
         let out = low_pass_along_track(&s, &v, &LowPass::default()).unwrap();
         for (a, b) in out.iter().zip(&v) {
-            assert!((a - b).abs() < 1e-7, "{a} vs {b}");
+            assert!((a - b).abs() < 1e-9, "{a} vs {b}");
         }
     }
 

@@ -57,8 +57,16 @@ fn detrend_linear(x: &mut [f64]) {
 
 /// Welch spectrum of several uniformly sampled stretches of one series (sample rate `rate_hz`),
 /// averaging every full segment of every stretch; stretches shorter than a segment add nothing.
-/// `segment` below 2 gives an empty spectrum.
+/// `segment` below 2, or longer than every stretch, gives an empty spectrum.
 pub fn welch(stretches: &[&[f64]], rate_hz: f64, segment: usize) -> Spectrum {
+    // A segment longer than every stretch gives nothing (and is not allocated).
+    if stretches.iter().all(|x| x.len() < segment) {
+        return Spectrum {
+            frequency_hz: Vec::new(),
+            psd: Vec::new(),
+            segments: 0,
+        };
+    }
     let bins = segment / 2 + 1;
     let frequency_hz: Vec<f64> = (0..bins)
         .map(|k| k as f64 * rate_hz / segment as f64)

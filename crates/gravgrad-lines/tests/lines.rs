@@ -807,3 +807,101 @@ fn a_noisy_line_off_its_plan_fails_for_noise_and_deviation() {
     println!("noise after filter {got:.2} E, from the injected density {expected:.2} E");
     assert!((got / expected - 1.0).abs() < 0.2);
 }
+
+// ---------------------------------------------------------------- bad input
+
+#[test]
+fn degenerate_input_gives_errors_not_panics() {
+    fn inp<'a>(t: &'a [f64], x: &'a [f64], v: &'a [f64]) -> LineInputs<'a> {
+        LineInputs {
+            time_s: t,
+            x_m: x,
+            y_m: x,
+            components: vec![Component {
+                name: "Gzz",
+                values: v,
+            }],
+            ..LineInputs::default()
+        }
+    }
+    let s = QcSettings::default();
+    let t = [0.0, 0.05, 0.05, 0.1];
+    let x = [0.0, 3.0, 6.0, 9.0];
+    let v = [1e-9; 4];
+    // Time not increasing, too short, lengths differ.
+    assert!(assess_line(&inp(&t, &x, &v), &s).is_err());
+    assert!(assess_line(&inp(&[0.0], &[0.0], &[0.0]), &s).is_err());
+    assert!(assess_line(&inp(&[0.0, 1.0, 2.0], &[0.0, 1.0, 2.0], &[0.0]), &s).is_err());
+    // Every value missing: metrics come back, the noise cannot be judged, the verdict says so.
+    let nan = [f64::NAN; 5];
+    let (m, v) = assess_line(
+        &inp(
+            &[0.0, 0.05, 0.1, 0.15, 0.2],
+            &[0.0, 3.0, 6.0, 9.0, 12.0],
+            &nan,
+        ),
+        &s,
+    )
+    .unwrap();
+    assert!(m.components[0].noise_density_e_rt_hz.is_none());
+    assert!(!v.pass);
+    // A Welch segment absurdly long for the sample rate is not attempted.
+    let tiny: Vec<f64> = (0..50).map(|i| i as f64 * 1e-12).collect();
+    let xs: Vec<f64> = (0..50).map(|i| i as f64).collect();
+    let vals = vec![0.0; 50];
+    let huge = LineInputs {
+        time_s: &tiny,
+        x_m: &xs,
+        y_m: &xs,
+        components: vec![Component {
+            name: "Gzz",
+            values: &vals,
+        }],
+        ..LineInputs::default()
+    };
+    assert!(assess_line(&huge, &s).is_ok());
+    // Filter: an absurd cutoff is refused; a cutoff far longer than a short line gives the line's
+    // straight fit (here the values are a straight line, so the values themselves).
+    let mut lp = LowPass {
+        cutoff_wavelength_m: 1e300,
+        order: 4,
+    };
+    assert!(low_pass_along_track(&xs, &xs, &lp).is_err());
+    lp.cutoff_wavelength_m = 1e5;
+    let out = low_pass_along_track(&xs, &xs, &lp).unwrap();
+    assert!(out.iter().zip(&xs).all(|(a, b)| (a - b).abs() < 1e-6));
+    // Crossovers: empty and NaN tracks find nothing.
+    let e: [f64; 0] = [];
+    let empty = Track {
+        time_s: &e,
+        x_m: &e,
+        y_m: &e,
+        value: &e,
+    };
+    let nan_track = Track {
+        time_s: &nan,
+        x_m: &nan,
+        y_m: &nan,
+        value: &nan,
+    };
+    assert!(
+        find_crossovers(&[empty, nan_track], &[nan_track, empty])
+            .unwrap()
+            .is_empty()
+    );
+    // Levelling: nothing to level is fine; a crossover naming a missing line is refused.
+    assert!(level(&[], 0, 0, &LevelSettings::default()).is_ok());
+    let c = gravgrad_lines::Crossover {
+        survey: 3,
+        tie: 0,
+        x_m: 0.0,
+        y_m: 0.0,
+        survey_position: 0.0,
+        tie_position: 0.0,
+        survey_time_s: 0.0,
+        tie_time_s: 1.0,
+        survey_value: 1.0,
+        tie_value: 0.0,
+    };
+    assert!(level(&[c], 1, 1, &LevelSettings::default()).is_err());
+}
