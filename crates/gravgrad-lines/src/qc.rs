@@ -485,7 +485,7 @@ pub fn verdict(m: &LineMetrics, t: &Tolerances) -> Verdict {
             )),
             Some(_) => {}
             None => reasons.push(format!(
-                "noise {} could not be estimated (no Welch segment without a gap)",
+                "noise {} could not be estimated (no Welch segment without a gap, or no ground speed)",
                 c.name
             )),
         }
