@@ -1,0 +1,538 @@
+//! Per-line quality metrics and a pass/fail verdict against the recipe's `[qc]` tolerances.
+//!
+//! Inputs are plain per-sample slices of one line on one time base: time (s), projected position (m),
+//! gradient components in s⁻² (as the rotation stage delivers them), and optional QC series. Metrics
+//! are reported in the units their names end in; gradients in Eötvös (E = 1e-9 s⁻²).
+//!
+//! A sample is usable for a component when its time, position and that component are finite. The line
+//! is cut into runs of usable samples wherever the interval exceeds 1.5 times the nominal interval
+//! (the median positive interval), as the ingest stage marks gaps. Per component:
+//!
+//! - residual RMS (E): RMS of value − along-track low-pass of value (the product filter, [`LowPass`]),
+//!   computed run by run: the high-passed residual, noise plus any signal shorter than the cutoff;
+//! - noise density (E/√Hz): square root of the Welch PSD ([`crate::spectrum`]; periodic Hann window,
+//!   segments of `welch_segment_s` overlapping by half, straight line removed per segment) averaged
+//!   over `noise_band_hz`; segments never straddle a gap;
+//! - noise after filtering (E RMS): density·√B, B the noise bandwidth of the forward–backward
+//!   low-pass at the temporal cutoff fc = v/λc for the line's median ground speed v
+//!   ([`LowPass::noise_bandwidth`]): the white-noise RMS the filtered product keeps. This is the value
+//!   held against `max_noise_e`;
+//! - spikes: runs of consecutive samples whose residual lies more than `spike_threshold` robust
+//!   standard deviations from the median residual, the robust standard deviation being 1.4826 × the
+//!   median absolute deviation (Hampel 1974, "The influence curve and its role in robust estimation",
+//!   J. Amer. Statist. Assoc. 69:383–393). Reported, not judged (the recipe has no tolerance for it).
+//!
+//! Per line: trace RMS (E, about zero: the trace of the gradient tensor is zero); RMS of the
+//! difference between the angular acceleration from the pairs and from the gyros (rad/s², over the
+//! axes where both are finite); turbulence (RMS vertical acceleration about zero, m/s²); clearance
+//! departure (largest |clearance − planned clearance|, m); line deviation (largest distance from the
+//! straight planned line through its start and end points, m); longest gap (the longest interval
+//! between consecutive samples usable for every component, s — a line without missing data reports
+//! its sample interval). A metric whose inputs are not given is `None` and is not judged.
+
+use crate::error::{LinesError, check_finite, check_len, check_positive};
+use crate::filter::{LowPass, along_track_distance, low_pass_along_track};
+use crate::spectrum::welch;
+use gravgrad_core::mat3::Vec3;
+use gravgrad_core::units::to_eotvos;
+
+/// The recipe's `[qc]` tolerances.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Tolerances {
+    /// Largest cross-track deviation from the planned line, m.
+    pub max_line_deviation_m: f64,
+    /// Largest departure of clearance from the drape plan, m.
+    pub clearance_tolerance_m: f64,
+    /// Largest RMS vertical acceleration, m/s².
+    pub max_turbulence_m_s2: f64,
+    /// Largest noise after filtering, E RMS.
+    pub max_noise_e: f64,
+    /// Longest gap inside a line, s.
+    pub max_gap_s: f64,
+}
+
+impl Default for Tolerances {
+    fn default() -> Self {
+        Self {
+            max_line_deviation_m: 50.0,
+            clearance_tolerance_m: 30.0,
+            max_turbulence_m_s2: 1.0,
+            max_noise_e: 5.0,
+            max_gap_s: 2.0,
+        }
+    }
+}
+
+/// How the metrics are computed, and the tolerances they are judged against.
+#[derive(Clone, Debug, PartialEq)]
+pub struct QcSettings {
+    pub tolerances: Tolerances,
+    /// The product's along-track low-pass (recipe `filter.cutoff_wavelength_m`).
+    pub low_pass: LowPass,
+    /// Band over which the noise density is averaged, Hz (clipped to the Nyquist frequency).
+    pub noise_band_hz: [f64; 2],
+    /// Welch segment length, s.
+    pub welch_segment_s: f64,
+    /// Spike threshold in robust standard deviations.
+    pub spike_threshold: f64,
+}
+
+impl Default for QcSettings {
+    /// 1–4 Hz for the noise band: at survey speeds (50–80 m/s) these are wavelengths of 12–80 m,
+    /// where the field at a clearance of 60 m or more has decayed by e^(−2π·60/80) ≈ 0.009 or more.
+    fn default() -> Self {
+        Self {
+            tolerances: Tolerances::default(),
+            low_pass: LowPass::default(),
+            noise_band_hz: [1.0, 4.0],
+            welch_segment_s: 10.0,
+            spike_threshold: 6.0,
+        }
+    }
+}
+
+/// A gradient component of the line, s⁻².
+#[derive(Clone, Copy, Debug)]
+pub struct Component<'a> {
+    pub name: &'a str,
+    pub values: &'a [f64],
+}
+
+/// The straight line the pilot was to fly, projected metres.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct PlannedLine {
+    pub start_m: [f64; 2],
+    pub end_m: [f64; 2],
+}
+
+/// One line's series, all on the time base `time_s`. Optional series are judged only when given.
+#[derive(Clone, Debug, Default)]
+pub struct LineInputs<'a> {
+    pub time_s: &'a [f64],
+    pub x_m: &'a [f64],
+    pub y_m: &'a [f64],
+    /// Gradient components, s⁻².
+    pub components: Vec<Component<'a>>,
+    /// Trace of the unconstrained solve, s⁻².
+    pub trace: Option<&'a [f64]>,
+    /// Angular acceleration from the pairs and from the gyros, rad/s² (NaN where not observed).
+    pub alpha_pairs: Option<&'a [Vec3]>,
+    pub alpha_gyro: Option<&'a [Vec3]>,
+    /// Vertical acceleration of the aircraft, m/s².
+    pub vertical_acceleration_m_s2: Option<&'a [f64]>,
+    /// Clearance flown and clearance of the drape plan at each sample, m.
+    pub clearance_m: Option<&'a [f64]>,
+    pub planned_clearance_m: Option<&'a [f64]>,
+    pub plan: Option<PlannedLine>,
+}
+
+/// Noise and spike metrics of one component.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ComponentMetrics {
+    pub name: String,
+    /// RMS of the high-passed residual, E.
+    pub residual_rms_e: Option<f64>,
+    /// Welch amplitude spectral density averaged over the noise band, E/√Hz.
+    pub noise_density_e_rt_hz: Option<f64>,
+    /// White-noise RMS left after the along-track low-pass, E.
+    pub noise_after_filter_e: Option<f64>,
+    pub spikes: usize,
+}
+
+/// Every metric of one line.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LineMetrics {
+    pub samples: usize,
+    pub duration_s: f64,
+    /// Median ground speed, m/s.
+    pub median_speed_m_s: f64,
+    pub components: Vec<ComponentMetrics>,
+    pub trace_rms_e: Option<f64>,
+    pub alpha_difference_rms_rad_s2: Option<f64>,
+    pub turbulence_m_s2: Option<f64>,
+    pub clearance_departure_m: Option<f64>,
+    pub line_deviation_m: Option<f64>,
+    pub longest_gap_s: f64,
+}
+
+/// Pass or fail, with one plain sentence per failed check.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Verdict {
+    pub pass: bool,
+    pub reasons: Vec<String>,
+}
+
+fn rms(v: impl Iterator<Item = f64>) -> Option<f64> {
+    let (s, n) = v
+        .filter(|x| x.is_finite())
+        .fold((0.0, 0usize), |(s, n), x| (s + x * x, n + 1));
+    (n > 0).then(|| (s / n as f64).sqrt())
+}
+
+fn median(v: &mut [f64]) -> Option<f64> {
+    if v.is_empty() {
+        return None;
+    }
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    Some(if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    })
+}
+
+/// Runs of consecutive usable samples, as index ranges, cut where the interval exceeds 1.5·`dt`.
+fn runs(usable: &[bool], time_s: &[f64], dt: f64) -> Vec<std::ops::Range<usize>> {
+    let mut out = Vec::new();
+    let mut start: Option<usize> = None;
+    for i in 0..usable.len() {
+        if !usable[i] {
+            if let Some(s) = start.take() {
+                out.push(s..i);
+            }
+            continue;
+        }
+        match start {
+            None => start = Some(i),
+            Some(s) if time_s[i] - time_s[i - 1] > 1.5 * dt => {
+                out.push(s..i);
+                start = Some(i);
+            }
+            Some(_) => {}
+        }
+    }
+    if let Some(s) = start {
+        out.push(s..usable.len());
+    }
+    out
+}
+
+fn check_settings(s: &QcSettings) -> Result<(), LinesError> {
+    let t = &s.tolerances;
+    check_positive("qc.max_line_deviation_m", t.max_line_deviation_m)?;
+    check_positive("qc.clearance_tolerance_m", t.clearance_tolerance_m)?;
+    check_positive("qc.max_turbulence_m_s2", t.max_turbulence_m_s2)?;
+    check_positive("qc.max_noise_e", t.max_noise_e)?;
+    check_positive("qc.max_gap_s", t.max_gap_s)?;
+    check_positive("welch_segment_s", s.welch_segment_s)?;
+    check_positive("spike_threshold", s.spike_threshold)?;
+    let [lo, hi] = s.noise_band_hz;
+    if !(lo >= 0.0 && hi > lo && hi.is_finite()) {
+        return Err(LinesError::Setting {
+            name: "noise_band_hz".into(),
+            value: hi,
+            why: format!("the band [{lo}, {hi}] Hz must satisfy 0 ≤ low < high"),
+        });
+    }
+    Ok(())
+}
+
+/// Computes every metric of one line.
+///
+/// Errors: series of different lengths, fewer than 3 samples, time not strictly increasing where it
+/// is finite, or a setting out of range.
+pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics, LinesError> {
+    check_settings(s)?;
+    let n = inp.time_s.len();
+    check_len("x", inp.x_m, n)?;
+    check_len("y", inp.y_m, n)?;
+    for c in &inp.components {
+        check_len(c.name, c.values, n)?;
+    }
+    for (name, v) in [
+        ("trace", inp.trace),
+        ("vertical acceleration", inp.vertical_acceleration_m_s2),
+        ("clearance", inp.clearance_m),
+        ("planned clearance", inp.planned_clearance_m),
+    ] {
+        if let Some(v) = v {
+            check_len(name, v, n)?;
+        }
+    }
+    for (name, v) in [
+        ("alpha from pairs", inp.alpha_pairs),
+        ("alpha from gyros", inp.alpha_gyro),
+    ] {
+        if let Some(v) = v
+            && v.len() != n
+        {
+            return Err(LinesError::Length {
+                name: name.into(),
+                got: v.len(),
+                want: n,
+            });
+        }
+    }
+    if n < 3 {
+        return Err(LinesError::TooShort {
+            what: "line QC".into(),
+            got: n,
+            need: 3,
+        });
+    }
+    if let Some(p) = inp.plan {
+        check_finite(
+            "plan",
+            &[p.start_m[0], p.start_m[1], p.end_m[0], p.end_m[1]],
+        )?;
+    }
+    // Usable for the line: finite time and position.
+    let located: Vec<bool> = (0..n)
+        .map(|i| inp.time_s[i].is_finite() && inp.x_m[i].is_finite() && inp.y_m[i].is_finite())
+        .collect();
+    let located_idx: Vec<usize> = (0..n).filter(|&i| located[i]).collect();
+    if let Some(w) = located_idx
+        .windows(2)
+        .find(|w| inp.time_s[w[1]] <= inp.time_s[w[0]])
+    {
+        return Err(LinesError::Setting {
+            name: "time".into(),
+            value: inp.time_s[w[1]],
+            why: format!("time does not increase at sample {}", w[1]),
+        });
+    }
+    let mut intervals: Vec<f64> = located_idx
+        .windows(2)
+        .map(|w| inp.time_s[w[1]] - inp.time_s[w[0]])
+        .collect();
+    let mut speeds: Vec<f64> = located_idx
+        .windows(2)
+        .map(|w| {
+            let d = (inp.x_m[w[1]] - inp.x_m[w[0]]).hypot(inp.y_m[w[1]] - inp.y_m[w[0]]);
+            d / (inp.time_s[w[1]] - inp.time_s[w[0]])
+        })
+        .collect();
+    let Some(dt) = median(&mut intervals) else {
+        return Err(LinesError::TooShort {
+            what: "line QC (samples with finite time and position)".into(),
+            got: located_idx.len(),
+            need: 3,
+        });
+    };
+    let median_speed = median(&mut speeds).unwrap_or(0.0);
+    let duration = match (located_idx.first(), located_idx.last()) {
+        (Some(&a), Some(&b)) => inp.time_s[b] - inp.time_s[a],
+        _ => 0.0,
+    };
+    let rate = 1.0 / dt;
+    let segment = (s.welch_segment_s * rate).round() as usize;
+    let band = [s.noise_band_hz[0], s.noise_band_hz[1].min(rate / 2.0)];
+    let fc = median_speed / s.low_pass.cutoff_wavelength_m;
+
+    let mut components = Vec::with_capacity(inp.components.len());
+    for c in &inp.components {
+        let usable: Vec<bool> = (0..n)
+            .map(|i| located[i] && c.values[i].is_finite())
+            .collect();
+        let pieces = runs(&usable, inp.time_s, dt);
+        let mut residual = Vec::new();
+        let mut stretches: Vec<Vec<f64>> = Vec::new();
+        for r in &pieces {
+            let v: Vec<f64> = c.values[r.clone()].iter().map(|v| to_eotvos(*v)).collect();
+            let dist = along_track_distance(&inp.x_m[r.clone()], &inp.y_m[r.clone()]);
+            if let Ok(low) = low_pass_along_track(&dist, &v, &s.low_pass) {
+                residual.extend(v.iter().zip(&low).map(|(a, b)| a - b));
+            }
+            stretches.push(v);
+        }
+        let views: Vec<&[f64]> = stretches.iter().map(Vec::as_slice).collect();
+        let density = if band[1] > band[0] {
+            welch(&views, rate, segment).band_density(band[0], band[1])
+        } else {
+            None
+        };
+        let spikes = count_spikes(&residual, s.spike_threshold);
+        components.push(ComponentMetrics {
+            name: c.name.to_string(),
+            residual_rms_e: rms(residual.iter().copied()),
+            noise_density_e_rt_hz: density,
+            noise_after_filter_e: density
+                .filter(|_| fc > 0.0)
+                .map(|rho| rho * s.low_pass.noise_bandwidth(fc).sqrt()),
+            spikes,
+        });
+    }
+
+    // Longest gap over samples usable for every component.
+    let all_usable: Vec<usize> = (0..n)
+        .filter(|&i| located[i] && inp.components.iter().all(|c| c.values[i].is_finite()))
+        .collect();
+    let longest_gap_s = all_usable
+        .windows(2)
+        .map(|w| inp.time_s[w[1]] - inp.time_s[w[0]])
+        .fold(0.0, f64::max);
+    // A line whose usable samples do not reach its ends has gaps there too.
+    let edge_gap = match (all_usable.first(), all_usable.last()) {
+        (Some(&a), Some(&b)) => (inp.time_s[a] - inp.time_s[located_idx[0]])
+            .max(inp.time_s[located_idx[located_idx.len() - 1]] - inp.time_s[b]),
+        _ => duration,
+    };
+    let longest_gap_s = longest_gap_s.max(edge_gap);
+
+    let alpha_difference_rms_rad_s2 = match (inp.alpha_pairs, inp.alpha_gyro) {
+        (Some(p), Some(g)) => {
+            let (sum, count) = p.iter().zip(g).fold((0.0, 0usize), |(s, c), (a, b)| {
+                let d: Vec<f64> = (0..3)
+                    .map(|k| a[k] - b[k])
+                    .filter(|d| d.is_finite())
+                    .collect();
+                if d.is_empty() {
+                    (s, c)
+                } else {
+                    (s + d.iter().map(|x| x * x).sum::<f64>(), c + 1)
+                }
+            });
+            (count > 0).then(|| (sum / count as f64).sqrt())
+        }
+        _ => None,
+    };
+    let clearance_departure_m = match (inp.clearance_m, inp.planned_clearance_m) {
+        (Some(c), Some(p)) => c
+            .iter()
+            .zip(p)
+            .map(|(a, b)| (a - b).abs())
+            .filter(|d| d.is_finite())
+            .reduce(f64::max),
+        _ => None,
+    };
+    let line_deviation_m = inp.plan.and_then(|p| {
+        let (ax, ay) = (p.start_m[0], p.start_m[1]);
+        let (ux, uy) = (p.end_m[0] - ax, p.end_m[1] - ay);
+        let len = ux.hypot(uy);
+        located_idx
+            .iter()
+            .map(|&i| {
+                let (dx, dy) = (inp.x_m[i] - ax, inp.y_m[i] - ay);
+                if len > 0.0 {
+                    (dx * uy - dy * ux).abs() / len
+                } else {
+                    dx.hypot(dy)
+                }
+            })
+            .reduce(f64::max)
+    });
+
+    Ok(LineMetrics {
+        samples: n,
+        duration_s: duration,
+        median_speed_m_s: median_speed,
+        components,
+        trace_rms_e: inp.trace.and_then(|t| rms(t.iter().map(|v| to_eotvos(*v)))),
+        alpha_difference_rms_rad_s2,
+        turbulence_m_s2: inp
+            .vertical_acceleration_m_s2
+            .and_then(|a| rms(a.iter().copied())),
+        clearance_departure_m,
+        line_deviation_m,
+        longest_gap_s,
+    })
+}
+
+/// Number of spikes in `residual`: runs of samples beyond `k` robust standard deviations.
+fn count_spikes(residual: &[f64], k: f64) -> usize {
+    let mut r = residual.to_vec();
+    let Some(med) = median(&mut r) else {
+        return 0;
+    };
+    let mut dev: Vec<f64> = residual.iter().map(|v| (v - med).abs()).collect();
+    let mad = median(&mut dev).unwrap_or(0.0);
+    let limit = k * 1.4826 * mad;
+    let mut count = 0;
+    let mut inside = false;
+    for v in residual {
+        let out = (v - med).abs() > limit && (v - med).abs() > 0.0;
+        if out && !inside {
+            count += 1;
+        }
+        inside = out;
+    }
+    count
+}
+
+/// Judges the metrics against the tolerances.
+pub fn verdict(m: &LineMetrics, t: &Tolerances) -> Verdict {
+    let mut reasons = Vec::new();
+    if let Some(d) = m.line_deviation_m
+        && d > t.max_line_deviation_m
+    {
+        reasons.push(format!(
+            "line deviation {d:.1} m from the planned line exceeds {:.1} m",
+            t.max_line_deviation_m
+        ));
+    }
+    if let Some(d) = m.clearance_departure_m
+        && d > t.clearance_tolerance_m
+    {
+        reasons.push(format!(
+            "clearance departs {d:.1} m from the drape plan, more than {:.1} m",
+            t.clearance_tolerance_m
+        ));
+    }
+    if let Some(a) = m.turbulence_m_s2
+        && a > t.max_turbulence_m_s2
+    {
+        reasons.push(format!(
+            "turbulence {a:.2} m/s² RMS exceeds {:.2}",
+            t.max_turbulence_m_s2
+        ));
+    }
+    for c in &m.components {
+        match c.noise_after_filter_e {
+            Some(e) if e > t.max_noise_e => reasons.push(format!(
+                "noise {} {e:.2} E RMS after filtering exceeds {:.2} E",
+                c.name, t.max_noise_e
+            )),
+            Some(_) => {}
+            None => reasons.push(format!(
+                "noise {} could not be estimated (no Welch segment without a gap, or no ground speed)",
+                c.name
+            )),
+        }
+    }
+    if m.longest_gap_s > t.max_gap_s {
+        reasons.push(format!(
+            "longest gap {:.2} s exceeds {:.2} s",
+            m.longest_gap_s, t.max_gap_s
+        ));
+    }
+    Verdict {
+        pass: reasons.is_empty(),
+        reasons,
+    }
+}
+
+/// Metrics and verdict of one line.
+pub fn assess_line(
+    inp: &LineInputs<'_>,
+    s: &QcSettings,
+) -> Result<(LineMetrics, Verdict), LinesError> {
+    let m = line_metrics(inp, s)?;
+    let v = verdict(&m, &s.tolerances);
+    Ok((m, v))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn spikes_are_counted_once_per_run() {
+        // A unit sinusoid has median ≈ 0 and median absolute deviation sin(π/4) ≈ 0.707 (half the
+        // phases have |sin| above it), so the limit is 6·1.4826·0.707 ≈ 6.3: the sinusoid stays
+        // inside, 10 and −12 lie beyond, and the two adjacent −12 count once.
+        let mut r: Vec<f64> = (0..400).map(|i| (0.37 * i as f64).sin()).collect();
+        r[50] = 10.0;
+        r[120] = -12.0;
+        r[121] = -12.0;
+        assert_eq!(count_spikes(&r, 6.0), 2);
+        assert_eq!(count_spikes(&r[200..], 6.0), 0);
+    }
+
+    #[test]
+    fn runs_split_at_gaps_and_unusable_samples() {
+        let t = [0.0, 0.1, 0.2, 0.3, 1.0, 1.1, 1.2, 1.3];
+        let ok = [true, true, false, true, true, true, true, true];
+        assert_eq!(runs(&ok, &t, 0.1), vec![0..2, 3..4, 4..8]);
+    }
+}
