@@ -4,7 +4,8 @@
 //! Layout: dimensions `y` and `x`; coordinate variables `x` and `y` (float64, cell centres:
 //! eastings and northings in metres with standard names `projection_x_coordinate` /
 //! `projection_y_coordinate`, or longitude and latitude in degrees); one float32 variable over
-//! (`y`, `x`) per product with `long_name`, `units`, `_FillValue` and `grid_mapping = "crs"`; a
+//! (`y`, `x`) per product with `long_name`, `units`, `_FillValue`, `actual_range` (smallest and
+//! largest value present, omitted when every cell is missing) and `grid_mapping = "crs"`; a
 //! scalar `crs` variable carrying the CF grid-mapping attributes, the frame as WKT (`crs_wkt`,
 //! and the same text in `spatial_ref`, which GDAL reads) and `epsg_code`; global attributes
 //! `Conventions = "CF-1.8"`, `title`, `source` and `gravgrad_layout = "grids/1"`.
@@ -428,10 +429,19 @@ pub fn build_grids(grid: &GridFile<'_>) -> Result<NcWriter, GridProblem> {
                 out.push(f);
             }
         }
+        // CF actual_range: smallest and largest value present (GMT shows it as the z range).
+        let present = out.iter().copied().filter(|x| !x.is_nan() && *x != fill);
+        let range = present.fold(None, |acc: Option<(f32, f32)>, x| match acc {
+            None => Some((x, x)),
+            Some((lo, hi)) => Some((lo.min(x), hi.max(x))),
+        });
         let id = w.add_variable(v.name, &[dy_id, dx_id], VarData::F32(out))?;
         w.add_attribute(id, "long_name", v.long_name)?;
         w.add_attribute(id, "units", v.units)?;
         w.add_attribute(id, "_FillValue", AttrValue::Float(vec![fill]))?;
+        if let Some((lo, hi)) = range {
+            w.add_attribute(id, "actual_range", AttrValue::Float(vec![lo, hi]))?;
+        }
         w.add_attribute(id, "grid_mapping", "crs")?;
     }
     Ok(w)
