@@ -107,8 +107,10 @@ fn read(path: &Path, variable: Option<&str>, heights: bool) -> Result<Raster, Re
         check_height_units(var)?;
     }
 
-    let a0 = axis(&file, var, 0)?;
-    let a1 = axis(&file, var, 1)?;
+    let epsg = crs(&file, var)?;
+    let frame = epsg.map(frame_kind_of_epsg);
+    let a0 = axis(&file, var, 0, frame)?;
+    let a1 = axis(&file, var, 1, frame)?;
     let (xa, ya, transposed) = match (a0.dir, a1.dir) {
         (Dir::Y, Dir::X) => (a1, a0, false),
         (Dir::X, Dir::Y) => (a0, a1, true),
@@ -129,7 +131,6 @@ fn read(path: &Path, variable: Option<&str>, heights: bool) -> Result<Raster, Re
     }
     let geographic = xa.geographic;
 
-    let epsg = crs(&file, var)?;
     if let Some(code) = epsg {
         let kind = frame_kind_of_epsg(code);
         let want = if geographic {
@@ -302,7 +303,14 @@ struct Axis {
 }
 
 /// The coordinate variable of dimension `k` of `var`, classified and checked for even spacing.
-fn axis(file: &NcFile, var: &Variable, k: usize) -> Result<Axis, Refusal> {
+/// Coordinates without units take them from the frame when it is known (`frame`): metres in a
+/// projected frame, degrees in a geographic one (GMT writes Cartesian grids without units).
+fn axis(
+    file: &NcFile,
+    var: &Variable,
+    k: usize,
+    frame: Option<FrameKind>,
+) -> Result<Axis, Refusal> {
     let dim = &file.dimensions()[var.dims[k]];
     let dname = dim.name.clone();
     let coord = file
@@ -373,23 +381,35 @@ fn axis(file: &NcFile, var: &Variable, k: usize) -> Result<Axis, Refusal> {
     } else {
         Dir::Unknown
     };
-    let degrees = east_units.contains(&lunits.as_str())
+    let lonlat_named = matches!(std_name, "longitude" | "latitude")
+        || matches!(
+            lname.as_str(),
+            "lon" | "long" | "longitude" | "lat" | "latitude"
+        );
+    let mut degrees = east_units.contains(&lunits.as_str())
         || north_units.contains(&lunits.as_str())
-        || (matches!(lunits.as_str(), "degree" | "degrees")
-            && (matches!(std_name, "longitude" | "latitude")
-                || matches!(
-                    lname.as_str(),
-                    "lon" | "long" | "longitude" | "lat" | "latitude"
-                )));
+        || (matches!(lunits.as_str(), "degree" | "degrees") && lonlat_named);
     let factor = if degrees || is_metres(&lunits) {
         1.0
     } else if lunits == "km" {
         1000.0
     } else if units.is_empty() {
-        return Err(Refusal::new(format!(
-            "coordinate variable `{dname}` states no units; expected metres (\"m\") or degrees \
-             (\"degrees_east\", \"degrees_north\")"
-        )));
+        match frame {
+            Some(FrameKind::Projected) if !lonlat_named => 1.0,
+            Some(FrameKind::Geographic) => {
+                degrees = true;
+                1.0
+            }
+            _ => {
+                return Err(Refusal::new(format!(
+                    "coordinate variable `{dname}` states no units and the grid no frame; \
+                     expected metres (\"m\") or degrees (\"degrees_east\", \"degrees_north\")"
+                ))
+                .hint(
+                    "give the coordinates units = \"m\" or add a grid mapping with its EPSG code",
+                ));
+            }
+        }
     } else {
         return Err(Refusal::new(format!(
             "coordinate variable `{dname}` has units {units:?}; expected metres (\"m\") or \

@@ -9,19 +9,29 @@ integers (scale_factor/add_offset), _FillValue and missing_value, y ascending an
 metres with a grid mapping, and longitude/latitude in degrees. Each bad file is broken in one known
 place; crates/gravgrad-netcdf/tests/netcdf.rs asserts the place.
 
+Two more writers: GDAL (through rasterio's netCDF driver) and GMT (`gmt grdmath`, when the `gmt`
+command is installed; without it, the committed GMT files are copied to DIR unchanged).
+
 The heights are invented: a tilted plane over a made-up block. Run from anywhere:
-python3 make_netcdf.py [--out DIR] (needs numpy, netCDF4, scipy, xarray). The outputs are committed,
-so the Rust tests need no Python.
+python3 make_netcdf.py [--out DIR] (needs numpy, netCDF4, scipy, xarray, rasterio). The outputs are
+committed, so the Rust tests need no Python.
 """
 import json
 import os
+import shutil
+import subprocess
 import sys
+import tempfile
 
 import netCDF4
 import numpy as np
+import rasterio
+import rasterio.shutil
 import scipy
 import scipy.io
 import xarray as xr
+from rasterio.crs import CRS
+from rasterio.transform import from_origin
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 OUT = sys.argv[sys.argv.index("--out") + 1] if "--out" in sys.argv else HERE
@@ -245,6 +255,68 @@ def scipy_classic():
     expect(name, h, x0, ytop, dx, dy, None)
 
 
+def gdal_rasterio():
+    """GDAL's netCDF driver through rasterio: float32, EPSG:32753 in its grid mapping, nodata
+    -9999 as _FillValue; GDAL writes y ascending (bottom-up) by default. Its `history` attribute
+    (a time stamp and the path) is then removed by netCDF4."""
+    name = "dem_gdal.nc"
+    nx, ny, dx, dy, x0, ytop = 6, 5, 25.0, 25.0, 514000.0, 7118000.0
+    h = plane(nx, ny, 210.5, -0.5, 1.25)
+    h[4, 2] = np.nan
+    data = np.where(np.isnan(h), -9999.0, h).astype(np.float32)
+    # GDAL's netCDF driver only copies (CreateCopy): write a GeoTIFF first, then copy it, inside
+    # a temporary folder under a short relative name (GDAL records the name in `history`).
+    with tempfile.TemporaryDirectory() as tmp:
+        with rasterio.open(os.path.join(tmp, "dem.tif"), "w", driver="GTiff", width=nx,
+                           height=ny, count=1, dtype="float32", crs=CRS.from_epsg(32753),
+                           nodata=-9999.0, transform=from_origin(x0, ytop, dx, dy)) as dst:
+            dst.write(data, 1)
+        here = os.getcwd()
+        os.chdir(tmp)
+        try:
+            rasterio.shutil.copy("dem.tif", "dem.nc", driver="netCDF")
+        finally:
+            os.chdir(here)
+        # GDAL's history holds the time: removed, so the file regenerates the same.
+        with netCDF4.Dataset(os.path.join(tmp, "dem.nc"), "a") as ds:
+            ds.delncattr("history")
+        shutil.copy(os.path.join(tmp, "dem.nc"), os.path.join(GOOD, name))
+    expect(name, h, x0, ytop, dx, dy, 32753)
+
+
+def gmt_grdmath():
+    """GMT 6 `grdmath`, pixel registration: a classic file whose x and y carry no units and no
+    frame. As written it is refused (bad/gmt_no_frame.nc); with a grid mapping added by netCDF4
+    (epsg_code EPSG:32753) the units follow from the frame (good/dem_gmt.nc)."""
+    good_name, bad_name = "dem_gmt.nc", "gmt_no_frame.nc"
+    x0, ytop, dx, dy, nx, ny = 512000.0, 7120000.0, 25.0, 50.0, 8, 4
+    # value = (x - 512000) / 4 + (y - 7119800) / 2 at the cell centres, exact in float32.
+    col = np.arange(nx)[None, :]
+    row = np.arange(ny)[:, None]
+    h = (x0 + dx * (col + 0.5) - 512000.0) / 4.0 + (ytop - dy * (row + 0.5) - 7119800.0) / 2.0
+    expect(good_name, h, x0, ytop, dx, dy, 32753)
+    gmt = shutil.which("gmt")
+    if gmt is None:
+        if OUT != HERE:
+            print("make_netcdf: gmt not installed; the committed GMT files are copied")
+            shutil.copy(os.path.join(HERE, "good", good_name), os.path.join(GOOD, good_name))
+            shutil.copy(os.path.join(HERE, "bad", bad_name), os.path.join(BAD, bad_name))
+        else:
+            print("make_netcdf: gmt not installed; the committed GMT files are kept")
+        return
+    # Run in a temporary folder with a relative name: GMT records its command line in `history`.
+    with tempfile.TemporaryDirectory() as tmp:
+        subprocess.run([gmt, "grdmath", "-R512000/512200/7119800/7120000", "-I25/50", "-r",
+                        "X", "512000", "SUB", "4", "DIV", "Y", "7119800", "SUB", "2", "DIV",
+                        "ADD", "=", "dem.nc"], check=True, cwd=tmp)
+        shutil.copy(os.path.join(tmp, "dem.nc"), os.path.join(BAD, bad_name))
+        with netCDF4.Dataset(os.path.join(tmp, "dem.nc"), "a") as ds:
+            crs = ds.createVariable("crs", "i4")
+            crs.epsg_code = "EPSG:32753"
+            ds["z"].grid_mapping = "crs"
+        shutil.copy(os.path.join(tmp, "dem.nc"), os.path.join(GOOD, good_name))
+
+
 def bad_files():
     """Each file is broken in one known place (the Rust test asserts the message names it)."""
     with open(os.path.join(GOOD, "dem_classic_ydesc.nc"), "rb") as f:
@@ -295,10 +367,13 @@ def main():
     netcdf4_two_variables()
     netcdf4_lonlat_xarray()
     scipy_classic()
+    gdal_rasterio()
+    gmt_grdmath()
     bad_files()
     expected["_writers"] = {"netCDF4": netCDF4.__version__, "libnetcdf":
                             netCDF4.__netcdf4libversion__, "scipy": scipy.__version__,
-                            "xarray": xr.__version__, "numpy": np.__version__}
+                            "xarray": xr.__version__, "numpy": np.__version__,
+                            "rasterio": rasterio.__version__, "gdal": rasterio.__gdal_version__}
     with open(os.path.join(GOOD, "expected.json"), "w") as f:
         json.dump(expected, f, indent=1, sort_keys=True)
         f.write("\n")
