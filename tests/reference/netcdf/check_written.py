@@ -187,19 +187,21 @@ def with_gmt(path):
     if exe is None:
         print("check_written: gmt not installed, skipped")
         return
+    # GMT may leave a gmt.history in its working folder: run it in the fixtures' folder.
+    cwd = os.path.dirname(os.path.abspath(path))
     for name, want in (("gzz", gzz_north_up()), ("gz", gz_north_up())):
         run = subprocess.run([exe, "grdinfo", "-C", f"{path}?{name}"], check=True,
-                             capture_output=True, text=True).stdout.split("\t")
+                             capture_output=True, text=True, cwd=cwd).stdout.split("\t")
         w, e, s, n, z0, z1, dx, dy, nx, ny = (float(v) for v in run[1:11])
         check((w, e, s, n) == (X0, X0 + NX * DX, YTOP - NY * DY, YTOP), f"gmt {name} region {run}")
         check((dx, dy, nx, ny) == (DX, DY, NX, NY), f"gmt {name} cells {run}")
         check((z0, z1) == (np.nanmin(want), np.nanmax(want)), f"gmt {name} range {run}")
         text = subprocess.run([exe, "grdinfo", f"{path}?{name}"], check=True,
-                              capture_output=True, text=True).stdout
+                              capture_output=True, text=True, cwd=cwd).stdout
         check("Pixel node registration used" in text, f"gmt {name} registration:\n{text}")
         # Values at cell centres, north row first, through GMT's own reading.
         xyz = subprocess.run([exe, "grd2xyz", f"{path}?{name}"], check=True,
-                             capture_output=True, text=True).stdout.split()
+                             capture_output=True, text=True, cwd=cwd).stdout.split()
         got = np.array([float(v) for v in xyz]).reshape(NY * NX, 3)
         check(got[0, 0] == X0 + 0.5 * DX and got[0, 1] == YTOP - 0.5 * DY, f"gmt {name} {got[0]}")
         check(same(got[:, 2].reshape(NY, NX), want), f"gmt {name} values\n{got[:, 2]}")
