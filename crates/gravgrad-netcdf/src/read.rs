@@ -195,7 +195,12 @@ impl NcFile {
                 recsize,
                 numrecs,
                 file_len,
-            } => self.read_classic(var, &places[index], *recsize, *numrecs, *file_len),
+            } => self.read_classic(
+                var,
+                &places[index],
+                (*recsize, *numrecs, *file_len),
+                count as usize,
+            ),
             Backend::Nc4(file) => {
                 let ds = file
                     .dataset(name)
@@ -218,9 +223,8 @@ impl NcFile {
         &self,
         var: &Variable,
         place: &VarPlace,
-        recsize: u64,
-        numrecs: u64,
-        file_len: u64,
+        (recsize, numrecs, file_len): (u64, u64, u64),
+        count: usize,
     ) -> Result<Vec<f64>, ReadError> {
         let name = &var.name;
         let (records, stride) = if place.record {
@@ -264,11 +268,12 @@ impl NcFile {
                 buf.len()
             )));
         }
-        let per = usize::try_from(place.bytes).unwrap_or(usize::MAX);
-        let mut out =
-            Vec::with_capacity(per / var.nc_type.size().max(1) as usize * records as usize);
+        // Both fit: one record's bytes and the record starts lie inside the span just read.
+        let per = place.bytes as usize;
+        let stride = stride as usize;
+        let mut out = Vec::with_capacity(count);
         for r in 0..records as usize {
-            let start = r * stride as usize;
+            let start = r * stride;
             classic::decode_numbers(var.nc_type, &buf[start..start + per], &mut out);
         }
         Ok(out)
