@@ -29,4 +29,4 @@ pub use cf::{
 pub use dem::{read_dem, read_grid};
 pub use model::{AttrValue, Attribute, Dimension, Format, NcType, Variable};
 pub use read::{NcFile, ReadError};
-pub use write::{NcWriter, VarData, WriteError};
+pub use write::{DimId, NcWriter, VarData, VarId, WriteError};
