@@ -1,0 +1,308 @@
+//! Opening a NetCDF file of any of the four formats and reading its variables.
+//!
+//! The format is told by the first bytes: `CDF` and a version byte (1, 2 or 5) for the classic
+//! formats, the HDF5 signature `\x89HDF\r\n\x1a\n` for NetCDF-4. Values come back as f64 in the
+//! stored units, row-major (C order: the last dimension varies fastest), with no unpacking: the
+//! caller applies `scale_factor`, `add_offset` and fill values (see [`crate::dem`]).
+
+use crate::classic::{self, Header, HeaderError, VarPlace};
+use crate::model::{Attribute, Dimension, Format, Variable, find_attr};
+use crate::nc4::{self, Nc4};
+use std::fs::File;
+use std::io::{Read, Seek, SeekFrom};
+use std::path::{Path, PathBuf};
+use thiserror::Error;
+
+/// The HDF5 format signature, at the start of a NetCDF-4 file.
+const HDF5_SIGNATURE: [u8; 8] = [0x89, b'H', b'D', b'F', b'\r', b'\n', 0x1a, b'\n'];
+
+/// Largest number of values read from one variable (2 GiB as f64; a 16 000 × 16 000 grid fits).
+pub const MAX_VALUES: u64 = 1 << 28;
+
+/// Why a NetCDF file or one of its variables could not be read: the file and what was expected.
+#[derive(Clone, Debug, PartialEq, Eq, Error)]
+#[error("{}: {message}", .path.display())]
+pub struct ReadError {
+    pub path: PathBuf,
+    /// What was wrong, without the file name.
+    pub message: String,
+}
+
+enum Backend {
+    Classic {
+        places: Vec<VarPlace>,
+        recsize: u64,
+        numrecs: u64,
+        file_len: u64,
+    },
+    Nc4(Box<hdf5_pure::File>),
+}
+
+/// An open NetCDF file: its dimensions, global attributes and variables, and the means to read
+/// any numeric variable's values.
+pub struct NcFile {
+    path: PathBuf,
+    format: Format,
+    dims: Vec<Dimension>,
+    attributes: Vec<Attribute>,
+    variables: Vec<Variable>,
+    backend: Backend,
+}
+
+impl std::fmt::Debug for NcFile {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("NcFile")
+            .field("path", &self.path)
+            .field("format", &self.format)
+            .field("dims", &self.dims)
+            .field("variables", &self.variables.len())
+            .finish()
+    }
+}
+
+impl NcFile {
+    /// Opens `path` (classic CDF-1/2/5 or NetCDF-4) and reads its description; no values are
+    /// read yet.
+    pub fn open(path: &Path) -> Result<Self, ReadError> {
+        let err = |message: String| ReadError {
+            path: path.to_path_buf(),
+            message,
+        };
+        let mut f = File::open(path).map_err(|e| err(format!("cannot open: {e}")))?;
+        let file_len = f
+            .metadata()
+            .map_err(|e| err(format!("cannot read the file's size: {e}")))?
+            .len();
+        let mut magic = Vec::with_capacity(8);
+        (&mut f)
+            .take(8)
+            .read_to_end(&mut magic)
+            .map_err(|e| err(format!("cannot read: {e}")))?;
+        if magic == HDF5_SIGNATURE {
+            let Nc4 {
+                file,
+                dims,
+                attributes,
+                variables,
+            } = nc4::open(path).map_err(err)?;
+            return Ok(Self {
+                path: path.to_path_buf(),
+                format: Format::Netcdf4,
+                dims,
+                attributes,
+                variables,
+                backend: Backend::Nc4(Box::new(file)),
+            });
+        }
+        if magic.len() < 4 {
+            return Err(err(format!(
+                "not a NetCDF file: only {} bytes long",
+                magic.len()
+            )));
+        }
+        classic::classic_format(&magic).map_err(err)?;
+        let header = read_header(&mut f, file_len).map_err(err)?;
+        let Header {
+            format,
+            dims,
+            attributes,
+            variables,
+            places,
+            recsize,
+            numrecs,
+        } = header;
+        Ok(Self {
+            path: path.to_path_buf(),
+            format,
+            dims,
+            attributes,
+            variables,
+            backend: Backend::Classic {
+                places,
+                recsize,
+                numrecs,
+                file_len,
+            },
+        })
+    }
+
+    /// The file's path, as given to [`NcFile::open`].
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+    /// The file's physical format.
+    pub fn format(&self) -> Format {
+        self.format
+    }
+    /// The dimensions, in the file's order (their index is what [`Variable::dims`] holds).
+    pub fn dimensions(&self) -> &[Dimension] {
+        &self.dims
+    }
+    /// The global attributes.
+    pub fn attributes(&self) -> &[Attribute] {
+        &self.attributes
+    }
+    /// The global attribute called `name`.
+    pub fn attribute(&self, name: &str) -> Option<&crate::AttrValue> {
+        find_attr(&self.attributes, name)
+    }
+    /// The variables, in the file's order (by name for NetCDF-4).
+    pub fn variables(&self) -> &[Variable] {
+        &self.variables
+    }
+    /// The variable called `name`.
+    pub fn variable(&self, name: &str) -> Option<&Variable> {
+        self.variables.iter().find(|v| v.name == name)
+    }
+    /// The lengths of a variable's dimensions, slowest-varying first.
+    pub fn shape(&self, var: &Variable) -> Vec<u64> {
+        var.dims.iter().map(|&d| self.dims[d].len).collect()
+    }
+
+    fn err(&self, message: String) -> ReadError {
+        ReadError {
+            path: self.path.clone(),
+            message,
+        }
+    }
+
+    /// Every value of the numeric variable `name` as f64, row-major, as stored (no scale, offset
+    /// or fill handling; 64-bit integers beyond 2⁵³ are rounded). Errors name the variable and
+    /// say what was expected: a numeric type, at most [`MAX_VALUES`] values, bytes the file holds.
+    pub fn read_f64(&self, name: &str) -> Result<Vec<f64>, ReadError> {
+        let Some(index) = self.variables.iter().position(|v| v.name == name) else {
+            return Err(self.err(format!("no variable `{name}`")));
+        };
+        let var = &self.variables[index];
+        if !var.nc_type.is_numeric() {
+            return Err(self.err(format!(
+                "variable `{name}` holds {} values, expected numbers",
+                var.nc_type.name()
+            )));
+        }
+        let mut count: u64 = 1;
+        for n in self.shape(var) {
+            count = count.saturating_mul(n);
+        }
+        if count > MAX_VALUES {
+            return Err(self.err(format!(
+                "variable `{name}` holds {count} values, more than the {MAX_VALUES} read at once"
+            )));
+        }
+        match &self.backend {
+            Backend::Classic {
+                places,
+                recsize,
+                numrecs,
+                file_len,
+            } => self.read_classic(
+                var,
+                &places[index],
+                (*recsize, *numrecs, *file_len),
+                count as usize,
+            ),
+            Backend::Nc4(file) => {
+                let ds = file
+                    .dataset(name)
+                    .map_err(|e| self.err(format!("cannot open variable `{name}`: {e}")))?;
+                let v = ds
+                    .read_f64()
+                    .map_err(|e| self.err(format!("cannot read variable `{name}`: {e}")))?;
+                if v.len() as u64 != count {
+                    return Err(self.err(format!(
+                        "variable `{name}`: {} values read, its shape holds {count}",
+                        v.len()
+                    )));
+                }
+                Ok(v)
+            }
+        }
+    }
+
+    fn read_classic(
+        &self,
+        var: &Variable,
+        place: &VarPlace,
+        (recsize, numrecs, file_len): (u64, u64, u64),
+        count: usize,
+    ) -> Result<Vec<f64>, ReadError> {
+        let name = &var.name;
+        let (records, stride) = if place.record {
+            (numrecs, recsize)
+        } else {
+            (1, 0)
+        };
+        if records == 0 || place.bytes == 0 {
+            return Ok(Vec::new());
+        }
+        // The span from the first value to the end of the last record's values.
+        let span = (records - 1)
+            .checked_mul(stride)
+            .and_then(|s| s.checked_add(place.bytes));
+        let end = span.and_then(|s| s.checked_add(place.begin));
+        let (Some(span), Some(end)) = (span, end) else {
+            return Err(self.err(format!("variable `{name}`: its extent overflows")));
+        };
+        if end > file_len {
+            return Err(self.err(format!(
+                "truncated: variable `{name}` needs bytes {} to {end}, the file has {file_len}",
+                place.begin
+            )));
+        }
+        let span_len = usize::try_from(span)
+            .map_err(|_| self.err(format!("variable `{name}` is too large to read")))?;
+        let mut f = File::open(&self.path).map_err(|e| self.err(format!("cannot open: {e}")))?;
+        f.seek(SeekFrom::Start(place.begin))
+            .map_err(|e| self.err(format!("cannot seek to variable `{name}`: {e}")))?;
+        let mut buf = Vec::new();
+        buf.try_reserve_exact(span_len)
+            .map_err(|_| self.err(format!("no memory for variable `{name}`")))?;
+        (&mut f)
+            .take(span)
+            .read_to_end(&mut buf)
+            .map_err(|e| self.err(format!("cannot read variable `{name}`: {e}")))?;
+        if buf.len() != span_len {
+            return Err(self.err(format!(
+                "truncated: variable `{name}` needs {span} bytes from byte {}, the file holds {}",
+                place.begin,
+                buf.len()
+            )));
+        }
+        // Both fit: one record's bytes and the record starts lie inside the span just read.
+        let per = place.bytes as usize;
+        let stride = stride as usize;
+        let mut out = Vec::with_capacity(count);
+        for r in 0..records as usize {
+            let start = r * stride;
+            classic::decode_numbers(var.nc_type, &buf[start..start + per], &mut out);
+        }
+        Ok(out)
+    }
+}
+
+/// Reads and parses the classic header, reading more of the file while the parser runs out.
+fn read_header(f: &mut File, file_len: u64) -> Result<Header, String> {
+    let mut want: u64 = 1 << 16;
+    loop {
+        let n = want.min(file_len);
+        f.seek(SeekFrom::Start(0))
+            .map_err(|e| format!("cannot read: {e}"))?;
+        let mut buf = Vec::new();
+        f.take(n)
+            .read_to_end(&mut buf)
+            .map_err(|e| format!("cannot read: {e}"))?;
+        match classic::parse_header(&buf, file_len) {
+            Ok(h) => return Ok(h),
+            Err(HeaderError::OutOfBytes { offset, what }) => {
+                if n >= file_len {
+                    return Err(format!(
+                        "truncated NetCDF header: {what} at byte {offset} runs past the end of \
+                         the file ({file_len} bytes)"
+                    ));
+                }
+                want = want.saturating_mul(4);
+            }
+            Err(HeaderError::Bad(m)) => return Err(format!("malformed NetCDF header: {m}")),
+        }
+    }
+}
