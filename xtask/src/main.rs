@@ -3,9 +3,11 @@
 //! - `sample-log`: write a sample raw flight log of any size (tests, benchmarks).
 //! - `prism-accuracy`: the prism kernels' error against distance.
 //! - `bench-prisms`: timing of the prism tensor (driven by bench/prisms.py).
+//! - `bench-terrain`: the terrain engine's benchmark data and timings (driven by bench/terrain.py).
 
 mod accuracy;
 mod benchprisms;
+mod benchterrain;
 mod synthlog;
 mod writers;
 
@@ -59,6 +61,32 @@ enum Task {
         #[arg(long, default_value_t = 5)]
         repeat: usize,
     },
+    /// Terrain-engine benchmark: `generate` the DEM and points (.npy in --out), time the `fast`
+    /// engine on every point, or the `exact` sum on the subset (JSON on stdout).
+    BenchTerrain {
+        #[arg(long)]
+        mode: String,
+        /// Cells per side of the DEM.
+        #[arg(long, default_value_t = 1000)]
+        size: usize,
+        /// Cell size, m.
+        #[arg(long, default_value_t = 25.0)]
+        cell: f64,
+        #[arg(long, default_value_t = 100_000)]
+        points: usize,
+        /// Points of the subset timed with the all-exact sum.
+        #[arg(long, default_value_t = 30)]
+        subset: usize,
+        /// Accuracy target of the fast engine, E.
+        #[arg(long, default_value_t = 0.1)]
+        accuracy: f64,
+        #[arg(long, default_value_t = 2)]
+        threads: usize,
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        #[arg(long, default_value = "bench-out/terrain")]
+        out: PathBuf,
+    },
 }
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
@@ -96,6 +124,27 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             threads,
             repeat,
         } => benchprisms::run(side, points, threads, repeat)?,
+        Task::BenchTerrain {
+            mode,
+            size,
+            cell,
+            points,
+            subset,
+            accuracy,
+            threads,
+            seed,
+            out,
+        } => benchterrain::run(&benchterrain::Options {
+            mode: &mode,
+            size,
+            cell,
+            points,
+            subset,
+            accuracy_e: accuracy,
+            threads,
+            seed,
+            out: &out,
+        })?,
     }
     Ok(())
 }
