@@ -162,14 +162,6 @@ impl LinesTable {
         out
     }
 
-    /// The column named `name`, if any.
-    pub fn get(&self, name: &str) -> Option<&[f64]> {
-        self.names
-            .iter()
-            .position(|n| n == name)
-            .map(|i| &self.f64_columns[i][..])
-    }
-
     /// Writes `lines.parquet` with the layout, units and flight names in its metadata.
     pub fn write_parquet(
         &self,

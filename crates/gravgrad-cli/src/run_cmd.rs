@@ -11,6 +11,7 @@ use crate::terrain_stage::TerrainStage;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
 use gravgrad_calibrate::file::CalibrationFile;
+use gravgrad_core::pairs::AlphaSource;
 use gravgrad_core::{Location, Problem};
 use gravgrad_ingest::check::{Survey, load_recipe};
 use gravgrad_ingest::recipe::CalibrationMode;
@@ -125,6 +126,22 @@ pub fn process(
             log.clear_progress();
             bad_input(&[p])
         })?;
+        if let Some(w) = terrain.as_ref().and_then(|t| t.coverage_warning(&r.positions)) {
+            log.clear_progress();
+            eprintln!("{w}");
+        }
+        log.info(&format!(
+            "{name}: angular acceleration from the {}{}",
+            match r.alpha_source {
+                AlphaSource::Pairs => "pairs",
+                AlphaSource::Gyros => "gyros",
+            },
+            if r.heading_only {
+                "; partial tensor turned to NED by heading only"
+            } else {
+                ""
+            }
+        ));
         results.push(r);
         names.push(name);
     }

@@ -1,24 +1,40 @@
-//! The terrain stage of a run: the recipe's DEM read once, checked against the survey's map frame,
-//! and the terrain tensor at every sample turned from grid north to true north.
+//! The terrain stage of a run: the recipe's DEM (GeoTIFF, or NetCDF-CF by its `.nc` extension) read
+//! once, checked against the survey's map frame, and the terrain tensor at every sample from the
+//! fast engine (`gravgrad-reduce`), turned from grid north to true north.
 
 use crate::pipeline::{MapFrame, Positions, rz};
 use gravgrad_core::raster::Raster;
 use gravgrad_core::{Location, Problem, SymTensor};
-use gravgrad_forward::prism::Prism;
 use gravgrad_ingest::geotiff_reader::read_geotiff;
 use gravgrad_ingest::recipe::{Recipe, Terrain};
-use rayon::prelude::*;
+use gravgrad_reduce::terrain::{TerrainModel, TerrainSettings};
 use std::path::Path;
 
-/// The DEM as prisms, ready to evaluate.
+/// The DEM's mass model, ready to evaluate.
 pub struct TerrainStage {
-    prisms: Vec<Prism>,
+    model: TerrainModel,
+    /// Use the all-exact prism sum instead of the fast engine.
+    exact: bool,
+    margin_m: f64,
+    dem_path: std::path::PathBuf,
+}
+
+/// Reads a DEM by its extension: `.nc`/`.nc4`/`.cdf` as NetCDF-CF, anything else as GeoTIFF.
+pub fn read_dem(path: &Path, variable: Option<&str>) -> Result<Raster, Vec<Problem>> {
+    let ext = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .map(str::to_ascii_lowercase);
+    match ext.as_deref() {
+        Some("nc" | "nc4" | "cdf" | "netcdf") => gravgrad_netcdf::read_dem(path, variable),
+        _ => read_geotiff(path),
+    }
 }
 
 impl TerrainStage {
     /// Reads the DEM the recipe names and builds its mass model: each cell a prism between the
     /// reference level (recipe `terrain.reference_m`, else the DEM's mean) and its elevation, with
-    /// +density above the level and −density below.
+    /// +density above the level and −density below (docs/methods/terrain.md).
     pub fn new(
         recipe: &Recipe,
         recipe_path: &Path,
@@ -26,7 +42,7 @@ impl TerrainStage {
         frame: &MapFrame,
     ) -> Result<Self, Vec<Problem>> {
         let path = recipe.resolve(&t.dem);
-        let raster = read_geotiff(&path)?;
+        let raster = read_dem(&path, None)?;
         let key = || Location::file(recipe_path).with_key("terrain.dem");
         match raster.epsg {
             Some(code) if code == frame.epsg => {}
@@ -42,56 +58,63 @@ impl TerrainStage {
                 )]);
             }
         }
+        let settings = TerrainSettings {
+            density_kg_m3: t.density_kg_m3,
+            water_density_kg_m3: t.water_density_kg_m3,
+            reference_m: t.reference_m,
+            accuracy_e: t.accuracy_e,
+        };
+        let model = TerrainModel::new(&raster, &settings)
+            .map_err(|e| vec![Problem::error(key(), format!("{}: {e}", path.display()))])?;
         Ok(Self {
-            prisms: prisms_of(&raster, t.reference_m, t.density_kg_m3),
+            model,
+            exact: false,
+            margin_m: t.margin_m,
+            dem_path: path,
+        })
+    }
+
+    /// The same stage evaluating every cell as an exact prism (slow; for checks).
+    pub fn exact(mut self) -> Self {
+        self.exact = true;
+        self
+    }
+
+    /// A warning when the DEM does not reach the margin around `p`.
+    pub fn coverage_warning(&self, p: &Positions) -> Option<Problem> {
+        let pts = points(p);
+        let c = self.model.covers(&pts, self.margin_m);
+        (!c.covered).then(|| {
+            let [w, e, s, n] = c.shortfall;
+            Problem::warning(
+                Location::file(&self.dem_path),
+                format!(
+                    "the DEM does not cover the flight plus the {} m margin: short by {w:.0} m west, {e:.0} m east, {s:.0} m south, {n:.0} m north; the terrain effect near those edges is too small",
+                    self.margin_m
+                ),
+            )
         })
     }
 
     /// The terrain tensor at every sample, NED with true north, s⁻².
     pub fn tensor_true_north(&self, p: &Positions) -> Result<Vec<SymTensor>, Problem> {
-        Ok((0..p.easting_m.len())
-            .into_par_iter()
-            .map(|i| {
-                let obs = [p.northing_m[i], p.easting_m[i], -p.height_m[i]];
-                let mut t = SymTensor::default();
-                for pr in &self.prisms {
-                    t = t + pr.tensor(obs);
-                }
-                t.rotated(&rz(p.convergence_rad[i]))
-            })
+        let pts = points(p);
+        let grid = if self.exact {
+            self.model.tensor_exact(&pts)
+        } else {
+            self.model.tensor(&pts)
+        };
+        Ok(grid
+            .into_iter()
+            .zip(&p.convergence_rad)
+            .map(|(t, g)| t.rotated(&rz(*g)))
             .collect())
     }
 }
 
-/// The DEM's cells as prisms in the grid frame (x grid north, y grid east, z down = −height).
-fn prisms_of(r: &Raster, reference: Option<f64>, density: f64) -> Vec<Prism> {
-    let valid: Vec<f64> = r
-        .values
-        .iter()
-        .copied()
-        .filter(|v| !r.is_missing(*v) && v.is_finite())
-        .collect();
-    let level = reference.unwrap_or(valid.iter().sum::<f64>() / valid.len().max(1) as f64);
-    let mut out = Vec::new();
-    for row in 0..r.ny {
-        for col in 0..r.nx {
-            let e = r.values[row * r.nx + col];
-            if r.is_missing(e) || !e.is_finite() || e == level {
-                continue;
-            }
-            let (x, y) = r.cell_centre(col, row);
-            let (top, bottom, rho) = if e > level {
-                (e, level, density)
-            } else {
-                (level, e, -density)
-            };
-            out.push(Prism::new(
-                [y - 0.5 * r.dy, y + 0.5 * r.dy],
-                [x - 0.5 * r.dx, x + 0.5 * r.dx],
-                [-top, -bottom],
-                rho,
-            ));
-        }
-    }
-    out
+/// (easting, northing, height) of every sample.
+fn points(p: &Positions) -> Vec<[f64; 3]> {
+    (0..p.easting_m.len())
+        .map(|i| [p.easting_m[i], p.northing_m[i], p.height_m[i]])
+        .collect()
 }
