@@ -2,6 +2,7 @@
 
 mod commands;
 mod corpus;
+mod run;
 mod simulate;
 
 use std::path::PathBuf;

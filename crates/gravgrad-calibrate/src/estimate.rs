@@ -76,7 +76,7 @@ pub struct PairCalibration {
 /// index ranges.
 fn usable_runs(usable: Option<&[bool]>, n: usize, min_len: usize) -> Vec<std::ops::Range<usize>> {
     let Some(u) = usable else {
-        return vec![0..n];
+        return std::iter::once(0..n).collect();
     };
     let mut out = Vec::new();
     let mut i = 0;

@@ -9,8 +9,10 @@ mod logging;
 mod pipeline;
 mod report;
 mod run_cmd;
+mod score_cmd;
 mod simulate_cmd;
 mod tables;
+mod terrain_cmd;
 mod terrain_stage;
 
 use clap::{Parser, Subcommand};
@@ -46,6 +48,10 @@ enum Command {
     /// Process a survey from its recipe: calibration, rotation removal, normal and terrain
     /// reduction, into the recipe's output folder.
     Run(run_cmd::RunArgs),
+    /// The terrain's gradient tensor from a DEM at given points or on a surface over it.
+    Terrain(terrain_cmd::TerrainArgs),
+    /// Score a run of a simulated survey against its truth, per component, beside the noise floor.
+    Score(score_cmd::ScoreArgs),
     /// Estimate each pair's calibration from the recipe's flights; write the calibration file.
     Calibrate(calibrate_cmd::CalibrateArgs),
     /// Check the bundled demo survey and show what gravgrad reports on it.
@@ -88,6 +94,8 @@ fn main() -> ExitCode {
         Command::Simulate(args) => simulate_cmd::run(&args, &log),
         Command::Run(args) => run_cmd::run(&args, &log),
         Command::Calibrate(args) => calibrate_cmd::run(&args, &log),
+        Command::Terrain(args) => terrain_cmd::run(&args, &log),
+        Command::Score(args) => score_cmd::run(&args, &log, cli.json),
     };
     ExitCode::from(code)
 }

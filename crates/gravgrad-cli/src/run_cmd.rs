@@ -126,7 +126,10 @@ pub fn process(
             log.clear_progress();
             bad_input(&[p])
         })?;
-        if let Some(w) = terrain.as_ref().and_then(|t| t.coverage_warning(&r.positions)) {
+        if let Some(w) = terrain
+            .as_ref()
+            .and_then(|t| t.coverage_warning(&r.positions))
+        {
             log.clear_progress();
             eprintln!("{w}");
         }

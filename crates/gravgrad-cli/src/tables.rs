@@ -173,3 +173,61 @@ pub fn write_csv(
         w.flush().map_err(|e| e.to_string())
     })
 }
+
+/// A column read back from one of our Parquet tables.
+pub enum Owned {
+    F64(Vec<f64>),
+    I64(Vec<i64>),
+}
+
+/// Reads the named columns (REQUIRED DOUBLE or INT64, as [`write_parquet`] writes them) of a
+/// Parquet file; an error names the file and the column.
+pub fn read_parquet_columns(path: &Path, names: &[&str]) -> Result<Vec<Owned>, String> {
+    use parquet::column::reader::ColumnReader;
+    use parquet::file::reader::{FileReader, SerializedFileReader};
+    let file = std::fs::File::open(path).map_err(|e| format!("{}: {e}", path.display()))?;
+    let reader = SerializedFileReader::new(file).map_err(|e| format!("{}: {e}", path.display()))?;
+    let schema = reader.metadata().file_metadata().schema_descr_ptr();
+    let mut out = Vec::new();
+    for name in names {
+        let idx = (0..schema.num_columns())
+            .find(|&i| schema.column(i).name() == *name)
+            .ok_or_else(|| format!("{}: no column `{name}`", path.display()))?;
+        let mut f = Vec::new();
+        let mut g = Vec::new();
+        let mut is_int = false;
+        for rg in 0..reader.num_row_groups() {
+            let group = reader
+                .get_row_group(rg)
+                .map_err(|e| format!("{}: {e}", path.display()))?;
+            let rows = group.metadata().num_rows() as usize;
+            let col = group
+                .get_column_reader(idx)
+                .map_err(|e| format!("{}: column `{name}`: {e}", path.display()))?;
+            let err = |e: parquet::errors::ParquetError| {
+                format!("{}: column `{name}`: {e}", path.display())
+            };
+            match col {
+                ColumnReader::DoubleColumnReader(mut r) => {
+                    let mut buf = Vec::with_capacity(rows);
+                    r.read_records(rows, None, None, &mut buf).map_err(err)?;
+                    f.extend(buf);
+                }
+                ColumnReader::Int64ColumnReader(mut r) => {
+                    is_int = true;
+                    let mut buf = Vec::with_capacity(rows);
+                    r.read_records(rows, None, None, &mut buf).map_err(err)?;
+                    g.extend(buf);
+                }
+                _ => {
+                    return Err(format!(
+                        "{}: column `{name}`: expected DOUBLE or INT64",
+                        path.display()
+                    ));
+                }
+            }
+        }
+        out.push(if is_int { Owned::I64(g) } else { Owned::F64(f) });
+    }
+    Ok(out)
+}

@@ -13,8 +13,6 @@ use std::path::Path;
 /// The DEM's mass model, ready to evaluate.
 pub struct TerrainStage {
     model: TerrainModel,
-    /// Use the all-exact prism sum instead of the fast engine.
-    exact: bool,
     margin_m: f64,
     dem_path: std::path::PathBuf,
 }
@@ -68,16 +66,9 @@ impl TerrainStage {
             .map_err(|e| vec![Problem::error(key(), format!("{}: {e}", path.display()))])?;
         Ok(Self {
             model,
-            exact: false,
             margin_m: t.margin_m,
             dem_path: path,
         })
-    }
-
-    /// The same stage evaluating every cell as an exact prism (slow; for checks).
-    pub fn exact(mut self) -> Self {
-        self.exact = true;
-        self
     }
 
     /// A warning when the DEM does not reach the margin around `p`.
@@ -99,11 +90,7 @@ impl TerrainStage {
     /// The terrain tensor at every sample, NED with true north, s⁻².
     pub fn tensor_true_north(&self, p: &Positions) -> Result<Vec<SymTensor>, Problem> {
         let pts = points(p);
-        let grid = if self.exact {
-            self.model.tensor_exact(&pts)
-        } else {
-            self.model.tensor(&pts)
-        };
+        let grid = self.model.tensor(&pts);
         Ok(grid
             .into_iter()
             .zip(&p.convergence_rad)

@@ -6,5 +6,6 @@
 pub mod noise;
 pub mod path;
 pub mod scenario;
+pub mod score;
 pub mod simulate;
 pub mod terrain;

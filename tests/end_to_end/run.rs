@@ -1,0 +1,374 @@
+//! `gravgrad run`, `calibrate` and `score` on simulated surveys (issues 4, 5, 6): what the products
+//! hold against the simulation's truth, computed by the simulator independently of the pipeline.
+
+use crate::gravgrad;
+use std::path::Path;
+
+/// Base scenario: two geology bodies under rough terrain with a hill, four 3 km lines and a tie.
+const BASE: &str = r#"
+layout = "scenario/1"
+name = "run test"
+seed = 41
+
+[[geology.sphere]]
+north_m = 300.0
+east_m = 1500.0
+depth_m = 250.0
+radius_m = 150.0
+density_kg_m3 = 400.0
+
+[[geology.prism]]
+north_m = [100.0, 400.0]
+east_m = [600.0, 1000.0]
+depth_m = [100.0, 400.0]
+density_kg_m3 = 300.0
+
+[terrain]
+cell_m = 50.0
+margin_m = 1500.0
+rough_rms_m = 3.0
+
+[[terrain.hill]]
+north_m = 250.0
+east_m = 2200.0
+height_m = 60.0
+width_m = 400.0
+
+[plan]
+line_length_m = 3000.0
+line_spacing_m = 200.0
+lines = 4
+ties = 1
+sample_rate_hz = 10.0
+turn_rate_deg_s = 3.0
+"#;
+
+/// No error of any kind in the instrument or the navigation.
+const PERFECT: &str = r#"
+[instrument]
+noise_e_rt_hz = 0.0
+flicker_corner_hz = 0.0
+scale_rms = 0.0
+misalignment_rms_rad = 0.0
+bias_rms_m_s2 = 0.0
+drift_rms_m_s2_h = 0.0
+temperature_coefficient_rms_m_s2_c = 0.0
+gyro_noise_rad_s = 0.0
+gyro_bias_rad_s = 0.0
+accel_noise_m_s2 = 0.0
+position_noise_m = 0.0
+attitude_noise_deg = 0.0
+"#;
+
+fn ok(args: &[&str]) -> String {
+    let o = gravgrad(args);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "gravgrad {args:?}: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+/// Simulates `scenario` into `dir`, appending `recipe_extra` to the recipe it writes.
+fn simulate(dir: &Path, scenario: &str, recipe_extra: &str) {
+    let sc = dir.join("scenario.toml");
+    std::fs::write(&sc, scenario).unwrap();
+    let out = dir.join("survey");
+    ok(&[
+        "--quiet",
+        "simulate",
+        sc.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let recipe = out.join("recipe.toml");
+    let mut text = std::fs::read_to_string(&recipe).unwrap();
+    text.push_str(recipe_extra);
+    std::fs::write(&recipe, text).unwrap();
+}
+
+/// `gravgrad score --json` of the run in `dir/run` against `dir/survey/truth`.
+fn score(dir: &Path) -> serde_json::Value {
+    let run = dir.join("run");
+    let truth = dir.join("survey/truth");
+    let s = ok(&[
+        "--quiet",
+        "--json",
+        "score",
+        run.to_str().unwrap(),
+        truth.to_str().unwrap(),
+    ]);
+    serde_json::from_str(&s).unwrap()
+}
+
+fn run(dir: &Path) {
+    let recipe = dir.join("survey/recipe.toml");
+    let out = dir.join("run");
+    ok(&[
+        "--quiet",
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+}
+
+/// Column `name` of a CSV flight log written by the simulator.
+fn csv_column(path: &Path, name: &str) -> Vec<f64> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let k = header.iter().position(|h| *h == name).unwrap();
+    lines
+        .map(|l| l.split(',').nth(k).unwrap().parse::<f64>().unwrap())
+        .collect()
+}
+
+#[test]
+fn without_errors_the_run_gives_the_total_tensor_and_after_reduction_the_geology() {
+    let tmp = tempfile::tempdir().unwrap();
+    let scenario =
+        format!("{BASE}\n[dynamics]\nturbulence_m_s2 = 0.8\nplatform_rate_rad_s = 1e-4\n{PERFECT}");
+    simulate(tmp.path(), &scenario, "\n[calibration]\nmode = \"none\"\n");
+    run(tmp.path());
+    // The cross pairs see α·|b|; on the lines it must reach 1e5 E (α of 1e-4 rad/s²): the rotation
+    // term the solve removes is far larger than what it must leave.
+    let flight = std::fs::read_dir(tmp.path().join("survey/flights"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .find(|p| p.extension().is_some_and(|e| e == "csv"))
+        .unwrap();
+    let line = csv_column(&flight, "line");
+    let rate = 10.0;
+    let mut alpha_max = 0.0f64;
+    for axis in ["wx", "wy", "wz"] {
+        let w = csv_column(&flight, axis);
+        for i in 1..w.len() - 1 {
+            if line[i] > 0.0 {
+                alpha_max = alpha_max.max(((w[i + 1] - w[i - 1]) * rate / 2.0).abs());
+            }
+        }
+    }
+    assert!(
+        alpha_max >= 1e-4,
+        "largest α on the lines {alpha_max:e} rad/s²"
+    );
+    let s = score(tmp.path());
+    for (stage, limit) in [(0, 0.01), (1, 0.05)] {
+        for c in s[stage]["components"].as_array().unwrap() {
+            let mean = c["mean_error_e"].as_f64().unwrap();
+            let rms = c["rms_error_e"].as_f64().unwrap();
+            let total = (mean * mean + rms * rms).sqrt();
+            eprintln!("{} {}: {total:.2e} E", s[stage]["stage"], c["component"]);
+            assert!(
+                total <= limit,
+                "{} {}: {total} E RMS (limit {limit})",
+                s[stage]["stage"],
+                c["component"]
+            );
+        }
+    }
+}
+
+#[test]
+fn calibrated_run_is_within_half_an_eotvos_of_the_noise_floor_at_300_m_and_the_file_serves_again() {
+    let tmp = tempfile::tempdir().unwrap();
+    // Default instrument errors: scale and misalignment 1e-5, bias, drift, temperature, 5 E/√Hz
+    // with 1/f noise, gyro, accelerometer, position and attitude noise; longer lines at 20 Hz.
+    let scenario = BASE
+        .replace("line_length_m = 3000.0", "line_length_m = 6000.0")
+        .replace("sample_rate_hz = 10.0", "sample_rate_hz = 20.0");
+    simulate(tmp.path(), &scenario, "");
+    run(tmp.path());
+    let s = score(tmp.path());
+    for stage in s.as_array().unwrap() {
+        for c in stage["components"].as_array().unwrap() {
+            let err = c["filtered_rms_error_e"].as_f64().unwrap();
+            let floor = c["filtered_noise_floor_e"].as_f64().unwrap();
+            eprintln!(
+                "{} {}: {err:.3} E at ≥300 m, floor {floor:.3} E",
+                stage["stage"], c["component"]
+            );
+            assert!(
+                err <= floor + 0.5,
+                "{} {}: {err} E vs floor {floor} E",
+                stage["stage"],
+                c["component"]
+            );
+        }
+    }
+    // The calibration written by `calibrate` serves the same flight as a file.
+    let survey = tmp.path().join("survey");
+    let cal = survey.join("cal.toml");
+    ok(&[
+        "--quiet",
+        "calibrate",
+        survey.join("recipe.toml").to_str().unwrap(),
+        "--out",
+        cal.to_str().unwrap(),
+    ]);
+    let text = std::fs::read_to_string(&cal).unwrap();
+    assert!(text.contains("layout = \"calibration/1\""), "{text}");
+    assert!(survey.join("cal.report.txt").is_file());
+    let recipe = survey.join("recipe.toml");
+    let mut r = std::fs::read_to_string(&recipe).unwrap();
+    r.push_str("\n[calibration]\nmode = \"file\"\nfile = \"cal.toml\"\n");
+    std::fs::write(&recipe, r).unwrap();
+    std::fs::remove_dir_all(tmp.path().join("run")).unwrap();
+    run(tmp.path());
+    let s2 = score(tmp.path());
+    for (a, b) in s[0]["components"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .zip(s2[0]["components"].as_array().unwrap())
+    {
+        let e1 = a["filtered_rms_error_e"].as_f64().unwrap();
+        let e2 = b["filtered_rms_error_e"].as_f64().unwrap();
+        assert!(
+            (e1 - e2).abs() < 0.05,
+            "{}: {e1} estimated, {e2} from the file",
+            a["component"]
+        );
+    }
+    // A damaged calibration file is located by key.
+    std::fs::write(&cal, text.replacen("kappa = [", "kappa = [\"x\", ", 1)).unwrap();
+    let o = gravgrad(&[
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        tmp.path().join("run2").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("cal.toml") && err.contains("kappa"), "{err}");
+    assert!(!tmp.path().join("run2/lines.parquet").exists());
+}
+
+#[test]
+fn a_partial_instrument_gives_what_it_sees_and_names_what_it_cannot() {
+    let tmp = tempfile::tempdir().unwrap();
+    let scenario = format!(
+        "{BASE}{}\npairs = [\"xx\", \"yy\", \"xy\", \"yx\"]\n",
+        PERFECT
+    );
+    simulate(tmp.path(), &scenario, "\n[calibration]\nmode = \"none\"\n");
+    // Asking for all six components: refused, naming the blind combinations.
+    let recipe = tmp.path().join("survey/recipe.toml");
+    let o = gravgrad(&[
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        tmp.path().join("run").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let text = format!(
+        "{}{}",
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(text.contains("Gxz") && text.contains("Gzz"), "{text}");
+    // Asking for what it sees: Gxx, Gyy, Gxy from the pairs, α from the gyros.
+    let mut r = std::fs::read_to_string(&recipe).unwrap();
+    r.push_str("\n[rotation]\ncomponents = [\"Gxx\", \"Gyy\", \"Gxy\"]\n");
+    std::fs::write(&recipe, r).unwrap();
+    let o = gravgrad(&[
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        tmp.path().join("run").to_str().unwrap(),
+    ]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(String::from_utf8_lossy(&o.stderr).contains("from the gyros"));
+    let s = score(tmp.path());
+    for c in s[0]["components"].as_array().unwrap() {
+        let name = c["component"].as_str().unwrap();
+        let rms = c["rms_error_e"].as_f64();
+        match name {
+            "gxx" | "gyy" | "gxy" => {
+                let rms = rms.unwrap();
+                let mean = c["mean_error_e"].as_f64().unwrap();
+                eprintln!("partial {name}: mean {mean:.2e} rms {rms:.2e} E");
+                assert!((mean * mean + rms * rms).sqrt() < 0.05, "{name}: {rms}");
+            }
+            _ => assert!(rms.is_none(), "{name} should be absent (NaN), got {rms:?}"),
+        }
+    }
+}
+
+/// Columns of a CSV table written by gravgrad (after its `#` comment line).
+fn csv_table(path: &Path) -> Vec<Vec<f64>> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let rows: Vec<Vec<f64>> = text
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .skip(1)
+        .map(|l| l.split(',').map(|c| c.parse().unwrap()).collect())
+        .collect();
+    (0..rows[0].len())
+        .map(|k| rows.iter().map(|r| r[k]).collect())
+        .collect()
+}
+
+#[test]
+fn terrain_command_fast_engine_agrees_with_the_exact_sum_and_locates_bad_points() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dem = "data/demo/dem.tif";
+    let fast = tmp.path().join("fast.csv");
+    let exact = tmp.path().join("exact.csv");
+    for (out, extra) in [(&fast, None), (&exact, Some("--exact"))] {
+        let mut args = vec![
+            "--quiet",
+            "terrain",
+            dem,
+            "--clearance",
+            "90",
+            "--step",
+            "7",
+            "--out",
+            out.to_str().unwrap(),
+        ];
+        args.extend(extra);
+        ok(&args);
+    }
+    let (f, e) = (csv_table(&fast), csv_table(&exact));
+    assert!(f[0].len() > 300, "{} points", f[0].len());
+    for c in 3..9 {
+        let worst = f[c]
+            .iter()
+            .zip(&e[c])
+            .map(|(a, b)| (a - b).abs())
+            .fold(0.0, f64::max);
+        let largest = e[c].iter().map(|v| v.abs()).fold(0.0, f64::max);
+        eprintln!("component {c}: largest {largest:.2} E, worst difference {worst:.2e} E");
+        assert!(largest > 1.0 && worst <= 0.1, "component {c}: {worst} E");
+    }
+    // Points from a file; a bad cell is named by row and column.
+    let pts = tmp.path().join("points.csv");
+    std::fs::write(
+        &pts,
+        format!(
+            "easting,northing,height\n{},{},300\n{},{},oops\n",
+            f[0][0], f[1][0], f[0][1], f[1][1]
+        ),
+    )
+    .unwrap();
+    let o = gravgrad(&[
+        "terrain",
+        dem,
+        "--points",
+        pts.to_str().unwrap(),
+        "--out",
+        tmp.path().join("p.csv").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("row 3") && err.contains("`height`"), "{err}");
+}
