@@ -57,8 +57,10 @@ fn a_recipe_checks_its_instrument_and_flights() {
 }
 
 #[test]
-fn the_demo_runs() {
-    let out = gravgrad(&["demo", "--quiet"]);
+fn the_demo_runs_end_to_end_and_scores_itself() {
+    let tmp = tempfile::tempdir().unwrap();
+    let products = tmp.path().join("demo");
+    let out = gravgrad(&["demo", "--quiet", "--out", products.to_str().unwrap()]);
     assert_eq!(
         out.status.code(),
         Some(0),
@@ -68,6 +70,11 @@ fn the_demo_runs() {
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("kestrand-flats-demo-f01.parquet"), "{text}");
     assert!(text.contains("lines        5"), "{text}");
+    assert!(products.join("lines.parquet").is_file());
+    assert!(
+        text.contains("terrain_removed against truth geology"),
+        "{text}"
+    );
 }
 
 #[test]

@@ -54,11 +54,14 @@ enum Command {
     Score(score_cmd::ScoreArgs),
     /// Estimate each pair's calibration from the recipe's flights; write the calibration file.
     Calibrate(calibrate_cmd::CalibrateArgs),
-    /// Check the bundled demo survey and show what gravgrad reports on it.
+    /// Process the bundled demo survey end to end and show how far the result is from its truth.
     Demo {
         /// Folder of the demo survey (default: the repository's data/demo).
         #[arg(long, value_name = "DIR")]
         data: Option<PathBuf>,
+        /// Output folder of the products (default: ./gravgrad-demo).
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
     },
 }
 
@@ -90,7 +93,7 @@ fn main() -> ExitCode {
     }
     let code = match cli.command {
         Command::Check(args) => check_cmd::run(&args, &log, cli.json),
-        Command::Demo { data } => demo_cmd::run(data, &log, cli.json),
+        Command::Demo { data, out } => demo_cmd::run(data, out, &log, cli.json),
         Command::Simulate(args) => simulate_cmd::run(&args, &log),
         Command::Run(args) => run_cmd::run(&args, &log),
         Command::Calibrate(args) => calibrate_cmd::run(&args, &log),

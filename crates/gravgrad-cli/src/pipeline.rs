@@ -166,6 +166,8 @@ pub struct FlightResult {
     pub heading_only: bool,
     pub alpha_source: AlphaSource,
     pub calibration: Vec<(String, PairCalibration)>,
+    /// Wall time of each stage, s.
+    pub timings: Vec<(&'static str, f64)>,
 }
 
 /// A required column of the flight, or an error naming it.
@@ -229,6 +231,12 @@ pub fn process_flight(
     let omega = get3(["wx", "wy", "wz"])?;
     let f = get3(["fx", "fy", "fz"])?;
     let [roll, pitch, heading] = get3(["roll", "pitch", "heading"])?;
+    let mut timings = Vec::new();
+    let mut clock = std::time::Instant::now();
+    let mut lap = |name: &'static str, t: &mut Vec<(&'static str, f64)>| {
+        t.push((name, clock.elapsed().as_secs_f64()));
+        clock = std::time::Instant::now();
+    };
     let pos = positions(
         frame,
         column(flight, "lat")?,
@@ -241,7 +249,9 @@ pub fn process_flight(
         .unwrap_or(recipe.survey.ellipsoid)
         .params();
     let normal = normal_tensor(ell, &pos);
+    lap("positions and normal field", &mut timings);
     let terrain = terrain(&pos)?;
+    lap("terrain", &mut timings);
 
     let mut line = vec![0i64; n];
     for s in &flight.lines {
@@ -354,6 +364,7 @@ pub fn process_flight(
         }
         CalibrationSource::None => None,
     };
+    lap("calibration", &mut timings);
     // The corrected `a` outputs (a − correction; b as logged).
     let corrected_a: Vec<Vec<f64>> = (0..instrument.pairs.len())
         .into_par_iter()
@@ -406,6 +417,7 @@ pub fn process_flight(
             e.to_string(),
         )
     })?;
+    lap("solve and rotation", &mut timings);
     let alpha_difference = sol.alpha_pairs.as_ref().map(|ap| {
         ap.iter()
             .zip(&sol.alpha_gyro)
@@ -453,6 +465,7 @@ pub fn process_flight(
         heading_only: sol.heading_only,
         alpha_source,
         calibration,
+        timings,
     })
 }
 

@@ -145,6 +145,15 @@ pub fn process(
                 ""
             }
         ));
+        log.info(&format!(
+            "{name}: {} samples; {}",
+            r.time.len(),
+            r.timings
+                .iter()
+                .map(|(s, t)| format!("{s} {t:.2} s"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ));
         results.push(r);
         names.push(name);
     }
@@ -201,6 +210,7 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         Err(code) => return code,
     };
     let dir = output_folder(&p, args.out.as_deref());
+    let clock = std::time::Instant::now();
     let table = lines_out::build(&p.results);
     let lines = dir.join("lines.parquet");
     if let Err(e) = table.write_parquet(&lines, &p.names, p.frame.epsg) {
@@ -219,6 +229,10 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         return EXIT_FAILURE;
     }
     let samples: usize = p.results.iter().map(|r| r.time.len()).sum();
+    log.info(&format!(
+        "lines table built and written in {:.2} s",
+        clock.elapsed().as_secs_f64()
+    ));
     log.info(&format!(
         "{} flights, {samples} samples; lines written to {}",
         p.results.len(),

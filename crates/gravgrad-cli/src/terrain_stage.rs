@@ -75,7 +75,9 @@ impl TerrainStage {
     pub fn coverage_warning(&self, p: &Positions) -> Option<Problem> {
         let pts = points(p);
         let c = self.model.covers(&pts, self.margin_m);
-        (!c.covered).then(|| {
+        // Shortfalls under a metre are the rounding of a DEM cut exactly to the margin.
+        let short = c.shortfall.iter().cloned().fold(0.0, f64::max);
+        (!c.covered && short >= 1.0).then(|| {
             let [w, e, s, n] = c.shortfall;
             Problem::warning(
                 Location::file(&self.dem_path),

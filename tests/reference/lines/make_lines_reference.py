@@ -13,6 +13,8 @@ Run: python3 tests/reference/lines/make_lines_reference.py   (needs numpy, scipy
 import json
 import os
 
+import sys
+
 import numpy as np
 import scipy
 import scipy.signal as sg
@@ -22,7 +24,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 
 def main():
     rng = np.random.default_rng(20240607)
-    out = {"scipy": scipy.__version__, "numpy": np.__version__}
+    out = {"libraries": f"scipy {scipy.__version__}, numpy {np.__version__}"}
 
     gain = []
     for order, wn in [(4, 0.012), (4, 0.2), (3, 0.05), (2, 0.5), (6, 0.1)]:
@@ -50,7 +52,8 @@ def main():
     f, p = sg.welch(w, fs=fs, window="hann", nperseg=nperseg, detrend="linear")
     out["welch"] = {"fs": fs, "nperseg": nperseg, "x": w.tolist(), "f": f.tolist(), "psd": p.tolist()}
 
-    with open(os.path.join(HERE, "lines_reference.json"), "w") as fh:
+    target = sys.argv[sys.argv.index("--out") + 1] if "--out" in sys.argv else os.path.join(HERE, "lines_reference.json")
+    with open(target, "w") as fh:
         json.dump(out, fh)
         fh.write("\n")
 
