@@ -2,19 +2,38 @@
 //! has no jump), transformed, multiplied by a pass band with raised-cosine edges 20% of each edge
 //! frequency wide, transformed back and cropped. Frequencies in Hz, sample rate in Hz.
 
-use rustfft::FftPlanner;
 use rustfft::num_complex::Complex64;
+use rustfft::{Fft, FftPlanner};
+use std::sync::Arc;
 
 /// Gain of the pass band at frequency f (Hz).
 pub fn gain(f: f64, lo: f64, hi: f64) -> f64 {
     let edge = |f: f64, c: f64, rising: bool| -> f64 {
         let w = 0.2 * c;
         let x = ((f - (c - w / 2.0)) / w).clamp(0.0, 1.0);
-        let g = 0.5 - 0.5 * (std::f64::consts::PI * x).cos();
+        let g = if x == 0.0 || x == 1.0 {
+            x
+        } else {
+            0.5 - 0.5 * (std::f64::consts::PI * x).cos()
+        };
         if rising { g } else { 1.0 - g }
     };
     let up = if lo > 0.0 { edge(f, lo, true) } else { 1.0 };
     up * edge(f, hi, false)
+}
+
+thread_local! {
+    /// One planner per thread: it keeps the plans (and their twiddle factors) of every length
+    /// already used, which a fresh planner would recompute for each series.
+    static PLANNER: std::cell::RefCell<FftPlanner<f64>> = std::cell::RefCell::new(FftPlanner::new());
+}
+
+/// Forward and inverse FFT plans of length `m`, from this thread's planner.
+pub(crate) fn plans(m: usize) -> (Arc<dyn Fft<f64>>, Arc<dyn Fft<f64>>) {
+    PLANNER.with(|p| {
+        let mut p = p.borrow_mut();
+        (p.plan_fft_forward(m), p.plan_fft_inverse(m))
+    })
 }
 
 /// Band-passes `x` sampled at `rate_hz` to [lo, hi] Hz.
@@ -27,14 +46,14 @@ pub fn band_pass(x: &[f64], rate_hz: f64, lo: f64, hi: f64) -> Vec<f64> {
     let mut buf: Vec<Complex64> = (0..m)
         .map(|i| Complex64::new(if i < n { x[i] } else { x[m - 1 - i] }, 0.0))
         .collect();
-    let mut planner = FftPlanner::<f64>::new();
-    planner.plan_fft_forward(m).process(&mut buf);
+    let (fwd, inv) = plans(m);
+    fwd.process(&mut buf);
     for (k, c) in buf.iter_mut().enumerate() {
         let kk = if k <= m / 2 { k } else { m - k };
         let f = kk as f64 * rate_hz / m as f64;
         *c *= gain(f, lo, hi);
     }
-    planner.plan_fft_inverse(m).process(&mut buf);
+    inv.process(&mut buf);
     buf[..n].iter().map(|c| c.re / m as f64).collect()
 }
 

@@ -2,6 +2,7 @@
 
 use crate::bandpass::band_pass;
 use gravgrad_core::pairs::PairGeometry;
+use rustfft::num_complex::Complex64;
 
 /// An estimate and its standard error.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -164,18 +165,26 @@ fn regress(columns: &[Vec<f64>], y: &[f64]) -> (Vec<Coefficient>, Vec<f64>) {
 /// over lags until the autocorrelation first drops below zero (Bretherton et al. 1999).
 pub fn effective_size(r: &[f64]) -> f64 {
     let n = r.len();
-    let var: f64 = r.iter().map(|v| v * v).sum::<f64>() / n as f64;
+    let var: f64 = r.iter().map(|v| v * v).sum::<f64>() / n.max(1) as f64;
     if var <= 0.0 || n < 4 {
         return n as f64;
     }
+    // All lags at once: the autocovariance is the inverse transform of |FFT|² of the zero-padded
+    // series (Wiener–Khinchin), O(n log n) where the lag-by-lag sum is O(n²) for smooth residuals.
+    let m = (2 * n).next_power_of_two();
+    let mut buf: Vec<Complex64> = (0..m)
+        .map(|i| Complex64::new(if i < n { r[i] } else { 0.0 }, 0.0))
+        .collect();
+    let (fwd, inv) = crate::bandpass::plans(m);
+    fwd.process(&mut buf);
+    for c in buf.iter_mut() {
+        *c = Complex64::new(c.norm_sqr(), 0.0);
+    }
+    inv.process(&mut buf);
+    let scale = 1.0 / (m as f64 * n as f64 * var);
     let mut sum = 0.0;
-    for lag in 1..n / 4 {
-        let rho = r[..n - lag]
-            .iter()
-            .zip(&r[lag..])
-            .map(|(a, b)| a * b)
-            .sum::<f64>()
-            / (n as f64 * var);
+    for c in buf.iter().take(n / 4).skip(1) {
+        let rho = c.re * scale;
         if rho <= 0.0 {
             break;
         }
@@ -276,7 +285,15 @@ pub fn estimate(d: &PairData<'_>, s: &Settings) -> PairCalibration {
         .enumerate()
         .map(|(i, v)| v - d.expected.map_or(0.0, |e| e[i]))
         .collect();
-    fit_series(&diff, d, true, s)
+    fit_series(&diff, d, true, s, None)
+}
+
+/// The specific force band-passed line by line as [`fit_series`] needs it: computed once for a
+/// flight when many series are fitted against the same force.
+pub(crate) fn band_passed_force(d: &PairData<'_>, s: &Settings) -> [Vec<f64>; 3] {
+    let [lo, hi] = s.band_hz;
+    let runs = usable_runs(d.usable, d.time.len(), (s.rate_hz / lo).ceil() as usize);
+    std::array::from_fn(|k| band_pass_runs(d.f[k], &runs, s.rate_hz, lo, hi))
 }
 
 /// The calibration model fitted to one series `y` (m/s²) whose known field is already removed: κ
@@ -289,6 +306,7 @@ pub(crate) fn fit_series(
     d: &PairData<'_>,
     with_alpha: bool,
     s: &Settings,
+    force_band: Option<&[Vec<f64>; 3]>,
 ) -> PairCalibration {
     let [lo, hi] = s.band_hz;
     // Step 1: κ (and the rotation regressors) in the band where aircraft motion dominates. Each line
@@ -296,7 +314,10 @@ pub(crate) fn fit_series(
     // times larger) leaks into the line samples, and the ends of each line are dropped.
     let runs = usable_runs(d.usable, y.len(), (s.rate_hz / lo).ceil() as usize);
     let bp = |x: &[f64]| -> Vec<f64> { band_pass_runs(x, &runs, s.rate_hz, lo, hi) };
-    let mut cols: Vec<Vec<f64>> = d.f.iter().map(|c| bp(c)).collect();
+    let mut cols: Vec<Vec<f64>> = match force_band {
+        Some(f) => f.to_vec(),
+        None => d.f.iter().map(|c| bp(c)).collect(),
+    };
     if with_alpha {
         cols.extend(d.alpha.iter().map(|c| bp(c)));
     }

@@ -13,10 +13,11 @@
 //! Units: m/s² for differences, s⁻² for S, rad/s² for α.
 
 use crate::estimate::{
-    Coefficient, PairCalibration, PairData, Settings, fit_polynomial, fit_series,
-    without_centrifugal,
+    Coefficient, PairCalibration, PairData, Settings, band_passed_force, fit_polynomial,
+    fit_series, without_centrifugal,
 };
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
+use rayon::prelude::*;
 
 /// One flight of a whole instrument, on one time base.
 pub struct FlightData<'a> {
@@ -156,16 +157,17 @@ pub fn estimate_flight(
             Vec::new()
         });
     }
-    // Fit each target: the full model, or bias and drift only.
+    // Fit each target: the full model, or bias and drift only. The force is band-passed once.
+    let force_band = band_passed_force(&d.series(0, d.time), s);
     let fits: Vec<Option<PairCalibration>> = targets
-        .iter()
+        .par_iter()
         .map(|y| {
             if y.is_empty() {
                 return None;
             }
             let data = d.series(0, y);
             Some(match fixed {
-                None => fit_series(y, &data, false, s),
+                None => fit_series(y, &data, false, s, Some(&force_band)),
                 Some(fx) => {
                     let (poly, t_mid) = fit_polynomial(y, d.time, s.drift_order, d.usable);
                     let mut c = fx[0].clone();
