@@ -372,3 +372,190 @@ fn terrain_command_fast_engine_agrees_with_the_exact_sum_and_locates_bad_points(
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(err.contains("row 3") && err.contains("`height`"), "{err}");
 }
+
+/// Every f64 column named `name` of one of our Parquet tables.
+fn parquet_f64(path: &Path, name: &str) -> Vec<f64> {
+    use parquet::file::reader::{FileReader, SerializedFileReader};
+    use parquet::record::RowAccessor;
+    let r = SerializedFileReader::new(std::fs::File::open(path).unwrap()).unwrap();
+    let schema = r.metadata().file_metadata().schema_descr_ptr();
+    let k = (0..schema.num_columns())
+        .find(|&i| schema.column(i).name() == name)
+        .unwrap_or_else(|| panic!("no column {name}"));
+    r.get_row_iter(None)
+        .unwrap()
+        .map(|row| row.unwrap().get_double(k).unwrap())
+        .collect()
+}
+
+#[test]
+fn a_netcdf_terrain_model_gives_the_same_reduction_as_the_geotiff() {
+    let tmp = tempfile::tempdir().unwrap();
+    // The demo survey with its DEM also written as a NetCDF-CF grid (our writer; read back by the
+    // NetCDF reader that xarray and GDAL files pass through in the netcdf crate's tests).
+    let demo = crate::root().join("data/demo");
+    let survey = tmp.path().join("survey");
+    std::fs::create_dir_all(survey.join("flights")).unwrap();
+    for f in [
+        "instrument.toml",
+        "recipe.toml",
+        "dem.tif",
+        "flights/kestrand-flats-demo-f01.parquet",
+    ] {
+        std::fs::copy(demo.join(f), survey.join(f)).unwrap();
+    }
+    let raster = gravgrad_ingest::geotiff_reader::read_geotiff(&demo.join("dem.tif")).unwrap();
+    let grid = gravgrad_netcdf::GridFile::new("demo terrain", "gravgrad test").with_variable(
+        "elevation",
+        "terrain height above the ellipsoid",
+        "m",
+        &raster,
+    );
+    gravgrad_netcdf::write_grids(&survey.join("dem.nc"), &grid).unwrap();
+    let tif_run = tmp.path().join("tif");
+    let nc_run = tmp.path().join("nc");
+    ok(&[
+        "--quiet",
+        "run",
+        survey.join("recipe.toml").to_str().unwrap(),
+        "--out",
+        tif_run.to_str().unwrap(),
+    ]);
+    let recipe = survey.join("recipe.toml");
+    let text = std::fs::read_to_string(&recipe)
+        .unwrap()
+        .replace("dem.tif", "dem.nc");
+    std::fs::write(&recipe, text).unwrap();
+    ok(&[
+        "--quiet",
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        nc_run.to_str().unwrap(),
+    ]);
+    for c in ["gxx", "gxy", "gxz", "gyy", "gyz", "gzz"] {
+        let a = parquet_f64(
+            &tif_run.join("lines.parquet"),
+            &format!("terrain_model_{c}"),
+        );
+        let b = parquet_f64(&nc_run.join("lines.parquet"), &format!("terrain_model_{c}"));
+        let largest = a.iter().map(|v| v.abs()).fold(0.0, f64::max);
+        assert!(largest > 1.0, "{c}: terrain effect {largest} E");
+        let worst = a
+            .iter()
+            .zip(&b)
+            .map(|(x, y)| (x - y).abs())
+            .fold(0.0, f64::max);
+        assert!(
+            worst <= 1e-9 * largest,
+            "{c}: GeoTIFF and NetCDF runs differ by {worst} E"
+        );
+    }
+}
+
+#[test]
+fn the_aircraft_self_gradient_is_regressed_out() {
+    let tmp = tempfile::tempdir().unwrap();
+    // Every default error, plus an aircraft self-gradient of 5 E per gust RMS of relative roll and
+    // of relative pitch (about 65 E in a 20° bank); the log carries the aircraft attitude.
+    let scenario = BASE
+        .replace("line_length_m = 3000.0", "line_length_m = 6000.0")
+        .replace("sample_rate_hz = 10.0", "sample_rate_hz = 20.0")
+        + "\n[instrument]\nself_gradient_e = 5.0\n";
+    simulate(tmp.path(), &scenario, "");
+    let flight = std::fs::read_dir(tmp.path().join("survey/flights"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .find(|p| p.extension().is_some_and(|e| e == "csv"))
+        .unwrap();
+    assert!(!csv_column(&flight, "ac_roll").is_empty());
+    run(tmp.path());
+    let s = score(tmp.path());
+    for stage in s.as_array().unwrap() {
+        for c in stage["components"].as_array().unwrap() {
+            let err = c["filtered_rms_error_e"].as_f64().unwrap();
+            let floor = c["filtered_noise_floor_e"].as_f64().unwrap();
+            eprintln!(
+                "self-gradient {} {}: {err:.3} E at ≥300 m, floor {floor:.3} E",
+                stage["stage"], c["component"]
+            );
+            assert!(
+                err <= floor + 0.5,
+                "{} {}: {err} vs {floor}",
+                stage["stage"],
+                c["component"]
+            );
+        }
+    }
+    let cal = std::fs::read_to_string(
+        std::fs::read_dir(tmp.path().join("run/calibration"))
+            .unwrap()
+            .next()
+            .unwrap()
+            .unwrap()
+            .path(),
+    )
+    .unwrap();
+    assert!(cal.contains("self_gradient_m_s2_per_rad"), "{cal}");
+    // The same log without the aircraft attitude: the self-gradient stays in, and at least one
+    // component is then well above the floor (so the regression above did real work).
+    let text = std::fs::read_to_string(&flight).unwrap();
+    let mut lines = text.lines();
+    let mut kept = String::new();
+    let mut drop: Vec<usize> = Vec::new();
+    for l in lines.by_ref() {
+        if l.starts_with('#') {
+            continue;
+        }
+        let head: Vec<&str> = l.split(',').collect();
+        drop = (0..head.len())
+            .filter(|&k| head[k].starts_with("ac_"))
+            .collect();
+        let keep: Vec<&str> = (0..head.len())
+            .filter(|k| !drop.contains(k))
+            .map(|k| head[k])
+            .collect();
+        kept.push_str(&keep.join(","));
+        kept.push('\n');
+        break;
+    }
+    assert_eq!(drop.len(), 3);
+    for l in lines {
+        let cells: Vec<&str> = l.split(',').collect();
+        let keep: Vec<&str> = (0..cells.len())
+            .filter(|k| !drop.contains(k))
+            .map(|k| cells[k])
+            .collect();
+        kept.push_str(&keep.join(","));
+        kept.push('\n');
+    }
+    let survey = tmp.path().join("survey");
+    std::fs::write(survey.join("without-aircraft.csv"), kept).unwrap();
+    let recipe = survey.join("recipe.toml");
+    let r = std::fs::read_to_string(&recipe).unwrap();
+    let start = r.find("flights = [").unwrap();
+    let end = start + r[start..].find(']').unwrap() + 1;
+    let r = format!(
+        "{}flights = [\"without-aircraft.csv\"]{}",
+        &r[..start],
+        &r[end..]
+    );
+    std::fs::write(&recipe, r).unwrap();
+    std::fs::remove_dir_all(tmp.path().join("run")).unwrap();
+    run(tmp.path());
+    let s2 = score(tmp.path());
+    let worst = s2[0]["components"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| {
+            c["filtered_rms_error_e"].as_f64().unwrap()
+                - c["filtered_noise_floor_e"].as_f64().unwrap()
+        })
+        .fold(f64::NEG_INFINITY, f64::max);
+    eprintln!("without the regression: worst {worst:.2} E above the floor");
+    assert!(
+        worst > 1.0,
+        "without the aircraft attitude the self-gradient should show: {worst} E"
+    );
+}

@@ -3,9 +3,8 @@
 //! fast engine (`gravgrad-reduce`), turned from grid north to true north.
 
 use crate::pipeline::{MapFrame, Positions, rz};
-use gravgrad_core::raster::Raster;
 use gravgrad_core::{Location, Problem, SymTensor};
-use gravgrad_ingest::geotiff_reader::read_geotiff;
+pub use gravgrad_ingest::dem::read_dem;
 use gravgrad_ingest::recipe::{Recipe, Terrain};
 use gravgrad_reduce::terrain::{TerrainModel, TerrainSettings};
 use std::path::Path;
@@ -15,18 +14,6 @@ pub struct TerrainStage {
     model: TerrainModel,
     margin_m: f64,
     dem_path: std::path::PathBuf,
-}
-
-/// Reads a DEM by its extension: `.nc`/`.nc4`/`.cdf` as NetCDF-CF, anything else as GeoTIFF.
-pub fn read_dem(path: &Path, variable: Option<&str>) -> Result<Raster, Vec<Problem>> {
-    let ext = path
-        .extension()
-        .and_then(|e| e.to_str())
-        .map(str::to_ascii_lowercase);
-    match ext.as_deref() {
-        Some("nc" | "nc4" | "cdf" | "netcdf") => gravgrad_netcdf::read_dem(path, variable),
-        _ => read_geotiff(path),
-    }
 }
 
 impl TerrainStage {

@@ -316,7 +316,7 @@ fn check_dem(r: &Recipe, recipe_path: &Path, flights: &[FileReport]) -> Vec<Prob
     let Some(t) = &r.terrain else { return vec![] };
     let dem_path = r.resolve(&t.dem);
     let key = Location::file(recipe_path).with_key("terrain.dem");
-    let dem = match crate::geotiff_reader::read_geotiff(&dem_path) {
+    let dem = match crate::dem::read_dem(&dem_path, None) {
         Ok(d) => d,
         Err(p) => {
             let mut out = vec![Problem::error(

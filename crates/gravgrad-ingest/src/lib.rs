@@ -14,6 +14,7 @@
 pub mod check;
 pub mod columns;
 pub mod csv;
+pub mod dem;
 pub mod geotiff_reader;
 pub mod hdf5_reader;
 pub mod instrument;
