@@ -73,6 +73,19 @@ pub struct PairCalibration {
     pub band_residual_rms: f64,
 }
 
+/// The largest n' ≤ n whose only prime factors are 2, 3 and 5 (n ≥ 1).
+fn smooth_below(n: usize) -> usize {
+    let smooth = |mut m: usize| {
+        for p in [2, 3, 5] {
+            while m > 1 && m.is_multiple_of(p) {
+                m /= p;
+            }
+        }
+        m == 1
+    };
+    (1..=n.max(1)).rev().find(|&m| smooth(m)).unwrap_or(1)
+}
+
 /// The runs of usable samples at least `min_len` long (all samples when `usable` is `None`), as
 /// index ranges.
 fn usable_runs(usable: Option<&[bool]>, n: usize, min_len: usize) -> Vec<std::ops::Range<usize>> {
@@ -109,7 +122,10 @@ fn band_pass_runs(
     let margin = (rate / lo / 4.0).ceil() as usize;
     let mut out = Vec::new();
     for r in runs {
-        let y = band_pass(&x[r.clone()], rate, lo, hi);
+        // The run cut to the longest 5-smooth length: transforms of such lengths are planned and run
+        // fast, where a length with a large prime factor costs several times more.
+        let n = smooth_below(r.len());
+        let y = band_pass(&x[r.start..r.start + n], rate, lo, hi);
         if y.len() > 2 * margin {
             out.extend_from_slice(&y[margin..y.len() - margin]);
         }

@@ -84,15 +84,19 @@ pub fn estimate_flight(
     let op = pseudo_inverse(&a, k);
     // z_k = −(d_k − centrifugal − expected − fixed part), less the gyro α term when the solve uses it.
     let z: Vec<Vec<f64>> = (0..np)
+        .into_par_iter()
         .map(|p| {
             let data = d.series(p, d.differences[p]);
             let y = without_centrifugal(&data);
+            let fixed_part = fixed.map(|fx| {
+                let mut c = fx[p].clone();
+                c.polynomial.clear();
+                c
+            });
             (0..n)
                 .map(|i| {
                     let mut v = y[i] - data.expected.map_or(0.0, |e| e[i]);
-                    if let Some(fx) = fixed {
-                        let mut c = fx[p].clone();
-                        c.polynomial.clear();
+                    if let Some(c) = &fixed_part {
                         v -= c.correction_at(&data, i);
                     }
                     let mut zv = -v;
@@ -104,6 +108,42 @@ pub fn estimate_flight(
                 .collect()
         })
         .collect();
+    // Everything below is linear in the samples, so the model holds as well for block means as for
+    // samples: blocks of `block` samples (a quarter of the band's top period) carry the whole band
+    // and make the fits `block` times cheaper.
+    let block = ((s.rate_hz / (4.0 * s.band_hz[1])).floor() as usize).max(1);
+    let mean = |x: &[f64]| block_means(x, block);
+    let z: Vec<Vec<f64>> = z.par_iter().map(|v| mean(v)).collect();
+    let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
+    let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
+    let tb = mean(d.time);
+    let temp_b = d.temperature.map(mean);
+    let rel_b: Option<Vec<Vec<f64>>> = d
+        .relative_attitude
+        .map(|r| r.iter().map(|v| mean(v)).collect());
+    let usable_b: Option<Vec<bool>> = d
+        .usable
+        .map(|u| u.chunks(block).map(|c| c.iter().all(|x| *x)).collect());
+    let settings_b = Settings {
+        rate_hz: s.rate_hz / block as f64,
+        ..s.clone()
+    };
+    let s = &settings_b;
+    let d = FlightData {
+        pairs: d.pairs,
+        differences: vec![],
+        expected: vec![],
+        omega: d.omega,
+        f: [&fb[0], &fb[1], &fb[2]],
+        alpha: [&ab[0], &ab[1], &ab[2]],
+        time: &tb,
+        temperature: temp_b.as_deref(),
+        usable: usable_b.as_deref(),
+        relative_attitude: rel_b.as_ref().map(|r| [&r[0][..], &r[1][..]]),
+        alpha_from_pairs: d.alpha_from_pairs,
+    };
+    let d = &d;
+    let n = tb.len();
     // PA, to predict the α the unknown rows carry from the gyros.
     let pa: Vec<Vec<f64>> = (0..k)
         .map(|j| {
@@ -239,5 +279,12 @@ pub fn estimate_flight(
                 ..base
             }
         })
+        .collect()
+}
+
+/// Means of consecutive blocks of `block` samples (the last block may be shorter).
+fn block_means(x: &[f64], block: usize) -> Vec<f64> {
+    x.chunks(block)
+        .map(|c| c.iter().sum::<f64>() / c.len() as f64)
         .collect()
 }

@@ -404,6 +404,7 @@ pub fn process_flight(
         pitch_deg: pitch,
         heading_deg: heading,
         rate_hz: rate,
+        alpha_gyro: Some([&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]]),
     };
     let solve_settings = SolveSettings {
         alpha: alpha_source,

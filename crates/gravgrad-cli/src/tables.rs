@@ -105,6 +105,8 @@ pub fn write_parquet_with_metadata(
             WriterProperties::builder()
                 .set_compression(Compression::ZSTD(level))
                 .set_created_by("gravgrad".into())
+                // Measured values rarely repeat: a dictionary only costs time.
+                .set_dictionary_enabled(false)
                 .set_key_value_metadata((!metadata.is_empty()).then(|| {
                     metadata
                         .iter()

@@ -35,6 +35,9 @@ pub struct Inputs<'a> {
     pub pitch_deg: &'a [f64],
     pub heading_deg: &'a [f64],
     pub rate_hz: f64,
+    /// The gyro-derived angular acceleration (sensor axes, rad/s²) when the caller has it already
+    /// (low-passed at `SolveSettings::gyro_lowpass_hz`); `None`: computed here.
+    pub alpha_gyro: Option<[&'a [f64]; 3]>,
 }
 
 /// Why a solve cannot be done.
@@ -142,9 +145,12 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
         )
     });
 
-    let alpha_g: Vec<Vec<f64>> = (0..3)
-        .map(|k| angular_acceleration(inp.omega[k], inp.rate_hz, s.gyro_lowpass_hz))
-        .collect();
+    let alpha_g: Vec<Vec<f64>> = match inp.alpha_gyro {
+        Some(a) => a.iter().map(|v| v.to_vec()).collect(),
+        None => (0..3)
+            .map(|k| angular_acceleration(inp.omega[k], inp.rate_hz, s.gyro_lowpass_hz))
+            .collect(),
+    };
     let alpha_gyro: Vec<Vec3> = (0..n)
         .map(|i| [alpha_g[0][i], alpha_g[1][i], alpha_g[2][i]])
         .collect();
@@ -156,105 +162,107 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
         alpha: Vec3,
         trace: f64,
     }
+    // Per-worker scratch: the pair values, the constrained values and the unknowns, reused across
+    // samples (no allocation per sample).
+    let np = inp.pairs.len();
+    let nu = op.p.len();
     let outs: Vec<Out> = (0..n)
         .into_par_iter()
-        .map(|i| {
-            let w = [inp.omega[0][i], inp.omega[1][i], inp.omega[2][i]];
-            let w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
-            let y: Vec<f64> = inp
-                .pairs
-                .iter()
-                .zip(&rows)
-                .map(|(p, r)| {
+        .map_init(
+            || (vec![0.0; np], vec![0.0; np], [0.0f64; 9]),
+            |(y, y_con, u), i| {
+                let w = [inp.omega[0][i], inp.omega[1][i], inp.omega[2][i]];
+                let w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
+                for ((yv, p), r) in y.iter_mut().zip(&inp.pairs).zip(&rows) {
                     let mut v = -(p.a[i] - p.b[i]);
                     if !with_alpha {
                         v -= r[6] * alpha_gyro[i][0]
                             + r[7] * alpha_gyro[i][1]
                             + r[8] * alpha_gyro[i][2];
                     }
-                    v
-                })
-                .collect();
-            let y_con: Vec<f64> = if s.trace_constraint {
-                y.iter()
-                    .zip(&rows)
-                    .map(|(v, r)| v - r[5] * 2.0 * w2)
-                    .collect()
-            } else {
-                y.clone()
-            };
-            let u: Vec<f64> =
-                op.p.iter()
-                    .map(|row| row.iter().zip(&y_con).map(|(a, b)| a * b).sum())
-                    .collect();
-            let mut sv = [f64::NAN; 6];
-            let mut alpha = [f64::NAN; 3];
-            if s.trace_constraint {
-                let map = [0usize, 1, 2, 3, 4];
-                for (j, &c) in map.iter().enumerate() {
-                    sv[c] = if op.observed[j] { u[j] } else { f64::NAN };
+                    *yv = v;
                 }
-                sv[5] = 2.0 * w2 - sv[0] - sv[3];
-                if with_alpha {
-                    for k in 0..3 {
-                        alpha[k] = if op.observed[5 + k] {
-                            u[5 + k]
-                        } else {
-                            f64::NAN
-                        };
-                    }
-                }
-            } else {
-                for c in 0..6 {
-                    sv[c] = if op.observed[c] { u[c] } else { f64::NAN };
-                }
-                if with_alpha {
-                    for k in 0..3 {
-                        alpha[k] = if op.observed[6 + k] {
-                            u[6 + k]
-                        } else {
-                            f64::NAN
-                        };
-                    }
-                }
-            }
-            // G_s = S + ΩΩ, ΩΩ = ωωᵀ − |ω|²I.
-            let ww = [
-                w[0] * w[0] - w2,
-                w[0] * w[1],
-                w[0] * w[2],
-                w[1] * w[1] - w2,
-                w[1] * w[2],
-                w[2] * w[2] - w2,
-            ];
-            let gs = SymTensor::from_array(std::array::from_fn(|c| sv[c] + ww[c]));
-            let trace = match &op_free {
-                Some(f) => {
-                    let uf: Vec<f64> =
-                        f.p.iter()
-                            .map(|row| row.iter().zip(&y).map(|(a, b)| a * b).sum())
-                            .collect();
-                    if f.observed[0] && f.observed[3] && f.observed[5] {
-                        uf[0] + uf[3] + uf[5] - 2.0 * w2
+                for ((c, v), r) in y_con.iter_mut().zip(y.iter()).zip(&rows) {
+                    *c = if s.trace_constraint {
+                        v - r[5] * 2.0 * w2
                     } else {
-                        f64::NAN
+                        *v
+                    };
+                }
+                for (uj, row) in u.iter_mut().zip(&op.p).take(nu) {
+                    *uj = row.iter().zip(y_con.iter()).map(|(a, b)| a * b).sum();
+                }
+                let y: &[f64] = y;
+                let mut sv = [f64::NAN; 6];
+                let mut alpha = [f64::NAN; 3];
+                if s.trace_constraint {
+                    let map = [0usize, 1, 2, 3, 4];
+                    for (j, &c) in map.iter().enumerate() {
+                        sv[c] = if op.observed[j] { u[j] } else { f64::NAN };
+                    }
+                    sv[5] = 2.0 * w2 - sv[0] - sv[3];
+                    if with_alpha {
+                        for k in 0..3 {
+                            alpha[k] = if op.observed[5 + k] {
+                                u[5 + k]
+                            } else {
+                                f64::NAN
+                            };
+                        }
+                    }
+                } else {
+                    for c in 0..6 {
+                        sv[c] = if op.observed[c] { u[c] } else { f64::NAN };
+                    }
+                    if with_alpha {
+                        for k in 0..3 {
+                            alpha[k] = if op.observed[6 + k] {
+                                u[6 + k]
+                            } else {
+                                f64::NAN
+                            };
+                        }
                     }
                 }
-                None => gs.trace(),
-            };
-            let att = Attitude::from_degrees(inp.roll_deg[i], inp.pitch_deg[i], inp.heading_deg[i]);
-            let ned = if full_rotation {
-                gs.rotated(&att.c_sn())
-            } else {
-                rotate_heading_only(&gs, att.heading)
-            };
-            Out {
-                ned,
-                sensor: gs,
-                alpha,
-                trace,
-            }
-        })
+                // G_s = S + ΩΩ, ΩΩ = ωωᵀ − |ω|²I.
+                let ww = [
+                    w[0] * w[0] - w2,
+                    w[0] * w[1],
+                    w[0] * w[2],
+                    w[1] * w[1] - w2,
+                    w[1] * w[2],
+                    w[2] * w[2] - w2,
+                ];
+                let gs = SymTensor::from_array(std::array::from_fn(|c| sv[c] + ww[c]));
+                let trace = match &op_free {
+                    Some(f) => {
+                        let uf: Vec<f64> =
+                            f.p.iter()
+                                .map(|row| row.iter().zip(y).map(|(a, b)| a * b).sum())
+                                .collect();
+                        if f.observed[0] && f.observed[3] && f.observed[5] {
+                            uf[0] + uf[3] + uf[5] - 2.0 * w2
+                        } else {
+                            f64::NAN
+                        }
+                    }
+                    None => gs.trace(),
+                };
+                let att =
+                    Attitude::from_degrees(inp.roll_deg[i], inp.pitch_deg[i], inp.heading_deg[i]);
+                let ned = if full_rotation {
+                    gs.rotated(&att.c_sn())
+                } else {
+                    rotate_heading_only(&gs, att.heading)
+                };
+                Out {
+                    ned,
+                    sensor: gs,
+                    alpha,
+                    trace,
+                }
+            },
+        )
         .collect();
     Ok(Solution {
         tensor_ned: outs.iter().map(|o| o.ned).collect(),

@@ -55,6 +55,7 @@ fn inputs(s: &Simulation) -> Inputs<'_> {
         pitch_deg: col(s, "pitch"),
         heading_deg: col(s, "heading"),
         rate_hz: 20.0,
+        alpha_gyro: None,
     }
 }
 
