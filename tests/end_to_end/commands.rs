@@ -75,6 +75,29 @@ fn the_demo_runs_end_to_end_and_scores_itself() {
         text.contains("terrain_removed against truth geology"),
         "{text}"
     );
+    // Provenance: every input with its SHA-256, as coreutils' sha256sum computes it.
+    let prov: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(products.join("provenance.json")).unwrap())
+            .unwrap();
+    let inputs = prov["inputs"].as_array().unwrap();
+    assert_eq!(inputs.len(), 4, "{inputs:?}");
+    for i in inputs {
+        let path = i["path"].as_str().unwrap();
+        let o = std::process::Command::new("sha256sum")
+            .arg(path)
+            .output()
+            .unwrap();
+        let sum = String::from_utf8_lossy(&o.stdout);
+        assert_eq!(
+            sum.split_whitespace().next(),
+            i["sha256"].as_str(),
+            "{path}"
+        );
+    }
+    assert_eq!(
+        prov["flights"][0]["calibration"].as_array().unwrap().len(),
+        9
+    );
 }
 
 #[test]

@@ -7,6 +7,7 @@ mod demo_cmd;
 mod lines_out;
 mod logging;
 mod pipeline;
+mod provenance;
 mod report;
 mod run_cmd;
 mod score_cmd;

@@ -5,6 +5,7 @@
 use crate::lines_out;
 use crate::logging::Log;
 use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
+use crate::provenance;
 use crate::report;
 use crate::tables::write_atomic;
 use crate::terrain_stage::TerrainStage;
@@ -204,6 +205,36 @@ pub fn write_calibrations(p: &Processed, dir: &Path) -> Result<Vec<PathBuf>, Str
     Ok(written)
 }
 
+/// Every input file of a processed survey: instrument, navigation, DEM, calibration file, flights.
+fn input_files(p: &Processed) -> Vec<PathBuf> {
+    let mut out = Vec::new();
+    if let Some(i) = &p.survey.instrument {
+        out.push(i.path.clone());
+    }
+    if let Some(r) = &p.survey.recipe {
+        if let Some(n) = &r.input.navigation {
+            out.push(r.resolve(n));
+        }
+        if let Some(t) = &r.terrain {
+            out.push(r.resolve(&t.dem));
+        }
+        if r.calibration.mode == CalibrationMode::File
+            && let Some(f) = &r.calibration.file
+        {
+            out.push(r.resolve(f));
+        }
+    }
+    let mut flights: Vec<PathBuf> = p
+        .survey
+        .flights
+        .iter()
+        .filter_map(|f| f.flight.source.file.clone())
+        .collect();
+    flights.dedup();
+    out.extend(flights);
+    out
+}
+
 pub fn run(args: &RunArgs, log: &Log) -> u8 {
     let p = match process(&args.recipe, log, None) {
         Ok(p) => p,
@@ -225,6 +256,17 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         return EXIT_FAILURE;
     }
     if let Err(e) = write_calibrations(&p, &dir) {
+        eprintln!("error: {e}");
+        return EXIT_FAILURE;
+    }
+    if let Err(e) = provenance::write(
+        &dir,
+        &args.recipe,
+        &input_files(&p),
+        &p.names,
+        &p.results,
+        p.frame.epsg,
+    ) {
         eprintln!("error: {e}");
         return EXIT_FAILURE;
     }
