@@ -92,12 +92,16 @@ def run_ours(pts_csv, size, cell, tension, limit, sweeps, threads, out_bin):
 
 def run_gmt(pts_csv, size, cell, tension, limit, sweeps, out_nc):
     n = int(round(size / cell))
+    # Run in the output's folder: GMT may leave a gmt.history file in its working folder.
+    pts_csv, out_nc = os.path.abspath(pts_csv), os.path.abspath(out_nc)
+    cwd = os.path.dirname(out_nc)
     cmd = ["gmt", "surface", "--GMT_HISTORY=false", pts_csv, f"-R0/{size:g}/0/{size:g}", f"-I{cell:g}", "-r",
            f"-T{tension:g}", f"-C{limit!r}", f"-N{sweeps}", f"-G{out_nc}"]
     t = time.perf_counter()
-    subprocess.run(cmd, capture_output=True, text=True, check=True)
+    subprocess.run(cmd, capture_output=True, text=True, check=True, cwd=cwd)
     wall = time.perf_counter() - t
-    raw = subprocess.run(["gmt", "grd2xyz", "--GMT_HISTORY=false", out_nc, "-ZTLd"], capture_output=True, check=True).stdout
+    raw = subprocess.run(["gmt", "grd2xyz", "--GMT_HISTORY=false", out_nc, "-ZTLd"],
+                         capture_output=True, check=True, cwd=cwd).stdout
     return np.frombuffer(raw, "<f8").reshape(n, n), wall, " ".join(cmd)
 
 

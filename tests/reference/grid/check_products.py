@@ -52,7 +52,7 @@ if shutil.which("gdalinfo"):
     print("gdalinfo: CRS and no-data shown")
 if shutil.which("gmt"):
     out = subprocess.run(["gmt", "grdinfo", "--GMT_HISTORY=false", os.path.join(d, "grids.nc") + "?gzz"],
-                         capture_output=True, text=True, check=True).stdout
+                         capture_output=True, text=True, check=True, cwd=d).stdout
     assert "Pixel node registration" in out, out
     assert f"n_columns: {NX}" in out and f"n_rows: {NY}" in out, out
     assert f"x_inc: {CELL:g}" in out and "[E]" in out, out
