@@ -4,8 +4,10 @@
 //! - `prism-accuracy`: the prism kernels' error against distance.
 //! - `bench-prisms`: timing of the prism tensor (driven by bench/prisms.py).
 //! - `bench-terrain`: the terrain engine's benchmark data and timings (driven by bench/terrain.py).
+//! - `bench-grid`: minimum-curvature gridding of a CSV of points (driven by bench/grid.py).
 
 mod accuracy;
+mod benchgrid;
 mod benchprisms;
 mod benchterrain;
 mod synthlog;
@@ -87,6 +89,38 @@ enum Task {
         #[arg(long, default_value = "bench-out/terrain")]
         out: PathBuf,
     },
+    /// Grid a CSV of points (easting, northing, value) by minimum curvature; raw float64 out.
+    BenchGrid {
+        #[arg(long)]
+        points: PathBuf,
+        /// West edge of the grid, m.
+        #[arg(long)]
+        west: f64,
+        /// North edge of the grid, m.
+        #[arg(long)]
+        north: f64,
+        #[arg(long)]
+        nx: usize,
+        #[arg(long)]
+        ny: usize,
+        /// Cell size, m.
+        #[arg(long)]
+        cell: f64,
+        #[arg(long, default_value_t = 0.0)]
+        tension: f64,
+        /// Convergence limit in the data's unit (default: 1e-4 of the data's RMS about a plane).
+        #[arg(long)]
+        convergence: Option<f64>,
+        /// Blanking distance, m.
+        #[arg(long)]
+        blanking: Option<f64>,
+        #[arg(long, default_value_t = 2000)]
+        max_sweeps: usize,
+        #[arg(long, default_value_t = 2)]
+        threads: usize,
+        #[arg(long)]
+        out: PathBuf,
+    },
 }
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
@@ -143,6 +177,36 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             accuracy_e: accuracy,
             threads,
             seed,
+            out: &out,
+        })?,
+        Task::BenchGrid {
+            points,
+            west,
+            north,
+            nx,
+            ny,
+            cell,
+            tension,
+            convergence,
+            blanking,
+            max_sweeps,
+            threads,
+            out,
+        } => benchgrid::run(&benchgrid::Options {
+            points: &points,
+            spec: gravgrad_grid::GridSpec {
+                x_min: west,
+                y_max: north,
+                nx,
+                ny,
+                cell,
+                tension,
+                blanking,
+                convergence,
+                max_sweeps,
+                epsg: None,
+            },
+            threads,
             out: &out,
         })?,
     }

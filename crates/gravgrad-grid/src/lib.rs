@@ -1,3 +1,15 @@
-//! Gridded products: for now the GeoTIFF writer of single-band rasters (DEMs and grids).
+//! Gridded products: minimum-curvature gridding with tension and blanking ([`mincurv`]), the
+//! Laplace-consistent full tensor from whichever components were measured ([`tensor_grid`]), PNG
+//! maps ([`png_map`]), and the writers of `grids.nc`, GeoTIFFs and maps ([`products`],
+//! [`geotiff`]).
 
 pub mod geotiff;
+pub mod mincurv;
+pub mod png_map;
+pub mod products;
+pub mod tensor_grid;
+
+pub use mincurv::{GridSpec, Gridded, blank, grid_points};
+pub use png_map::{MapOptions, Ramp, render_map, write_map};
+pub use products::{Product, Products, Written, write_products};
+pub use tensor_grid::{GzReference, TensorGrids, TensorOptions, full_tensor};
