@@ -98,6 +98,29 @@ fn the_demo_runs_end_to_end_and_scores_itself() {
         prov["flights"][0]["calibration"].as_array().unwrap().len(),
         9
     );
+    // Grids: every component and gz in grids.nc (read back by the NetCDF reader that is tested on
+    // files from netCDF4, xarray, GDAL and GMT), a GeoTIFF and a map each.
+    for name in [
+        "gxx",
+        "gxy",
+        "gxz",
+        "gyy",
+        "gyz",
+        "gzz",
+        "gz",
+        "measured_gzz",
+    ] {
+        let r = gravgrad_netcdf::read_grid(&products.join("grids.nc"), Some(name)).unwrap();
+        assert_eq!(r.epsg, Some(32753), "{name}");
+        let finite = r.values.iter().filter(|v| v.is_finite()).count();
+        assert!(
+            finite > r.values.len() / 2,
+            "{name}: {finite} of {}",
+            r.values.len()
+        );
+        assert!(products.join(format!("grids/{name}.tif")).is_file());
+        assert!(products.join(format!("maps/{name}.png")).is_file());
+    }
 }
 
 #[test]

@@ -4,6 +4,7 @@
 mod calibrate_cmd;
 mod check_cmd;
 mod demo_cmd;
+mod grid_stage;
 mod lines_out;
 mod logging;
 mod pipeline;

@@ -2,6 +2,7 @@
 //! rotation-term removal and rotation to NED, normal-field and terrain reduction, written to
 //! `lines.parquet` (and `lines.csv` on request) with the calibration of every flight.
 
+use crate::grid_stage;
 use crate::lines_out;
 use crate::logging::Log;
 use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
@@ -254,6 +255,26 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
     {
         eprintln!("error: {e}");
         return EXIT_FAILURE;
+    }
+    let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
+    let gridded = recipe.map(|r| grid_stage::grid_survey(r, &p.results, p.frame.epsg));
+    match gridded {
+        Some(Ok(g)) => {
+            if let Err(e) = grid_stage::write(&dir, &g, &p.results, &title) {
+                eprintln!("error: {e}");
+                return EXIT_FAILURE;
+            }
+            log.info(&format!(
+                "grids of the {} tensor written to {}",
+                g.stage,
+                dir.display()
+            ));
+        }
+        Some(Err(e)) => {
+            eprintln!("error: {e}");
+            return EXIT_FAILURE;
+        }
+        None => {}
     }
     if let Err(e) = write_calibrations(&p, &dir) {
         eprintln!("error: {e}");

@@ -1,0 +1,196 @@
+//! The grid stage of a run: the most reduced tensor along every line, horizontal components turned
+//! from true to grid north, gridded by minimum curvature (recipe `[grid]`), the Laplace-consistent
+//! full tensor and gz derived from every measured component together, and the products written:
+//! `grids.nc`, `grids/<name>.tif`, `maps/<name>.png`.
+//!
+//! Units: E for tensor grids, mGal for gz; map frame of the survey's UTM zone (x east, y north,
+//! tensors with x grid north, y grid east, z down).
+
+use crate::pipeline::{FlightResult, rz};
+use gravgrad_core::SymTensor;
+use gravgrad_core::raster::Raster;
+use gravgrad_core::units::EOTVOS;
+use gravgrad_grid::{
+    GridSpec, GzReference, Product, Products, Ramp, TensorOptions, Written, blank, full_tensor,
+    grid_points, write_products,
+};
+use gravgrad_ingest::recipe::Recipe;
+use std::path::Path;
+
+/// Component names in product order.
+pub const NAMES: [&str; 6] = ["gxx", "gxy", "gxz", "gyy", "gyz", "gzz"];
+
+/// The gridded products, kept for scoring and reports.
+pub struct Grids {
+    /// Measured components gridded (None: not observed), E.
+    pub measured: [Option<Raster>; 6],
+    /// The full tensor, E.
+    pub tensor: [Raster; 6],
+    /// gz, mGal (mean zero over the grid).
+    pub gz: Raster,
+    /// Which stage was gridded.
+    pub stage: &'static str,
+}
+
+/// The reduced tensor of a flight (terrain removed when there is a terrain model), NED true north.
+fn reduced(r: &FlightResult, i: usize) -> SymTensor {
+    let mut t = r.rotated[i] - r.normal[i];
+    if let Some(terr) = &r.terrain {
+        t = t - terr[i];
+    }
+    t
+}
+
+/// Grids every flight's line samples and derives the full tensor.
+pub fn grid_survey(recipe: &Recipe, results: &[FlightResult], epsg: u32) -> Result<Grids, String> {
+    let stage = if results.iter().all(|r| r.terrain.is_some()) {
+        "terrain_removed"
+    } else {
+        "normal_removed"
+    };
+    let observed = results.first().map_or([false; 6], |r| r.observed);
+    let mut pts: [Vec<(f64, f64, f64)>; 6] = Default::default();
+    for r in results {
+        for i in 0..r.time.len() {
+            if r.line[i] <= 0 {
+                continue;
+            }
+            // True north → grid north: the inverse of the convergence rotation.
+            let t = reduced(r, i).rotated(&rz(-r.positions.convergence_rad[i]));
+            let a = t.to_array();
+            for c in 0..6 {
+                if observed[c] && a[c].is_finite() {
+                    pts[c].push((
+                        r.positions.easting_m[i],
+                        r.positions.northing_m[i],
+                        a[c] / EOTVOS,
+                    ));
+                }
+            }
+        }
+    }
+    let any = pts
+        .iter()
+        .find(|p| !p.is_empty())
+        .ok_or("no line samples to grid")?;
+    let mut spec = GridSpec::covering(any, recipe.grid.cell_m, recipe.grid.blanking_m)
+        .ok_or("the line samples have no finite position")?;
+    spec.tension = recipe.grid.tension;
+    spec.blanking = Some(recipe.grid.blanking_m);
+    spec.epsg = Some(epsg);
+    let mut keep: Option<Vec<bool>> = None;
+    let mut surfaces: [Option<Raster>; 6] = Default::default();
+    let mut measured: [Option<Raster>; 6] = Default::default();
+    for c in 0..6 {
+        if pts[c].is_empty() {
+            continue;
+        }
+        let g = grid_points(&pts[c], &spec).map_err(|e| format!("gridding {}: {e}", NAMES[c]))?;
+        measured[c] = Some(g.blanked());
+        keep.get_or_insert_with(|| g.keep.clone());
+        surfaces[c] = Some(g.surface);
+    }
+    let keep = keep.ok_or("nothing gridded")?;
+    let refs: [Option<&Raster>; 6] = std::array::from_fn(|c| surfaces[c].as_ref());
+    let opts = TensorOptions {
+        gz_reference: GzReference::MeanZero,
+        ..TensorOptions::default()
+    };
+    let t = full_tensor(&refs, &opts).map_err(|e| format!("full tensor: {e}"))?;
+    Ok(Grids {
+        measured,
+        tensor: std::array::from_fn(|c| blank(&t.components[c], &keep)),
+        gz: blank(&t.gz, &keep),
+        stage,
+    })
+}
+
+/// Writes the grids: measured components as `measured_g??`, the full tensor as `g??`, and `gz`.
+pub fn write(
+    dir: &Path,
+    g: &Grids,
+    results: &[FlightResult],
+    title: &str,
+) -> Result<Written, String> {
+    let long: Vec<String> = NAMES
+        .iter()
+        .map(|n| {
+            format!(
+                "{} from all measured components, {}",
+                n.to_uppercase(),
+                g.stage.replace('_', " ")
+            )
+        })
+        .collect();
+    let measured_long: Vec<String> = NAMES
+        .iter()
+        .map(|n| {
+            format!(
+                "{} as measured, {}, gridded",
+                n.to_uppercase(),
+                g.stage.replace('_', " ")
+            )
+        })
+        .collect();
+    let measured_names: Vec<String> = NAMES.iter().map(|n| format!("measured_{n}")).collect();
+    let mut grids = Vec::new();
+    for c in 0..6 {
+        if let Some(m) = &g.measured[c] {
+            grids.push(Product {
+                name: &measured_names[c],
+                long_name: &measured_long[c],
+                units: "E",
+                raster: m,
+                ramp: Ramp::Diverging,
+            });
+        }
+    }
+    for c in 0..6 {
+        grids.push(Product {
+            name: NAMES[c],
+            long_name: &long[c],
+            units: "E",
+            raster: &g.tensor[c],
+            ramp: Ramp::Diverging,
+        });
+    }
+    grids.push(Product {
+        name: "gz",
+        long_name: "vertical gravity from the tensor, mean removed",
+        units: "mGal",
+        raster: &g.gz,
+        ramp: Ramp::Diverging,
+    });
+    // Flight paths: each line as a polyline, at most about 500 vertices.
+    let mut paths = Vec::new();
+    for r in results {
+        let mut i = 0;
+        while i < r.line.len() {
+            let l = r.line[i];
+            let start = i;
+            while i < r.line.len() && r.line[i] == l {
+                i += 1;
+            }
+            if l > 0 {
+                let step = ((i - start) / 500).max(1);
+                paths.push(
+                    (start..i)
+                        .step_by(step)
+                        .map(|k| (r.positions.easting_m[k], r.positions.northing_m[k]))
+                        .collect(),
+                );
+            }
+        }
+    }
+    let source = format!("gravgrad {}", env!("CARGO_PKG_VERSION"));
+    write_products(
+        dir,
+        &Products {
+            title,
+            source: &source,
+            grids,
+            paths,
+        },
+    )
+    .map_err(|e| e.to_string())
+}
