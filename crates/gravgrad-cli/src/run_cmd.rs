@@ -1,7 +1,9 @@
 //! `gravgrad run RECIPE`: every stage the recipe asks for, into one output folder. Today: calibration,
-//! rotation-term removal and rotation to NED, normal-field and terrain reduction, written to
-//! `lines.parquet` (and `lines.csv` on request) with the calibration of every flight.
+//! rotation-term removal and rotation to NED, normal-field and terrain reduction, the along-track
+//! filter and the levelling (`line_stages`), written to `lines.parquet` (and `lines.csv` on request)
+//! with the calibration of every flight.
 
+use crate::line_stages;
 use crate::lines_out;
 use crate::logging::Log;
 use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
@@ -211,7 +213,18 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
     };
     let dir = output_folder(&p, args.out.as_deref());
     let clock = std::time::Instant::now();
-    let table = lines_out::build(&p.results);
+    let mut table = lines_out::build(&p.results);
+    if let Some(recipe) = p.survey.recipe.as_ref() {
+        match line_stages::compute(&p.results, recipe, &args.recipe) {
+            Ok(stages) => {
+                for n in &stages.notes {
+                    log.info(n);
+                }
+                stages.append_to(&mut table);
+            }
+            Err(problem) => return bad_input(&[problem]),
+        }
+    }
     let lines = dir.join("lines.parquet");
     if let Err(e) = table.write_parquet(&lines, &p.names, p.frame.epsg) {
         eprintln!("error: {e}");
