@@ -222,8 +222,14 @@ fn levelling_recovers_injected_line_offsets_and_the_noise_is_measured() {
         xo["before"]["count"]
     );
     assert_eq!(xo["before"]["count"].as_u64(), Some(60));
-    assert!(after <= bound, "crossover RMS after levelling {after} E > {bound} E");
-    assert!(before > 2.0 * after, "levelling must reduce the crossover RMS");
+    assert!(
+        after <= bound,
+        "crossover RMS after levelling {after} E > {bound} E"
+    );
+    assert!(
+        before > 2.0 * after,
+        "levelling must reduce the crossover RMS"
+    );
 
     // Noise density of Gzz within 20% of the injected density on every line; every line passes.
     for l in r["lines"].as_array().unwrap() {
@@ -323,9 +329,16 @@ fn a_bad_planned_clearance_is_refused_by_key() {
     let demo = crate::root().join("data/demo");
     let text = text
         .replace("flights/", &format!("{}/flights/", demo.display()))
-        .replace("\"instrument.toml\"", &format!("\"{}/instrument.toml\"", demo.display()))
+        .replace(
+            "\"instrument.toml\"",
+            &format!("\"{}/instrument.toml\"", demo.display()),
+        )
         .replace("\"dem.tif\"", &format!("\"{}/dem.tif\"", demo.display()));
-    std::fs::write(&recipe, format!("{text}\n[qc]\nplanned_clearance_m = -5.0\n")).unwrap();
+    std::fs::write(
+        &recipe,
+        format!("{text}\n[qc]\nplanned_clearance_m = -5.0\n"),
+    )
+    .unwrap();
     let o = gravgrad(&["qc", recipe.to_str().unwrap()]);
     assert_eq!(o.status.code(), Some(2));
     let all = format!(
@@ -343,8 +356,13 @@ fn check_report(path: &Path, lines: usize) {
     let html = std::fs::read_to_string(path).unwrap();
     assert!(html.starts_with("<!DOCTYPE html>"));
     assert!(html.trim_end().ends_with("</html>"));
-    for forbidden in ["<script", " src=", "href=", "url(", "@import", "<link", "<img"] {
-        assert!(!html.contains(forbidden), "the report contains `{forbidden}`");
+    for forbidden in [
+        "<script", " src=", "href=", "url(", "@import", "<link", "<img",
+    ] {
+        assert!(
+            !html.contains(forbidden),
+            "the report contains `{forbidden}`"
+        );
     }
     for needed in [
         "id=\"summary\"",
@@ -406,6 +424,10 @@ fn check_report(path: &Path, lines: usize) {
             String::from_utf8_lossy(&o.stderr)
         )
     });
-    assert!(bytes.starts_with(b"\x89PNG") && bytes.len() > 10_000, "{} bytes", bytes.len());
+    assert!(
+        bytes.starts_with(b"\x89PNG") && bytes.len() > 10_000,
+        "{} bytes",
+        bytes.len()
+    );
     eprintln!("Chromium rendered the report: {} byte PNG", bytes.len());
 }

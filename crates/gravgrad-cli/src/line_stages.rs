@@ -293,11 +293,9 @@ impl LineStages {
         for (stage, data) in [("filtered", &self.filtered), ("levelled", &self.levelled)] {
             for (c, comp) in COMPONENTS.iter().enumerate() {
                 table.names.push(format!("{stage}_{comp}"));
-                table.f64_columns.push(
-                    data.iter()
-                        .flat_map(|f| f[c].iter().copied())
-                        .collect(),
-                );
+                table
+                    .f64_columns
+                    .push(data.iter().flat_map(|f| f[c].iter().copied()).collect());
             }
         }
     }

@@ -3,12 +3,12 @@
 //! `qc/lines.csv` and the self-contained `qc/report.html` (`report_html.rs`), prints a table (or JSON
 //! with `--json`). Exit 0 when it ran, whatever the verdicts (they are data); 2 on bad input.
 
+use crate::EXIT_FAILURE;
 use crate::line_stages::{self, LineStages, Segment};
 use crate::logging::Log;
 use crate::report_html;
 use crate::run_cmd::{self, Processed, bad_input};
 use crate::tables::write_atomic;
-use crate::EXIT_FAILURE;
 use clap::Args;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_lines::qc::{Component, LineMetrics, PlannedLine};
@@ -299,15 +299,7 @@ fn table(st: &LineStages, qcs: &[LineQc]) -> String {
         .max(6);
     let mut out = format!(
         "{:>6}  {:<fw$} {:<6} {:>8} {:>8} {:>10} {:>9} {:>9}  {:<7} reasons\n",
-        "line",
-        "flight",
-        "role",
-        "samples",
-        "noise E",
-        "turb m/s²",
-        "clear m",
-        "dev m",
-        "verdict"
+        "line", "flight", "role", "samples", "noise E", "turb m/s²", "clear m", "dev m", "verdict"
     );
     for q in qcs {
         let s = &st.segments[q.segment];

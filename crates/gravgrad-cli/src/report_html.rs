@@ -191,7 +191,13 @@ fn range_of<'a>(v: impl Iterator<Item = &'a f64>) -> Option<(f64, f64)> {
 fn summary(out: &mut String, p: &Processed, st: &LineStages, qcs: &[LineQc]) {
     let comps: Vec<usize> = (0..6).filter(|c| st.observed[*c]).collect();
     out.push_str("<table id=\"summary\"><thead><tr><th class=\"l\">line</th><th class=\"l\">flight</th><th class=\"l\">role</th><th>samples</th><th>noise after filter, E<br>(largest of ");
-    out.push_str(&comps.iter().map(|c| NAMES[*c]).collect::<Vec<_>>().join(" "));
+    out.push_str(
+        &comps
+            .iter()
+            .map(|c| NAMES[*c])
+            .collect::<Vec<_>>()
+            .join(" "),
+    );
     out.push_str(")</th><th>Gzz density, E/√Hz</th><th>turbulence, m/s²</th><th>clearance departure, m</th><th>deviation, m</th><th>longest gap, s</th><th>Gzz offset, E</th><th>verdict</th><th class=\"l\">reasons</th></tr></thead><tbody>\n");
     let _ = p;
     for q in qcs {
@@ -294,7 +300,10 @@ fn map(out: &mut String, p: &Processed, st: &LineStages, qcs: &[LineQc]) {
             );
         }
     }
-    if let Some(l) = st.levelling[5].as_ref().or(st.levelling.iter().flatten().next()) {
+    if let Some(l) = st.levelling[5]
+        .as_ref()
+        .or(st.levelling.iter().flatten().next())
+    {
         for c in &l.crossovers {
             let _ = writeln!(
                 out,
@@ -402,17 +411,17 @@ fn stretches(time: &[f64], v: &[f64]) -> (Vec<Vec<f64>>, f64) {
 }
 
 fn spectra(out: &mut String, p: &Processed, st: &LineStages, qcs: &[LineQc], s: &QcSettings) {
-    let Some(c) = [5usize, 0, 3, 1, 2, 4].into_iter().find(|c| st.observed[*c]) else {
+    let Some(c) = [5usize, 0, 3, 1, 2, 4]
+        .into_iter()
+        .find(|c| st.observed[*c])
+    else {
         return;
     };
     let mut curves: Vec<(bool, Vec<(f64, f64)>)> = Vec::new();
     for q in qcs {
         let seg = &st.segments[q.segment];
         let r = &p.results[seg.flight];
-        let v: Vec<f64> = seg
-            .range()
-            .map(|i| line_stages::reduced(r, c, i))
-            .collect();
+        let v: Vec<f64> = seg.range().map(|i| line_stages::reduced(r, c, i)).collect();
         let (pieces, rate) = stretches(&r.time[seg.range()], &v);
         if rate <= 0.0 {
             continue;
@@ -578,7 +587,10 @@ fn profile(out: &mut String, p: &Processed, st: &LineStages, q: &LineQc) {
                 .collect(),
         ));
     }
-    panels.push(("filtered", st.filtered[seg.flight][c][range.clone()].to_vec()));
+    panels.push((
+        "filtered",
+        st.filtered[seg.flight][c][range.clone()].to_vec(),
+    ));
     panels.push(("levelled", st.levelled[seg.flight][c][range].to_vec()));
     let (w, ph, gap) = (900.0, 90.0, 14.0);
     let h = 10.0 + panels.len() as f64 * (ph + gap) + 24.0;
@@ -616,11 +628,7 @@ fn profile(out: &mut String, p: &Processed, st: &LineStages, q: &LineQc) {
             );
         }
         for run in decimate(&x, v, 400) {
-            out.push_str(&f.polyline(
-                &run,
-                if *name == "levelled" { colour } else { INK },
-                1.0,
-            ));
+            out.push_str(&f.polyline(&run, if *name == "levelled" { colour } else { INK }, 1.0));
             out.push('\n');
         }
         let _ = writeln!(
