@@ -120,7 +120,7 @@ fn filtered_noise(density: f64, v: f64, lc: f64) -> f64 {
     density * b.sqrt()
 }
 
-fn line<'a>(report: &'a serde_json::Value, number: i64) -> &'a serde_json::Value {
+fn line(report: &serde_json::Value, number: i64) -> &serde_json::Value {
     report["lines"]
         .as_array()
         .unwrap()
