@@ -32,39 +32,54 @@ pub struct Grids {
     pub stage: &'static str,
 }
 
-/// The reduced tensor of a flight (terrain removed when there is a terrain model), NED true north.
-fn reduced(r: &FlightResult, i: usize) -> SymTensor {
-    let mut t = r.rotated[i] - r.normal[i];
-    if let Some(terr) = &r.terrain {
-        t = t - terr[i];
-    }
-    t
-}
-
-/// Grids every flight's line samples and derives the full tensor.
-pub fn grid_survey(recipe: &Recipe, results: &[FlightResult], epsg: u32) -> Result<Grids, String> {
-    let stage = if results.iter().all(|r| r.terrain.is_some()) {
-        "terrain_removed"
-    } else {
-        "normal_removed"
+/// Grids every flight's line samples and derives the full tensor. `levelled` (per flight and
+/// component, E, NED true north, NaN off lines) is gridded when given (the filtered and levelled
+/// stage); otherwise the reduced tensor.
+pub fn grid_survey(
+    recipe: &Recipe,
+    results: &[FlightResult],
+    levelled: Option<&[[Vec<f64>; 6]]>,
+    epsg: u32,
+) -> Result<Grids, String> {
+    let stage = match (
+        levelled.is_some(),
+        results.iter().all(|r| r.terrain.is_some()),
+    ) {
+        (true, _) => "levelled",
+        (false, true) => "terrain_removed",
+        (false, false) => "normal_removed",
     };
     let observed = results.first().map_or([false; 6], |r| r.observed);
     let mut pts: [Vec<(f64, f64, f64)>; 6] = Default::default();
-    for r in results {
+    for (f, r) in results.iter().enumerate() {
         for i in 0..r.time.len() {
             if r.line[i] <= 0 {
                 continue;
             }
+            // In E, NED true north; unobserved components as 0 so that the rotation about the
+            // vertical (which keeps xx–xy–yy, xz–yz and zz apart) does not spread NaN.
+            let e: [f64; 6] = match levelled {
+                Some(l) => std::array::from_fn(|c| l[f][c][i]),
+                None => {
+                    let mut t = r.rotated[i] - r.normal[i];
+                    if let Some(terr) = &r.terrain {
+                        t = t - terr[i];
+                    }
+                    t.to_array().map(|v| v / EOTVOS)
+                }
+            };
+            let t = SymTensor::from_array(std::array::from_fn(|c| {
+                if observed[c] && e[c].is_finite() {
+                    e[c]
+                } else {
+                    0.0
+                }
+            }));
             // True north → grid north: the inverse of the convergence rotation.
-            let t = reduced(r, i).rotated(&rz(-r.positions.convergence_rad[i]));
-            let a = t.to_array();
+            let a = t.rotated(&rz(-r.positions.convergence_rad[i])).to_array();
             for c in 0..6 {
-                if observed[c] && a[c].is_finite() {
-                    pts[c].push((
-                        r.positions.easting_m[i],
-                        r.positions.northing_m[i],
-                        a[c] / EOTVOS,
-                    ));
+                if observed[c] && e[c].is_finite() {
+                    pts[c].push((r.positions.easting_m[i], r.positions.northing_m[i], a[c]));
                 }
             }
         }

@@ -2,7 +2,9 @@
 //! stage in Eötvös (docs/formats.md). Columns of a stage are `<stage>_<component>`, components
 //! `gxx gxy gxz gyy gyz gzz`; stages in pipeline order: `measured` (sensor frame, calibrated,
 //! S = G − ΩΩ), `rotated` (G in NED, true north), `normal_removed`, `terrain_removed`; the models
-//! removed are `normal_model` and `terrain_model`. Unobserved components are NaN.
+//! removed are `normal_model` and `terrain_model`; after them `trace` and `alpha_difference_?`, then
+//! the line stages `filtered` and `levelled` (`line_stages.rs`; NaN off lines). Unobserved components
+//! are NaN.
 
 use crate::pipeline::FlightResult;
 use crate::tables::{Column, WriteError, write_csv, write_parquet_with_metadata};

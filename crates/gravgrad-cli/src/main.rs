@@ -5,11 +5,14 @@ mod calibrate_cmd;
 mod check_cmd;
 mod demo_cmd;
 mod grid_stage;
+mod line_stages;
 mod lines_out;
 mod logging;
 mod pipeline;
 mod provenance;
+mod qc_cmd;
 mod report;
+mod report_html;
 mod run_cmd;
 mod score_cmd;
 mod simulate_cmd;
@@ -50,6 +53,9 @@ enum Command {
     /// Process a survey from its recipe: calibration, rotation removal, normal and terrain
     /// reduction, into the recipe's output folder.
     Run(run_cmd::RunArgs),
+    /// Per-line QC of a survey from its recipe: a verdict per line against the recipe's `[qc]`
+    /// tolerances, written to qc/lines.csv and the self-contained qc/report.html.
+    Qc(qc_cmd::QcArgs),
     /// The terrain's gradient tensor from a DEM at given points or on a surface over it.
     Terrain(terrain_cmd::TerrainArgs),
     /// Score a run of a simulated survey against its truth, per component, beside the noise floor.
@@ -98,6 +104,7 @@ fn main() -> ExitCode {
         Command::Demo { data, out } => demo_cmd::run(data, out, &log, cli.json),
         Command::Simulate(args) => simulate_cmd::run(&args, &log),
         Command::Run(args) => run_cmd::run(&args, &log),
+        Command::Qc(args) => qc_cmd::run(&args, &log, cli.json),
         Command::Calibrate(args) => calibrate_cmd::run(&args, &log),
         Command::Terrain(args) => terrain_cmd::run(&args, &log),
         Command::Score(args) => score_cmd::run(&args, &log, cli.json),

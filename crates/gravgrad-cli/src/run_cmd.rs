@@ -1,8 +1,10 @@
 //! `gravgrad run RECIPE`: every stage the recipe asks for, into one output folder. Today: calibration,
-//! rotation-term removal and rotation to NED, normal-field and terrain reduction, written to
-//! `lines.parquet` (and `lines.csv` on request) with the calibration of every flight.
+//! rotation-term removal and rotation to NED, normal-field and terrain reduction, the along-track
+//! filter and the levelling (`line_stages`), written to `lines.parquet` (and `lines.csv` on request)
+//! with the calibration of every flight.
 
 use crate::grid_stage;
+use crate::line_stages;
 use crate::lines_out;
 use crate::logging::Log;
 use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
@@ -243,7 +245,20 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
     };
     let dir = output_folder(&p, args.out.as_deref());
     let clock = std::time::Instant::now();
-    let table = lines_out::build(&p.results);
+    let mut table = lines_out::build(&p.results);
+    let mut levelled = None;
+    if let Some(recipe) = p.survey.recipe.as_ref() {
+        match line_stages::compute(&p.results, recipe, &args.recipe) {
+            Ok(stages) => {
+                for n in &stages.notes {
+                    log.info(n);
+                }
+                stages.append_to(&mut table);
+                levelled = Some(stages.levelled);
+            }
+            Err(problem) => return bad_input(&[problem]),
+        }
+    }
     let lines = dir.join("lines.parquet");
     if let Err(e) = table.write_parquet(&lines, &p.names, p.frame.epsg) {
         eprintln!("error: {e}");
@@ -257,7 +272,8 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         return EXIT_FAILURE;
     }
     let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
-    let gridded = recipe.map(|r| grid_stage::grid_survey(r, &p.results, p.frame.epsg));
+    let gridded =
+        recipe.map(|r| grid_stage::grid_survey(r, &p.results, levelled.as_deref(), p.frame.epsg));
     match gridded {
         Some(Ok(g)) => {
             if let Err(e) = grid_stage::write(&dir, &g, &p.results, &title) {

@@ -219,6 +219,28 @@ fn write_all(
         gc.push((name.as_str(), Column::F64(v)));
     }
     write_parquet(&out.join("truth/grid.parquet"), &gc).map_err(|e| e.to_string())?;
+    if !sim.line_offsets.is_empty() {
+        let lines: Vec<i64> = sim.line_offsets.iter().map(|(l, _)| *l).collect();
+        let offsets: Vec<Vec<f64>> = (0..6)
+            .map(|k| {
+                sim.line_offsets
+                    .iter()
+                    .map(|(_, o)| o.to_array()[k] / EOTVOS)
+                    .collect()
+            })
+            .collect();
+        let names: Vec<String> = COMPONENTS.iter().map(|c| format!("offset_{c}")).collect();
+        let mut oc: Vec<(&str, Column<'_>)> = vec![("line", Column::I64(&lines))];
+        for (name, v) in names.iter().zip(&offsets) {
+            oc.push((name.as_str(), Column::F64(v)));
+        }
+        write_csv(
+            &out.join("truth/line_offsets.csv"),
+            "injected offset per line, NED, E (added to the sensed tensor)",
+            &oc,
+        )
+        .map_err(|e| e.to_string())?;
+    }
     let scenario_text = std::fs::read_to_string(scenario_path)
         .map_err(|e| format!("{}: {e}", scenario_path.display()))?;
     write_text(&out.join("truth/scenario.toml"), &scenario_text)?;

@@ -307,6 +307,8 @@ pub struct Qc {
     pub max_noise_e: f64,
     /// Longest gap inside a line, s.
     pub max_gap_s: f64,
+    /// Clearance of the drape plan, m (absent: clearance is not judged).
+    pub planned_clearance_m: Option<f64>,
 }
 
 impl Default for Qc {
@@ -317,6 +319,7 @@ impl Default for Qc {
             max_turbulence_m_s2: 1.0,
             max_noise_e: 5.0,
             max_gap_s: 2.0,
+            planned_clearance_m: None,
         }
     }
 }
@@ -362,6 +365,9 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
     positive("qc.max_turbulence_m_s2", r.qc.max_turbulence_m_s2);
     positive("qc.max_noise_e", r.qc.max_noise_e);
     positive("qc.max_gap_s", r.qc.max_gap_s);
+    if let Some(c) = r.qc.planned_clearance_m {
+        positive("qc.planned_clearance_m", c);
+    }
     if let Some(t) = &r.terrain {
         positive("terrain.density_kg_m3", t.density_kg_m3);
         positive("terrain.margin_m", t.margin_m);

@@ -26,6 +26,25 @@ pub struct Scenario {
     pub dynamics: Dynamics,
     #[serde(default)]
     pub instrument: InstrumentErrors,
+    /// One line flown badly on purpose (absent: every line flown to plan).
+    #[serde(default)]
+    pub badly_flown: Option<BadlyFlown>,
+}
+
+/// A line flown badly on purpose, to rehearse the QC verdict: extra turbulence and a clearance held
+/// off the drape plan on that line only.
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BadlyFlown {
+    /// The line's number.
+    pub line: i64,
+    /// RMS vertical acceleration added on the line, m/s² (a Gauss–Markov process with the
+    /// correlation time of `dynamics.turbulence_time_s`).
+    #[serde(default)]
+    pub turbulence_m_s2: f64,
+    /// Height flown above the drape plan on the line, m (eased in and out over 10 s of transit).
+    #[serde(default)]
+    pub clearance_offset_m: f64,
 }
 
 fn default_name() -> String {
@@ -234,6 +253,9 @@ pub struct InstrumentErrors {
     pub attitude_noise_deg: f64,
     /// Amplitude of the aircraft's self-gradient, E (0 = none); needs aircraft attitude in the log.
     pub self_gradient_e: f64,
+    /// RMS of a constant offset per line and component, E (0 = none): a trace-free tensor in NED,
+    /// drawn per line, added to what the instrument senses; written to `truth/line_offsets.csv`.
+    pub line_offset_e_rms: f64,
 }
 
 impl Default for InstrumentErrors {
@@ -257,6 +279,7 @@ impl Default for InstrumentErrors {
             position_noise_m: 0.05,
             attitude_noise_deg: 0.005,
             self_gradient_e: 0.0,
+            line_offset_e_rms: 0.0,
         }
     }
 }
@@ -281,6 +304,7 @@ impl InstrumentErrors {
             position_noise_m: 0.0,
             attitude_noise_deg: 0.0,
             self_gradient_e: 0.0,
+            line_offset_e_rms: 0.0,
         }
     }
 }

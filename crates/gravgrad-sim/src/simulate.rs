@@ -127,6 +127,9 @@ pub struct Simulation {
     pub projection: Projection,
     /// The injected errors of each pair's difference a − b, in the order of `pairs`.
     pub pair_errors: Vec<PairErrors>,
+    /// The injected offset of each line (NED, s⁻²), in flying order; empty without
+    /// `instrument.line_offset_e_rms`.
+    pub line_offsets: Vec<(i64, SymTensor)>,
 }
 
 /// The injected errors of one pair's difference d = a − b, to first order:
@@ -222,8 +225,11 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
     let seed = s.seed;
     let rate = s.plan.sample_rate_hz;
     let surface = Surface::new(&s.area, &s.terrain, seed);
-    let track = path::fly(&s.plan, &s.dynamics, &surface, s.area.start_time_s);
+    let mut track = path::fly(&s.plan, &s.dynamics, &surface, s.area.start_time_s);
     let n = track.time_s.len();
+    if let Some(b) = &s.badly_flown {
+        hold_off_plan(&mut track, b.line, b.clearance_offset_m, rate);
+    }
 
     // DEM over the path plus the margin, and its mass relative to its mean elevation.
     let (nmin, nmax) = minmax(&track.north);
@@ -310,6 +316,16 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
             noise::gauss_markov(&mut Rng::new(seed, 10 + k), n, sigma, tau, rate)
         })
         .collect();
+    let mut turb = turb;
+    if let Some(b) = s.badly_flown.as_ref().filter(|b| b.turbulence_m_s2 > 0.0) {
+        // Its own stream, so every other series is as without the bad line.
+        let extra = noise::gauss_markov(&mut Rng::new(seed, 40), n, b.turbulence_m_s2, tau, rate);
+        for i in 0..n {
+            if track.line[i] == b.line {
+                turb[2][i] += extra[i];
+            }
+        }
+    }
 
     // Attitude of the stabilised platform and its angular rate in the sensor frame.
     let mut att = Vec::with_capacity(n);
@@ -471,6 +487,8 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         .collect();
     let ac_pitch: Vec<f64> = (0..n).map(|i| 2f64.to_radians() + gust_pitch[i]).collect();
 
+    let line_offsets = draw_line_offsets(&track.line, s.instrument.line_offset_e_rms, seed);
+
     let truth = Truth {
         north: track.north.clone(),
         east: track.east.clone(),
@@ -507,6 +525,11 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
             let d_roll = ac_roll[i] / ROLL_GUST.to_radians();
             let d_pitch = (ac_pitch[i] - 2f64.to_radians()) / PITCH_GUST.to_radians();
             g_s = g_s + pat_roll.scaled(amp * d_roll) + pat_pitch.scaled(amp * d_pitch);
+        }
+        if track.line[i] > 0
+            && let Some((_, o)) = line_offsets.iter().find(|(l, _)| *l == track.line[i])
+        {
+            g_s = g_s + o.rotated(&ct);
         }
         let w = omega[i];
         let wd = skew(&alpha[i]);
@@ -684,7 +707,62 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
             false_origin: [e0, n0],
         },
         pair_errors,
+        line_offsets,
     })
+}
+
+/// Raises the flown height of line `line` by `offset_m` above the drape plan, eased in and out with
+/// a raised cosine over the 10 s of transit before and after it (the logged clearance follows).
+fn hold_off_plan(track: &mut Track, line: i64, offset_m: f64, rate: f64) {
+    if offset_m == 0.0 {
+        return;
+    }
+    let (Some(first), Some(last)) = (
+        track.line.iter().position(|l| *l == line),
+        track.line.iter().rposition(|l| *l == line),
+    ) else {
+        return;
+    };
+    let ease = (10.0 * rate).round().max(1.0) as usize;
+    let n = track.height.len();
+    let lo = first.saturating_sub(ease);
+    let hi = (last + ease).min(n - 1);
+    for i in lo..=hi {
+        let d = if i < first {
+            (first - i) as f64 / ease as f64
+        } else if i > last {
+            (i - last) as f64 / ease as f64
+        } else {
+            0.0
+        };
+        let w = 0.5 * (1.0 + (std::f64::consts::PI * d.min(1.0)).cos());
+        track.height[i] += offset_m * w;
+    }
+}
+
+/// One constant offset tensor per line (NED, s⁻², trace-free; each component of RMS `rms_e` E), in
+/// the order lines are first flown; none when `rms_e` is 0.
+fn draw_line_offsets(line: &[i64], rms_e: f64, seed: u64) -> Vec<(i64, SymTensor)> {
+    if rms_e == 0.0 {
+        return Vec::new();
+    }
+    let mut r = Rng::new(seed, 41);
+    let mut out: Vec<(i64, SymTensor)> = Vec::new();
+    for &l in line {
+        if l <= 0 || out.iter().any(|(k, _)| *k == l) {
+            continue;
+        }
+        let s = rms_e * EOTVOS;
+        // Three diagonal draws less their mean have variance 2/3 each; √1.5 restores `rms_e`.
+        let d = [r.normal(), r.normal(), r.normal()].map(|v| v * s * 1.5f64.sqrt());
+        let m = (d[0] + d[1] + d[2]) / 3.0;
+        let (xy, xz, yz) = (s * r.normal(), s * r.normal(), s * r.normal());
+        out.push((
+            l,
+            SymTensor::from_array([d[0] - m, xy, xz, d[1] - m, yz, d[2] - m]),
+        ));
+    }
+    out
 }
 
 fn minmax(v: &[f64]) -> (f64, f64) {

@@ -1,0 +1,460 @@
+//! `gravgrad qc RECIPE`: the survey processed as `gravgrad run` does it, then per line the QC metrics
+//! of `gravgrad_lines::qc` and a verdict against the recipe's `[qc]` tolerances. Writes
+//! `qc/lines.csv` and the self-contained `qc/report.html` (`report_html.rs`), prints a table (or JSON
+//! with `--json`). Exit 0 when it ran, whatever the verdicts (they are data); 2 on bad input.
+
+use crate::EXIT_FAILURE;
+use crate::line_stages::{self, LineStages, Segment};
+use crate::logging::Log;
+use crate::report_html;
+use crate::run_cmd::{self, Processed, bad_input};
+use crate::tables::write_atomic;
+use clap::Args;
+use gravgrad_core::units::EOTVOS;
+use gravgrad_lines::qc::{Component, LineMetrics, PlannedLine};
+use gravgrad_lines::{LineInputs, LowPass, QcSettings, Tolerances, Verdict, assess_line};
+use rayon::prelude::*;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+#[derive(Args, Debug)]
+pub struct QcArgs {
+    /// Processing recipe (layout `recipe/1`, TOML).
+    #[arg(value_name = "RECIPE")]
+    pub recipe: PathBuf,
+    /// Output folder; the QC files go to its `qc/` (default: the recipe's `output.folder`).
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+}
+
+/// Component names as the QC reasons and the report spell them.
+pub const NAMES: [&str; 6] = ["Gxx", "Gxy", "Gxz", "Gyy", "Gyz", "Gzz"];
+
+/// The QC of one line.
+pub struct LineQc {
+    /// Index into the stages' segments.
+    pub segment: usize,
+    pub flight_name: String,
+    /// `None` when the line could not be assessed (the verdict says why).
+    pub metrics: Option<LineMetrics>,
+    pub verdict: Verdict,
+}
+
+/// The recipe's `[qc]` and `[filter]` as QC settings.
+pub fn settings(recipe: &gravgrad_ingest::recipe::Recipe) -> QcSettings {
+    let q = &recipe.qc;
+    QcSettings {
+        tolerances: Tolerances {
+            max_line_deviation_m: q.max_line_deviation_m,
+            clearance_tolerance_m: q.clearance_tolerance_m,
+            max_turbulence_m_s2: q.max_turbulence_m_s2,
+            max_noise_e: q.max_noise_e,
+            max_gap_s: q.max_gap_s,
+        },
+        low_pass: LowPass {
+            cutoff_wavelength_m: recipe.filter.cutoff_wavelength_m,
+            ..LowPass::default()
+        },
+        ..QcSettings::default()
+    }
+}
+
+/// The vertical acceleration on a line: the logged `fz` less its mean over the line's finite
+/// samples (the platform is stabilised, so `fz` is along the vertical; its mean is gravity).
+fn vertical_acceleration(fz: &[f64]) -> Vec<f64> {
+    let (s, n) = fz
+        .iter()
+        .filter(|v| v.is_finite())
+        .fold((0.0, 0usize), |(s, n), v| (s + v, n + 1));
+    let mean = if n > 0 { s / n as f64 } else { f64::NAN };
+    fz.iter().map(|v| v - mean).collect()
+}
+
+/// The straight chord of the line's first and last located samples: the planned line when no plan
+/// is given.
+fn chord(x: &[f64], y: &[f64]) -> Option<PlannedLine> {
+    let ok = |i: &usize| x[*i].is_finite() && y[*i].is_finite();
+    let a = (0..x.len()).find(ok)?;
+    let b = (0..x.len()).rev().find(ok)?;
+    Some(PlannedLine {
+        start_m: [x[a], y[a]],
+        end_m: [x[b], y[b]],
+    })
+}
+
+/// Assesses one line.
+fn assess(p: &Processed, st: &LineStages, k: usize, settings: &QcSettings) -> LineQc {
+    let s: &Segment = &st.segments[k];
+    let r = &p.results[s.flight];
+    let range = s.range();
+    let reduced: Vec<(usize, Vec<f64>)> = (0..6)
+        .filter(|c| st.observed[*c])
+        .map(|c| {
+            (
+                c,
+                range
+                    .clone()
+                    .map(|i| line_stages::reduced(r, c, i) * EOTVOS)
+                    .collect(),
+            )
+        })
+        .collect();
+    let fz = p
+        .survey
+        .flights
+        .get(s.flight)
+        .and_then(|f| f.flight.table.get("fz"))
+        .filter(|f| f.len() == r.time.len())
+        .map(|f| vertical_acceleration(&f[range.clone()]));
+    let zeros = vec![[0.0; 3]; range.len()];
+    let planned: Option<Vec<f64>> = p
+        .survey
+        .recipe
+        .as_ref()
+        .and_then(|rc| rc.qc.planned_clearance_m)
+        .map(|c| vec![c; range.len()]);
+    let x = &r.positions.easting_m[range.clone()];
+    let y = &r.positions.northing_m[range.clone()];
+    let inputs = LineInputs {
+        time_s: &r.time[range.clone()],
+        x_m: x,
+        y_m: y,
+        components: reduced
+            .iter()
+            .map(|(c, v)| Component {
+                name: NAMES[*c],
+                values: v,
+            })
+            .collect(),
+        trace: Some(&r.trace[range.clone()]),
+        alpha_pairs: r.alpha_difference.as_ref().map(|a| &a[range.clone()]),
+        alpha_gyro: r.alpha_difference.as_ref().map(|_| &zeros[..]),
+        vertical_acceleration_m_s2: fz.as_deref(),
+        clearance_m: r.clearance.as_ref().map(|c| &c[range.clone()]),
+        planned_clearance_m: planned.as_deref(),
+        plan: chord(x, y),
+    };
+    let flight_name = p.names.get(s.flight).cloned().unwrap_or_default();
+    match assess_line(&inputs, settings) {
+        Ok((m, v)) => LineQc {
+            segment: k,
+            flight_name,
+            metrics: Some(m),
+            verdict: v,
+        },
+        Err(e) => LineQc {
+            segment: k,
+            flight_name,
+            metrics: None,
+            verdict: Verdict {
+                pass: false,
+                reasons: vec![format!("could not be assessed: {e}")],
+            },
+        },
+    }
+}
+
+/// Every line's QC, in the order of the segments.
+pub fn assess_all(p: &Processed, st: &LineStages, settings: &QcSettings) -> Vec<LineQc> {
+    (0..st.segments.len())
+        .into_par_iter()
+        .map(|k| assess(p, st, k, settings))
+        .collect()
+}
+
+fn opt(v: Option<f64>, digits: usize) -> String {
+    match v {
+        Some(x) if x.is_finite() => format!("{x:.digits$}"),
+        _ => String::new(),
+    }
+}
+
+/// The largest noise after filtering over the components, E.
+pub fn worst_noise(m: &LineMetrics) -> Option<f64> {
+    m.components
+        .iter()
+        .filter_map(|c| c.noise_after_filter_e)
+        .reduce(f64::max)
+}
+
+fn csv_quote(s: &str) -> String {
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+/// `qc/lines.csv` (layout `qc-lines/1`, docs/formats.md).
+pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
+    let comps: Vec<usize> = (0..6).filter(|c| st.observed[*c]).collect();
+    let mut head: Vec<String> = [
+        "flight",
+        "line",
+        "role",
+        "samples",
+        "duration_s",
+        "median_speed_m_s",
+    ]
+    .map(String::from)
+    .to_vec();
+    for c in &comps {
+        let n = NAMES[*c].to_lowercase();
+        head.push(format!("noise_density_{n}_e_rt_hz"));
+        head.push(format!("noise_{n}_e"));
+        head.push(format!("residual_{n}_e"));
+        head.push(format!("spikes_{n}"));
+    }
+    for h in [
+        "trace_rms_e",
+        "alpha_difference_rms_rad_s2",
+        "turbulence_m_s2",
+        "clearance_departure_m",
+        "line_deviation_m",
+        "longest_gap_s",
+        "crossings",
+    ] {
+        head.push(h.into());
+    }
+    for c in &comps {
+        let n = NAMES[*c].to_lowercase();
+        head.push(format!("level_offset_{n}_e"));
+        head.push(format!("level_trend_{n}_e_s"));
+    }
+    head.push("verdict".into());
+    head.push("reasons".into());
+    let mut out = format!(
+        "# gravgrad qc-lines/1: one row per line; {} stage; E = 1e-9 s^-2\n{}\n",
+        st.reduced_stage,
+        head.join(",")
+    );
+    for q in qcs {
+        let s = &st.segments[q.segment];
+        let mut row: Vec<String> = vec![
+            csv_quote(&q.flight_name),
+            s.line.to_string(),
+            if s.tie { "tie" } else { "survey" }.into(),
+        ];
+        match &q.metrics {
+            Some(m) => {
+                row.push(m.samples.to_string());
+                row.push(format!("{:.3}", m.duration_s));
+                row.push(format!("{:.3}", m.median_speed_m_s));
+                for c in &comps {
+                    match m.components.iter().find(|x| x.name == NAMES[*c]) {
+                        Some(x) => {
+                            row.push(opt(x.noise_density_e_rt_hz, 4));
+                            row.push(opt(x.noise_after_filter_e, 4));
+                            row.push(opt(x.residual_rms_e, 4));
+                            row.push(x.spikes.to_string());
+                        }
+                        None => row.extend(std::iter::repeat_n(String::new(), 4)),
+                    }
+                }
+                row.push(opt(m.trace_rms_e, 4));
+                row.push(opt(m.alpha_difference_rms_rad_s2, 9));
+                row.push(opt(m.turbulence_m_s2, 4));
+                row.push(opt(m.clearance_departure_m, 2));
+                row.push(opt(m.line_deviation_m, 2));
+                row.push(format!("{:.3}", m.longest_gap_s));
+            }
+            None => {
+                row.push((s.end - s.start).to_string());
+                row.extend(std::iter::repeat_n(String::new(), 2 + 4 * comps.len() + 6));
+            }
+        }
+        let crossings = st.levelling[5]
+            .as_ref()
+            .or(st.levelling.iter().flatten().next())
+            .and_then(|l| l.correction_of(q.segment))
+            .map_or(0, |c| c.crossings);
+        row.push(crossings.to_string());
+        for c in &comps {
+            match st.levelling[*c]
+                .as_ref()
+                .and_then(|l| l.correction_of(q.segment))
+            {
+                Some(co) => {
+                    row.push(format!("{:.4}", co.offset));
+                    row.push(format!("{:.6}", co.trend_per_s));
+                }
+                None => row.extend([String::new(), String::new()]),
+            }
+        }
+        row.push(if q.verdict.pass { "pass" } else { "fail" }.into());
+        row.push(csv_quote(&q.verdict.reasons.join("; ")));
+        out.push_str(&row.join(","));
+        out.push('\n');
+    }
+    out
+}
+
+/// The terminal table.
+fn table(st: &LineStages, qcs: &[LineQc]) -> String {
+    let fw = qcs
+        .iter()
+        .map(|q| q.flight_name.chars().count())
+        .max()
+        .unwrap_or(0)
+        .max(6);
+    let mut out = format!(
+        "{:>6}  {:<fw$} {:<6} {:>8} {:>8} {:>10} {:>9} {:>9}  {:<7} reasons\n",
+        "line", "flight", "role", "samples", "noise E", "turb m/s²", "clear m", "dev m", "verdict"
+    );
+    for q in qcs {
+        let s = &st.segments[q.segment];
+        let m = q.metrics.as_ref();
+        let dash = |v: Option<f64>, d: usize| {
+            let t = opt(v, d);
+            if t.is_empty() { "-".into() } else { t }
+        };
+        out.push_str(&format!(
+            "{:>6}  {:<fw$} {:<6} {:>8} {:>8} {:>10} {:>9} {:>9}  {:<7} {}\n",
+            s.line,
+            q.flight_name,
+            if s.tie { "tie" } else { "survey" },
+            m.map_or(s.end - s.start, |m| m.samples),
+            dash(m.and_then(worst_noise), 2),
+            dash(m.and_then(|m| m.turbulence_m_s2), 2),
+            dash(m.and_then(|m| m.clearance_departure_m), 1),
+            dash(m.and_then(|m| m.line_deviation_m), 1),
+            if q.verdict.pass { "pass" } else { "FAIL" },
+            q.verdict.reasons.join("; ")
+        ));
+    }
+    for (c, l) in st.levelling.iter().enumerate() {
+        if let Some(l) = l {
+            out.push_str(&format!(
+                "crossovers {}: {} · RMS {:.2} E before levelling, {:.2} E after\n",
+                NAMES[c], l.result.before.count, l.result.before.rms, l.result.after.rms
+            ));
+        }
+    }
+    out
+}
+
+fn json(survey: &str, st: &LineStages, qcs: &[LineQc]) -> serde_json::Value {
+    use serde_json::json;
+    let num = |v: Option<f64>| v.filter(|x| x.is_finite());
+    let lines: Vec<serde_json::Value> = qcs
+        .iter()
+        .map(|q| {
+            let s = &st.segments[q.segment];
+            let m = q.metrics.as_ref();
+            let levelling: Vec<serde_json::Value> = (0..6)
+                .filter_map(|c| {
+                    let co = st.levelling[c].as_ref()?.correction_of(q.segment)?;
+                    Some(json!({
+                        "component": NAMES[c],
+                        "offset_e": co.offset,
+                        "trend_e_s": co.trend_per_s,
+                        "crossings": co.crossings,
+                        "solved": co.solved,
+                    }))
+                })
+                .collect();
+            json!({
+                "flight": q.flight_name,
+                "line": s.line,
+                "role": if s.tie { "tie" } else { "survey" },
+                "samples": m.map_or(s.end - s.start, |m| m.samples),
+                "duration_s": m.map(|m| m.duration_s),
+                "median_speed_m_s": m.map(|m| m.median_speed_m_s),
+                "components": m.map(|m| m.components.iter().map(|c| json!({
+                    "component": c.name,
+                    "noise_density_e_rt_hz": num(c.noise_density_e_rt_hz),
+                    "noise_after_filter_e": num(c.noise_after_filter_e),
+                    "residual_rms_e": num(c.residual_rms_e),
+                    "spikes": c.spikes,
+                })).collect::<Vec<_>>()),
+                "trace_rms_e": num(m.and_then(|m| m.trace_rms_e)),
+                "alpha_difference_rms_rad_s2": num(m.and_then(|m| m.alpha_difference_rms_rad_s2)),
+                "turbulence_m_s2": num(m.and_then(|m| m.turbulence_m_s2)),
+                "clearance_departure_m": num(m.and_then(|m| m.clearance_departure_m)),
+                "line_deviation_m": num(m.and_then(|m| m.line_deviation_m)),
+                "longest_gap_s": m.map(|m| m.longest_gap_s),
+                "levelling": levelling,
+                "verdict": if q.verdict.pass { "pass" } else { "fail" },
+                "reasons": q.verdict.reasons,
+            })
+        })
+        .collect();
+    let crossovers: Vec<serde_json::Value> = (0..6)
+        .filter_map(|c| {
+            let l = st.levelling[c].as_ref()?;
+            let stats = |s: &gravgrad_lines::level::CrossoverStats| {
+                json!({ "count": s.count, "mean_e": s.mean, "rms_e": s.rms, "max_abs_e": s.max_abs })
+            };
+            Some(json!({
+                "component": NAMES[c],
+                "before": stats(&l.result.before),
+                "after": stats(&l.result.after),
+            }))
+        })
+        .collect();
+    json!({
+        "survey": survey,
+        "reduced_stage": st.reduced_stage,
+        "lines": lines,
+        "crossovers": crossovers,
+        "notes": st.notes,
+    })
+}
+
+fn write_text(path: &Path, text: &str) -> Result<(), String> {
+    write_atomic(path, |f| {
+        f.write_all(text.as_bytes()).map_err(|e| e.to_string())
+    })
+    .map_err(|e| e.to_string())
+}
+
+pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
+    let p = match run_cmd::process(&args.recipe, log, None) {
+        Ok(p) => p,
+        Err(code) => return code,
+    };
+    let Some(recipe) = p.survey.recipe.as_ref() else {
+        return crate::EXIT_BAD_INPUT;
+    };
+    let clock = std::time::Instant::now();
+    let stages = match line_stages::compute(&p.results, recipe, &args.recipe) {
+        Ok(s) => s,
+        Err(problem) => return bad_input(&[problem]),
+    };
+    for n in &stages.notes {
+        log.info(n);
+    }
+    let settings = settings(recipe);
+    let qcs = assess_all(&p, &stages, &settings);
+    log.info(&format!(
+        "filter, levelling and QC of {} lines in {:.2} s",
+        qcs.len(),
+        clock.elapsed().as_secs_f64()
+    ));
+    let dir = run_cmd::output_folder(&p, args.out.as_deref()).join("qc");
+    let csv = lines_csv(&stages, &qcs);
+    if let Err(e) = write_text(&dir.join("lines.csv"), &csv) {
+        eprintln!("error: {e}");
+        return EXIT_FAILURE;
+    }
+    let html = report_html::render(&p, &stages, &qcs, &settings);
+    if let Err(e) = write_text(&dir.join("report.html"), &html) {
+        eprintln!("error: {e}");
+        return EXIT_FAILURE;
+    }
+    let survey = recipe.survey.name.as_str();
+    if json_out {
+        println!("{}", json(survey, &stages, &qcs));
+    } else {
+        print!("{}", table(&stages, &qcs));
+    }
+    let failed = qcs.iter().filter(|q| !q.verdict.pass).count();
+    log.info(&format!(
+        "{} lines: {} pass, {failed} fail; written {} and {}",
+        qcs.len(),
+        qcs.len() - failed,
+        dir.join("lines.csv").display(),
+        dir.join("report.html").display()
+    ));
+    0
+}
