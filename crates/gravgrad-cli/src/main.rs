@@ -1,6 +1,7 @@
 //! The `gravgrad` command. Thin glue over the stage crates: parse arguments, call the stages,
 //! print, and map outcomes to exit codes (0 success, 1 processing failure, 2 bad input or usage).
 
+mod archive;
 mod calibrate_cmd;
 mod check_cmd;
 mod demo_cmd;

@@ -10,11 +10,27 @@ use sha2::{Digest, Sha256};
 use std::io::{Read, Write};
 use std::path::{Path, PathBuf};
 
-#[derive(Serialize)]
-struct Input {
-    path: PathBuf,
-    bytes: u64,
-    sha256: String,
+/// An input file with its size and SHA-256 (hex).
+#[derive(Clone, Serialize)]
+pub struct Hashed {
+    pub path: PathBuf,
+    pub bytes: u64,
+    pub sha256: String,
+}
+
+/// The size and SHA-256 of every file.
+pub fn hashes(paths: &[PathBuf]) -> Result<Vec<Hashed>, String> {
+    paths
+        .iter()
+        .map(|p| {
+            let (bytes, sha256) = sha256(p)?;
+            Ok(Hashed {
+                path: p.clone(),
+                bytes,
+                sha256,
+            })
+        })
+        .collect()
 }
 
 #[derive(Serialize)]
@@ -33,7 +49,7 @@ struct Provenance<'a> {
     written_utc_unix_s: u64,
     recipe_path: &'a Path,
     recipe_text: String,
-    inputs: Vec<Input>,
+    inputs: Vec<Hashed>,
     flights: Vec<Flight<'a>>,
     map_frame: String,
 }
@@ -64,20 +80,11 @@ fn sha256(path: &Path) -> Result<(u64, String), String> {
 pub fn write(
     dir: &Path,
     recipe_path: &Path,
-    inputs: &[PathBuf],
+    inputs: &[Hashed],
     names: &[String],
     results: &[FlightResult],
     epsg: u32,
 ) -> Result<(), String> {
-    let mut files = Vec::new();
-    for p in std::iter::once(&recipe_path.to_path_buf()).chain(inputs) {
-        let (bytes, sha) = sha256(p)?;
-        files.push(Input {
-            path: p.clone(),
-            bytes,
-            sha256: sha,
-        });
-    }
     let flights = names
         .iter()
         .zip(results)
@@ -105,7 +112,7 @@ pub fn write(
         recipe_path,
         recipe_text: std::fs::read_to_string(recipe_path)
             .map_err(|e| format!("{}: {e}", recipe_path.display()))?,
-        inputs: files,
+        inputs: inputs.to_vec(),
         flights,
         map_frame: format!("EPSG:{epsg}"),
     };

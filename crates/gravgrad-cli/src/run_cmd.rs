@@ -3,6 +3,7 @@
 //! filter and the levelling (`line_stages`), written to `lines.parquet` (and `lines.csv` on request)
 //! with the calibration of every flight.
 
+use crate::archive;
 use crate::grid_stage;
 use crate::line_stages;
 use crate::lines_out;
@@ -238,6 +239,79 @@ fn input_files(p: &Processed) -> Vec<PathBuf> {
     out
 }
 
+/// Writes `survey.h5`.
+fn write_archive(
+    dir: &Path,
+    p: &Processed,
+    table: &lines_out::LinesTable,
+    grids: Option<&grid_stage::Grids>,
+    title: &str,
+    recipe_path: &Path,
+    hashes: &[provenance::Hashed],
+) -> Result<(), String> {
+    let band = p
+        .survey
+        .recipe
+        .as_ref()
+        .map_or([0.05, 1.0], |r| r.calibration.band_hz);
+    let measured_names: Vec<String> = grid_stage::NAMES
+        .iter()
+        .map(|n| format!("measured_{n}"))
+        .collect();
+    let mut archived = Vec::new();
+    if let Some(g) = grids {
+        for c in 0..6 {
+            if let Some(m) = &g.measured[c] {
+                archived.push(archive::ArchivedGrid {
+                    name: &measured_names[c],
+                    units: "E",
+                    long_name: "measured component, gridded",
+                    raster: m,
+                });
+            }
+        }
+        for c in 0..6 {
+            archived.push(archive::ArchivedGrid {
+                name: grid_stage::NAMES[c],
+                units: "E",
+                long_name: "full tensor from all measured components",
+                raster: &g.tensor[c],
+            });
+        }
+        archived.push(archive::ArchivedGrid {
+            name: "gz",
+            units: "mGal",
+            long_name: "vertical gravity from the tensor, mean removed",
+            raster: &g.gz,
+        });
+    }
+    let a = archive::Archive {
+        title,
+        epsg: p.frame.epsg,
+        lines: table,
+        grids: archived,
+        calibrations: p
+            .names
+            .iter()
+            .zip(&p.results)
+            .filter(|(_, r)| !r.calibration.is_empty())
+            .map(|(n, r)| {
+                (
+                    n.clone(),
+                    CalibrationFile::new(n, band, &r.calibration).to_toml(),
+                )
+            })
+            .collect(),
+        recipe_text: std::fs::read_to_string(recipe_path)
+            .map_err(|e| format!("{}: {e}", recipe_path.display()))?,
+        sha256: hashes
+            .iter()
+            .map(|h| format!("{}  {}\n", h.sha256, h.path.display()))
+            .collect(),
+    };
+    archive::write(&dir.join("survey.h5"), &a)
+}
+
 pub fn run(args: &RunArgs, log: &Log) -> u8 {
     let p = match process(&args.recipe, log, None) {
         Ok(p) => p,
@@ -274,7 +348,7 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
     let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
     let gridded =
         recipe.map(|r| grid_stage::grid_survey(r, &p.results, levelled.as_deref(), p.frame.epsg));
-    match gridded {
+    let grids = match gridded {
         Some(Ok(g)) => {
             if let Err(e) = grid_stage::write(&dir, &g, &p.results, &title) {
                 eprintln!("error: {e}");
@@ -285,21 +359,46 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
                 g.stage,
                 dir.display()
             ));
+            Some(g)
         }
         Some(Err(e)) => {
             eprintln!("error: {e}");
             return EXIT_FAILURE;
         }
-        None => {}
-    }
+        None => None,
+    };
     if let Err(e) = write_calibrations(&p, &dir) {
+        eprintln!("error: {e}");
+        return EXIT_FAILURE;
+    }
+    let inputs = input_files(&p);
+    let hashes = match provenance::hashes(
+        &std::iter::once(args.recipe.clone())
+            .chain(inputs.iter().cloned())
+            .collect::<Vec<_>>(),
+    ) {
+        Ok(h) => h,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return EXIT_FAILURE;
+        }
+    };
+    if let Err(e) = write_archive(
+        &dir,
+        &p,
+        &table,
+        grids.as_ref(),
+        &title,
+        &args.recipe,
+        &hashes,
+    ) {
         eprintln!("error: {e}");
         return EXIT_FAILURE;
     }
     if let Err(e) = provenance::write(
         &dir,
         &args.recipe,
-        &input_files(&p),
+        &hashes,
         &p.names,
         &p.results,
         p.frame.epsg,
@@ -309,7 +408,7 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
     }
     let samples: usize = p.results.iter().map(|r| r.time.len()).sum();
     log.info(&format!(
-        "lines table built and written in {:.2} s",
+        "products built and written in {:.2} s",
         clock.elapsed().as_secs_f64()
     ));
     log.info(&format!(
