@@ -260,10 +260,10 @@ fn write_archive(
         .collect();
     let mut archived = Vec::new();
     if let Some(g) = grids {
-        for c in 0..6 {
-            if let Some(m) = &g.measured[c] {
+        for (m, name) in g.measured.iter().zip(&measured_names) {
+            if let Some(m) = m {
                 archived.push(archive::ArchivedGrid {
-                    name: &measured_names[c],
+                    name,
                     units: "E",
                     long_name: "measured component, gridded",
                     raster: m,
