@@ -431,3 +431,128 @@ fn check_report(path: &Path, lines: usize) {
     );
     eprintln!("Chromium rendered the report: {} byte PNG", bytes.len());
 }
+
+/// A plan from `[qc] plan`: a line whose planned track lies 80 m to the north of where it was flown
+/// fails for its deviation; the lines flown on their plan pass; a bad plan cell is located.
+#[test]
+fn a_line_off_its_planned_track_fails_for_its_deviation() {
+    let tmp = tempfile::tempdir().unwrap();
+    let demo = crate::root().join("data/demo");
+    let survey = tmp.path().join("survey");
+    std::fs::create_dir_all(survey.join("flights")).unwrap();
+    for f in [
+        "instrument.toml",
+        "recipe.toml",
+        "dem.tif",
+        "flights/kestrand-flats-demo-f01.parquet",
+    ] {
+        std::fs::copy(demo.join(f), survey.join(f)).unwrap();
+    }
+    // The flown ends of each line from a run's lines table (the plan the simulator flew).
+    let run = tmp.path().join("run");
+    let o = crate::gravgrad(&[
+        "--quiet",
+        "run",
+        survey.join("recipe.toml").to_str().unwrap(),
+        "--out",
+        run.to_str().unwrap(),
+    ]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let text = {
+        use parquet::file::reader::{FileReader, SerializedFileReader};
+        use parquet::record::RowAccessor;
+        let r = SerializedFileReader::new(std::fs::File::open(run.join("lines.parquet")).unwrap())
+            .unwrap();
+        let schema = r.metadata().file_metadata().schema_descr_ptr();
+        let col = |n: &str| {
+            (0..schema.num_columns())
+                .find(|&i| schema.column(i).name() == n)
+                .unwrap()
+        };
+        let (ci, ce, cn) = (col("line"), col("easting"), col("northing"));
+        let mut ends: std::collections::BTreeMap<i64, [f64; 4]> = Default::default();
+        for row in r.get_row_iter(None).unwrap() {
+            let row = row.unwrap();
+            let l = row.get_long(ci).unwrap();
+            if l <= 0 {
+                continue;
+            }
+            let (e, n) = (row.get_double(ce).unwrap(), row.get_double(cn).unwrap());
+            let v = ends.entry(l).or_insert([e, n, e, n]);
+            v[2] = e;
+            v[3] = n;
+        }
+        let mut t = String::from("line,start_easting,start_northing,end_easting,end_northing\n");
+        for (l, v) in ends {
+            let shift = if l == 101 { 80.0 } else { 0.0 };
+            t.push_str(&format!(
+                "{l},{},{},{},{}\n",
+                v[0],
+                v[1] + shift,
+                v[2],
+                v[3] + shift
+            ));
+        }
+        t
+    };
+    std::fs::write(survey.join("plan.csv"), &text).unwrap();
+    let recipe = survey.join("recipe.toml");
+    let mut r = std::fs::read_to_string(&recipe).unwrap();
+    r.push_str("\n[qc]\nplan = \"plan.csv\"\n");
+    std::fs::write(&recipe, &r).unwrap();
+    let o = crate::gravgrad(&[
+        "--quiet",
+        "--json",
+        "qc",
+        recipe.to_str().unwrap(),
+        "--out",
+        tmp.path().join("qc").to_str().unwrap(),
+    ]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    for line in v["lines"].as_array().unwrap() {
+        let n = line["line"].as_i64().unwrap();
+        let dev = line["line_deviation_m"].as_f64().unwrap();
+        let reasons = line["reasons"].to_string();
+        eprintln!(
+            "line {n}: deviation {dev:.1} m, {} {reasons}",
+            line["verdict"]
+        );
+        if n == 101 {
+            assert!((dev - 80.0).abs() < 2.0, "{dev}");
+            assert_eq!(line["verdict"], "fail");
+            assert!(reasons.contains("deviat"), "{reasons}");
+        } else {
+            assert!(dev < 2.0, "line {n}: {dev}");
+            assert_eq!(line["verdict"], "pass", "line {n}: {reasons}");
+        }
+    }
+    // A bad cell of the plan: exit 2 naming file, row and column.
+    std::fs::write(
+        survey.join("plan.csv"),
+        text.replacen("\n101,", "\n101,x", 1),
+    )
+    .unwrap();
+    let o = crate::gravgrad(&[
+        "qc",
+        recipe.to_str().unwrap(),
+        "--out",
+        tmp.path().join("qc2").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("plan.csv") && err.contains("row 2") && err.contains("start_easting"),
+        "{err}"
+    );
+}

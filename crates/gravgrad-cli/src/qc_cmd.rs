@@ -11,6 +11,7 @@ use crate::run_cmd::{self, Processed, bad_input};
 use crate::tables::write_atomic;
 use clap::Args;
 use gravgrad_core::units::EOTVOS;
+use gravgrad_ingest::plan::{Plan, read_plan};
 use gravgrad_lines::qc::{Component, LineMetrics, PlannedLine};
 use gravgrad_lines::{LineInputs, LowPass, QcSettings, Tolerances, Verdict, assess_line};
 use rayon::prelude::*;
@@ -83,7 +84,13 @@ fn chord(x: &[f64], y: &[f64]) -> Option<PlannedLine> {
 }
 
 /// Assesses one line.
-fn assess(p: &Processed, st: &LineStages, k: usize, settings: &QcSettings) -> LineQc {
+fn assess(
+    p: &Processed,
+    st: &LineStages,
+    k: usize,
+    settings: &QcSettings,
+    plan: Option<&Plan>,
+) -> LineQc {
     let s: &Segment = &st.segments[k];
     let r = &p.results[s.flight];
     let range = s.range();
@@ -132,7 +139,13 @@ fn assess(p: &Processed, st: &LineStages, k: usize, settings: &QcSettings) -> Li
         vertical_acceleration_m_s2: fz.as_deref(),
         clearance_m: r.clearance.as_ref().map(|c| &c[range.clone()]),
         planned_clearance_m: planned.as_deref(),
-        plan: chord(x, y),
+        plan: plan
+            .and_then(|pl| pl.get(&s.line))
+            .map(|v| PlannedLine {
+                start_m: [v[0], v[1]],
+                end_m: [v[2], v[3]],
+            })
+            .or_else(|| chord(x, y)),
     };
     let flight_name = p.names.get(s.flight).cloned().unwrap_or_default();
     match assess_line(&inputs, settings) {
@@ -155,10 +168,15 @@ fn assess(p: &Processed, st: &LineStages, k: usize, settings: &QcSettings) -> Li
 }
 
 /// Every line's QC, in the order of the segments.
-pub fn assess_all(p: &Processed, st: &LineStages, settings: &QcSettings) -> Vec<LineQc> {
+pub fn assess_all(
+    p: &Processed,
+    st: &LineStages,
+    settings: &QcSettings,
+    plan: Option<&Plan>,
+) -> Vec<LineQc> {
     (0..st.segments.len())
         .into_par_iter()
-        .map(|k| assess(p, st, k, settings))
+        .map(|k| assess(p, st, k, settings, plan))
         .collect()
 }
 
@@ -425,7 +443,14 @@ pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
         log.info(n);
     }
     let settings = settings(recipe);
-    let qcs = assess_all(&p, &stages, &settings);
+    let plan = match &recipe.qc.plan {
+        Some(rel) => match read_plan(&recipe.resolve(rel)) {
+            Ok(pl) => Some(pl),
+            Err(problems) => return bad_input(&problems),
+        },
+        None => None,
+    };
+    let qcs = assess_all(&p, &stages, &settings, plan.as_ref());
     log.info(&format!(
         "filter, levelling and QC of {} lines in {:.2} s",
         qcs.len(),

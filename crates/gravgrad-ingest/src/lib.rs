@@ -21,6 +21,7 @@ pub mod instrument;
 pub mod layout;
 pub mod navmerge;
 pub mod parquet_reader;
+pub mod plan;
 pub mod read;
 pub mod recipe;
 pub mod segment;

@@ -309,6 +309,9 @@ pub struct Qc {
     pub max_gap_s: f64,
     /// Clearance of the drape plan, m (absent: clearance is not judged).
     pub planned_clearance_m: Option<f64>,
+    /// CSV of planned lines (docs/formats.md); absent: a line's deviation is measured from its own
+    /// straight chord.
+    pub plan: Option<String>,
 }
 
 impl Default for Qc {
@@ -320,6 +323,7 @@ impl Default for Qc {
             max_noise_e: 5.0,
             max_gap_s: 2.0,
             planned_clearance_m: None,
+            plan: None,
         }
     }
 }
