@@ -48,6 +48,7 @@ fn spec(tension: f64, limit: f64) -> GridSpec {
         convergence: Some(limit),
         max_sweeps: 20000,
         epsg: None,
+        block_mean: true,
     }
 }
 
