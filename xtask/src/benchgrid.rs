@@ -1,8 +1,10 @@
 //! The Rust side of bench/grid.py: grid a CSV of scattered points (easting m, northing m, value;
 //! no header) by minimum curvature and write the grid as raw little-endian float64, north-up,
-//! row-major (the order `gmt grd2xyz -ZTLd` writes). Prints the gridding report as JSON.
+//! row-major (the order `gmt grd2xyz -ZTLd` writes). Prints the gridding report as JSON. On
+//! request also writes the block means on the grid's cells as CSV, each number in the shortest
+//! form that reads back to the same float64 (so gridding them again gives the same means).
 
-use gravgrad_grid::{GridSpec, grid_points};
+use gravgrad_grid::{GridSpec, block_means, grid_points};
 use std::io::Write;
 use std::path::Path;
 use std::time::Instant;
@@ -11,6 +13,7 @@ pub struct Options<'a> {
     pub points: &'a Path,
     pub spec: GridSpec,
     pub threads: usize,
+    pub block_means_out: Option<&'a Path>,
     pub out: &'a Path,
 }
 
@@ -35,6 +38,13 @@ pub fn run(o: &Options) -> Result<(), Box<dyn std::error::Error>> {
         pts.push((f[0], f[1], f[2]));
     }
     let t_read = t0.elapsed().as_secs_f64();
+    if let Some(path) = o.block_means_out {
+        let mut text = String::new();
+        for (x, y, v) in block_means(&pts, &o.spec)? {
+            text.push_str(&format!("{x},{y},{v}\n"));
+        }
+        std::fs::write(path, text)?;
+    }
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(o.threads)
         .build()?;
@@ -58,9 +68,10 @@ pub fn run(o: &Options) -> Result<(), Box<dyn std::error::Error>> {
         })
         .collect();
     println!(
-        "{{\"points\": {}, \"inside\": {}, \"read_s\": {t_read:.4}, \"grid_s\": {t_grid:.4}, \"convergence\": {:e}, \"converged\": {}, \"levels\": [{}]}}",
+        "{{\"points\": {}, \"inside\": {}, \"gridded\": {}, \"read_s\": {t_read:.4}, \"grid_s\": {t_grid:.4}, \"convergence\": {:e}, \"converged\": {}, \"levels\": [{}]}}",
         pts.len(),
         g.report.data_inside,
+        g.report.data_gridded,
         g.report.convergence,
         g.report.converged,
         levels.join(", ")

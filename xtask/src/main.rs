@@ -118,6 +118,12 @@ enum Task {
         max_sweeps: usize,
         #[arg(long, default_value_t = 2)]
         threads: usize,
+        /// Grid every datum as it is instead of one block mean per cell.
+        #[arg(long)]
+        no_block_mean: bool,
+        /// Also write the block means (easting, northing, value; CSV) to this file.
+        #[arg(long)]
+        block_means_out: Option<PathBuf>,
         #[arg(long)]
         out: PathBuf,
     },
@@ -191,6 +197,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             blanking,
             max_sweeps,
             threads,
+            no_block_mean,
+            block_means_out,
             out,
         } => benchgrid::run(&benchgrid::Options {
             points: &points,
@@ -205,8 +213,10 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
                 convergence,
                 max_sweeps,
                 epsg: None,
+                block_mean: !no_block_mean,
             },
             threads,
+            block_means_out: block_means_out.as_deref(),
             out: &out,
         })?,
     }

@@ -9,7 +9,7 @@ pub mod png_map;
 pub mod products;
 pub mod tensor_grid;
 
-pub use mincurv::{GridSpec, Gridded, blank, grid_points};
+pub use mincurv::{GridSpec, Gridded, blank, block_means, grid_points};
 pub use png_map::{MapOptions, Ramp, render_map, write_map};
 pub use products::{Product, Products, Written, write_products};
 pub use tensor_grid::{GzReference, TensorGrids, TensorOptions, full_tensor};

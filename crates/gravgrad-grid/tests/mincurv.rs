@@ -1,16 +1,19 @@
-//! Minimum-curvature gridding against GMT `surface` (grids committed under
-//! `tests/reference/grid/`, made by `bench/grid.py --reference tests/reference/grid`), against
-//! analytic surfaces, blanking against a brute-force distance, and thread-count independence.
+//! Minimum-curvature gridding against GMT `surface` and block means against GMT `blockmean`
+//! (files committed under `tests/reference/grid/`, made by
+//! `bench/grid.py --reference tests/reference/grid`: GMT `surface` was given our block means of the
+//! same points), against analytic surfaces, blanking against a brute-force distance, and
+//! thread-count independence.
 
-use gravgrad_grid::mincurv::{GridError, GridSpec, grid_points};
+use gravgrad_grid::mincurv::{GridError, GridSpec, block_means, grid_points};
 use std::path::PathBuf;
 
 fn reference_dir() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../tests/reference/grid")
 }
 
-fn read_points() -> Vec<(f64, f64, f64)> {
-    let text = std::fs::read_to_string(reference_dir().join("points.csv")).unwrap();
+/// The survey points of the small case: `tag` "n00" noise-free, "n05" with 0.5 E of noise.
+fn read_points(tag: &str) -> Vec<(f64, f64, f64)> {
+    let text = std::fs::read_to_string(reference_dir().join(format!("points_{tag}.csv"))).unwrap();
     text.lines()
         .map(|l| {
             let f: Vec<f64> = l.split(',').map(|s| s.parse().unwrap()).collect();
@@ -48,6 +51,7 @@ fn spec(tension: f64, limit: f64) -> GridSpec {
         convergence: Some(limit),
         max_sweeps: 20000,
         epsg: None,
+        block_mean: true,
     }
 }
 
@@ -60,9 +64,12 @@ fn rms(v: impl Iterator<Item = f64>) -> f64 {
     (s / n as f64).sqrt()
 }
 
-fn against_gmt(tension: f64, file: &str) {
-    let pts = read_points();
-    let (gmt, limit) = read_gmt(file);
+fn against_gmt(tag: &str, tension: f64) {
+    let pts = read_points(tag);
+    let (gmt, limit) = read_gmt(&format!(
+        "gmt_surface_{tag}_t{:02}.txt",
+        (tension * 100.0_f64).round() as u32
+    ));
     let g = grid_points(&pts, &spec(tension, limit)).unwrap();
     assert!(g.report.converged, "{:?}", g.report.levels);
     assert_eq!(g.surface.values.len(), gmt.len());
@@ -70,7 +77,7 @@ fn against_gmt(tension: f64, file: &str) {
     let diff = rms(g.surface.values.iter().zip(&gmt).map(|(a, b)| a - b));
     let ratio = diff / data_rms;
     eprintln!(
-        "tension {tension}: RMS difference to GMT {diff:.4} E, {:.3}% of the data's RMS",
+        "{tag} tension {tension}: RMS difference to GMT {diff:.4} E, {:.3}% of the data's RMS",
         100.0 * ratio
     );
     assert!(
@@ -82,17 +89,122 @@ fn against_gmt(tension: f64, file: &str) {
 
 #[test]
 fn matches_gmt_surface_without_tension() {
-    against_gmt(0.0, "gmt_surface_t00.txt");
+    against_gmt("n00", 0.0);
 }
 
 #[test]
 fn matches_gmt_surface_with_tension() {
-    against_gmt(0.25, "gmt_surface_t25.txt");
+    against_gmt("n00", 0.25);
+}
+
+#[test]
+fn matches_gmt_surface_without_tension_noisy() {
+    against_gmt("n05", 0.0);
+}
+
+#[test]
+fn matches_gmt_surface_with_tension_noisy() {
+    against_gmt("n05", 0.25);
+}
+
+/// Our block means are GMT `blockmean`'s (same cells, `-r`): one per occupied cell, at the same
+/// mean position with the same mean value.
+#[test]
+fn block_means_match_gmt_blockmean() {
+    for tag in ["n00", "n05"] {
+        let pts = read_points(tag);
+        let ours = block_means(&pts, &spec(0.0, 1e-3)).unwrap();
+        let text =
+            std::fs::read_to_string(reference_dir().join(format!("gmt_blockmean_{tag}.txt")))
+                .unwrap();
+        let mut gmt: Vec<[f64; 3]> = text
+            .lines()
+            .filter(|l| !l.starts_with('#'))
+            .map(|l| {
+                let f: Vec<f64> = l.split_whitespace().map(|s| s.parse().unwrap()).collect();
+                [f[0], f[1], f[2]]
+            })
+            .collect();
+        assert_eq!(ours.len(), gmt.len(), "{tag}: cells with data");
+        // Both in cell order: rows north to south, each west to east.
+        let cell = |x: f64, y: f64| {
+            (
+                (((4000.0 - y) / 50.0).floor()) as i64,
+                (x / 50.0).floor() as i64,
+            )
+        };
+        gmt.sort_by_key(|p| cell(p[0], p[1]));
+        let mut worst = [0.0f64; 3];
+        for (o, g) in ours.iter().zip(&gmt) {
+            assert_eq!(cell(o.0, o.1), cell(g[0], g[1]), "{tag}");
+            for (w, d) in worst.iter_mut().zip([o.0 - g[0], o.1 - g[1], o.2 - g[2]]) {
+                *w = w.max(d.abs());
+            }
+        }
+        eprintln!(
+            "{tag}: {} block means, largest differences {worst:?} (m, m, E)",
+            ours.len()
+        );
+        // GMT printed 10 decimals; both average the same 3-decimal positions, 6-decimal values.
+        assert!(worst.iter().all(|&w| w < 1e-6), "{tag}: {worst:?}");
+    }
+}
+
+/// With block means on, a cell's data enter only through their mean: the grid equals the one
+/// made with a single datum at their mean position and value. Off, only the datum nearest the
+/// node is used: the grid equals the one made without the other.
+#[test]
+fn block_mean_option() {
+    let mut s = spec(0.0, 1e-9);
+    s.nx = 20;
+    s.ny = 20;
+    s.y_max = 1000.0;
+    let f = |x: f64, y: f64| 3.0 + 0.01 * x - 0.004 * y + 2.0 * (x / 300.0).sin();
+    // A datum in every cell but (3, 4), 0.3 cell off its centre.
+    let mut background = Vec::new();
+    for r in 0..20 {
+        for c in 0..20 {
+            if (c, r) != (3, 4) {
+                let (x, y) = (50.0 * c as f64 + 40.0, 1000.0 - 50.0 * r as f64 - 25.0);
+                background.push((x, y, f(x, y)));
+            }
+        }
+    }
+    // Cell (3, 4), centre (175, 775): two data 7 m west and 10 m east of the centre.
+    let (p1, p2) = (
+        (168.0, 775.0, f(168.0, 775.0) + 1.0),
+        (185.0, 775.0, f(185.0, 775.0) - 1.5),
+    );
+    let with = |extra: &[(f64, f64, f64)], s: &GridSpec| {
+        let mut pts = background.clone();
+        pts.extend_from_slice(extra);
+        grid_points(&pts, s).unwrap()
+    };
+    let same = |a: &gravgrad_grid::Gridded, b: &gravgrad_grid::Gridded| {
+        assert!(a.report.converged && b.report.converged);
+        for (p, q) in a.surface.values.iter().zip(&b.surface.values) {
+            assert!((p - q).abs() < 1e-7, "{p} {q}");
+        }
+    };
+    let means = block_means(&[p1, p2], &s).unwrap();
+    assert_eq!(means.len(), 1);
+    let (x, y, v) = means[0];
+    assert!((x - 176.5).abs() < 1e-9 && (y - 775.0).abs() < 1e-9);
+    assert!((v - 0.5 * (p1.2 + p2.2)).abs() < 1e-12);
+    let a = with(&[p1, p2], &s);
+    assert_eq!((a.report.data_inside, a.report.data_gridded), (401, 400));
+    same(&a, &with(&[(176.5, 775.0, v)], &s));
+    s.block_mean = false;
+    let c = with(&[p1, p2], &s);
+    assert_eq!((c.report.data_inside, c.report.data_gridded), (401, 401));
+    same(&c, &with(&[p1], &s));
+    // And the two differ at the cell: the mean is not the nearest datum.
+    assert!((a.surface.get(3, 4).unwrap() - c.surface.get(3, 4).unwrap()).abs() > 0.1);
 }
 
 #[test]
 fn same_values_whatever_the_thread_count() {
-    let pts = read_points();
+    let pts = read_points("n05");
     let mut s = spec(0.25, 1e-3);
     s.blanking = Some(120.0);
     let run = |n| {
@@ -169,7 +281,7 @@ fn dense_smooth_field_reproduced() {
 
 #[test]
 fn blanking_matches_brute_force_distance() {
-    let pts = read_points();
+    let pts = read_points("n05");
     let mut s = spec(0.0, 1e-2);
     let d = 80.0;
     s.blanking = Some(d);
