@@ -559,3 +559,67 @@ fn the_aircraft_self_gradient_is_regressed_out() {
         "without the aircraft attitude the self-gradient should show: {worst} E"
     );
 }
+
+#[test]
+fn the_recipe_continues_the_derived_grids_upwards_and_refuses_downwards() {
+    let tmp = tempfile::tempdir().unwrap();
+    let demo = crate::root().join("data/demo");
+    let survey = tmp.path().join("survey");
+    std::fs::create_dir_all(survey.join("flights")).unwrap();
+    for f in [
+        "instrument.toml",
+        "recipe.toml",
+        "dem.tif",
+        "flights/kestrand-flats-demo-f01.parquet",
+    ] {
+        std::fs::copy(demo.join(f), survey.join(f)).unwrap();
+    }
+    let recipe = survey.join("recipe.toml");
+    let base = std::fs::read_to_string(&recipe).unwrap();
+    let rms = |dir: &Path| -> f64 {
+        let r = gravgrad_netcdf::read_grid(&dir.join("grids.nc"), Some("gzz")).unwrap();
+        let v: Vec<f64> = r.values.iter().copied().filter(|x| x.is_finite()).collect();
+        let m = v.iter().sum::<f64>() / v.len() as f64;
+        (v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / v.len() as f64).sqrt()
+    };
+    ok(&[
+        "--quiet",
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        tmp.path().join("at").to_str().unwrap(),
+    ]);
+    std::fs::write(
+        &recipe,
+        base.replace("[grid]", "[grid]\nupward_continuation_m = 200.0"),
+    )
+    .unwrap();
+    ok(&[
+        "--quiet",
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        tmp.path().join("up").to_str().unwrap(),
+    ]);
+    let (at, up) = (rms(&tmp.path().join("at")), rms(&tmp.path().join("up")));
+    eprintln!("gzz RMS on the flight surface {at:.3} E, 200 m higher {up:.3} E");
+    assert!(up < 0.8 * at, "{up} vs {at}");
+    std::fs::write(
+        &recipe,
+        base.replace("[grid]", "[grid]\nupward_continuation_m = -50.0"),
+    )
+    .unwrap();
+    let o = gravgrad(&[
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        tmp.path().join("down").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let text = format!(
+        "{}{}",
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(text.contains("grid.upward_continuation_m"), "{text}");
+}

@@ -109,6 +109,7 @@ pub fn grid_survey(
     let refs: [Option<&Raster>; 6] = std::array::from_fn(|c| surfaces[c].as_ref());
     let opts = TensorOptions {
         gz_reference: GzReference::MeanZero,
+        upward_m: recipe.grid.upward_continuation_m,
         ..TensorOptions::default()
     };
     let t = full_tensor(&refs, &opts).map_err(|e| format!("full tensor: {e}"))?;

@@ -262,6 +262,8 @@ pub struct Grid {
     pub tension: f64,
     /// Cells farther than this from data are left empty, m.
     pub blanking_m: f64,
+    /// Upward continuation of the derived full tensor and gz, m (0: the flight surface).
+    pub upward_continuation_m: f64,
 }
 
 impl Default for Grid {
@@ -270,6 +272,7 @@ impl Default for Grid {
             cell_m: 50.0,
             tension: 0.25,
             blanking_m: 250.0,
+            upward_continuation_m: 0.0,
         }
     }
 }
@@ -391,6 +394,15 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
         p.push(Problem::error(
             loc("calibration.drift_order"),
             "drift polynomials above order 5 fit geology, not drift",
+        ));
+    }
+    if !(r.grid.upward_continuation_m.is_finite() && r.grid.upward_continuation_m >= 0.0) {
+        p.push(Problem::error(
+            loc("grid.upward_continuation_m"),
+            format!(
+                "{}: expected a distance of 0 m or more (continuation downwards is not offered)",
+                r.grid.upward_continuation_m
+            ),
         ));
     }
     if r.calibration.mode == CalibrationMode::File && r.calibration.file.is_none() {
