@@ -155,6 +155,44 @@ impl Simulation {
     }
 }
 
+/// The geology of a scenario evaluated anywhere in its map frame: the truth of gridded products.
+#[derive(Clone, Debug)]
+pub struct GeologyProbe<'a> {
+    scenario: &'a Scenario,
+    /// UTM grid coordinates of the scenario's local origin (easting, northing), m.
+    origin: [f64; 2],
+}
+
+impl<'a> GeologyProbe<'a> {
+    /// The probe of `s` (its UTM zone is the origin's, as in [`simulate`]).
+    pub fn new(s: &'a Scenario) -> Result<Self, SimError> {
+        let south = s.area.origin_lat_deg < 0.0;
+        let zone = TransverseMercator::utm_zone_of(s.area.origin_lon_deg);
+        let tm = TransverseMercator::utm(&GRS80, zone, south).map_err(|_| SimError::Value {
+            key: "area.origin_lon_deg",
+            value: s.area.origin_lon_deg,
+            what: "outside −180 to 180",
+        })?;
+        let (e0, n0, _, _) = tm.forward(
+            s.area.origin_lat_deg.to_radians(),
+            s.area.origin_lon_deg.to_radians(),
+        );
+        Ok(Self {
+            scenario: s,
+            origin: [e0, n0],
+        })
+    }
+
+    /// The geology tensor at (easting, northing, height above the ellipsoid), m, in the map frame
+    /// (x grid north, y grid east, z down), s⁻².
+    pub fn at(&self, easting: f64, northing: f64, height: f64) -> SymTensor {
+        geology_tensor(
+            self.scenario,
+            [northing - self.origin[1], easting - self.origin[0], -height],
+        )
+    }
+}
+
 /// Geology bodies as prisms and spheres in NED (z down from the ellipsoid).
 fn geology_tensor(s: &Scenario, obs_ned: [f64; 3]) -> SymTensor {
     let ground = s.area.ground_height_m;
