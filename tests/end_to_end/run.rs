@@ -104,21 +104,6 @@ fn score(dir: &Path) -> serde_json::Value {
     v["lines"].clone()
 }
 
-/// The grid part of `gravgrad score --json`.
-fn score_grids(dir: &Path) -> serde_json::Value {
-    let run = dir.join("run");
-    let truth = dir.join("survey/truth");
-    let s = ok(&[
-        "--quiet",
-        "--json",
-        "score",
-        run.to_str().unwrap(),
-        truth.to_str().unwrap(),
-    ]);
-    let v: serde_json::Value = serde_json::from_str(&s).unwrap();
-    v["grids"].clone()
-}
-
 fn run(dir: &Path) {
     let recipe = dir.join("survey/recipe.toml");
     let out = dir.join("run");
