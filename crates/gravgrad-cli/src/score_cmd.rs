@@ -293,15 +293,18 @@ pub fn score_grids(
                 .map(|v| v / EOTVOS)
         })
         .collect();
-    let mut ref_grids: Vec<gravgrad_core::raster::Raster> = Vec::new();
-    for c in 0..6 {
-        let p: Vec<(f64, f64, f64)> = on
-            .iter()
-            .enumerate()
-            .map(|(k, &i)| (cols[1][i], cols[2][i], truth_lines[k][c]))
-            .collect();
-        ref_grids.push(grid_points(&p, &spec).map_err(|e| e.to_string())?.surface);
-    }
+    let ref_grids: Vec<gravgrad_core::raster::Raster> = (0..6)
+        .map(|c| {
+            let p: Vec<(f64, f64, f64)> = on
+                .iter()
+                .zip(&truth_lines)
+                .map(|(&i, t)| (cols[1][i], cols[2][i], t[c]))
+                .collect();
+            grid_points(&p, &spec)
+                .map(|g| g.surface)
+                .map_err(|e| e.to_string())
+        })
+        .collect::<Result<_, _>>()?;
     let refs: [Option<&gravgrad_core::raster::Raster>; 6] =
         std::array::from_fn(|c| Some(&ref_grids[c]));
     let derived = full_tensor(
