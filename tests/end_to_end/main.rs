@@ -23,6 +23,52 @@ pub fn gravgrad(args: &[&str]) -> Output {
         .expect("the gravgrad binary runs")
 }
 
+/// Runs `gravgrad` with `args`, asserts exit 0 and returns stdout.
+pub fn ok(args: &[&str]) -> String {
+    let o = gravgrad(args);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "gravgrad {args:?}: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+/// Simulates `scenario` into `dir/survey`, appending `recipe_extra` to the recipe it writes.
+pub fn simulate_survey(dir: &std::path::Path, scenario: &str, recipe_extra: &str) {
+    let sc = dir.join("scenario.toml");
+    std::fs::write(&sc, scenario).unwrap();
+    let out = dir.join("survey");
+    ok(&[
+        "--quiet",
+        "simulate",
+        sc.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let recipe = out.join("recipe.toml");
+    let mut text = std::fs::read_to_string(&recipe).unwrap();
+    text.push_str(recipe_extra);
+    std::fs::write(&recipe, text).unwrap();
+}
+
+/// A copy of the demo survey (recipe, instrument, DEM, Parquet flight) in `dir/survey`; its path.
+pub fn copy_demo(dir: &std::path::Path) -> PathBuf {
+    let demo = root().join("data/demo");
+    let survey = dir.join("survey");
+    std::fs::create_dir_all(survey.join("flights")).unwrap();
+    for f in [
+        "instrument.toml",
+        "recipe.toml",
+        "dem.tif",
+        "flights/kestrand-flats-demo-f01.parquet",
+    ] {
+        std::fs::copy(demo.join(f), survey.join(f)).unwrap();
+    }
+    survey
+}
+
 /// The JSON report of `gravgrad check --json …`.
 pub fn check_json(args: &[&str]) -> (i32, serde_json::Value, String) {
     let mut all = vec!["check", "--json", "--quiet"];

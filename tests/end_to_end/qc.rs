@@ -3,7 +3,7 @@
 //! flown badly on purpose against its verdict, and the HTML report's structure (and its rendering by
 //! headless Chromium when it is installed).
 
-use crate::gravgrad;
+use crate::{copy_demo, gravgrad, ok, simulate_survey};
 use std::path::Path;
 
 /// Six 4 km lines and four ties over a sphere and a block, gentle terrain, 20 Hz, default instrument
@@ -49,35 +49,6 @@ clearance_m = 100.0
 /// The simulator's default noise density of each pair difference, E/√Hz. Gzz comes from the zz
 /// pair alone (its equation has no angular-acceleration term), so its noise density is this value.
 const DEFAULT_DENSITY: f64 = 5.0;
-
-fn ok(args: &[&str]) -> String {
-    let o = gravgrad(args);
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "gravgrad {args:?}: {}",
-        String::from_utf8_lossy(&o.stderr)
-    );
-    String::from_utf8_lossy(&o.stdout).into_owned()
-}
-
-/// Simulates `scenario` into `dir/survey`, appending `recipe_extra` to its recipe.
-fn simulate(dir: &Path, scenario: &str, recipe_extra: &str) {
-    let sc = dir.join("scenario.toml");
-    std::fs::write(&sc, scenario).unwrap();
-    let out = dir.join("survey");
-    ok(&[
-        "--quiet",
-        "simulate",
-        sc.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-    ]);
-    let recipe = out.join("recipe.toml");
-    let mut text = std::fs::read_to_string(&recipe).unwrap();
-    text.push_str(recipe_extra);
-    std::fs::write(&recipe, text).unwrap();
-}
 
 /// `gravgrad qc --json` into `dir/<out>`, with extra global options.
 fn qc(dir: &Path, out: &str, extra: &[&str]) -> serde_json::Value {
@@ -152,7 +123,7 @@ fn levelling_recovers_injected_line_offsets_and_the_noise_is_measured() {
         "{}\n[instrument]\nnoise_e_rt_hz = {density:?}\nline_offset_e_rms = 4.0\nscale_rms = 0.0\nmisalignment_rms_rad = 0.0\nbias_rms_m_s2 = 0.0\ndrift_rms_m_s2_h = 0.0\ntemperature_coefficient_rms_m_s2_c = 0.0\n",
         BASE.replace("ties = 4", "ties = 10")
     );
-    simulate(
+    simulate_survey(
         tmp.path(),
         &scenario,
         "\n[calibration]\nmode = \"none\"\n\n[qc]\nplanned_clearance_m = 100.0\n",
@@ -256,7 +227,7 @@ fn a_line_flown_badly_fails_for_turbulence_and_clearance_and_the_others_pass() {
     let scenario = format!(
         "{BASE}\n[badly_flown]\nline = 103\nturbulence_m_s2 = 1.6\nclearance_offset_m = 60.0\n"
     );
-    simulate(
+    simulate_survey(
         tmp.path(),
         &scenario,
         "\n[qc]\nplanned_clearance_m = 100.0\n",
@@ -437,17 +408,7 @@ fn check_report(path: &Path, lines: usize) {
 #[test]
 fn a_line_off_its_planned_track_fails_for_its_deviation() {
     let tmp = tempfile::tempdir().unwrap();
-    let demo = crate::root().join("data/demo");
-    let survey = tmp.path().join("survey");
-    std::fs::create_dir_all(survey.join("flights")).unwrap();
-    for f in [
-        "instrument.toml",
-        "recipe.toml",
-        "dem.tif",
-        "flights/kestrand-flats-demo-f01.parquet",
-    ] {
-        std::fs::copy(demo.join(f), survey.join(f)).unwrap();
-    }
+    let survey = copy_demo(tmp.path());
     // The flown ends of each line from a run's lines table (the plan the simulator flew).
     let run = tmp.path().join("run");
     let o = crate::gravgrad(&[

@@ -1,7 +1,7 @@
 //! `gravgrad run`, `calibrate` and `score` on simulated surveys (issues 4, 5, 6): what the products
 //! hold against the simulation's truth, computed by the simulator independently of the pipeline.
 
-use crate::gravgrad;
+use crate::{copy_demo, gravgrad, ok, simulate_survey};
 use std::path::Path;
 
 /// Base scenario: two geology bodies under rough terrain with a hill, four 3 km lines and a tie.
@@ -60,35 +60,6 @@ position_noise_m = 0.0
 attitude_noise_deg = 0.0
 "#;
 
-fn ok(args: &[&str]) -> String {
-    let o = gravgrad(args);
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "gravgrad {args:?}: {}",
-        String::from_utf8_lossy(&o.stderr)
-    );
-    String::from_utf8_lossy(&o.stdout).into_owned()
-}
-
-/// Simulates `scenario` into `dir`, appending `recipe_extra` to the recipe it writes.
-fn simulate(dir: &Path, scenario: &str, recipe_extra: &str) {
-    let sc = dir.join("scenario.toml");
-    std::fs::write(&sc, scenario).unwrap();
-    let out = dir.join("survey");
-    ok(&[
-        "--quiet",
-        "simulate",
-        sc.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-    ]);
-    let recipe = out.join("recipe.toml");
-    let mut text = std::fs::read_to_string(&recipe).unwrap();
-    text.push_str(recipe_extra);
-    std::fs::write(&recipe, text).unwrap();
-}
-
 /// `gravgrad score --json` of the run in `dir/run` against `dir/survey/truth`.
 fn score(dir: &Path) -> serde_json::Value {
     let run = dir.join("run");
@@ -102,6 +73,26 @@ fn score(dir: &Path) -> serde_json::Value {
     ]);
     let v: serde_json::Value = serde_json::from_str(&s).unwrap();
     v["lines"].clone()
+}
+
+/// Every component of every stage of a score: the error at ≥ 300 m at most 0.5 E above the floor.
+fn assert_within_half_an_eotvos_of_the_floor(s: &serde_json::Value, label: &str) {
+    for stage in s.as_array().unwrap() {
+        for c in stage["components"].as_array().unwrap() {
+            let err = c["filtered_rms_error_e"].as_f64().unwrap();
+            let floor = c["filtered_noise_floor_e"].as_f64().unwrap();
+            eprintln!(
+                "{label} {} {}: {err:.3} E at ≥300 m, floor {floor:.3} E",
+                stage["stage"], c["component"]
+            );
+            assert!(
+                err <= floor + 0.5,
+                "{label} {} {}: {err} E vs floor {floor} E",
+                stage["stage"],
+                c["component"]
+            );
+        }
+    }
 }
 
 fn run(dir: &Path) {
@@ -132,7 +123,7 @@ fn without_errors_the_run_gives_the_total_tensor_and_after_reduction_the_geology
     let tmp = tempfile::tempdir().unwrap();
     let scenario =
         format!("{BASE}\n[dynamics]\nturbulence_m_s2 = 0.8\nplatform_rate_rad_s = 1e-4\n{PERFECT}");
-    simulate(tmp.path(), &scenario, "\n[calibration]\nmode = \"none\"\n");
+    simulate_survey(tmp.path(), &scenario, "\n[calibration]\nmode = \"none\"\n");
     run(tmp.path());
     // The cross pairs see α·|b|; on the lines it must reach 1e5 E (α of 1e-4 rad/s²): the rotation
     // term the solve removes is far larger than what it must leave.
@@ -181,25 +172,10 @@ fn calibrated_run_is_within_half_an_eotvos_of_the_noise_floor_at_300_m_and_the_f
     let scenario = BASE
         .replace("line_length_m = 3000.0", "line_length_m = 6000.0")
         .replace("sample_rate_hz = 10.0", "sample_rate_hz = 20.0");
-    simulate(tmp.path(), &scenario, "");
+    simulate_survey(tmp.path(), &scenario, "");
     run(tmp.path());
     let s = score(tmp.path());
-    for stage in s.as_array().unwrap() {
-        for c in stage["components"].as_array().unwrap() {
-            let err = c["filtered_rms_error_e"].as_f64().unwrap();
-            let floor = c["filtered_noise_floor_e"].as_f64().unwrap();
-            eprintln!(
-                "{} {}: {err:.3} E at ≥300 m, floor {floor:.3} E",
-                stage["stage"], c["component"]
-            );
-            assert!(
-                err <= floor + 0.5,
-                "{} {}: {err} E vs floor {floor} E",
-                stage["stage"],
-                c["component"]
-            );
-        }
-    }
+    assert_within_half_an_eotvos_of_the_floor(&s, "");
     // The calibration written by `calibrate` serves the same flight as a file.
     let survey = tmp.path().join("survey");
     let cal = survey.join("cal.toml");
@@ -255,7 +231,7 @@ fn a_partial_instrument_gives_what_it_sees_and_names_what_it_cannot() {
         "{BASE}{}\npairs = [\"xx\", \"yy\", \"xy\", \"yx\"]\n",
         PERFECT
     );
-    simulate(tmp.path(), &scenario, "\n[calibration]\nmode = \"none\"\n");
+    simulate_survey(tmp.path(), &scenario, "\n[calibration]\nmode = \"none\"\n");
     // Asking for all six components: refused, naming the blind combinations.
     let recipe = tmp.path().join("survey/recipe.toml");
     let o = gravgrad(&[
@@ -395,16 +371,7 @@ fn a_netcdf_terrain_model_gives_the_same_reduction_as_the_geotiff() {
     // The demo survey with its DEM also written as a NetCDF-CF grid (our writer; read back by the
     // NetCDF reader that xarray and GDAL files pass through in the netcdf crate's tests).
     let demo = crate::root().join("data/demo");
-    let survey = tmp.path().join("survey");
-    std::fs::create_dir_all(survey.join("flights")).unwrap();
-    for f in [
-        "instrument.toml",
-        "recipe.toml",
-        "dem.tif",
-        "flights/kestrand-flats-demo-f01.parquet",
-    ] {
-        std::fs::copy(demo.join(f), survey.join(f)).unwrap();
-    }
+    let survey = copy_demo(tmp.path());
     let raster = gravgrad_ingest::geotiff_reader::read_geotiff(&demo.join("dem.tif")).unwrap();
     let grid = gravgrad_netcdf::GridFile::new("demo terrain", "gravgrad test").with_variable(
         "elevation",
@@ -463,7 +430,7 @@ fn the_aircraft_self_gradient_is_regressed_out() {
         .replace("line_length_m = 3000.0", "line_length_m = 6000.0")
         .replace("sample_rate_hz = 10.0", "sample_rate_hz = 20.0")
         + "\n[instrument]\nself_gradient_e = 5.0\n";
-    simulate(tmp.path(), &scenario, "");
+    simulate_survey(tmp.path(), &scenario, "");
     let flight = std::fs::read_dir(tmp.path().join("survey/flights"))
         .unwrap()
         .map(|e| e.unwrap().path())
@@ -472,22 +439,7 @@ fn the_aircraft_self_gradient_is_regressed_out() {
     assert!(!csv_column(&flight, "ac_roll").is_empty());
     run(tmp.path());
     let s = score(tmp.path());
-    for stage in s.as_array().unwrap() {
-        for c in stage["components"].as_array().unwrap() {
-            let err = c["filtered_rms_error_e"].as_f64().unwrap();
-            let floor = c["filtered_noise_floor_e"].as_f64().unwrap();
-            eprintln!(
-                "self-gradient {} {}: {err:.3} E at ≥300 m, floor {floor:.3} E",
-                stage["stage"], c["component"]
-            );
-            assert!(
-                err <= floor + 0.5,
-                "{} {}: {err} vs {floor}",
-                stage["stage"],
-                c["component"]
-            );
-        }
-    }
+    assert_within_half_an_eotvos_of_the_floor(&s, "self-gradient");
     let cal = std::fs::read_to_string(
         std::fs::read_dir(tmp.path().join("run/calibration"))
             .unwrap()
@@ -564,17 +516,7 @@ fn the_aircraft_self_gradient_is_regressed_out() {
 #[test]
 fn the_recipe_continues_the_derived_grids_upwards_and_refuses_downwards() {
     let tmp = tempfile::tempdir().unwrap();
-    let demo = crate::root().join("data/demo");
-    let survey = tmp.path().join("survey");
-    std::fs::create_dir_all(survey.join("flights")).unwrap();
-    for f in [
-        "instrument.toml",
-        "recipe.toml",
-        "dem.tif",
-        "flights/kestrand-flats-demo-f01.parquet",
-    ] {
-        std::fs::copy(demo.join(f), survey.join(f)).unwrap();
-    }
+    let survey = copy_demo(tmp.path());
     let recipe = survey.join("recipe.toml");
     let base = std::fs::read_to_string(&recipe).unwrap();
     let rms = |dir: &Path| -> f64 {

@@ -264,34 +264,6 @@ pub(crate) fn without_centrifugal(d: &PairData<'_>) -> Vec<f64> {
         .collect()
 }
 
-/// Keeps a calibration's κ, rotation, temperature and self-gradient coefficients (from a
-/// calibration flight) and fits only bias and drift to this flight's data: they change from flight
-/// to flight.
-pub fn refit_bias_and_drift(
-    d: &PairData<'_>,
-    s: &Settings,
-    cal: &PairCalibration,
-) -> PairCalibration {
-    let diff = without_centrifugal(d);
-    let n = diff.len();
-    let mut fixed = cal.clone();
-    fixed.polynomial.clear();
-    let rest: Vec<f64> = (0..n)
-        .map(|i| {
-            diff[i]
-                - d.expected.map_or(0.0, |e| e[i])
-                - fixed.correction_at(d, i)
-                - (0..3)
-                    .map(|k| cal.rotation[k].value * d.alpha[k][i])
-                    .sum::<f64>()
-        })
-        .collect();
-    let (poly, t_mid) = fit_polynomial(&rest, d.time, s.drift_order, d.usable);
-    fixed.polynomial = poly;
-    fixed.t_mid = t_mid;
-    fixed
-}
-
 /// Estimates one pair's calibration on its own, with the gyro angular acceleration as regressors of
 /// the rotation term. [`crate::joint::estimate_flight`] does better for a whole instrument: it fits
 /// in the space of the solved unknowns, where the angular acceleration drops out.

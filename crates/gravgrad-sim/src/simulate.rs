@@ -155,6 +155,23 @@ impl Simulation {
     }
 }
 
+/// The scenario's UTM projection (the zone of its origin, southern when the origin is) and the grid
+/// coordinates of its local origin: easting, northing, m.
+fn map_origin(s: &Scenario) -> Result<(TransverseMercator, f64, f64), SimError> {
+    let south = s.area.origin_lat_deg < 0.0;
+    let zone = TransverseMercator::utm_zone_of(s.area.origin_lon_deg);
+    let tm = TransverseMercator::utm(&GRS80, zone, south).map_err(|_| SimError::Value {
+        key: "area.origin_lon_deg",
+        value: s.area.origin_lon_deg,
+        what: "outside −180 to 180",
+    })?;
+    let (e0, n0, _, _) = tm.forward(
+        s.area.origin_lat_deg.to_radians(),
+        s.area.origin_lon_deg.to_radians(),
+    );
+    Ok((tm, e0, n0))
+}
+
 /// The geology of a scenario evaluated anywhere in its map frame: the truth of gridded products.
 #[derive(Clone, Debug)]
 pub struct GeologyProbe<'a> {
@@ -166,17 +183,7 @@ pub struct GeologyProbe<'a> {
 impl<'a> GeologyProbe<'a> {
     /// The probe of `s` (its UTM zone is the origin's, as in [`simulate`]).
     pub fn new(s: &'a Scenario) -> Result<Self, SimError> {
-        let south = s.area.origin_lat_deg < 0.0;
-        let zone = TransverseMercator::utm_zone_of(s.area.origin_lon_deg);
-        let tm = TransverseMercator::utm(&GRS80, zone, south).map_err(|_| SimError::Value {
-            key: "area.origin_lon_deg",
-            value: s.area.origin_lon_deg,
-            what: "outside −180 to 180",
-        })?;
-        let (e0, n0, _, _) = tm.forward(
-            s.area.origin_lat_deg.to_radians(),
-            s.area.origin_lon_deg.to_radians(),
-        );
+        let (_, e0, n0) = map_origin(s)?;
         Ok(Self {
             scenario: s,
             origin: [e0, n0],
@@ -280,17 +287,7 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
     // Local coordinates are UTM grid metres from the origin's projection (zone of the origin): the
     // frame the DEM and the products use. Geodetic positions by the inverse projection; tensors
     // computed in the grid frame are turned to true north by the meridian convergence γ.
-    let south = s.area.origin_lat_deg < 0.0;
-    let zone = TransverseMercator::utm_zone_of(s.area.origin_lon_deg);
-    let tm = TransverseMercator::utm(&GRS80, zone, south).map_err(|_| SimError::Value {
-        key: "area.origin_lon_deg",
-        value: s.area.origin_lon_deg,
-        what: "outside −180 to 180",
-    })?;
-    let (e0, n0, _, _) = tm.forward(
-        s.area.origin_lat_deg.to_radians(),
-        s.area.origin_lon_deg.to_radians(),
-    );
+    let (tm, e0, n0) = map_origin(s)?;
     let geo: Vec<(f64, f64, f64)> = (0..n)
         .into_par_iter()
         .map(|i| {
@@ -740,8 +737,8 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         reference_level_m: reference,
         track,
         projection: Projection {
-            zone,
-            south,
+            zone: TransverseMercator::utm_zone_of(s.area.origin_lon_deg),
+            south: s.area.origin_lat_deg < 0.0,
             false_origin: [e0, n0],
         },
         pair_errors,
