@@ -282,3 +282,118 @@ fn text_report_names_the_place_too() {
         "{text}"
     );
 }
+
+/// How `gravgrad run` reaches a corpus file: as a flight log, an instrument file, a DEM, or the
+/// file itself as the recipe.
+fn recipe_reaching(c: &Case, dir: &std::path::Path) -> std::path::PathBuf {
+    let bad = crate::root().join("tests/corpus/bad");
+    let good = crate::root().join("tests/corpus/good");
+    let q = |p: std::path::PathBuf| format!("{:?}", p.to_string_lossy());
+    let path = bad.join(c.file);
+    let text = std::fs::read_to_string(&path).unwrap_or_default();
+    if c.file.ends_with(".toml") && !text.contains("\"instrument/1\"") {
+        return path;
+    }
+    let mut flight = path.clone();
+    let mut instrument = good.join("instrument.toml");
+    let mut extra = String::new();
+    if c.file.ends_with(".toml") {
+        instrument = path.clone();
+        flight = good.join("clean.csv");
+    } else if c.file.ends_with(".tif") {
+        flight = good.join("clean.csv");
+        extra = format!("\n[terrain]\ndem = {}\n", q(path.clone()));
+    }
+    let navigation = match c.args {
+        ["--navigation", nav] => format!("navigation = {}\n", q(crate::root().join(nav))),
+        _ => String::new(),
+    };
+    let recipe = dir.join(format!("{}.recipe.toml", c.file.replace(['/', '.'], "_")));
+    std::fs::write(
+        &recipe,
+        format!(
+            "layout = \"recipe/1\"\n[input]\nflights = [{}]\n{navigation}[instrument]\npath = {}\n\
+             [rotation]\ncomponents = [\"Gzz\"]\n{extra}",
+            q(flight),
+            q(instrument)
+        ),
+    )
+    .unwrap();
+    recipe
+}
+
+/// The DEM cases of the corpus (read by the GeoTIFF tests of the ingest crate): refused with the
+/// TIFF tag that is wrong.
+const DEM_CASES: &[Case] = &[
+    case(
+        "dem_rotated.tif",
+        None,
+        None,
+        "ModelTransformationTag (34264)",
+    ),
+    case("dem_two_bands.tif", None, None, "SamplesPerPixel tag 277"),
+    case(
+        "dem_no_georef.tif",
+        None,
+        None,
+        "ModelPixelScaleTag (33550)",
+    ),
+];
+
+/// Every bad input of the corpus, reached through a recipe, makes `gravgrad run` exit 2 with an
+/// error line on stderr that names the place as the check does: file, group, key, row, column.
+#[test]
+fn every_bad_input_stops_run_with_its_place() {
+    let tmp = tempfile::tempdir().unwrap();
+    let mut failures = Vec::new();
+    for c in CASES.iter().chain(DEM_CASES) {
+        let recipe = recipe_reaching(c, tmp.path());
+        let out = tmp.path().join("out");
+        let o = crate::gravgrad(&[
+            "--quiet",
+            "run",
+            recipe.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ]);
+        let stderr = String::from_utf8_lossy(&o.stderr);
+        if o.status.code() != Some(2) || stderr.contains("panicked") {
+            failures.push(format!("{}: exit {:?}: {stderr}", c.file, o.status.code()));
+            continue;
+        }
+        // The place, in the order `Location` prints it.
+        let mut place = Vec::new();
+        if let Some(p) = c.part {
+            place.push(format!("group `{p}`"));
+        }
+        if let Some(k) = c.key {
+            place.push(format!("key `{k}`"));
+        }
+        if let Some(r) = c.row {
+            place.push(format!("row {r}"));
+        }
+        if let Some(col) = c.column {
+            place.push(format!("column `{col}`"));
+        }
+        let place = place.join(", ");
+        let file = c.file.trim_start_matches("../");
+        let hit = stderr.lines().any(|l| {
+            l.starts_with("error: ")
+                && l.contains(c.says)
+                && (c.key.is_some()
+                    || l.contains(&format!("{file}, {place}"))
+                    || place.is_empty() && l.contains(&format!("{file}: ")))
+                && (place.is_empty() || l.contains(&format!("{place}: ")))
+        });
+        if !hit {
+            failures.push(format!(
+                "{}: no error line naming `{place}` and saying {:?}; stderr:\n{stderr}",
+                c.file, c.says
+            ));
+        }
+        if out.join("lines.parquet").exists() {
+            failures.push(format!("{}: products written despite the error", c.file));
+        }
+    }
+    assert!(failures.is_empty(), "\n{}", failures.join("\n"));
+}

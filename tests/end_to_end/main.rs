@@ -2,6 +2,7 @@
 
 mod commands;
 mod corpus;
+mod interrupt;
 mod qc;
 mod run;
 mod simulate;

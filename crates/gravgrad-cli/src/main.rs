@@ -17,6 +17,7 @@ mod report_html;
 mod run_cmd;
 mod score_cmd;
 mod simulate_cmd;
+mod staging;
 mod tables;
 mod terrain_cmd;
 mod terrain_stage;

@@ -426,6 +426,33 @@ fn write_text(path: &Path, text: &str) -> Result<(), String> {
     .map_err(|e| e.to_string())
 }
 
+/// Assesses every line against the recipe's `[qc]` and writes `<qc_dir>/lines.csv` and
+/// `<qc_dir>/report.html`. `Err(code)` after printing what was wrong.
+pub fn write_qc(
+    qc_dir: &Path,
+    p: &Processed,
+    stages: &LineStages,
+    recipe: &gravgrad_ingest::recipe::Recipe,
+) -> Result<Vec<LineQc>, u8> {
+    let settings = settings(recipe);
+    let plan = match &recipe.qc.plan {
+        Some(rel) => {
+            Some(read_plan(&recipe.resolve(rel)).map_err(|problems| bad_input(&problems))?)
+        }
+        None => None,
+    };
+    let qcs = assess_all(p, stages, &settings, plan.as_ref());
+    let csv = lines_csv(stages, &qcs);
+    let html = report_html::render(p, stages, &qcs, &settings);
+    for (name, text) in [("lines.csv", &csv), ("report.html", &html)] {
+        if let Err(e) = write_text(&qc_dir.join(name), text) {
+            eprintln!("error: {e}");
+            return Err(EXIT_FAILURE);
+        }
+    }
+    Ok(qcs)
+}
+
 pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
     let p = match run_cmd::process(&args.recipe, log, None) {
         Ok(p) => p,
@@ -442,31 +469,16 @@ pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
     for n in &stages.notes {
         log.info(n);
     }
-    let settings = settings(recipe);
-    let plan = match &recipe.qc.plan {
-        Some(rel) => match read_plan(&recipe.resolve(rel)) {
-            Ok(pl) => Some(pl),
-            Err(problems) => return bad_input(&problems),
-        },
-        None => None,
+    let dir = run_cmd::output_folder(&p, args.out.as_deref()).join("qc");
+    let qcs = match write_qc(&dir, &p, &stages, recipe) {
+        Ok(q) => q,
+        Err(code) => return code,
     };
-    let qcs = assess_all(&p, &stages, &settings, plan.as_ref());
     log.info(&format!(
         "filter, levelling and QC of {} lines in {:.2} s",
         qcs.len(),
         clock.elapsed().as_secs_f64()
     ));
-    let dir = run_cmd::output_folder(&p, args.out.as_deref()).join("qc");
-    let csv = lines_csv(&stages, &qcs);
-    if let Err(e) = write_text(&dir.join("lines.csv"), &csv) {
-        eprintln!("error: {e}");
-        return EXIT_FAILURE;
-    }
-    let html = report_html::render(&p, &stages, &qcs, &settings);
-    if let Err(e) = write_text(&dir.join("report.html"), &html) {
-        eprintln!("error: {e}");
-        return EXIT_FAILURE;
-    }
     let survey = recipe.survey.name.as_str();
     if json_out {
         println!("{}", json(survey, &stages, &qcs));

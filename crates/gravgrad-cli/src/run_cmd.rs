@@ -10,7 +10,9 @@ use crate::lines_out;
 use crate::logging::Log;
 use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
 use crate::provenance;
+use crate::qc_cmd;
 use crate::report;
+use crate::staging::Staging;
 use crate::tables::write_atomic;
 use crate::terrain_stage::TerrainStage;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
@@ -50,6 +52,23 @@ pub fn bad_input(problems: &[Problem]) -> u8 {
     EXIT_BAD_INPUT
 }
 
+/// Prints every error the check of the recipe and its inputs found, each with its place, on
+/// stderr; returns the exit code for bad input.
+fn input_errors(survey: &Survey) -> u8 {
+    let problems: Vec<Problem> = survey
+        .reports
+        .iter()
+        .flat_map(|r| r.all_problems())
+        .filter(|p| p.is_error())
+        .cloned()
+        .collect();
+    if problems.is_empty() {
+        // Cannot happen with a recipe that failed to load, but say something rather than nothing.
+        print!("{}", report::render(&survey.reports));
+    }
+    bad_input(&problems)
+}
+
 /// The short name of a flight: its file stem, plus the HDF5 group when there is one.
 fn flight_name(loc: &Location) -> String {
     let stem = loc
@@ -73,14 +92,12 @@ pub fn process(
 ) -> Result<Processed, u8> {
     log.info(&format!("reading {}", recipe_path.display()));
     let survey = load_recipe(recipe_path);
-    if survey.has_errors() {
-        print!("{}", report::render(&survey.reports));
-        return Err(EXIT_BAD_INPUT);
-    }
     let (Some(recipe), Some(instrument)) = (&survey.recipe, &survey.instrument) else {
-        print!("{}", report::render(&survey.reports));
-        return Err(EXIT_BAD_INPUT);
+        return Err(input_errors(&survey));
     };
+    if survey.has_errors() {
+        return Err(input_errors(&survey));
+    }
     let frame =
         pipeline::map_frame(recipe, recipe_path, &survey.flights).map_err(|p| bad_input(&[p]))?;
     let mode = calibration_override.unwrap_or(recipe.calibration.mode);
@@ -317,92 +334,19 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         Ok(p) => p,
         Err(code) => return code,
     };
-    let dir = output_folder(&p, args.out.as_deref());
-    let clock = std::time::Instant::now();
-    let mut table = lines_out::build(&p.results);
-    let mut levelled = None;
-    if let Some(recipe) = p.survey.recipe.as_ref() {
-        match line_stages::compute(&p.results, recipe, &args.recipe) {
-            Ok(stages) => {
-                for n in &stages.notes {
-                    log.info(n);
-                }
-                stages.append_to(&mut table);
-                levelled = Some(stages.levelled);
-            }
-            Err(problem) => return bad_input(&[problem]),
-        }
-    }
-    let lines = dir.join("lines.parquet");
-    if let Err(e) = table.write_parquet(&lines, &p.names, p.frame.epsg) {
-        eprintln!("error: {e}");
-        return EXIT_FAILURE;
-    }
-    let recipe = p.survey.recipe.as_ref();
-    if recipe.is_some_and(|r| r.output.lines_csv)
-        && let Err(e) = table.write_csv(&dir.join("lines.csv"))
-    {
-        eprintln!("error: {e}");
-        return EXIT_FAILURE;
-    }
-    let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
-    let gridded =
-        recipe.map(|r| grid_stage::grid_survey(r, &p.results, levelled.as_deref(), p.frame.epsg));
-    let grids = match gridded {
-        Some(Ok(g)) => {
-            if let Err(e) = grid_stage::write(&dir, &g, &p.results, &title) {
-                eprintln!("error: {e}");
-                return EXIT_FAILURE;
-            }
-            log.info(&format!(
-                "grids of the {} tensor written to {}",
-                g.stage,
-                dir.display()
-            ));
-            Some(g)
-        }
-        Some(Err(e)) => {
-            eprintln!("error: {e}");
-            return EXIT_FAILURE;
-        }
-        None => None,
-    };
-    if let Err(e) = write_calibrations(&p, &dir) {
-        eprintln!("error: {e}");
-        return EXIT_FAILURE;
-    }
-    let inputs = input_files(&p);
-    let hashes = match provenance::hashes(
-        &std::iter::once(args.recipe.clone())
-            .chain(inputs.iter().cloned())
-            .collect::<Vec<_>>(),
-    ) {
-        Ok(h) => h,
+    let out = output_folder(&p, args.out.as_deref());
+    let staging = match Staging::begin(&out) {
+        Ok(s) => s,
         Err(e) => {
             eprintln!("error: {e}");
             return EXIT_FAILURE;
         }
     };
-    if let Err(e) = write_archive(
-        &dir,
-        &p,
-        &table,
-        grids.as_ref(),
-        &title,
-        &args.recipe,
-        &hashes,
-    ) {
-        eprintln!("error: {e}");
-        return EXIT_FAILURE;
+    let clock = std::time::Instant::now();
+    if let Err(code) = write_products(args, log, &p, staging.dir()) {
+        return code;
     }
-    if let Err(e) = provenance::write(
-        &dir,
-        &args.recipe,
-        &hashes,
-        &p.names,
-        &p.results,
-        p.frame.epsg,
-    ) {
+    if let Err(e) = staging.commit() {
         eprintln!("error: {e}");
         return EXIT_FAILURE;
     }
@@ -412,9 +356,90 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         clock.elapsed().as_secs_f64()
     ));
     log.info(&format!(
-        "{} flights, {samples} samples; lines written to {}",
+        "{} flights, {samples} samples; products in {}",
         p.results.len(),
-        lines.display()
+        out.display()
     ));
     0
+}
+
+/// Prints an error and gives the failure exit code.
+fn failure(e: impl std::fmt::Display) -> u8 {
+    eprintln!("error: {e}");
+    EXIT_FAILURE
+}
+
+/// Every product of the run into `dir` (the staging folder): lines, QC, grids and maps, calibration
+/// files, the archive, provenance.
+fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Result<(), u8> {
+    let mut table = lines_out::build(&p.results);
+    let mut levelled = None;
+    if let Some(recipe) = p.survey.recipe.as_ref() {
+        let clock = std::time::Instant::now();
+        let stages =
+            line_stages::compute(&p.results, recipe, &args.recipe).map_err(|e| bad_input(&[e]))?;
+        for n in &stages.notes {
+            log.info(n);
+        }
+        let qcs = qc_cmd::write_qc(&dir.join("qc"), p, &stages, recipe)?;
+        let failed = qcs.iter().filter(|q| !q.verdict.pass).count();
+        log.info(&format!(
+            "filter, levelling and QC of {} lines in {:.2} s: {} pass, {failed} fail",
+            qcs.len(),
+            clock.elapsed().as_secs_f64(),
+            qcs.len() - failed
+        ));
+        stages.append_to(&mut table);
+        levelled = Some(stages.levelled);
+    }
+    table
+        .write_parquet(&dir.join("lines.parquet"), &p.names, p.frame.epsg)
+        .map_err(failure)?;
+    let recipe = p.survey.recipe.as_ref();
+    if recipe.is_some_and(|r| r.output.lines_csv) {
+        table.write_csv(&dir.join("lines.csv")).map_err(failure)?;
+    }
+    let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
+    let grids = match recipe {
+        Some(r) => {
+            let clock = std::time::Instant::now();
+            let g = grid_stage::grid_survey(r, &p.results, levelled.as_deref(), p.frame.epsg)
+                .map_err(failure)?;
+            grid_stage::write(dir, &g, &p.results, &title).map_err(failure)?;
+            log.info(&format!(
+                "grids of the {} tensor built and written in {:.2} s",
+                g.stage,
+                clock.elapsed().as_secs_f64()
+            ));
+            Some(g)
+        }
+        None => None,
+    };
+    write_calibrations(p, dir).map_err(failure)?;
+    let inputs = input_files(p);
+    let hashes = provenance::hashes(
+        &std::iter::once(args.recipe.clone())
+            .chain(inputs.iter().cloned())
+            .collect::<Vec<_>>(),
+    )
+    .map_err(failure)?;
+    write_archive(
+        dir,
+        p,
+        &table,
+        grids.as_ref(),
+        &title,
+        &args.recipe,
+        &hashes,
+    )
+    .map_err(failure)?;
+    provenance::write(
+        dir,
+        &args.recipe,
+        &hashes,
+        &p.names,
+        &p.results,
+        p.frame.epsg,
+    )
+    .map_err(failure)
 }
