@@ -45,7 +45,9 @@ fn scenario(text: &str) -> Scenario {
 }
 
 fn col<'a>(s: &'a Simulation, name: &str) -> &'a [f64] {
-    s.column(name).unwrap_or_else(|| panic!("no column {name}"))
+    s.flights[0]
+        .column(name)
+        .unwrap_or_else(|| panic!("no column {name}"))
 }
 
 /// Rz(ψ)·Ry(θ)·Rx(φ) written out independently of gravgrad-core (docs/physics.md).
@@ -203,7 +205,7 @@ fn error_free_outputs_invert_to_the_truth_tensor() {
 fn same_seed_same_numbers_other_seed_other_noise() {
     let a = simulate(&scenario(SMALL)).unwrap();
     let b = simulate(&scenario(SMALL)).unwrap();
-    for ((na, va), (nb, vb)) in a.columns.iter().zip(&b.columns) {
+    for ((na, va), (nb, vb)) in a.flights[0].columns.iter().zip(&b.flights[0].columns) {
         assert_eq!(na, nb);
         assert!(
             va.iter().zip(vb).all(|(x, y)| x.to_bits() == y.to_bits()),
