@@ -1,5 +1,6 @@
 //! End-to-end tests: run the real `gravgrad` binary on files and read what it prints and returns.
 
+mod batch;
 mod commands;
 mod corpus;
 mod qc;
