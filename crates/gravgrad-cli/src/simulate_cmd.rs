@@ -181,11 +181,7 @@ fn write_all(
         .map(|k| (0..n).map(|i| t.total(i).to_array()[k] / EOTVOS).collect())
         .collect();
     // The flights' clocks, in flying order: the samples of the truth.
-    let time: Vec<f64> = sim
-        .flights
-        .iter()
-        .flat_map(|f| f.column("time").unwrap_or(&[]).iter().copied())
-        .collect();
+    let time: Vec<f64> = sim.survey_column("time").unwrap_or_default();
     let mut tc: Vec<(&str, Column<'_>)> = vec![
         ("time", Column::F64(&time)),
         ("line", Column::I64(&sim.line)),

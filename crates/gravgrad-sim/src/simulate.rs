@@ -147,6 +147,18 @@ pub struct FlightLog {
     pub pair_errors: Vec<PairErrors>,
 }
 
+impl Simulation {
+    /// A channel of every flight's log end to end: one value per path sample, as `truth` and
+    /// `line` are; `None` when a flight lacks it.
+    pub fn survey_column(&self, name: &str) -> Option<Vec<f64>> {
+        let mut out = Vec::with_capacity(self.line.len());
+        for f in &self.flights {
+            out.extend_from_slice(f.column(name)?);
+        }
+        Some(out)
+    }
+}
+
 impl FlightLog {
     pub fn column(&self, name: &str) -> Option<&[f64]> {
         self.columns
