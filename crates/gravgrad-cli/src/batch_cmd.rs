@@ -20,7 +20,8 @@ pub struct BatchArgs {
     /// Processing recipes (layout `recipe/1`, TOML); each writes to its own `output.folder`.
     #[arg(value_name = "RECIPES", required = true)]
     pub recipes: Vec<PathBuf>,
-    /// Units run at the same time (default 1); the threads are shared out among them.
+    /// Units run at the same time; the threads (`--threads`, default all cores) are shared out among
+    /// them.
     #[arg(long, value_name = "N", default_value_t = 1)]
     pub jobs: usize,
     /// Run recipes again even when their output folder holds a finished run of the same recipe.
