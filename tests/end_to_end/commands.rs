@@ -68,8 +68,12 @@ fn the_demo_runs_end_to_end_and_scores_itself() {
         String::from_utf8_lossy(&out.stderr)
     );
     let text = String::from_utf8_lossy(&out.stdout);
+    // Two flights.
     assert!(text.contains("kestrand-flats-demo-f01.parquet"), "{text}");
-    assert!(text.contains("lines        5"), "{text}");
+    assert!(text.contains("kestrand-flats-demo-f02.parquet"), "{text}");
+    // Lines 101 and 102 in the first flight; 103, 104 and the tie 9001 in the second.
+    assert!(text.contains("lines        2"), "{text}");
+    assert!(text.contains("lines        3"), "{text}");
     assert!(products.join("lines.parquet").is_file());
     assert!(
         text.contains("terrain_removed against truth geology"),
@@ -80,7 +84,8 @@ fn the_demo_runs_end_to_end_and_scores_itself() {
         serde_json::from_str(&std::fs::read_to_string(products.join("provenance.json")).unwrap())
             .unwrap();
     let inputs = prov["inputs"].as_array().unwrap();
-    assert_eq!(inputs.len(), 4, "{inputs:?}");
+    // Recipe, instrument, DEM and the two flights.
+    assert_eq!(inputs.len(), 5, "{inputs:?}");
     for i in inputs {
         let path = i["path"].as_str().unwrap();
         let o = std::process::Command::new("sha256sum")
@@ -94,6 +99,7 @@ fn the_demo_runs_end_to_end_and_scores_itself() {
             "{path}"
         );
     }
+    assert_eq!(prov["flights"].as_array().unwrap().len(), 2);
     assert_eq!(
         prov["flights"][0]["calibration"].as_array().unwrap().len(),
         9

@@ -1,5 +1,6 @@
 //! End-to-end tests: run the real `gravgrad` binary on files and read what it prints and returns.
 
+mod batch;
 mod commands;
 mod corpus;
 mod interrupt;
@@ -54,18 +55,19 @@ pub fn simulate_survey(dir: &std::path::Path, scenario: &str, recipe_extra: &str
     std::fs::write(&recipe, text).unwrap();
 }
 
-/// A copy of the demo survey (recipe, instrument, DEM, Parquet flight) in `dir/survey`; its path.
+/// A copy of the demo survey (recipe, instrument, DEM, Parquet flights) in `dir/survey`; its path.
 pub fn copy_demo(dir: &std::path::Path) -> PathBuf {
     let demo = root().join("data/demo");
     let survey = dir.join("survey");
     std::fs::create_dir_all(survey.join("flights")).unwrap();
-    for f in [
-        "instrument.toml",
-        "recipe.toml",
-        "dem.tif",
-        "flights/kestrand-flats-demo-f01.parquet",
-    ] {
+    for f in ["instrument.toml", "recipe.toml", "dem.tif"] {
         std::fs::copy(demo.join(f), survey.join(f)).unwrap();
+    }
+    for e in std::fs::read_dir(demo.join("flights")).unwrap() {
+        let p = e.unwrap().path();
+        if p.extension().is_some_and(|x| x == "parquet") {
+            std::fs::copy(&p, survey.join("flights").join(p.file_name().unwrap())).unwrap();
+        }
     }
     survey
 }

@@ -35,7 +35,7 @@ temperature_coefficient_rms_m_s2_c = 2e-9
 "#;
 
 fn col<'a>(s: &'a Simulation, n: &str) -> &'a [f64] {
-    s.column(n).unwrap()
+    s.flights[0].column(n).unwrap()
 }
 
 #[test]
@@ -55,7 +55,7 @@ fn coupling_drift_and_temperature_are_recovered_within_three_standard_errors() {
     let usable: Vec<bool> = sim.line.iter().map(|l| *l > 0).collect();
     let mut worst = 0.0f64;
     let mut kappa_se = Vec::new();
-    for (p, truth) in sim.pairs.iter().zip(&sim.pair_errors) {
+    for (p, truth) in sim.pairs.iter().zip(&sim.flights[0].pair_errors) {
         let d: Vec<f64> = col(&sim, &format!("{}_a", p.id))
             .iter()
             .zip(col(&sim, &format!("{}_b", p.id)))
@@ -198,7 +198,7 @@ fn joint_fit_recovers_every_pair_within_three_standard_errors() {
     };
     let cals = estimate_flight(&data, &settings, None);
     let mut worst = 0.0f64;
-    for ((p, truth), c) in sim.pairs.iter().zip(&sim.pair_errors).zip(&cals) {
+    for ((p, truth), c) in sim.pairs.iter().zip(&sim.flights[0].pair_errors).zip(&cals) {
         let z: Vec<f64> = (0..3)
             .map(|k| (c.kappa[k].value - truth.kappa[k]) / c.kappa[k].std_error)
             .collect();

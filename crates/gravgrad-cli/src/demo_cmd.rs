@@ -42,6 +42,7 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
         &RunArgs {
             recipe,
             out: Some(out.clone()),
+            flight: None,
         },
         log,
     );

@@ -2,9 +2,13 @@
 //! print, and map outcomes to exit codes (0 success, 1 processing failure, 2 bad input or usage).
 
 mod archive;
+mod batch_cmd;
+mod batch_plan;
 mod calibrate_cmd;
 mod check_cmd;
 mod demo_cmd;
+mod flight_store;
+mod flight_units;
 mod grid_stage;
 mod line_stages;
 mod lines_out;
@@ -17,6 +21,7 @@ mod report_html;
 mod run_cmd;
 mod score_cmd;
 mod simulate_cmd;
+mod slurm;
 mod staging;
 mod tables;
 mod terrain_cmd;
@@ -55,6 +60,10 @@ enum Command {
     /// Process a survey from its recipe: calibration, rotation removal, normal and terrain
     /// reduction, into the recipe's output folder.
     Run(run_cmd::RunArgs),
+    /// Many surveys or flights at once: each flight and each survey's merge as its own process, at
+    /// most --jobs at a time, finished surveys skipped, one log per unit and a summary; or, with
+    /// --emit slurm, a job script that runs them on a Slurm cluster.
+    Batch(batch_cmd::BatchArgs),
     /// Per-line QC of a survey from its recipe: a verdict per line against the recipe's `[qc]`
     /// tolerances, written to qc/lines.csv and the self-contained qc/report.html.
     Qc(qc_cmd::QcArgs),
@@ -106,6 +115,7 @@ fn main() -> ExitCode {
         Command::Demo { data, out } => demo_cmd::run(data, out, &log, cli.json),
         Command::Simulate(args) => simulate_cmd::run(&args, &log),
         Command::Run(args) => run_cmd::run(&args, &log),
+        Command::Batch(args) => batch_cmd::run(&args, cli.threads, &log),
         Command::Qc(args) => qc_cmd::run(&args, &log, cli.json),
         Command::Calibrate(args) => calibrate_cmd::run(&args, &log),
         Command::Terrain(args) => terrain_cmd::run(&args, &log),

@@ -4,6 +4,7 @@
 //! with the calibration of every flight.
 
 use crate::archive;
+use crate::flight_units::{self, Store, Units};
 use crate::grid_stage;
 use crate::line_stages;
 use crate::lines_out;
@@ -34,6 +35,11 @@ pub struct RunArgs {
     /// Output folder (default: the recipe's `output.folder`, relative to the recipe).
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
+    /// Run only the per-flight stages (calibration, rotation, normal and terrain) of this flight
+    /// and store the result as `<out>/flights/<NAME>.h5`, for a later plain run to reuse. NAME: the
+    /// flight's name as the log shows it, or its file name without extension.
+    #[arg(long, value_name = "NAME")]
+    pub flight: Option<String>,
 }
 
 /// A processed survey: what every flight gave, and where.
@@ -90,6 +96,16 @@ pub fn process(
     log: &Log,
     calibration_override: Option<CalibrationMode>,
 ) -> Result<Processed, u8> {
+    process_units(recipe_path, log, calibration_override, Units::Compute)
+}
+
+/// [`process`], taking stored flights or storing them as `units` says.
+pub fn process_units(
+    recipe_path: &Path,
+    log: &Log,
+    calibration_override: Option<CalibrationMode>,
+    units: Units<'_>,
+) -> Result<Processed, u8> {
     log.info(&format!("reading {}", recipe_path.display()));
     let survey = load_recipe(recipe_path);
     let (Some(recipe), Some(instrument)) = (&survey.recipe, &survey.instrument) else {
@@ -130,11 +146,39 @@ pub fn process(
         }
         None => None,
     };
+    let store = match units {
+        Units::Compute => None,
+        Units::Reuse { out } | Units::Only { out, .. } => Some(
+            Store::new(recipe_path, recipe, &survey, frame.epsg, mode, out).map_err(|e| {
+                eprintln!("error: {e}");
+                EXIT_FAILURE
+            })?,
+        ),
+    };
     let mut results = Vec::new();
     let mut names = Vec::new();
     let total = survey.flights.len();
     for (k, flight) in survey.flights.iter().enumerate() {
         let name = flight_name(&flight.flight.source);
+        if let Units::Only { name: only, .. } = units
+            && !flight_units::selects(only, &name, &flight.flight.source)
+        {
+            continue;
+        }
+        let key = match &store {
+            Some(s) => Some(s.key(&name, &flight.flight.source).map_err(|e| {
+                eprintln!("error: {e}");
+                EXIT_FAILURE
+            })?),
+            None => None,
+        };
+        if let (Units::Reuse { .. }, Some(s), Some(key)) = (units, &store, &key)
+            && let Some(r) = s.reuse(&name, key, log)
+        {
+            results.push(r);
+            names.push(name);
+            continue;
+        }
         log.progress(k, total, &format!("processing {name}"));
         let source = match (&mode, &file) {
             (CalibrationMode::File, Some(f)) => CalibrationSource::File(f),
@@ -176,6 +220,13 @@ pub fn process(
                 .collect::<Vec<_>>()
                 .join(", ")
         ));
+        if let (Units::Only { .. }, Some(s), Some(key)) = (units, &store, &key) {
+            let path = s.keep(&name, key, &r).map_err(|e| {
+                eprintln!("error: {e}");
+                EXIT_FAILURE
+            })?;
+            log.info(&format!("{name}: stored as {}", path.display()));
+        }
         results.push(r);
         names.push(name);
     }
@@ -330,7 +381,13 @@ fn write_archive(
 }
 
 pub fn run(args: &RunArgs, log: &Log) -> u8 {
-    let p = match process(&args.recipe, log, None) {
+    if let Some(name) = &args.flight {
+        return flight_units::run_one(&args.recipe, args.out.as_deref(), name, log);
+    }
+    let reuse = Units::Reuse {
+        out: args.out.as_deref(),
+    };
+    let p = match process_units(&args.recipe, log, None, reuse) {
         Ok(p) => p,
         Err(code) => return code,
     };

@@ -93,23 +93,29 @@ fn write_all(
     log: &Log,
 ) -> Result<(), String> {
     let name = slug(&s.name);
-    // Raw flight log: layout columns plus `line`.
-    let mut cols: Vec<(&str, Column<'_>)> = sim
-        .columns
-        .iter()
-        .map(|(n, v)| (n.as_str(), Column::F64(v)))
-        .collect();
-    cols.push(("line", Column::I64(&sim.line)));
+    // Raw flight logs, one per flight: layout columns plus `line`.
     let flights = out.join("flights");
-    write_parquet(&flights.join(format!("{name}-f01.parquet")), &cols)
+    for (k, log_k) in sim.flights.iter().enumerate() {
+        let mut cols: Vec<(&str, Column<'_>)> = log_k
+            .columns
+            .iter()
+            .map(|(n, v)| (n.as_str(), Column::F64(v)))
+            .collect();
+        cols.push(("line", Column::I64(&log_k.line)));
+        let stem = format!("{name}-f{:02}", k + 1);
+        write_parquet(&flights.join(format!("{stem}.parquet")), &cols)
+            .map_err(|e| e.to_string())?;
+        write_csv(
+            &flights.join(format!("{stem}.csv")),
+            "layout: raw-flight/1 (simulated)",
+            &cols,
+        )
         .map_err(|e| e.to_string())?;
-    write_csv(
-        &flights.join(format!("{name}-f01.csv")),
-        "layout: raw-flight/1 (simulated)",
-        &cols,
-    )
-    .map_err(|e| e.to_string())?;
-    log.info("raw flight log written (Parquet and CSV)");
+    }
+    log.info(&format!(
+        "{} raw flight log(s) written (Parquet and CSV)",
+        sim.flights.len()
+    ));
 
     // Instrument file.
     let mut inst = format!(
@@ -174,9 +180,10 @@ fn write_all(
     let total: Vec<Vec<f64>> = (0..6)
         .map(|k| (0..n).map(|i| t.total(i).to_array()[k] / EOTVOS).collect())
         .collect();
-    let time = sim.column("time").unwrap_or(&[]);
+    // The flights' clocks, in flying order: the samples of the truth.
+    let time: Vec<f64> = sim.survey_column("time").unwrap_or_default();
     let mut tc: Vec<(&str, Column<'_>)> = vec![
-        ("time", Column::F64(time)),
+        ("time", Column::F64(&time)),
         ("line", Column::I64(&sim.line)),
         ("easting", Column::F64(&e_abs)),
         ("northing", Column::F64(&n_abs)),

@@ -36,7 +36,7 @@ fn sim(pairs: &[&str]) -> Simulation {
 }
 
 fn col<'a>(s: &'a Simulation, n: &str) -> &'a [f64] {
-    s.column(n).unwrap()
+    s.flights[0].column(n).unwrap()
 }
 
 fn inputs(s: &Simulation) -> Inputs<'_> {

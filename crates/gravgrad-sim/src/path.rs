@@ -29,6 +29,25 @@ pub struct Track {
     pub drape: Vec<f64>,
 }
 
+impl Track {
+    /// The samples `range`, their times shifted by `dt_s`.
+    pub fn slice(&self, range: std::ops::Range<usize>, dt_s: f64) -> Track {
+        let r = range;
+        Track {
+            time_s: self.time_s[r.clone()].iter().map(|t| t + dt_s).collect(),
+            north: self.north[r.clone()].to_vec(),
+            east: self.east[r.clone()].to_vec(),
+            height: self.height[r.clone()].to_vec(),
+            track_deg: self.track_deg[r.clone()].to_vec(),
+            track_rate: self.track_rate[r.clone()].to_vec(),
+            accel: self.accel[r.clone()].to_vec(),
+            velocity: self.velocity[r.clone()].to_vec(),
+            line: self.line[r.clone()].to_vec(),
+            drape: self.drape[r].to_vec(),
+        }
+    }
+}
+
 /// One straight leg of the plan.
 #[derive(Clone, Debug)]
 pub struct Leg {

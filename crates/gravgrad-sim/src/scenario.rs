@@ -176,6 +176,12 @@ pub struct Plan {
     pub sample_rate_hz: f64,
     /// Rate of the turns between lines, °/s.
     pub turn_rate_deg_s: f64,
+    /// Flights the survey is flown in: the lines split in flying order, the ties in the last
+    /// flight (`flights.rs`); each flight its own log, errors and time base.
+    pub flights: usize,
+    /// Time from one flight's first sample to the same point had it been flown on without landing:
+    /// the ground time between flights added to each later flight's clock, s.
+    pub flight_gap_s: f64,
 }
 
 impl Default for Plan {
@@ -192,6 +198,8 @@ impl Default for Plan {
             speed_m_s: 60.0,
             sample_rate_hz: 20.0,
             turn_rate_deg_s: 3.0,
+            flights: 1,
+            flight_gap_s: 7200.0,
         }
     }
 }

@@ -5,6 +5,7 @@
 //! Frames: the truth is in NED (local north/east metres, heights above the ellipsoid), the instrument
 //! in the sensor frame; accelerations m/s², rates rad/s, tensors s⁻², angles in the log in degrees.
 
+use crate::flights;
 use crate::noise::{self, Rng};
 use crate::path::{self, Track};
 use crate::scenario::{LAYOUT, Scenario};
@@ -20,6 +21,7 @@ use gravgrad_forward::normal::NormalField;
 use gravgrad_forward::point;
 use gravgrad_forward::prism::Prism;
 use rayon::prelude::*;
+use std::ops::Range;
 
 /// A scenario that cannot be simulated.
 #[derive(Debug, thiserror::Error, PartialEq)]
@@ -114,8 +116,10 @@ impl Projection {
 /// Everything a simulation produces.
 #[derive(Clone, Debug)]
 pub struct Simulation {
-    /// Raw-log channels in layout order and units (`docs/formats.md`).
-    pub columns: Vec<(String, Vec<f64>)>,
+    /// The raw log of each flight, in flying order (`plan.flights` of them).
+    pub flights: Vec<FlightLog>,
+    /// Line number of every path sample, all flights in flying order (0 in transits); the samples
+    /// of `truth` and `track`.
     pub line: Vec<i64>,
     pub pairs: Vec<PairGeometry>,
     pub sample_rate_hz: f64,
@@ -125,11 +129,43 @@ pub struct Simulation {
     pub reference_level_m: f64,
     pub track: Track,
     pub projection: Projection,
-    /// The injected errors of each pair's difference a − b, in the order of `pairs`.
-    pub pair_errors: Vec<PairErrors>,
     /// The injected offset of each line (NED, s⁻²), in flying order; empty without
     /// `instrument.line_offset_e_rms`.
     pub line_offsets: Vec<(i64, SymTensor)>,
+}
+
+/// The raw log of one flight.
+#[derive(Clone, Debug)]
+pub struct FlightLog {
+    /// Raw-log channels in layout order and units (`docs/formats.md`).
+    pub columns: Vec<(String, Vec<f64>)>,
+    /// Line number per sample; 0 in transits.
+    pub line: Vec<i64>,
+    /// Index of the flight's first sample in the survey's path (`Simulation::truth`, `track`).
+    pub first_sample: usize,
+    /// The injected errors of each pair's difference a − b in this flight, in the order of `pairs`.
+    pub pair_errors: Vec<PairErrors>,
+}
+
+impl Simulation {
+    /// A channel of every flight's log end to end: one value per path sample, as `truth` and
+    /// `line` are; `None` when a flight lacks it.
+    pub fn survey_column(&self, name: &str) -> Option<Vec<f64>> {
+        let mut out = Vec::with_capacity(self.line.len());
+        for f in &self.flights {
+            out.extend_from_slice(f.column(name)?);
+        }
+        Some(out)
+    }
+}
+
+impl FlightLog {
+    pub fn column(&self, name: &str) -> Option<&[f64]> {
+        self.columns
+            .iter()
+            .find(|c| c.0 == name)
+            .map(|c| c.1.as_slice())
+    }
 }
 
 /// The injected errors of one pair's difference d = a − b, to first order:
@@ -144,15 +180,6 @@ pub struct PairErrors {
     pub drift: f64,
     /// Δτ, m/s² per °C.
     pub tempco: f64,
-}
-
-impl Simulation {
-    pub fn column(&self, name: &str) -> Option<&[f64]> {
-        self.columns
-            .iter()
-            .find(|c| c.0 == name)
-            .map(|c| c.1.as_slice())
-    }
 }
 
 /// The scenario's UTM projection (the zone of its origin, southern when the origin is) and the grid
@@ -249,6 +276,20 @@ fn validate(s: &Scenario) -> Result<(), SimError> {
             });
         }
     }
+    if s.plan.flights == 0 || s.plan.flights > s.plan.lines.max(1) {
+        return Err(SimError::Value {
+            key: "plan.flights",
+            value: s.plan.flights as f64,
+            what: "expected between 1 and the number of survey lines",
+        });
+    }
+    if !(s.plan.flight_gap_s.is_finite() && s.plan.flight_gap_s >= 0.0) {
+        return Err(SimError::Value {
+            key: "plan.flight_gap_s",
+            value: s.plan.flight_gap_s,
+            what: "expected a time of zero or more",
+        });
+    }
     if s.plan.lines == 0 {
         return Err(SimError::Value {
             key: "plan.lines",
@@ -300,9 +341,6 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
     let lon: Vec<f64> = geo.iter().map(|g| g.1).collect();
     let gamma: Vec<f64> = geo.iter().map(|g| g.2).collect();
     let to_true = |t: SymTensor, g: f64| t.rotated(&rz(g));
-    let e2 = GRS80.e2();
-    let r_n = |la: f64| GRS80.a / (1.0 - e2 * la.sin().powi(2)).sqrt();
-    let r_m = |la: f64| GRS80.a * (1.0 - e2) / (1.0 - e2 * la.sin().powi(2)).powf(1.5);
 
     let points: Vec<[f64; 3]> = (0..n)
         .map(|i| [track.north[i], track.east[i], track.height[i]])
@@ -327,8 +365,124 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         .map(|i| nf.gravity_ned(lat[i], track.height[i]))
         .collect();
 
+    let ie = &s.instrument;
+    let pairs: Vec<PairGeometry> = ie
+        .pairs
+        .iter()
+        .filter_map(|id| standard_pair(id, ie.baseline_m))
+        .collect();
+    let line_offsets = draw_line_offsets(&track.line, s.instrument.line_offset_e_rms, seed);
+
+    let truth = Truth {
+        north: track.north.clone(),
+        east: track.east.clone(),
+        height: track.height.clone(),
+        geology: geology_t,
+        terrain: terrain_t,
+        normal: normal_t,
+    };
+
+    // The flights: the path cut in the transits between legs, each flight its own log.
+    let ranges = flights::ranges(&track.line, &flights::leg_groups(&s.plan));
+    let part = SurveyPart {
+        s,
+        track: &track,
+        lat: &lat,
+        lon: &lon,
+        gamma: &gamma,
+        gravity_n: &gravity_n,
+        truth: &truth,
+        pairs: &pairs,
+        line_offsets: &line_offsets,
+        surface: &surface,
+    };
+    let logs: Vec<FlightLog> = ranges
+        .iter()
+        .enumerate()
+        .map(|(k, r)| flight_log(&part, k, r.clone()))
+        .collect();
+
+    // Geology truth on a grid at the mean survey height over the surveyed area.
+    let mean_h = track.height.iter().sum::<f64>() / n.max(1) as f64;
+    let cell = s.plan.line_spacing_m / 2.0;
+    let gn: Vec<f64> = (0..=((nmax - nmin) / cell).ceil() as usize)
+        .map(|k| nmin + k as f64 * cell)
+        .collect();
+    let ge: Vec<f64> = (0..=((emax - emin) / cell).ceil() as usize)
+        .map(|k| emin + k as f64 * cell)
+        .collect();
+    let values: Vec<SymTensor> = (0..gn.len() * ge.len())
+        .into_par_iter()
+        .map(|k| geology_tensor(s, [gn[k / ge.len()], ge[k % ge.len()], -mean_h]))
+        .collect();
+    let grid = TruthGrid {
+        height_m: mean_h,
+        north: gn,
+        east: ge,
+        values,
+    };
+
+    Ok(Simulation {
+        flights: logs,
+        line: track.line.clone(),
+        pairs,
+        sample_rate_hz: rate,
+        truth,
+        grid,
+        dem,
+        reference_level_m: reference,
+        track,
+        projection: Projection {
+            zone: TransverseMercator::utm_zone_of(s.area.origin_lon_deg),
+            south: s.area.origin_lat_deg < 0.0,
+            false_origin: [e0, n0],
+        },
+        line_offsets,
+    })
+}
+
+/// What the per-flight part of the simulation reads from the survey-wide part: the path, its
+/// geodetic positions and convergence, the normal gravity, the truth, the pairs and line offsets.
+struct SurveyPart<'a> {
+    s: &'a Scenario,
+    track: &'a Track,
+    lat: &'a [f64],
+    lon: &'a [f64],
+    gamma: &'a [f64],
+    gravity_n: &'a [[f64; 3]],
+    truth: &'a Truth,
+    pairs: &'a [PairGeometry],
+    line_offsets: &'a [(i64, SymTensor)],
+    surface: &'a Surface,
+}
+
+/// The log of flight `flight` (0-based), the path samples `range`: platform motion, turbulence,
+/// instrument and navigation errors drawn afresh for the flight (its own random streams, its own
+/// biases, drifts and temperature), time shifted by the ground time between flights.
+fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> FlightLog {
+    let s = part.s;
+    let seed = s.seed;
+    let rate = s.plan.sample_rate_hz;
+    let first_sample = range.start;
+    let track = &part
+        .track
+        .slice(range.clone(), flight as f64 * s.plan.flight_gap_s);
+    let n = track.time_s.len();
+    let (lat, lon, gamma) = (
+        &part.lat[range.clone()],
+        &part.lon[range.clone()],
+        &part.gamma[range.clone()],
+    );
+    let gravity_n = &part.gravity_n[range.clone()];
+    let total: Vec<SymTensor> = range.map(|i| part.truth.total(i)).collect();
+    let (pairs, line_offsets, surface) = (part.pairs, part.line_offsets, part.surface);
+    // Flight 0 draws from the streams a single-flight survey always used.
+    let stream = |x: u64| x + flights::STREAMS_PER_FLIGHT * flight as u64;
+    let e2 = GRS80.e2();
+    let r_n = |la: f64| GRS80.a / (1.0 - e2 * la.sin().powi(2)).sqrt();
+    let r_m = |la: f64| GRS80.a * (1.0 - e2) / (1.0 - e2 * la.sin().powi(2)).powf(1.5);
     // Residual platform rotation: sinusoids in the platform band, analytic rate and acceleration.
-    let mut rng = Rng::new(seed, 1);
+    let mut rng = Rng::new(seed, stream(1));
     let [f_lo, f_hi] = s.dynamics.platform_band_hz;
     let waves: Vec<(Vec3, f64, f64)> = (0..8)
         .map(|_| {
@@ -348,13 +502,19 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
             } else {
                 s.dynamics.turbulence_m_s2 / 3.0
             };
-            noise::gauss_markov(&mut Rng::new(seed, 10 + k), n, sigma, tau, rate)
+            noise::gauss_markov(&mut Rng::new(seed, stream(10 + k)), n, sigma, tau, rate)
         })
         .collect();
     let mut turb = turb;
     if let Some(b) = s.badly_flown.as_ref().filter(|b| b.turbulence_m_s2 > 0.0) {
         // Its own stream, so every other series is as without the bad line.
-        let extra = noise::gauss_markov(&mut Rng::new(seed, 40), n, b.turbulence_m_s2, tau, rate);
+        let extra = noise::gauss_markov(
+            &mut Rng::new(seed, stream(40)),
+            n,
+            b.turbulence_m_s2,
+            tau,
+            rate,
+        );
         for i in 0..n {
             if track.line[i] == b.line {
                 turb[2][i] += extra[i];
@@ -413,13 +573,9 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
 
     // Instrument errors, per accelerometer.
     let ie = &s.instrument;
-    let pairs: Vec<PairGeometry> = ie
-        .pairs
-        .iter()
-        .filter_map(|id| standard_pair(id, ie.baseline_m))
-        .collect();
+
     let white_density = ie.noise_e_rt_hz * EOTVOS * ie.baseline_m / std::f64::consts::SQRT_2;
-    let temp_rng = &mut Rng::new(seed, 20);
+    let temp_rng = &mut Rng::new(seed, stream(20));
     let temperature: Vec<f64> = {
         let slow = noise::gauss_markov(temp_rng, n, ie.temperature_swing_c, 600.0, rate);
         slow.iter().map(|v| 31.0 + v).collect()
@@ -439,7 +595,7 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         .enumerate()
         .map(|(k, p)| {
             std::array::from_fn(|j| {
-                let mut r = Rng::new(seed, 100 + 2 * k as u64 + j as u64);
+                let mut r = Rng::new(seed, stream(100 + 2 * k as u64 + j as u64));
                 // Misalignment perpendicular to the axis.
                 let any = if p.axis[0].abs() < 0.9 {
                     [1.0, 0.0, 0.0]
@@ -489,7 +645,7 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
 
     // Self-gradient: a fixed trace-free pattern scaled by the aircraft's attitude relative to the
     // platform (bank in turns, gusts on lines).
-    let mut sg_rng = Rng::new(seed, 30);
+    let mut sg_rng = Rng::new(seed, stream(30));
     let pattern = |r: &mut Rng| -> SymTensor {
         let mut t = SymTensor::from_array(std::array::from_fn(|_| r.normal()));
         let tr = t.trace() / 3.0;
@@ -504,14 +660,14 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
     const ROLL_GUST: f64 = 1.5;
     const PITCH_GUST: f64 = 0.5;
     let gust = noise::gauss_markov(
-        &mut Rng::new(seed, 31),
+        &mut Rng::new(seed, stream(31)),
         n,
         ROLL_GUST.to_radians(),
         3.0,
         rate,
     );
     let gust_pitch = noise::gauss_markov(
-        &mut Rng::new(seed, 32),
+        &mut Rng::new(seed, stream(32)),
         n,
         PITCH_GUST.to_radians(),
         3.0,
@@ -521,17 +677,6 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         .map(|i| (track.track_rate[i] * s.plan.speed_m_s / 9.81).atan() + gust[i])
         .collect();
     let ac_pitch: Vec<f64> = (0..n).map(|i| 2f64.to_radians() + gust_pitch[i]).collect();
-
-    let line_offsets = draw_line_offsets(&track.line, s.instrument.line_offset_e_rms, seed);
-
-    let truth = Truth {
-        north: track.north.clone(),
-        east: track.east.clone(),
-        height: track.height.clone(),
-        geology: geology_t,
-        terrain: terrain_t,
-        normal: normal_t,
-    };
 
     // Pair outputs.
     let mut pair_cols: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 2 * pairs.len()];
@@ -552,7 +697,7 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         ];
         let f_s = mat3::mul_vec(&ct, &f_n);
         fs_all.push(f_s);
-        let mut g_s = truth.total(i).rotated(&ct);
+        let mut g_s = total[i].rotated(&ct);
         if ie.self_gradient_e != 0.0 {
             // The amplitude is the contribution of one gust-RMS of relative roll (or pitch) per unit
             // pattern component: G_self = A·(Δφ/σφ)·P_roll + A·(Δθ/σθ)·P_pitch.
@@ -599,7 +744,7 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
     }
 
     // Logged navigation with its errors.
-    let nav_rng = |stream: u64| Rng::new(seed, 200 + stream);
+    let nav_rng = |channel: u64| Rng::new(seed, stream(200 + channel));
     let pos_noise =
         |r: &mut Rng, sd: f64| -> Vec<f64> { (0..n).map(|_| sd * r.normal()).collect() };
     let (dn, de, dh) = (
@@ -706,44 +851,12 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         ));
     }
 
-    // Geology truth on a grid at the mean survey height over the surveyed area.
-    let mean_h = track.height.iter().sum::<f64>() / n.max(1) as f64;
-    let cell = s.plan.line_spacing_m / 2.0;
-    let gn: Vec<f64> = (0..=((nmax - nmin) / cell).ceil() as usize)
-        .map(|k| nmin + k as f64 * cell)
-        .collect();
-    let ge: Vec<f64> = (0..=((emax - emin) / cell).ceil() as usize)
-        .map(|k| emin + k as f64 * cell)
-        .collect();
-    let values: Vec<SymTensor> = (0..gn.len() * ge.len())
-        .into_par_iter()
-        .map(|k| geology_tensor(s, [gn[k / ge.len()], ge[k % ge.len()], -mean_h]))
-        .collect();
-    let grid = TruthGrid {
-        height_m: mean_h,
-        north: gn,
-        east: ge,
-        values,
-    };
-
-    Ok(Simulation {
+    FlightLog {
         columns,
         line: track.line.clone(),
-        pairs,
-        sample_rate_hz: rate,
-        truth,
-        grid,
-        dem,
-        reference_level_m: reference,
-        track,
-        projection: Projection {
-            zone: TransverseMercator::utm_zone_of(s.area.origin_lon_deg),
-            south: s.area.origin_lat_deg < 0.0,
-            false_origin: [e0, n0],
-        },
+        first_sample,
         pair_errors,
-        line_offsets,
-    })
+    }
 }
 
 /// Raises the flown height of line `line` by `offset_m` above the drape plan, eased in and out with

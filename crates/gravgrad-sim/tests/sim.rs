@@ -45,7 +45,9 @@ fn scenario(text: &str) -> Scenario {
 }
 
 fn col<'a>(s: &'a Simulation, name: &str) -> &'a [f64] {
-    s.column(name).unwrap_or_else(|| panic!("no column {name}"))
+    s.flights[0]
+        .column(name)
+        .unwrap_or_else(|| panic!("no column {name}"))
 }
 
 /// Rz(ψ)·Ry(θ)·Rx(φ) written out independently of gravgrad-core (docs/physics.md).
@@ -203,7 +205,7 @@ fn error_free_outputs_invert_to_the_truth_tensor() {
 fn same_seed_same_numbers_other_seed_other_noise() {
     let a = simulate(&scenario(SMALL)).unwrap();
     let b = simulate(&scenario(SMALL)).unwrap();
-    for ((na, va), (nb, vb)) in a.columns.iter().zip(&b.columns) {
+    for ((na, va), (nb, vb)) in a.flights[0].columns.iter().zip(&b.flights[0].columns) {
         assert_eq!(na, nb);
         assert!(
             va.iter().zip(vb).all(|(x, y)| x.to_bits() == y.to_bits()),
@@ -265,13 +267,17 @@ fn demo_statistics_are_realistic_and_as_configured() {
         let m = mean(v);
         (v.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / v.len() as f64).sqrt()
     };
-    let fz: Vec<f64> = on.iter().map(|&i| col(&sim, "fz")[i]).collect();
+    // The demo is flown in two flights: channels end to end index like the path.
+    assert_eq!(sim.flights.len(), 2);
+    let all = |sim: &Simulation, name: &str| sim.survey_column(name).unwrap();
+    let (fz_all, clear_all) = (all(&sim, "fz"), all(&sim, "clearance"));
+    let fz: Vec<f64> = on.iter().map(|&i| fz_all[i]).collect();
     let turb = std(&fz);
     assert!(
         (0.05..1.5).contains(&turb) && (turb / s.dynamics.turbulence_m_s2 - 1.0).abs() < 0.25,
         "vertical acceleration RMS {turb}"
     );
-    let clear: Vec<f64> = on.iter().map(|&i| col(&sim, "clearance")[i]).collect();
+    let clear: Vec<f64> = on.iter().map(|&i| clear_all[i]).collect();
     assert!(
         (mean(&clear) - s.plan.clearance_m).abs() < 15.0,
         "mean clearance {}",
@@ -299,12 +305,8 @@ fn demo_statistics_are_realistic_and_as_configured() {
     quiet.instrument.flicker_corner_hz = s.instrument.flicker_corner_hz;
     let q = simulate(&quiet).unwrap();
     for id in ["xx", "yy", "zz"] {
-        let d: Vec<f64> = on
-            .iter()
-            .map(|&i| {
-                (col(&q, &format!("{id}_a"))[i] - col(&q, &format!("{id}_b"))[i]) / 0.2 / 1e-9
-            })
-            .collect();
+        let (a, b) = (all(&q, &format!("{id}_a")), all(&q, &format!("{id}_b")));
+        let d: Vec<f64> = on.iter().map(|&i| (a[i] - b[i]) / 0.2 / 1e-9).collect();
         let dd: Vec<f64> = d.windows(3).map(|w| w[2] - 2.0 * w[1] + w[0]).collect();
         let rms = (dd.iter().map(|v| v * v).sum::<f64>() / dd.len() as f64).sqrt();
         let density = rms / (6f64.sqrt() * (s.plan.sample_rate_hz / 2.0).sqrt());
@@ -313,4 +315,41 @@ fn demo_statistics_are_realistic_and_as_configured() {
             "{id}: {density} E/√Hz"
         );
     }
+}
+
+#[test]
+fn flights_split_the_path_each_with_its_own_clock_and_errors() {
+    let mut s = scenario(SMALL);
+    s.plan.lines = 3;
+    s.plan.flights = 2;
+    let sim = simulate(&s).unwrap();
+    assert_eq!(sim.flights.len(), 2);
+    let (f1, f2) = (&sim.flights[0], &sim.flights[1]);
+    // End to end they are the path: every truth sample in exactly one flight.
+    assert_eq!(f1.first_sample, 0);
+    assert_eq!(f2.first_sample, f1.line.len());
+    assert_eq!(f1.line.len() + f2.line.len(), sim.line.len());
+    // Lines 101 and 102 in the first flight (the extra line goes first), 103 and the ties last.
+    let lines = |f: &gravgrad_sim::simulate::FlightLog| {
+        let mut l: Vec<i64> = f.line.iter().copied().filter(|l| *l > 0).collect();
+        l.dedup();
+        l
+    };
+    assert_eq!(lines(f1), vec![101, 102]);
+    assert_eq!(lines(f2)[0], 103);
+    assert!(lines(f2)[1..].iter().all(|l| *l >= s.plan.first_tie));
+    // The cut is in a transit, and the second clock starts the ground time later.
+    assert_eq!(*f1.line.last().unwrap(), 0);
+    assert_eq!(f2.line[0], 0);
+    let (t1, t2) = (f1.column("time").unwrap(), f2.column("time").unwrap());
+    let dt = 1.0 / s.plan.sample_rate_hz;
+    assert!((t2[0] - t1[t1.len() - 1] - dt - s.plan.flight_gap_s).abs() < 1e-6);
+    // A new take-off: other biases and drifts for every pair.
+    for (a, b) in f1.pair_errors.iter().zip(&f2.pair_errors) {
+        assert!(a.bias != b.bias && a.drift != b.drift);
+    }
+    // Bad values are refused by key.
+    s.plan.flights = 4;
+    let e = simulate(&s).unwrap_err().to_string();
+    assert!(e.contains("plan.flights"), "{e}");
 }
