@@ -50,7 +50,8 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
         return code;
     }
     log.info(&format!(
-        "products: {} (lines.parquet, calibration/); the result against the demo's truth:",
+        "products in {}: lines.parquet, grids.nc, grids/*.tif, maps/*.png, qc/report.html, \
+         survey.h5, calibration/, provenance.json; the result against the demo's truth:",
         out.display()
     ));
     score_cmd::run(
