@@ -107,6 +107,7 @@ pub fn process_units(
     units: Units<'_>,
 ) -> Result<Processed, u8> {
     log.info(&format!("reading {}", recipe_path.display()));
+    let clock = std::time::Instant::now();
     let survey = load_recipe(recipe_path);
     let (Some(recipe), Some(instrument)) = (&survey.recipe, &survey.instrument) else {
         return Err(input_errors(&survey));
@@ -114,6 +115,11 @@ pub fn process_units(
     if survey.has_errors() {
         return Err(input_errors(&survey));
     }
+    log.info(&format!(
+        "recipe, instrument and {} flights read and checked in {:.2} s",
+        survey.flights.len(),
+        clock.elapsed().as_secs_f64()
+    ));
     let frame =
         pipeline::map_frame(recipe, recipe_path, &survey.flights).map_err(|p| bad_input(&[p]))?;
     let mode = calibration_override.unwrap_or(recipe.calibration.mode);
@@ -449,6 +455,7 @@ fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Resul
         stages.append_to(&mut table);
         levelled = Some(stages.levelled);
     }
+    let clock = std::time::Instant::now();
     table
         .write_parquet(&dir.join("lines.parquet"), &p.names, p.frame.epsg)
         .map_err(failure)?;
@@ -456,6 +463,10 @@ fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Resul
     if recipe.is_some_and(|r| r.output.lines_csv) {
         table.write_csv(&dir.join("lines.csv")).map_err(failure)?;
     }
+    log.info(&format!(
+        "line table written in {:.2} s",
+        clock.elapsed().as_secs_f64()
+    ));
     let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
     let grids = match recipe {
         Some(r) => {
@@ -472,6 +483,7 @@ fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Resul
         }
         None => None,
     };
+    let clock = std::time::Instant::now();
     write_calibrations(p, dir).map_err(failure)?;
     let inputs = input_files(p);
     let hashes = provenance::hashes(
@@ -498,5 +510,10 @@ fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Resul
         &p.results,
         p.frame.epsg,
     )
-    .map_err(failure)
+    .map_err(failure)?;
+    log.info(&format!(
+        "calibration files, survey.h5 and provenance.json written in {:.2} s",
+        clock.elapsed().as_secs_f64()
+    ));
+    Ok(())
 }
