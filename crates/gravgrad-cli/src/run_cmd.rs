@@ -346,6 +346,7 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         return EXIT_FAILURE;
     }
     let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
+    let grid_clock = std::time::Instant::now();
     let gridded =
         recipe.map(|r| grid_stage::grid_survey(r, &p.results, levelled.as_deref(), p.frame.epsg));
     let grids = match gridded {
@@ -355,9 +356,11 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
                 return EXIT_FAILURE;
             }
             log.info(&format!(
-                "grids of the {} tensor written to {}",
+                "grids of the {} tensor written to {} ({}; {:.2} s)",
                 g.stage,
-                dir.display()
+                dir.display(),
+                g.settings(),
+                grid_clock.elapsed().as_secs_f64()
             ));
             Some(g)
         }
