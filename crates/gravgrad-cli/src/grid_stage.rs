@@ -1,5 +1,7 @@
 //! The grid stage of a run: the most reduced tensor along every line, horizontal components turned
-//! from true to grid north, gridded by minimum curvature (recipe `[grid]`), the Laplace-consistent
+//! from true to grid north, gridded by minimum curvature (recipe `[grid]`; cell and blanking
+//! distance from the line spacing when the recipe sets none, `gravgrad_grid::spacing`; the
+//! components gridded in parallel, each on its own), the Laplace-consistent
 //! full tensor and gz derived from every measured component together, and the products written:
 //! `grids.nc`, `grids/<name>.tif`, `maps/<name>.png`.
 //!
@@ -11,10 +13,11 @@ use gravgrad_core::SymTensor;
 use gravgrad_core::raster::Raster;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_grid::{
-    GridSpec, GzReference, Product, Products, Ramp, TensorOptions, Written, blank, full_tensor,
-    grid_points, write_products,
+    GridSpec, GzReference, Product, Products, Ramp, TensorOptions, Written, blank,
+    default_blanking, default_cell, full_tensor, grid_points, line_spacing, write_products,
 };
 use gravgrad_ingest::recipe::Recipe;
+use rayon::prelude::*;
 use std::path::Path;
 
 /// Component names in product order.
@@ -30,6 +33,14 @@ pub struct Grids {
     pub gz: Raster,
     /// Which stage was gridded.
     pub stage: &'static str,
+    /// Median spacing of the survey lines, m (None: not found).
+    pub line_spacing_m: Option<f64>,
+    /// Cell size used, m (the recipe's, or from the line spacing).
+    pub cell_m: f64,
+    /// Blanking distance used, m (the recipe's, or from the line spacing).
+    pub blanking_m: f64,
+    /// Cells eastwards and northwards.
+    pub cells: (usize, usize),
 }
 
 /// Grids every flight's line samples and derives the full tensor. `levelled` (per flight and
@@ -84,25 +95,59 @@ pub fn grid_survey(
             }
         }
     }
+    // Each line's positions, for the line spacing.
+    let mut tracks: Vec<Vec<(f64, f64)>> = Vec::new();
+    for r in results {
+        let mut i = 0;
+        while i < r.line.len() {
+            let (l, start) = (r.line[i], i);
+            while i < r.line.len() && r.line[i] == l {
+                i += 1;
+            }
+            if l > 0 {
+                tracks.push(
+                    (start..i)
+                        .map(|k| (r.positions.easting_m[k], r.positions.northing_m[k]))
+                        .collect(),
+                );
+            }
+        }
+    }
+    let spacing = line_spacing(&tracks);
+    let cell = recipe.grid.cell_m.unwrap_or_else(|| default_cell(spacing));
+    let blanking = recipe
+        .grid
+        .blanking_m
+        .unwrap_or_else(|| default_blanking(spacing));
     let any = pts
         .iter()
         .find(|p| !p.is_empty())
         .ok_or("no line samples to grid")?;
-    let mut spec = GridSpec::covering(any, recipe.grid.cell_m, recipe.grid.blanking_m)
+    let mut spec = GridSpec::covering(any, cell, blanking)
         .ok_or("the line samples have no finite position")?;
     spec.tension = recipe.grid.tension;
-    spec.blanking = Some(recipe.grid.blanking_m);
+    spec.blanking = Some(blanking);
     spec.epsg = Some(epsg);
+    // The components in parallel (each lattice's passes are banded finely enough to share the
+    // threads); each result is independent of the thread count.
+    let gridded: Vec<Option<gravgrad_grid::Gridded>> = (0..6)
+        .into_par_iter()
+        .map(|c| {
+            if pts[c].is_empty() {
+                return Ok(None);
+            }
+            grid_points(&pts[c], &spec)
+                .map(Some)
+                .map_err(|e| format!("gridding {}: {e}", NAMES[c]))
+        })
+        .collect::<Result<_, String>>()?;
     let mut keep: Option<Vec<bool>> = None;
     let mut surfaces: [Option<Raster>; 6] = Default::default();
     let mut measured: [Option<Raster>; 6] = Default::default();
-    for c in 0..6 {
-        if pts[c].is_empty() {
-            continue;
-        }
-        let g = grid_points(&pts[c], &spec).map_err(|e| format!("gridding {}: {e}", NAMES[c]))?;
+    for (c, g) in gridded.into_iter().enumerate() {
+        let Some(g) = g else { continue };
         measured[c] = Some(g.blanked());
-        keep.get_or_insert_with(|| g.keep.clone());
+        keep.get_or_insert(g.keep);
         surfaces[c] = Some(g.surface);
     }
     let keep = keep.ok_or("nothing gridded")?;
@@ -118,7 +163,26 @@ pub fn grid_survey(
         tensor: std::array::from_fn(|c| blank(&t.components[c], &keep)),
         gz: blank(&t.gz, &keep),
         stage,
+        line_spacing_m: spacing,
+        cell_m: cell,
+        blanking_m: blanking,
+        cells: (spec.nx, spec.ny),
     })
+}
+
+impl Grids {
+    /// The cell, lattice and blanking used, and the line spacing they followed, for the log.
+    pub fn settings(&self) -> String {
+        let spacing = self
+            .line_spacing_m
+            .map_or("line spacing not found".to_string(), |s| {
+                format!("line spacing {s:.0} m")
+            });
+        format!(
+            "{} m cells, {} × {}, blanking {:.0} m; {spacing}",
+            self.cell_m, self.cells.0, self.cells.1, self.blanking_m
+        )
+    }
 }
 
 /// Writes the grids: measured components as `measured_g??`, the full tensor as `g??`, and `gz`.

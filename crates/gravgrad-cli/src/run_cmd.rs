@@ -475,9 +475,10 @@ fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Resul
                 .map_err(failure)?;
             grid_stage::write(dir, &g, &p.results, &title).map_err(failure)?;
             log.info(&format!(
-                "grids of the {} tensor built and written in {:.2} s",
+                "grids of the {} tensor built and written in {:.2} s: {}",
                 g.stage,
-                clock.elapsed().as_secs_f64()
+                clock.elapsed().as_secs_f64(),
+                g.settings()
             ));
             Some(g)
         }

@@ -411,7 +411,7 @@ fn check_spec(spec: &GridSpec) -> Result<(), GridError> {
         .checked_add(4)
         .and_then(|a| ny.checked_add(4).and_then(|b| a.checked_mul(b)))
         .and_then(|c| c.checked_mul(16))
-        .is_none()
+        .is_none_or(|bytes| bytes / 16 >= (u32::MAX - 1) as usize)
         || nx > (1 << 24)
         || ny > (1 << 24)
     {
@@ -479,16 +479,17 @@ fn plane_at(p: &[f64; 5], i: f64, j: f64) -> f64 {
     p[0] + p[1] * (i - p[3]) + p[2] * (j - p[4])
 }
 
-/// What holds a lattice node.
-#[derive(Clone, Copy, Debug, PartialEq)]
-enum Hold {
-    /// No datum in its cell: the equation of the surface alone.
-    Free,
-    /// A datum within [`CLOSE`] of the node in both directions: the node keeps the datum's value.
-    Fixed,
-    /// A datum farther off: the equation with the node's Laplacian through the datum
-    /// (index into [`Lattice::near`]).
-    Near(usize),
+/// What holds a lattice node, in four bytes (the colour passes read it at every node):
+/// [`Hold::FREE`] (no datum in its cell: the equation of the surface alone), [`Hold::FIXED`] (a
+/// datum within [`CLOSE`] of the node in both directions: the node keeps the datum's value), or
+/// else the index into [`Lattice::near`] of the datum farther off, which enters the node's
+/// equation through its Laplacian. [`check_spec`] keeps every lattice below `u32::MAX - 1` nodes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+struct Hold(u32);
+
+impl Hold {
+    const FREE: Hold = Hold(u32::MAX);
+    const FIXED: Hold = Hold(u32::MAX - 1);
 }
 
 /// The Laplacian at a node estimated through a datum off it (Briggs 1974): with the datum rotated
@@ -574,7 +575,7 @@ impl Lattice {
             ny,
             w,
             u: vec![0.0; size],
-            hold: vec![Hold::Free; size],
+            hold: vec![Hold::FREE; size],
             near: Vec::new(),
             tension,
         }
@@ -589,7 +590,7 @@ impl Lattice {
     }
 
     fn constrained(&self) -> usize {
-        self.hold.iter().filter(|&&h| h != Hold::Free).count()
+        self.hold.iter().filter(|&&h| h != Hold::FREE).count()
     }
 
     /// Starts from a coarser lattice whose spacing is `ratio` of ours, interpolated bilinearly.
@@ -636,10 +637,10 @@ impl Lattice {
         for (k, d) in nearest.into_iter().enumerate() {
             if let Some((xi, eta, v)) = d {
                 if xi.abs() < CLOSE && eta.abs() < CLOSE {
-                    self.hold[k] = Hold::Fixed;
+                    self.hold[k] = Hold::FIXED;
                     self.u[k] = v;
                 } else {
-                    self.hold[k] = Hold::Near(self.near.len());
+                    self.hold[k] = Hold(self.near.len() as u32);
                     self.near.push(Near::new(xi, eta, v, self.w));
                 }
             }
@@ -703,14 +704,15 @@ impl Lattice {
     /// Sweeps until the largest change is below `limit` or `max_sweeps` ran; returns the sweeps
     /// run and the last largest change.
     fn solve(&mut self, limit: f64, max_sweeps: usize) -> (usize, f64) {
-        let mut next = vec![0.0; self.u.len()];
+        let bands = Bands::new(self.w, self.ny + 4);
+        let mut halo = vec![0.0; bands.halo_len()];
         let mut last = f64::INFINITY;
         let mut sweeps = 0;
         while sweeps < max_sweeps {
             let mut change: f64 = 0.0;
             for colour in 0..5 {
                 self.set_ghosts();
-                change = change.max(self.colour_pass(colour, &mut next));
+                change = change.max(self.colour_pass(colour, &bands, &mut halo));
             }
             sweeps += 1;
             last = change;
@@ -723,7 +725,14 @@ impl Lattice {
     }
 
     /// Updates the nodes of one colour from the current state; returns the largest change.
-    fn colour_pass(&mut self, colour: usize, next: &mut [f64]) -> f64 {
+    ///
+    /// The padded rows are cut into bands of [`Bands`] (a few thousand nodes each, so that one
+    /// task is worth scheduling on a long lattice). Each band is updated in place from a copy of
+    /// itself and of the two rows on either side, those taken before any band changes: every node
+    /// of the colour sees the state before the pass, whatever the number of threads or bands (and
+    /// no node's stencil holds another node of its colour, so the copy only keeps the borrow
+    /// checker's rules, not the arithmetic).
+    fn colour_pass(&mut self, colour: usize, bands: &Bands, halo: &mut [f64]) -> f64 {
         let (w, nx, ny) = (self.w, self.nx, self.ny);
         let t = self.tension;
         let cn = (8.0 - 7.0 * t) / (20.0 - 16.0 * t);
@@ -734,69 +743,132 @@ impl Lattice {
         // (1 − T)·(4ΣN − 2ΣD − ΣF) + (4 − 3T)·(Σ b_k·u_k + b_E·datum).
         let (nn, nd, nf) = (4.0 * (1.0 - t), -2.0 * (1.0 - t), -(1.0 - t));
         let (d_own, d_lap) = (4.0 * (1.0 - t), 4.0 - 3.0 * t);
-        let u = &self.u;
+        bands.take_halos(&self.u, halo);
+        let halo = &*halo;
         let hold = &self.hold;
         let near = &self.near;
-        let change = next
-            .par_chunks_mut(w)
+        let rows = bands.rows;
+        self.u
+            .par_chunks_mut(rows * w)
             .enumerate()
-            .skip(2)
-            .take(ny)
-            .map(|(pj, row)| {
-                let j = pj - 2;
-                // Colour (i + 2j) mod 5 = colour  ⇔  i ≡ colour − 2j (mod 5).
-                let first = (colour + 5 * ny * 2 - 2 * j) % 5;
+            .map(|(b, band)| {
+                let first_row = b * rows;
+                let band_rows = band.len() / w;
+                // Active rows of the band: lattice rows 0..ny are padded rows 2..ny + 2.
+                let lo = first_row.max(2);
+                let hi = (first_row + band_rows).min(ny + 2);
+                if lo >= hi {
+                    return 0.0;
+                }
+                // The band with two rows either side, as they were before the pass.
+                let (above, below) = bands.halo_of(b, halo);
+                let top = first_row - above.len() / w;
+                let mut src = Vec::with_capacity(above.len() + band.len() + below.len());
+                src.extend_from_slice(above);
+                src.extend_from_slice(band);
+                src.extend_from_slice(below);
+                let src = &src;
                 let mut worst: f64 = 0.0;
-                let mut i = first;
-                while i < nx {
-                    let k = pj * w + i + 2;
-                    let old = u[k];
-                    let sums = || {
-                        let nsum = u[k - 1] + u[k + 1] + u[k - w] + u[k + w];
-                        let dsum = u[k - w - 1] + u[k - w + 1] + u[k + w - 1] + u[k + w + 1];
-                        let fsum = u[k - 2] + u[k + 2] + u[k - 2 * w] + u[k + 2 * w];
-                        (nsum, dsum, fsum)
-                    };
-                    let new = match hold[k] {
-                        Hold::Free => {
-                            let (ns, ds, fs) = sums();
-                            let target = cn * ns + cd * ds + cf * fs;
-                            old + OMEGA * (target - old)
-                        }
-                        Hold::Fixed => old,
-                        Hold::Near(n) => {
-                            let c = &near[n];
-                            let (ns, ds, fs) = sums();
-                            let mut lap = c.b_datum;
-                            for (b, &at) in c.b.iter().zip(&c.at) {
-                                lap += b * u[k.wrapping_add_signed(at)];
+                for pj in lo..hi {
+                    let j = pj - 2;
+                    // Colour (i + 2j) mod 5 = colour  ⇔  i ≡ colour − 2j (mod 5).
+                    let mut i = (colour + 5 * ny * 2 - 2 * j) % 5;
+                    while i < nx {
+                        let g = pj * w + i + 2;
+                        let k = g - top * w;
+                        let old = src[k];
+                        let sums = || {
+                            let nsum = src[k - 1] + src[k + 1] + src[k - w] + src[k + w];
+                            let dsum =
+                                src[k - w - 1] + src[k - w + 1] + src[k + w - 1] + src[k + w + 1];
+                            let fsum = src[k - 2] + src[k + 2] + src[k - 2 * w] + src[k + 2 * w];
+                            (nsum, dsum, fsum)
+                        };
+                        let new = match hold[g] {
+                            Hold::FREE => {
+                                let (ns, ds, fs) = sums();
+                                let target = cn * ns + cd * ds + cf * fs;
+                                old + OMEGA * (target - old)
                             }
-                            // Not over-relaxed: neighbouring data can pull against each other.
-                            (nn * ns + nd * ds + nf * fs + d_lap * lap) / (d_own + d_lap * c.b_sum)
-                        }
-                    };
-                    row[i + 2] = new;
-                    worst = worst.max((new - old).abs());
-                    i += 5;
+                            Hold::FIXED => old,
+                            Hold(n) => {
+                                let c = &near[n as usize];
+                                let (ns, ds, fs) = sums();
+                                let mut lap = c.b_datum;
+                                for (b, &at) in c.b.iter().zip(&c.at) {
+                                    lap += b * src[k.wrapping_add_signed(at)];
+                                }
+                                // Not over-relaxed: neighbouring data can pull against each other.
+                                (nn * ns + nd * ds + nf * fs + d_lap * lap)
+                                    / (d_own + d_lap * c.b_sum)
+                            }
+                        };
+                        band[g - first_row * w] = new;
+                        worst = worst.max((new - old).abs());
+                        i += 5;
+                    }
                 }
                 worst
             })
-            .reduce(|| 0.0, f64::max);
-        let next = &*next;
-        self.u
-            .par_chunks_mut(w)
-            .enumerate()
-            .skip(2)
-            .take(ny)
-            .for_each(|(pj, row)| {
-                let j = pj - 2;
-                let mut i = (colour + 5 * ny * 2 - 2 * j) % 5;
-                while i < nx {
-                    row[i + 2] = next[pj * w + i + 2];
-                    i += 5;
-                }
-            });
-        change
+            .reduce(|| 0.0, f64::max)
+    }
+}
+
+/// Bands of whole padded rows for the colour passes, and where each band's two rows above and
+/// below are kept while the bands change.
+struct Bands {
+    /// Padded width.
+    w: usize,
+    /// Padded rows in all.
+    total: usize,
+    /// Rows per band (the last may be shorter).
+    rows: usize,
+    count: usize,
+}
+
+/// Nodes per band, about: enough work to be worth a task, small enough to stay in cache.
+const BAND_NODES: usize = 16_384;
+
+impl Bands {
+    fn new(w: usize, total: usize) -> Self {
+        let rows = BAND_NODES.div_ceil(w).max(4);
+        Self {
+            w,
+            total,
+            rows,
+            count: total.div_ceil(rows),
+        }
+    }
+
+    /// Two rows above and two below per band.
+    fn halo_len(&self) -> usize {
+        self.count * 4 * self.w
+    }
+
+    /// Copies each band's neighbouring rows (up to two either side, fewer at the lattice's ends).
+    fn take_halos(&self, u: &[f64], halo: &mut [f64]) {
+        let w = self.w;
+        for (b, h) in halo.chunks_mut(4 * w).enumerate() {
+            let start = b * self.rows;
+            let end = (start + self.rows).min(self.total);
+            let a0 = start.saturating_sub(2);
+            let above = (start - a0) * w;
+            h[2 * w - above..2 * w].copy_from_slice(&u[a0 * w..start * w]);
+            let b1 = (end + 2).min(self.total);
+            let below = (b1 - end) * w;
+            h[2 * w..2 * w + below].copy_from_slice(&u[end * w..b1 * w]);
+        }
+    }
+
+    /// Band `b`'s rows above and below from [`Bands::take_halos`]'s copy.
+    fn halo_of<'a>(&self, b: usize, halo: &'a [f64]) -> (&'a [f64], &'a [f64]) {
+        let w = self.w;
+        let start = b * self.rows;
+        let end = (start + self.rows).min(self.total);
+        let above = (start - start.saturating_sub(2)) * w;
+        let below = ((end + 2).min(self.total) - end) * w;
+        let h = &halo[b * 4 * w..(b + 1) * 4 * w];
+        (&h[2 * w - above..2 * w], &h[2 * w..2 * w + below])
     }
 }
 

@@ -257,11 +257,16 @@ impl Default for Level {
 #[derive(Clone, Debug, Deserialize, Serialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct Grid {
-    pub cell_m: f64,
+    /// Cell size, m. Absent: a quarter of the survey's line spacing, rounded down to 1, 2, 2.5 or
+    /// 5 times a power of ten (50 m when the spacing cannot be found; `gravgrad_grid::spacing`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub cell_m: Option<f64>,
     /// Tension of minimum-curvature gridding, 0 (pure minimum curvature) to 1.
     pub tension: f64,
-    /// Cells farther than this from data are left empty, m.
-    pub blanking_m: f64,
+    /// Cells farther than this from data are left empty, m. Absent: 0.6 × the line spacing, at
+    /// least 250 m (250 m when the spacing cannot be found).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub blanking_m: Option<f64>,
     /// Upward continuation of the derived full tensor and gz, m (0: the flight surface).
     pub upward_continuation_m: f64,
 }
@@ -269,9 +274,9 @@ pub struct Grid {
 impl Default for Grid {
     fn default() -> Self {
         Self {
-            cell_m: 50.0,
+            cell_m: None,
             tension: 0.25,
-            blanking_m: 250.0,
+            blanking_m: None,
             upward_continuation_m: 0.0,
         }
     }
@@ -365,8 +370,12 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
     );
     positive("rotation.gyro_lowpass_hz", r.rotation.gyro_lowpass_hz);
     positive("filter.cutoff_wavelength_m", r.filter.cutoff_wavelength_m);
-    positive("grid.cell_m", r.grid.cell_m);
-    positive("grid.blanking_m", r.grid.blanking_m);
+    if let Some(c) = r.grid.cell_m {
+        positive("grid.cell_m", c);
+    }
+    if let Some(b) = r.grid.blanking_m {
+        positive("grid.blanking_m", b);
+    }
     positive("qc.max_line_deviation_m", r.qc.max_line_deviation_m);
     positive("qc.clearance_tolerance_m", r.qc.clearance_tolerance_m);
     positive("qc.max_turbulence_m_s2", r.qc.max_turbulence_m_s2);
