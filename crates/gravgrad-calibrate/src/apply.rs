@@ -1,6 +1,7 @@
 //! Applying a pair's calibration: the correction subtracted from its difference d = a − b.
 
 use crate::estimate::{PairCalibration, PairData};
+use rayon::prelude::*;
 
 impl PairCalibration {
     /// The calibration part of pair difference `i`, m/s²: κ·f(O) + bias and drift (polynomial in
@@ -21,6 +22,39 @@ impl PairCalibration {
             c += sg[0].value * rel[0][i] + sg[1].value * rel[1][i];
         }
         c
+    }
+
+    /// `x[i]` − the correction of sample `i` for every sample, m/s² (x: a pair output or difference,
+    /// m/s²). The same arithmetic as [`Self::correction_at`] in the same order, with the
+    /// coefficients and the optional terms settled once instead of per sample; samples in parallel.
+    pub fn subtract_from(&self, d: &PairData<'_>, x: &[f64]) -> Vec<f64> {
+        let kappa = self.kappa.map(|k| k.value);
+        let poly: Vec<f64> = self.polynomial.iter().map(|p| p.value).collect();
+        let temperature = self
+            .temperature
+            .zip(d.temperature)
+            .map(|(c, t)| (c.value, t));
+        let self_gradient = self
+            .self_gradient
+            .zip(d.relative_attitude)
+            .map(|(sg, rel)| ([sg[0].value, sg[1].value], rel));
+        let at = |i: usize| -> f64 {
+            let mut c = (0..3).map(|k| kappa[k] * d.f[k][i]).sum::<f64>();
+            let dt = d.time[i] - self.t_mid;
+            let mut power = 1.0;
+            for p in &poly {
+                c += p * power;
+                power *= dt;
+            }
+            if let Some((coef, t)) = temperature {
+                c += coef * (t[i] - self.temperature_mean);
+            }
+            if let Some((sg, rel)) = self_gradient {
+                c += sg[0] * rel[0][i] + sg[1] * rel[1][i];
+            }
+            x[i] - c
+        };
+        (0..x.len()).into_par_iter().map(at).collect()
     }
 
     /// The calibrated difference d − correction for every sample, m/s².

@@ -13,8 +13,8 @@
 //! Units: m/s² for differences, s⁻² for S, rad/s² for α.
 
 use crate::estimate::{
-    Coefficient, PairCalibration, PairData, Settings, band_passed_force, fit_polynomial,
-    fit_series, without_centrifugal,
+    Coefficient, PairCalibration, PairData, Settings, band_passed_force, centrifugal_removed,
+    fit_polynomial, fit_series,
 };
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
@@ -83,37 +83,62 @@ pub fn estimate_flight(
     let a: Vec<Vec<f64>> = rows.iter().map(|r| r[..k].to_vec()).collect();
     let op = pseudo_inverse(&a, k);
     // z_k = −(d_k − centrifugal − expected − fixed part), less the gyro α term when the solve uses it.
-    let z: Vec<Vec<f64>> = (0..np)
-        .into_par_iter()
-        .map(|p| {
-            let data = d.series(p, d.differences[p]);
-            let y = without_centrifugal(&data);
-            let fixed_part = fixed.map(|fx| {
-                let mut c = fx[p].clone();
+    // Everything below is linear in the samples, so the model holds as well for block means as for
+    // samples: blocks of `block` samples (a quarter of the band's top period) carry the whole band
+    // and make the fits `block` times cheaper. The z are formed sample by sample and summed into
+    // their block in one pass (no per-sample series is kept); each block is summed in sample order
+    // whatever the thread count.
+    let block = ((s.rate_hz / (4.0 * s.band_hz[1])).floor() as usize).max(1);
+    let mean = |x: &[f64]| block_means(x, block);
+    let fixed_parts: Option<Vec<PairCalibration>> = fixed.map(|fx| {
+        fx.iter()
+            .map(|c| {
+                let mut c = c.clone();
                 c.polynomial.clear();
                 c
-            });
-            (0..n)
-                .map(|i| {
-                    let mut v = y[i] - data.expected.map_or(0.0, |e| e[i]);
-                    if let Some(c) = &fixed_part {
-                        v -= c.correction_at(&data, i);
-                    }
-                    let mut zv = -v;
-                    if !d.alpha_from_pairs {
-                        zv -= (0..3).map(|m| rows[p][6 + m] * d.alpha[m][i]).sum::<f64>();
-                    }
-                    zv
+            })
+            .collect()
+    });
+    let series: Vec<PairData<'_>> = (0..np).map(|p| d.series(p, d.differences[p])).collect();
+    let z_at = |p: usize, i: usize| -> f64 {
+        let data = &series[p];
+        let mut v = centrifugal_removed(data, i) - data.expected.map_or(0.0, |e| e[i]);
+        if let Some(c) = &fixed_parts {
+            v -= c[p].correction_at(data, i);
+        }
+        let mut zv = -v;
+        if !d.alpha_from_pairs {
+            zv -= (0..3).map(|m| rows[p][6 + m] * d.alpha[m][i]).sum::<f64>();
+        }
+        zv
+    };
+    // Work in spans of whole blocks, each span giving every pair's block means.
+    let span = block * 2048;
+    let parts: Vec<Vec<Vec<f64>>> = (0..n.div_ceil(span))
+        .into_par_iter()
+        .map(|q| {
+            let (a0, a1) = (q * span, ((q + 1) * span).min(n));
+            (0..np)
+                .map(|p| {
+                    (a0..a1)
+                        .step_by(block)
+                        .map(|b0| {
+                            let b1 = (b0 + block).min(a1);
+                            (b0..b1).map(|i| z_at(p, i)).sum::<f64>() / (b1 - b0) as f64
+                        })
+                        .collect()
                 })
                 .collect()
         })
         .collect();
-    // Everything below is linear in the samples, so the model holds as well for block means as for
-    // samples: blocks of `block` samples (a quarter of the band's top period) carry the whole band
-    // and make the fits `block` times cheaper.
-    let block = ((s.rate_hz / (4.0 * s.band_hz[1])).floor() as usize).max(1);
-    let mean = |x: &[f64]| block_means(x, block);
-    let z: Vec<Vec<f64>> = z.par_iter().map(|v| mean(v)).collect();
+    let z: Vec<Vec<f64>> = (0..np)
+        .map(|p| {
+            parts
+                .iter()
+                .flat_map(|part| part[p].iter().copied())
+                .collect()
+        })
+        .collect();
     let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
     let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
     let tb = mean(d.time);

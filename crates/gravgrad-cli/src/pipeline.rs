@@ -261,6 +261,12 @@ pub fn process_flight(
     }
     let usable: Vec<bool> = line.iter().map(|l| *l > 0).collect();
 
+    // The attitude matrix C_sn of every sample, computed once: the calibration turns the known field
+    // into the sensor frame with it, the solve turns the tensor into NED.
+    let c_sn: Vec<Mat3> = (0..n)
+        .into_par_iter()
+        .map(|i| Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn())
+        .collect();
     // The known field in the sensor frame, for the calibration's bias fit.
     let known_sensor: Vec<SymTensor> = (0..n)
         .into_par_iter()
@@ -269,11 +275,11 @@ pub fn process_flight(
             if let Some(t) = &terrain {
                 g = g + t[i];
             }
-            let c = Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn();
-            g.rotated(&mat3::transpose(&c))
+            g.rotated(&mat3::transpose(&c_sn[i]))
         })
         .collect();
     let alpha_gyro: Vec<Vec<f64>> = (0..3)
+        .into_par_iter()
         .map(|k| angular_acceleration(omega[k], rate, recipe.rotation.gyro_lowpass_hz))
         .collect();
     let temperature = flight.flight.table.get("temp");
@@ -312,7 +318,7 @@ pub fn process_flight(
         .map(|g| column(flight, &format!("{}_b", g.id)))
         .collect::<Result<_, _>>()?;
     let diffs: Vec<Vec<f64>> = pair_a
-        .iter()
+        .par_iter()
         .zip(&pair_b)
         .map(|(a, b)| a.iter().zip(*b).map(|(x, y)| x - y).collect())
         .collect();
@@ -382,9 +388,7 @@ pub fn process_flight(
                     expected: None,
                     relative_attitude: data.relative_attitude,
                 };
-                (0..n)
-                    .map(|i| pair_a[k][i] - c[k].correction_at(&pd, i))
-                    .collect()
+                c[k].subtract_from(&pd, pair_a[k])
             }
             None => pair_a[k].to_vec(),
         })
@@ -405,6 +409,7 @@ pub fn process_flight(
         heading_deg: heading,
         rate_hz: rate,
         alpha_gyro: Some([&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]]),
+        c_sn: Some(&c_sn),
     };
     let solve_settings = SolveSettings {
         alpha: alpha_source,

@@ -38,6 +38,9 @@ pub struct Inputs<'a> {
     /// The gyro-derived angular acceleration (sensor axes, rad/s²) when the caller has it already
     /// (low-passed at `SolveSettings::gyro_lowpass_hz`); `None`: computed here.
     pub alpha_gyro: Option<[&'a [f64]; 3]>,
+    /// The attitude matrix C_sn of every sample (sensor to NED, from the same roll, pitch and
+    /// heading) when the caller has it already; `None`: computed here.
+    pub c_sn: Option<&'a [Mat3]>,
 }
 
 /// Why a solve cannot be done.
@@ -145,32 +148,46 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
         )
     });
 
-    let alpha_g: Vec<Vec<f64>> = match inp.alpha_gyro {
-        Some(a) => a.iter().map(|v| v.to_vec()).collect(),
-        None => (0..3)
-            .map(|k| angular_acceleration(inp.omega[k], inp.rate_hz, s.gyro_lowpass_hz))
-            .collect(),
+    let computed: Vec<Vec<f64>>;
+    let alpha_g: [&[f64]; 3] = match inp.alpha_gyro {
+        Some(a) => a,
+        None => {
+            computed = (0..3)
+                .into_par_iter()
+                .map(|k| angular_acceleration(inp.omega[k], inp.rate_hz, s.gyro_lowpass_hz))
+                .collect();
+            [&computed[0], &computed[1], &computed[2]]
+        }
     };
+    if let Some((name, got)) = alpha_g
+        .iter()
+        .map(|a| ("alpha_gyro", a.len()))
+        .chain(inp.c_sn.map(|c| ("c_sn", c.len())))
+        .find(|x| x.1 != n)
+    {
+        return Err(RotationError::Length {
+            name: name.into(),
+            got,
+            want: n,
+        });
+    }
     let alpha_gyro: Vec<Vec3> = (0..n)
+        .into_par_iter()
         .map(|i| [alpha_g[0][i], alpha_g[1][i], alpha_g[2][i]])
         .collect();
     let full_rotation = observed.iter().all(|o| *o);
 
-    struct Out {
-        ned: SymTensor,
-        sensor: SymTensor,
-        alpha: Vec3,
-        trace: f64,
-    }
     // Per-worker scratch: the pair values, the constrained values and the unknowns, reused across
-    // samples (no allocation per sample).
+    // samples (no allocation per sample). The four results go straight into their own series.
     let np = inp.pairs.len();
     let nu = op.p.len();
-    let outs: Vec<Out> = (0..n)
+    type Sample = (SymTensor, (SymTensor, (Vec3, f64)));
+    type Series = (Vec<SymTensor>, (Vec<SymTensor>, (Vec<Vec3>, Vec<f64>)));
+    let (tensor_ned, (tensor_sensor, (alpha_pairs, trace))): Series = (0..n)
         .into_par_iter()
         .map_init(
-            || (vec![0.0; np], vec![0.0; np], [0.0f64; 9]),
-            |(y, y_con, u), i| {
+            || (vec![0.0; np], vec![0.0; np], [0.0f64; 9], [0.0f64; 9]),
+            |(y, y_con, u, uf), i| -> Sample {
                 let w = [inp.omega[0][i], inp.omega[1][i], inp.omega[2][i]];
                 let w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
                 for ((yv, p), r) in y.iter_mut().zip(&inp.pairs).zip(&rows) {
@@ -236,10 +253,9 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                 let gs = SymTensor::from_array(std::array::from_fn(|c| sv[c] + ww[c]));
                 let trace = match &op_free {
                     Some(f) => {
-                        let uf: Vec<f64> =
-                            f.p.iter()
-                                .map(|row| row.iter().zip(y).map(|(a, b)| a * b).sum())
-                                .collect();
+                        for (ufj, row) in uf.iter_mut().zip(&f.p) {
+                            *ufj = row.iter().zip(y).map(|(a, b)| a * b).sum();
+                        }
                         if f.observed[0] && f.observed[3] && f.observed[5] {
                             uf[0] + uf[3] + uf[5] - 2.0 * w2
                         } else {
@@ -248,28 +264,28 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                     }
                     None => gs.trace(),
                 };
-                let att =
-                    Attitude::from_degrees(inp.roll_deg[i], inp.pitch_deg[i], inp.heading_deg[i]);
-                let ned = if full_rotation {
-                    gs.rotated(&att.c_sn())
-                } else {
-                    rotate_heading_only(&gs, att.heading)
+                let ned = match (full_rotation, inp.c_sn) {
+                    (true, Some(c)) => gs.rotated(&c[i]),
+                    (true, None) => gs.rotated(
+                        &Attitude::from_degrees(
+                            inp.roll_deg[i],
+                            inp.pitch_deg[i],
+                            inp.heading_deg[i],
+                        )
+                        .c_sn(),
+                    ),
+                    (false, _) => rotate_heading_only(&gs, inp.heading_deg[i].to_radians()),
                 };
-                Out {
-                    ned,
-                    sensor: gs,
-                    alpha,
-                    trace,
-                }
+                (ned, (gs, (alpha, trace)))
             },
         )
-        .collect();
+        .unzip();
     Ok(Solution {
-        tensor_ned: outs.iter().map(|o| o.ned).collect(),
-        tensor_sensor: outs.iter().map(|o| o.sensor).collect(),
-        alpha_pairs: with_alpha.then(|| outs.iter().map(|o| o.alpha).collect()),
+        tensor_ned,
+        tensor_sensor,
+        alpha_pairs: with_alpha.then_some(alpha_pairs),
         alpha_gyro,
-        trace: outs.iter().map(|o| o.trace).collect(),
+        trace,
         observed,
         heading_only: !full_rotation,
     })
