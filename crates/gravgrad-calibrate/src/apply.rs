@@ -25,9 +25,18 @@ impl PairCalibration {
     }
 
     /// `x[i]` − the correction of sample `i` for every sample, m/s² (x: a pair output or difference,
-    /// m/s²). The same arithmetic as [`Self::correction_at`] in the same order, with the
-    /// coefficients and the optional terms settled once instead of per sample; samples in parallel.
+    /// m/s²). See [`Self::subtract_into`].
     pub fn subtract_from(&self, d: &PairData<'_>, x: &[f64]) -> Vec<f64> {
+        let mut out = vec![0.0; x.len()];
+        self.subtract_into(d, x, &mut out);
+        out
+    }
+
+    /// Writes `x[i]` − the correction of sample `i` into `out[i]` for every sample, m/s² (x: a pair
+    /// output or difference, m/s²; `out` as long as `x`, e.g. a buffer no longer needed). The same
+    /// arithmetic as [`Self::correction_at`] in the same order, with the coefficients and the
+    /// optional terms settled once instead of per sample; spans of samples in parallel.
+    pub fn subtract_into(&self, d: &PairData<'_>, x: &[f64], out: &mut [f64]) {
         let kappa = self.kappa.map(|k| k.value);
         let poly: Vec<f64> = self.polynomial.iter().map(|p| p.value).collect();
         let temperature = self
@@ -38,23 +47,27 @@ impl PairCalibration {
             .self_gradient
             .zip(d.relative_attitude)
             .map(|(sg, rel)| ([sg[0].value, sg[1].value], rel));
-        let at = |i: usize| -> f64 {
-            let mut c = (0..3).map(|k| kappa[k] * d.f[k][i]).sum::<f64>();
-            let dt = d.time[i] - self.t_mid;
-            let mut power = 1.0;
-            for p in &poly {
-                c += p * power;
-                power *= dt;
+        const SPAN: usize = 1 << 14;
+        out.par_chunks_mut(SPAN).enumerate().for_each(|(q, o)| {
+            let i0 = q * SPAN;
+            for (j, v) in o.iter_mut().enumerate() {
+                let i = i0 + j;
+                let mut c = (0..3).map(|k| kappa[k] * d.f[k][i]).sum::<f64>();
+                let dt = d.time[i] - self.t_mid;
+                let mut power = 1.0;
+                for p in &poly {
+                    c += p * power;
+                    power *= dt;
+                }
+                if let Some((coef, t)) = temperature {
+                    c += coef * (t[i] - self.temperature_mean);
+                }
+                if let Some((sg, rel)) = self_gradient {
+                    c += sg[0] * rel[0][i] + sg[1] * rel[1][i];
+                }
+                *v = x[i] - c;
             }
-            if let Some((coef, t)) = temperature {
-                c += coef * (t[i] - self.temperature_mean);
-            }
-            if let Some((sg, rel)) = self_gradient {
-                c += sg[0] * rel[0][i] + sg[1] * rel[1][i];
-            }
-            x[i] - c
-        };
-        (0..x.len()).into_par_iter().map(at).collect()
+        });
     }
 
     /// The calibrated difference d − correction for every sample, m/s².

@@ -371,28 +371,34 @@ pub fn process_flight(
         CalibrationSource::None => None,
     };
     lap("calibration", &mut timings);
-    // The corrected `a` outputs (a − correction; b as logged).
-    let corrected_a: Vec<Vec<f64>> = (0..instrument.pairs.len())
-        .into_par_iter()
-        .map(|k| match &cals {
+    // The corrected `a` outputs (a − correction; b as logged), written over the differences, which
+    // the calibration no longer needs (no fresh memory for nine more series).
+    drop(data);
+    let alpha: [&[f64]; 3] = [&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]];
+    let relative_attitude = relative.as_ref().map(|r| [&r[0][..], &r[1][..]]);
+    drop(expected);
+    let mut corrected_a = diffs;
+    for (k, out) in corrected_a.iter_mut().enumerate() {
+        match &cals {
             Some(c) => {
                 let pd = PairData {
                     geometry: &instrument.pairs[k],
-                    difference: &diffs[k],
+                    // Not read by the correction.
+                    difference: &[],
                     omega,
                     f,
-                    alpha: data.alpha,
+                    alpha,
                     time,
                     temperature,
                     usable: None,
                     expected: None,
-                    relative_attitude: data.relative_attitude,
+                    relative_attitude,
                 };
-                c[k].subtract_from(&pd, pair_a[k])
+                c[k].subtract_into(&pd, pair_a[k], out);
             }
-            None => pair_a[k].to_vec(),
-        })
-        .collect();
+            None => out.copy_from_slice(pair_a[k]),
+        }
+    }
 
     let series: Vec<PairSeries<'_>> = instrument
         .pairs
@@ -424,29 +430,26 @@ pub fn process_flight(
         )
     })?;
     lap("solve and rotation", &mut timings);
-    let alpha_difference = sol.alpha_pairs.as_ref().map(|ap| {
-        ap.iter()
+    // Both in place: the pairs' α less the gyros', and S = G_s − ΩΩ (ΩΩ = ωωᵀ − |ω|²I).
+    let alpha_difference = sol.alpha_pairs.map(|mut ap| {
+        ap.par_iter_mut()
             .zip(&sol.alpha_gyro)
-            .map(|(p, g)| [p[0] - g[0], p[1] - g[1], p[2] - g[2]])
-            .collect()
+            .for_each(|(p, g)| *p = [p[0] - g[0], p[1] - g[1], p[2] - g[2]]);
+        ap
     });
-    let measured = sol
-        .tensor_sensor
-        .iter()
-        .zip(omega[0].iter().zip(omega[1]).zip(omega[2]))
-        .map(|(g, ((x, y), z))| {
-            // S = G_s − ΩΩ, ΩΩ = ωωᵀ − |ω|²I.
-            let w2 = x * x + y * y + z * z;
-            SymTensor::from_array([
-                g.xx - (x * x - w2),
-                g.xy - x * y,
-                g.xz - x * z,
-                g.yy - (y * y - w2),
-                g.yz - y * z,
-                g.zz - (z * z - w2),
-            ])
-        })
-        .collect();
+    let mut measured = sol.tensor_sensor;
+    measured.par_iter_mut().enumerate().for_each(|(i, g)| {
+        let (x, y, z) = (omega[0][i], omega[1][i], omega[2][i]);
+        let w2 = x * x + y * y + z * z;
+        *g = SymTensor::from_array([
+            g.xx - (x * x - w2),
+            g.xy - x * y,
+            g.xz - x * z,
+            g.yy - (y * y - w2),
+            g.yz - y * z,
+            g.zz - (z * z - w2),
+        ]);
+    });
     let calibration = match cals {
         Some(c) => instrument
             .pairs
