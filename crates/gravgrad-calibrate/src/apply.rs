@@ -47,27 +47,45 @@ impl PairCalibration {
             .self_gradient
             .zip(d.relative_attitude)
             .map(|(sg, rel)| ([sg[0].value, sg[1].value], rel));
-        const SPAN: usize = 1 << 14;
-        out.par_chunks_mut(SPAN).enumerate().for_each(|(q, o)| {
-            let i0 = q * SPAN;
-            for (j, v) in o.iter_mut().enumerate() {
-                let i = i0 + j;
-                let mut c = (0..3).map(|k| kappa[k] * d.f[k][i]).sum::<f64>();
-                let dt = d.time[i] - self.t_mid;
-                let mut power = 1.0;
+        // Term by term across a span of samples (vectorised), each sample's terms added in the
+        // order of `correction_at`.
+        const SPAN: usize = 1024;
+        out.par_chunks_mut(SPAN).enumerate().for_each_init(
+            || (vec![0.0; SPAN], vec![0.0; SPAN], vec![0.0; SPAN]),
+            |(cs, dts, powers), (q, o)| {
+                let r = q * SPAN..q * SPAN + o.len();
+                let m = o.len();
+                let (c, dt, power) = (&mut cs[..m], &mut dts[..m], &mut powers[..m]);
+                let f = [&d.f[0][r.clone()], &d.f[1][r.clone()], &d.f[2][r.clone()]];
+                for (k, ck) in c.iter_mut().enumerate() {
+                    *ck = -0.0 + kappa[0] * f[0][k] + kappa[1] * f[1][k] + kappa[2] * f[2][k];
+                }
+                for ((dtk, pk), t) in dt.iter_mut().zip(power.iter_mut()).zip(&d.time[r.clone()]) {
+                    *dtk = t - self.t_mid;
+                    *pk = 1.0;
+                }
                 for p in &poly {
-                    c += p * power;
-                    power *= dt;
+                    for ((ck, pk), dtk) in c.iter_mut().zip(power.iter_mut()).zip(dt.iter()) {
+                        *ck += p * *pk;
+                        *pk *= dtk;
+                    }
                 }
                 if let Some((coef, t)) = temperature {
-                    c += coef * (t[i] - self.temperature_mean);
+                    for (ck, tk) in c.iter_mut().zip(&t[r.clone()]) {
+                        *ck += coef * (tk - self.temperature_mean);
+                    }
                 }
                 if let Some((sg, rel)) = self_gradient {
-                    c += sg[0] * rel[0][i] + sg[1] * rel[1][i];
+                    for ((ck, a), b) in c.iter_mut().zip(&rel[0][r.clone()]).zip(&rel[1][r.clone()])
+                    {
+                        *ck += sg[0] * a + sg[1] * b;
+                    }
                 }
-                *v = x[i] - c;
-            }
-        });
+                for ((v, xk), ck) in o.iter_mut().zip(&x[r]).zip(c.iter()) {
+                    *v = xk - ck;
+                }
+            },
+        );
     }
 
     /// The calibrated difference d − correction for every sample, m/s².

@@ -13,8 +13,7 @@
 //! Units: m/s² for differences, s⁻² for S, rad/s² for α.
 
 use crate::estimate::{
-    Coefficient, PairCalibration, PairData, Settings, band_passed_force, centrifugal_removed,
-    fit_polynomial, fit_series,
+    Coefficient, PairCalibration, PairData, Settings, band_passed_force, fit_polynomial, fit_series,
 };
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
@@ -100,36 +99,72 @@ pub fn estimate_flight(
             .collect()
     });
     let series: Vec<PairData<'_>> = (0..np).map(|p| d.series(p, d.differences[p])).collect();
-    let z_at = |p: usize, i: usize| -> f64 {
-        let data = &series[p];
-        let mut v = centrifugal_removed(data, i) - data.expected.map_or(0.0, |e| e[i]);
-        if let Some(c) = &fixed_parts {
-            v -= c[p].correction_at(data, i);
-        }
-        let mut zv = -v;
-        if !d.alpha_from_pairs {
-            zv -= (0..3).map(|m| rows[p][6 + m] * d.alpha[m][i]).sum::<f64>();
-        }
-        zv
-    };
-    // Work in spans of whole blocks, each span giving every pair's block means.
-    let span = block * 2048;
+    // Work in spans of whole blocks, each span giving every pair's block means: a pair's z over the
+    // span sample by sample (vectorised; the arithmetic of `centrifugal_removed` and the fixed
+    // correction per sample), then each block summed in sample order.
+    let span = block * 256;
     let parts: Vec<Vec<Vec<f64>>> = (0..n.div_ceil(span))
         .into_par_iter()
-        .map(|q| {
-            let (a0, a1) = (q * span, ((q + 1) * span).min(n));
-            (0..np)
-                .map(|p| {
-                    (a0..a1)
-                        .step_by(block)
-                        .map(|b0| {
-                            let b1 = (b0 + block).min(a1);
-                            (b0..b1).map(|i| z_at(p, i)).sum::<f64>() / (b1 - b0) as f64
-                        })
-                        .collect()
-                })
-                .collect()
-        })
+        .map_init(
+            || vec![0.0; span],
+            |zs, q| {
+                let r = q * span..((q + 1) * span).min(n);
+                let a0 = r.start;
+                let zs = &mut zs[..r.len()];
+                let w = [
+                    &d.omega[0][r.clone()],
+                    &d.omega[1][r.clone()],
+                    &d.omega[2][r.clone()],
+                ];
+                (0..np)
+                    .map(|p| {
+                        let data = &series[p];
+                        let (nv, b) = (data.geometry.axis, data.geometry.baseline);
+                        let diff = &data.difference[r.clone()];
+                        let expected = data.expected.map(|e| &e[r.clone()]);
+                        for (k, zk) in zs.iter_mut().enumerate() {
+                            let wk = [w[0][k], w[1][k], w[2][k]];
+                            let wb = wk[0] * b[0] + wk[1] * b[1] + wk[2] * b[2];
+                            let w2 = wk[0] * wk[0] + wk[1] * wk[1] + wk[2] * wk[2];
+                            let wwb = [
+                                wk[0] * wb - w2 * b[0],
+                                wk[1] * wb - w2 * b[1],
+                                wk[2] * wb - w2 * b[2],
+                            ];
+                            let y = diff[k] - (nv[0] * wwb[0] + nv[1] * wwb[1] + nv[2] * wwb[2]);
+                            *zk = y - expected.map_or(0.0, |e| e[k]);
+                        }
+                        if let Some(c) = &fixed_parts {
+                            for (k, zk) in zs.iter_mut().enumerate() {
+                                *zk -= c[p].correction_at(data, a0 + k);
+                            }
+                        }
+                        if d.alpha_from_pairs {
+                            for zk in zs.iter_mut() {
+                                *zk = -*zk;
+                            }
+                        } else {
+                            let al = [
+                                &d.alpha[0][r.clone()],
+                                &d.alpha[1][r.clone()],
+                                &d.alpha[2][r.clone()],
+                            ];
+                            let rw = &rows[p];
+                            for (k, zk) in zs.iter_mut().enumerate() {
+                                *zk = -*zk
+                                    - (-0.0
+                                        + rw[6] * al[0][k]
+                                        + rw[7] * al[1][k]
+                                        + rw[8] * al[2][k]);
+                            }
+                        }
+                        zs.chunks(block)
+                            .map(|c| c.iter().sum::<f64>() / c.len() as f64)
+                            .collect()
+                    })
+                    .collect()
+            },
+        )
         .collect();
     let z: Vec<Vec<f64>> = (0..np)
         .map(|p| {
