@@ -5,10 +5,12 @@
 //! - `bench-prisms`: timing of the prism tensor (driven by bench/prisms.py).
 //! - `bench-terrain`: the terrain engine's benchmark data and timings (driven by bench/terrain.py).
 //! - `bench-grid`: minimum-curvature gridding of a CSV of points (driven by bench/grid.py).
+//! - `bench-reduce`: calibration, solve and rotation of a recipe's flights, timed in process.
 
 mod accuracy;
 mod benchgrid;
 mod benchprisms;
+mod benchreduce;
 mod benchterrain;
 mod synthlog;
 mod writers;
@@ -89,6 +91,16 @@ enum Task {
         #[arg(long, default_value = "bench-out/terrain")]
         out: PathBuf,
     },
+    /// Time calibration, solve and rotation of every flight of a recipe (median of `repeat` runs of
+    /// the pipeline `gravgrad run` uses; the log is read once).
+    BenchReduce {
+        #[arg(long)]
+        recipe: PathBuf,
+        #[arg(long, default_value_t = 2)]
+        threads: usize,
+        #[arg(long, default_value_t = 5)]
+        repeat: usize,
+    },
     /// Grid a CSV of points (easting, northing, value) by minimum curvature; raw float64 out.
     BenchGrid {
         #[arg(long)]
@@ -129,6 +141,10 @@ enum Task {
     },
 }
 
+/// The allocator of the `gravgrad` command, so that timings of its pipeline match.
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     match Cli::parse().task {
         Task::SampleLog {
@@ -158,6 +174,11 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             }
         }
         Task::PrismAccuracy => accuracy::run(),
+        Task::BenchReduce {
+            recipe,
+            threads,
+            repeat,
+        } => benchreduce::run(&recipe, threads, repeat)?,
         Task::BenchPrisms {
             side,
             points,

@@ -248,20 +248,24 @@ fn invert(m: &[Vec<f64>]) -> Vec<Vec<f64>> {
 
 /// d − nᵀ·ΩΩ·b, m/s², with ΩΩ·b = ω(ω·b) − |ω|²b: the known centrifugal term removed.
 pub(crate) fn without_centrifugal(d: &PairData<'_>) -> Vec<f64> {
-    let (nv, b) = (d.geometry.axis, d.geometry.baseline);
     (0..d.difference.len())
-        .map(|i| {
-            let w = [d.omega[0][i], d.omega[1][i], d.omega[2][i]];
-            let wb = w[0] * b[0] + w[1] * b[1] + w[2] * b[2];
-            let w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
-            let wwb = [
-                w[0] * wb - w2 * b[0],
-                w[1] * wb - w2 * b[1],
-                w[2] * wb - w2 * b[2],
-            ];
-            d.difference[i] - (nv[0] * wwb[0] + nv[1] * wwb[1] + nv[2] * wwb[2])
-        })
+        .map(|i| centrifugal_removed(d, i))
         .collect()
+}
+
+/// Sample `i` of [`without_centrifugal`], m/s².
+#[inline]
+pub(crate) fn centrifugal_removed(d: &PairData<'_>, i: usize) -> f64 {
+    let (nv, b) = (d.geometry.axis, d.geometry.baseline);
+    let w = [d.omega[0][i], d.omega[1][i], d.omega[2][i]];
+    let wb = w[0] * b[0] + w[1] * b[1] + w[2] * b[2];
+    let w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
+    let wwb = [
+        w[0] * wb - w2 * b[0],
+        w[1] * wb - w2 * b[1],
+        w[2] * wb - w2 * b[2],
+    ];
+    d.difference[i] - (nv[0] * wwb[0] + nv[1] * wwb[1] + nv[2] * wwb[2])
 }
 
 /// Estimates one pair's calibration on its own, with the gyro angular acceleration as regressors of

@@ -13,8 +13,7 @@
 //! Units: m/s² for differences, s⁻² for S, rad/s² for α.
 
 use crate::estimate::{
-    Coefficient, PairCalibration, PairData, Settings, band_passed_force, fit_polynomial,
-    fit_series, without_centrifugal,
+    Coefficient, PairCalibration, PairData, Settings, band_passed_force, fit_polynomial, fit_series,
 };
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
@@ -83,37 +82,98 @@ pub fn estimate_flight(
     let a: Vec<Vec<f64>> = rows.iter().map(|r| r[..k].to_vec()).collect();
     let op = pseudo_inverse(&a, k);
     // z_k = −(d_k − centrifugal − expected − fixed part), less the gyro α term when the solve uses it.
-    let z: Vec<Vec<f64>> = (0..np)
-        .into_par_iter()
-        .map(|p| {
-            let data = d.series(p, d.differences[p]);
-            let y = without_centrifugal(&data);
-            let fixed_part = fixed.map(|fx| {
-                let mut c = fx[p].clone();
+    // Everything below is linear in the samples, so the model holds as well for block means as for
+    // samples: blocks of `block` samples (a quarter of the band's top period) carry the whole band
+    // and make the fits `block` times cheaper. The z are formed sample by sample and summed into
+    // their block in one pass (no per-sample series is kept); each block is summed in sample order
+    // whatever the thread count.
+    let block = ((s.rate_hz / (4.0 * s.band_hz[1])).floor() as usize).max(1);
+    let mean = |x: &[f64]| block_means(x, block);
+    let fixed_parts: Option<Vec<PairCalibration>> = fixed.map(|fx| {
+        fx.iter()
+            .map(|c| {
+                let mut c = c.clone();
                 c.polynomial.clear();
                 c
-            });
-            (0..n)
-                .map(|i| {
-                    let mut v = y[i] - data.expected.map_or(0.0, |e| e[i]);
-                    if let Some(c) = &fixed_part {
-                        v -= c.correction_at(&data, i);
-                    }
-                    let mut zv = -v;
-                    if !d.alpha_from_pairs {
-                        zv -= (0..3).map(|m| rows[p][6 + m] * d.alpha[m][i]).sum::<f64>();
-                    }
-                    zv
-                })
+            })
+            .collect()
+    });
+    let series: Vec<PairData<'_>> = (0..np).map(|p| d.series(p, d.differences[p])).collect();
+    // Work in spans of whole blocks, each span giving every pair's block means: a pair's z over the
+    // span sample by sample (vectorised; the arithmetic of `centrifugal_removed` and the fixed
+    // correction per sample), then each block summed in sample order.
+    let span = block * 256;
+    let parts: Vec<Vec<Vec<f64>>> = (0..n.div_ceil(span))
+        .into_par_iter()
+        .map_init(
+            || vec![0.0; span],
+            |zs, q| {
+                let r = q * span..((q + 1) * span).min(n);
+                let a0 = r.start;
+                let zs = &mut zs[..r.len()];
+                let w = [
+                    &d.omega[0][r.clone()],
+                    &d.omega[1][r.clone()],
+                    &d.omega[2][r.clone()],
+                ];
+                (0..np)
+                    .map(|p| {
+                        let data = &series[p];
+                        let (nv, b) = (data.geometry.axis, data.geometry.baseline);
+                        let diff = &data.difference[r.clone()];
+                        let expected = data.expected.map(|e| &e[r.clone()]);
+                        for (k, zk) in zs.iter_mut().enumerate() {
+                            let wk = [w[0][k], w[1][k], w[2][k]];
+                            let wb = wk[0] * b[0] + wk[1] * b[1] + wk[2] * b[2];
+                            let w2 = wk[0] * wk[0] + wk[1] * wk[1] + wk[2] * wk[2];
+                            let wwb = [
+                                wk[0] * wb - w2 * b[0],
+                                wk[1] * wb - w2 * b[1],
+                                wk[2] * wb - w2 * b[2],
+                            ];
+                            let y = diff[k] - (nv[0] * wwb[0] + nv[1] * wwb[1] + nv[2] * wwb[2]);
+                            *zk = y - expected.map_or(0.0, |e| e[k]);
+                        }
+                        if let Some(c) = &fixed_parts {
+                            for (k, zk) in zs.iter_mut().enumerate() {
+                                *zk -= c[p].correction_at(data, a0 + k);
+                            }
+                        }
+                        if d.alpha_from_pairs {
+                            for zk in zs.iter_mut() {
+                                *zk = -*zk;
+                            }
+                        } else {
+                            let al = [
+                                &d.alpha[0][r.clone()],
+                                &d.alpha[1][r.clone()],
+                                &d.alpha[2][r.clone()],
+                            ];
+                            let rw = &rows[p];
+                            for (k, zk) in zs.iter_mut().enumerate() {
+                                *zk = -*zk
+                                    - (-0.0
+                                        + rw[6] * al[0][k]
+                                        + rw[7] * al[1][k]
+                                        + rw[8] * al[2][k]);
+                            }
+                        }
+                        zs.chunks(block)
+                            .map(|c| c.iter().sum::<f64>() / c.len() as f64)
+                            .collect()
+                    })
+                    .collect()
+            },
+        )
+        .collect();
+    let z: Vec<Vec<f64>> = (0..np)
+        .map(|p| {
+            parts
+                .iter()
+                .flat_map(|part| part[p].iter().copied())
                 .collect()
         })
         .collect();
-    // Everything below is linear in the samples, so the model holds as well for block means as for
-    // samples: blocks of `block` samples (a quarter of the band's top period) carry the whole band
-    // and make the fits `block` times cheaper.
-    let block = ((s.rate_hz / (4.0 * s.band_hz[1])).floor() as usize).max(1);
-    let mean = |x: &[f64]| block_means(x, block);
-    let z: Vec<Vec<f64>> = z.par_iter().map(|v| mean(v)).collect();
     let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
     let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
     let tb = mean(d.time);

@@ -13,7 +13,6 @@ mod grid_stage;
 mod line_stages;
 mod lines_out;
 mod logging;
-mod pipeline;
 mod provenance;
 mod qc_cmd;
 mod report;
@@ -28,6 +27,7 @@ mod terrain_cmd;
 mod terrain_stage;
 
 use clap::{Parser, Subcommand};
+use gravgrad_cli::pipeline;
 use std::path::PathBuf;
 use std::process::ExitCode;
 

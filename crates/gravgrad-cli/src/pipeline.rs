@@ -261,6 +261,12 @@ pub fn process_flight(
     }
     let usable: Vec<bool> = line.iter().map(|l| *l > 0).collect();
 
+    // The attitude matrix C_sn of every sample, computed once: the calibration turns the known field
+    // into the sensor frame with it, the solve turns the tensor into NED.
+    let c_sn: Vec<Mat3> = (0..n)
+        .into_par_iter()
+        .map(|i| Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn())
+        .collect();
     // The known field in the sensor frame, for the calibration's bias fit.
     let known_sensor: Vec<SymTensor> = (0..n)
         .into_par_iter()
@@ -269,11 +275,11 @@ pub fn process_flight(
             if let Some(t) = &terrain {
                 g = g + t[i];
             }
-            let c = Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn();
-            g.rotated(&mat3::transpose(&c))
+            g.rotated(&mat3::transpose(&c_sn[i]))
         })
         .collect();
     let alpha_gyro: Vec<Vec<f64>> = (0..3)
+        .into_par_iter()
         .map(|k| angular_acceleration(omega[k], rate, recipe.rotation.gyro_lowpass_hz))
         .collect();
     let temperature = flight.flight.table.get("temp");
@@ -312,7 +318,7 @@ pub fn process_flight(
         .map(|g| column(flight, &format!("{}_b", g.id)))
         .collect::<Result<_, _>>()?;
     let diffs: Vec<Vec<f64>> = pair_a
-        .iter()
+        .par_iter()
         .zip(&pair_b)
         .map(|(a, b)| a.iter().zip(*b).map(|(x, y)| x - y).collect())
         .collect();
@@ -365,30 +371,34 @@ pub fn process_flight(
         CalibrationSource::None => None,
     };
     lap("calibration", &mut timings);
-    // The corrected `a` outputs (a − correction; b as logged).
-    let corrected_a: Vec<Vec<f64>> = (0..instrument.pairs.len())
-        .into_par_iter()
-        .map(|k| match &cals {
+    // The corrected `a` outputs (a − correction; b as logged), written over the differences, which
+    // the calibration no longer needs (no fresh memory for nine more series).
+    drop(data);
+    let alpha: [&[f64]; 3] = [&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]];
+    let relative_attitude = relative.as_ref().map(|r| [&r[0][..], &r[1][..]]);
+    drop(expected);
+    let mut corrected_a = diffs;
+    for (k, out) in corrected_a.iter_mut().enumerate() {
+        match &cals {
             Some(c) => {
                 let pd = PairData {
                     geometry: &instrument.pairs[k],
-                    difference: &diffs[k],
+                    // Not read by the correction.
+                    difference: &[],
                     omega,
                     f,
-                    alpha: data.alpha,
+                    alpha,
                     time,
                     temperature,
                     usable: None,
                     expected: None,
-                    relative_attitude: data.relative_attitude,
+                    relative_attitude,
                 };
-                (0..n)
-                    .map(|i| pair_a[k][i] - c[k].correction_at(&pd, i))
-                    .collect()
+                c[k].subtract_into(&pd, pair_a[k], out);
             }
-            None => pair_a[k].to_vec(),
-        })
-        .collect();
+            None => out.copy_from_slice(pair_a[k]),
+        }
+    }
 
     let series: Vec<PairSeries<'_>> = instrument
         .pairs
@@ -405,6 +415,7 @@ pub fn process_flight(
         heading_deg: heading,
         rate_hz: rate,
         alpha_gyro: Some([&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]]),
+        c_sn: Some(&c_sn),
     };
     let solve_settings = SolveSettings {
         alpha: alpha_source,
@@ -419,29 +430,26 @@ pub fn process_flight(
         )
     })?;
     lap("solve and rotation", &mut timings);
-    let alpha_difference = sol.alpha_pairs.as_ref().map(|ap| {
-        ap.iter()
+    // Both in place: the pairs' α less the gyros', and S = G_s − ΩΩ (ΩΩ = ωωᵀ − |ω|²I).
+    let alpha_difference = sol.alpha_pairs.map(|mut ap| {
+        ap.par_iter_mut()
             .zip(&sol.alpha_gyro)
-            .map(|(p, g)| [p[0] - g[0], p[1] - g[1], p[2] - g[2]])
-            .collect()
+            .for_each(|(p, g)| *p = [p[0] - g[0], p[1] - g[1], p[2] - g[2]]);
+        ap
     });
-    let measured = sol
-        .tensor_sensor
-        .iter()
-        .zip(omega[0].iter().zip(omega[1]).zip(omega[2]))
-        .map(|(g, ((x, y), z))| {
-            // S = G_s − ΩΩ, ΩΩ = ωωᵀ − |ω|²I.
-            let w2 = x * x + y * y + z * z;
-            SymTensor::from_array([
-                g.xx - (x * x - w2),
-                g.xy - x * y,
-                g.xz - x * z,
-                g.yy - (y * y - w2),
-                g.yz - y * z,
-                g.zz - (z * z - w2),
-            ])
-        })
-        .collect();
+    let mut measured = sol.tensor_sensor;
+    measured.par_iter_mut().enumerate().for_each(|(i, g)| {
+        let (x, y, z) = (omega[0][i], omega[1][i], omega[2][i]);
+        let w2 = x * x + y * y + z * z;
+        *g = SymTensor::from_array([
+            g.xx - (x * x - w2),
+            g.xy - x * y,
+            g.xz - x * z,
+            g.yy - (y * y - w2),
+            g.yz - y * z,
+            g.zz - (z * z - w2),
+        ]);
+    });
     let calibration = match cals {
         Some(c) => instrument
             .pairs

@@ -17,12 +17,16 @@ pub fn angular_acceleration(rate: &[f64], rate_hz: f64, cutoff_hz: f64) -> Vec<f
     for i in (0..n - 1).rev() {
         y[i] = a * y[i + 1] + (1.0 - a) * y[i];
     }
-    (0..n)
-        .map(|i| {
-            let (lo, hi) = (i.saturating_sub(1), (i + 1).min(n - 1));
-            (y[hi] - y[lo]) / ((hi - lo) as f64 * dt)
-        })
-        .collect()
+    // Central differences in place (one-sided at the ends), keeping the previous filtered value.
+    let mut prev = y[0];
+    y[0] = (y[1] - y[0]) / dt;
+    for i in 1..n - 1 {
+        let here = y[i];
+        y[i] = (y[i + 1] - prev) / (2.0 * dt);
+        prev = here;
+    }
+    y[n - 1] = (y[n - 1] - prev) / dt;
+    y
 }
 
 #[cfg(test)]

@@ -38,6 +38,9 @@ pub struct Inputs<'a> {
     /// The gyro-derived angular acceleration (sensor axes, rad/s²) when the caller has it already
     /// (low-passed at `SolveSettings::gyro_lowpass_hz`); `None`: computed here.
     pub alpha_gyro: Option<[&'a [f64]; 3]>,
+    /// The attitude matrix C_sn of every sample (sensor to NED, from the same roll, pitch and
+    /// heading) when the caller has it already; `None`: computed here.
+    pub c_sn: Option<&'a [Mat3]>,
 }
 
 /// Why a solve cannot be done.
@@ -145,131 +148,184 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
         )
     });
 
-    let alpha_g: Vec<Vec<f64>> = match inp.alpha_gyro {
-        Some(a) => a.iter().map(|v| v.to_vec()).collect(),
-        None => (0..3)
-            .map(|k| angular_acceleration(inp.omega[k], inp.rate_hz, s.gyro_lowpass_hz))
-            .collect(),
+    let computed: Vec<Vec<f64>>;
+    let alpha_g: [&[f64]; 3] = match inp.alpha_gyro {
+        Some(a) => a,
+        None => {
+            computed = (0..3)
+                .into_par_iter()
+                .map(|k| angular_acceleration(inp.omega[k], inp.rate_hz, s.gyro_lowpass_hz))
+                .collect();
+            [&computed[0], &computed[1], &computed[2]]
+        }
     };
+    if let Some((name, got)) = alpha_g
+        .iter()
+        .map(|a| ("alpha_gyro", a.len()))
+        .chain(inp.c_sn.map(|c| ("c_sn", c.len())))
+        .find(|x| x.1 != n)
+    {
+        return Err(RotationError::Length {
+            name: name.into(),
+            got,
+            want: n,
+        });
+    }
     let alpha_gyro: Vec<Vec3> = (0..n)
+        .into_par_iter()
         .map(|i| [alpha_g[0][i], alpha_g[1][i], alpha_g[2][i]])
         .collect();
     let full_rotation = observed.iter().all(|o| *o);
 
-    struct Out {
-        ned: SymTensor,
-        sensor: SymTensor,
-        alpha: Vec3,
-        trace: f64,
-    }
-    // Per-worker scratch: the pair values, the constrained values and the unknowns, reused across
-    // samples (no allocation per sample).
+    // The samples go in spans: the pair values and the unknowns of a span are kept pair by pair
+    // and unknown by unknown, so that the products P·y run across the span's samples at once
+    // (vectorised) while every sample's sum still adds its terms in pair order, as a sample-by-sample
+    // sum would. Per-worker scratch, reused; the four results go straight into their own series.
+    const SPAN: usize = 256;
     let np = inp.pairs.len();
     let nu = op.p.len();
-    let outs: Vec<Out> = (0..n)
-        .into_par_iter()
-        .map_init(
-            || (vec![0.0; np], vec![0.0; np], [0.0f64; 9]),
-            |(y, y_con, u), i| {
-                let w = [inp.omega[0][i], inp.omega[1][i], inp.omega[2][i]];
-                let w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
-                for ((yv, p), r) in y.iter_mut().zip(&inp.pairs).zip(&rows) {
-                    let mut v = -(p.a[i] - p.b[i]);
-                    if !with_alpha {
-                        v -= r[6] * alpha_gyro[i][0]
-                            + r[7] * alpha_gyro[i][1]
-                            + r[8] * alpha_gyro[i][2];
-                    }
-                    *yv = v;
+    let nf = op_free.as_ref().map_or(0, |f| f.p.len());
+    let mut tensor_ned = vec![SymTensor::default(); n];
+    let mut tensor_sensor = vec![SymTensor::default(); n];
+    let mut alpha_pairs = vec![[f64::NAN; 3]; if with_alpha { n } else { 0 }];
+    let mut trace = vec![0.0; n];
+    let mut alpha_chunks: Vec<&mut [Vec3]> = alpha_pairs.chunks_mut(SPAN).collect();
+    alpha_chunks.resize_with(n.div_ceil(SPAN), Default::default);
+    tensor_ned
+        .par_chunks_mut(SPAN)
+        .zip(tensor_sensor.par_chunks_mut(SPAN))
+        .zip(alpha_chunks)
+        .zip(trace.par_chunks_mut(SPAN))
+        .enumerate()
+        .for_each_init(
+            || {
+                (
+                    vec![0.0; SPAN],
+                    vec![0.0; np * SPAN],
+                    vec![0.0; np * SPAN],
+                    vec![0.0; nu * SPAN],
+                    vec![0.0; nf * SPAN],
+                )
+            },
+            |(w2s, ys, ycons, us, ufs), (q, (((ned_out, sensor_out), alpha_out), trace_out))| {
+                let i0 = q * SPAN;
+                let m = ned_out.len();
+                for (k, w2) in w2s[..m].iter_mut().enumerate() {
+                    let i = i0 + k;
+                    let w = [inp.omega[0][i], inp.omega[1][i], inp.omega[2][i]];
+                    *w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
                 }
-                for ((c, v), r) in y_con.iter_mut().zip(y.iter()).zip(&rows) {
-                    *c = if s.trace_constraint {
-                        v - r[5] * 2.0 * w2
-                    } else {
-                        *v
-                    };
-                }
-                for (uj, row) in u.iter_mut().zip(&op.p).take(nu) {
-                    *uj = row.iter().zip(y_con.iter()).map(|(a, b)| a * b).sum();
-                }
-                let y: &[f64] = y;
-                let mut sv = [f64::NAN; 6];
-                let mut alpha = [f64::NAN; 3];
-                if s.trace_constraint {
-                    let map = [0usize, 1, 2, 3, 4];
-                    for (j, &c) in map.iter().enumerate() {
-                        sv[c] = if op.observed[j] { u[j] } else { f64::NAN };
-                    }
-                    sv[5] = 2.0 * w2 - sv[0] - sv[3];
-                    if with_alpha {
-                        for k in 0..3 {
-                            alpha[k] = if op.observed[5 + k] {
-                                u[5 + k]
-                            } else {
-                                f64::NAN
-                            };
+                for (p, (ps, r)) in inp.pairs.iter().zip(&rows).enumerate() {
+                    let (y, y_con) = (
+                        &mut ys[p * SPAN..p * SPAN + m],
+                        &mut ycons[p * SPAN..p * SPAN + m],
+                    );
+                    for k in 0..m {
+                        let i = i0 + k;
+                        let mut v = -(ps.a[i] - ps.b[i]);
+                        if !with_alpha {
+                            v -= r[6] * alpha_gyro[i][0]
+                                + r[7] * alpha_gyro[i][1]
+                                + r[8] * alpha_gyro[i][2];
                         }
-                    }
-                } else {
-                    for c in 0..6 {
-                        sv[c] = if op.observed[c] { u[c] } else { f64::NAN };
-                    }
-                    if with_alpha {
-                        for k in 0..3 {
-                            alpha[k] = if op.observed[6 + k] {
-                                u[6 + k]
-                            } else {
-                                f64::NAN
-                            };
-                        }
-                    }
-                }
-                // G_s = S + ΩΩ, ΩΩ = ωωᵀ − |ω|²I.
-                let ww = [
-                    w[0] * w[0] - w2,
-                    w[0] * w[1],
-                    w[0] * w[2],
-                    w[1] * w[1] - w2,
-                    w[1] * w[2],
-                    w[2] * w[2] - w2,
-                ];
-                let gs = SymTensor::from_array(std::array::from_fn(|c| sv[c] + ww[c]));
-                let trace = match &op_free {
-                    Some(f) => {
-                        let uf: Vec<f64> =
-                            f.p.iter()
-                                .map(|row| row.iter().zip(y).map(|(a, b)| a * b).sum())
-                                .collect();
-                        if f.observed[0] && f.observed[3] && f.observed[5] {
-                            uf[0] + uf[3] + uf[5] - 2.0 * w2
+                        y[k] = v;
+                        y_con[k] = if s.trace_constraint {
+                            v - r[5] * 2.0 * w2s[k]
                         } else {
-                            f64::NAN
+                            v
+                        };
+                    }
+                }
+                // u_j = Σ_p P_jp·y_p, the terms added in pair order from −0 (as `Iterator::sum`).
+                let product = |pm: &[Vec<f64>], y: &[f64], u: &mut [f64]| {
+                    for (j, row) in pm.iter().enumerate() {
+                        let uj = &mut u[j * SPAN..j * SPAN + m];
+                        uj.fill(-0.0);
+                        for (p, pj) in row.iter().enumerate() {
+                            for (a, yv) in uj.iter_mut().zip(&y[p * SPAN..p * SPAN + m]) {
+                                *a += pj * yv;
+                            }
                         }
                     }
-                    None => gs.trace(),
                 };
-                let att =
-                    Attitude::from_degrees(inp.roll_deg[i], inp.pitch_deg[i], inp.heading_deg[i]);
-                let ned = if full_rotation {
-                    gs.rotated(&att.c_sn())
-                } else {
-                    rotate_heading_only(&gs, att.heading)
-                };
-                Out {
-                    ned,
-                    sensor: gs,
-                    alpha,
-                    trace,
+                product(&op.p, ycons, us);
+                if let Some(f) = &op_free {
+                    product(&f.p, ys, ufs);
+                }
+                for k in 0..m {
+                    let i = i0 + k;
+                    let u = |j: usize| us[j * SPAN + k];
+                    let w = [inp.omega[0][i], inp.omega[1][i], inp.omega[2][i]];
+                    let w2 = w2s[k];
+                    let mut sv = [f64::NAN; 6];
+                    let mut alpha = [f64::NAN; 3];
+                    if s.trace_constraint {
+                        let map = [0usize, 1, 2, 3, 4];
+                        for (j, &c) in map.iter().enumerate() {
+                            sv[c] = if op.observed[j] { u(j) } else { f64::NAN };
+                        }
+                        sv[5] = 2.0 * w2 - sv[0] - sv[3];
+                        if with_alpha {
+                            for (a, j) in alpha.iter_mut().zip(5..8) {
+                                *a = if op.observed[j] { u(j) } else { f64::NAN };
+                            }
+                        }
+                    } else {
+                        for (c, v) in sv.iter_mut().enumerate() {
+                            *v = if op.observed[c] { u(c) } else { f64::NAN };
+                        }
+                        if with_alpha {
+                            for (a, j) in alpha.iter_mut().zip(6..9) {
+                                *a = if op.observed[j] { u(j) } else { f64::NAN };
+                            }
+                        }
+                    }
+                    // G_s = S + ΩΩ, ΩΩ = ωωᵀ − |ω|²I.
+                    let ww = [
+                        w[0] * w[0] - w2,
+                        w[0] * w[1],
+                        w[0] * w[2],
+                        w[1] * w[1] - w2,
+                        w[1] * w[2],
+                        w[2] * w[2] - w2,
+                    ];
+                    let gs = SymTensor::from_array(std::array::from_fn(|c| sv[c] + ww[c]));
+                    trace_out[k] = match &op_free {
+                        Some(f) => {
+                            let uf = |j: usize| ufs[j * SPAN + k];
+                            if f.observed[0] && f.observed[3] && f.observed[5] {
+                                uf(0) + uf(3) + uf(5) - 2.0 * w2
+                            } else {
+                                f64::NAN
+                            }
+                        }
+                        None => gs.trace(),
+                    };
+                    ned_out[k] = match (full_rotation, inp.c_sn) {
+                        (true, Some(c)) => gs.rotated(&c[i]),
+                        (true, None) => gs.rotated(
+                            &Attitude::from_degrees(
+                                inp.roll_deg[i],
+                                inp.pitch_deg[i],
+                                inp.heading_deg[i],
+                            )
+                            .c_sn(),
+                        ),
+                        (false, _) => rotate_heading_only(&gs, inp.heading_deg[i].to_radians()),
+                    };
+                    sensor_out[k] = gs;
+                    if with_alpha {
+                        alpha_out[k] = alpha;
+                    }
                 }
             },
-        )
-        .collect();
+        );
     Ok(Solution {
-        tensor_ned: outs.iter().map(|o| o.ned).collect(),
-        tensor_sensor: outs.iter().map(|o| o.sensor).collect(),
-        alpha_pairs: with_alpha.then(|| outs.iter().map(|o| o.alpha).collect()),
+        tensor_ned,
+        tensor_sensor,
+        alpha_pairs: with_alpha.then_some(alpha_pairs),
         alpha_gyro,
-        trace: outs.iter().map(|o| o.trace).collect(),
+        trace,
         observed,
         heading_only: !full_rotation,
     })
