@@ -46,6 +46,17 @@ fn staged(dir: &Path) -> Vec<(PathBuf, Vec<PathBuf>)> {
         .collect()
 }
 
+/// Runs `gravgrad run` on `recipe` into `out` to the end; asserts exit 0.
+fn run_to_end(recipe: &Path, out: &Path) {
+    ok(&[
+        "--quiet",
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+}
+
 fn start_run(recipe: &Path, out: &Path) -> Child {
     Command::new(env!("CARGO_BIN_EXE_gravgrad"))
         .args(["--quiet", "run"])
@@ -102,13 +113,7 @@ fn killed_run_leaves_no_partial_product_and_the_rerun_completes() {
     let recipe = survey.join("recipe.toml");
     let reference = tmp.path().join("reference");
     let clock = Instant::now();
-    ok(&[
-        "--quiet",
-        "run",
-        recipe.to_str().unwrap(),
-        "--out",
-        reference.to_str().unwrap(),
-    ]);
+    run_to_end(&recipe, &reference);
     let full = clock.elapsed();
     let expected = products(&reference);
     for p in [
@@ -143,13 +148,7 @@ fn killed_run_leaves_no_partial_product_and_the_rerun_completes() {
 
     // 2. Over a complete earlier run, killed at several points of its course: the earlier run's
     //    products stay whole and unchanged.
-    ok(&[
-        "--quiet",
-        "run",
-        recipe.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    run_to_end(&recipe, &out);
     assert_same_products(&out, &reference);
     let mut kills = 0;
     for fraction in [0.2, 0.5, 0.8, 0.95] {
@@ -181,12 +180,6 @@ fn killed_run_leaves_no_partial_product_and_the_rerun_completes() {
 
     // 3. Running again completes, cleans the staging folders of the killed runs, and gives the
     //    uninterrupted run's products.
-    ok(&[
-        "--quiet",
-        "run",
-        recipe.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    run_to_end(&recipe, &out);
     assert_same_products(&out, &reference);
 }

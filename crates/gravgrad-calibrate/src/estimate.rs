@@ -256,8 +256,14 @@ pub(crate) fn without_centrifugal(d: &PairData<'_>) -> Vec<f64> {
 /// Sample `i` of [`without_centrifugal`], m/s².
 #[inline]
 pub(crate) fn centrifugal_removed(d: &PairData<'_>, i: usize) -> f64 {
-    let (nv, b) = (d.geometry.axis, d.geometry.baseline);
     let w = [d.omega[0][i], d.omega[1][i], d.omega[2][i]];
+    d.difference[i] - centrifugal_along(d.geometry.axis, d.geometry.baseline, w)
+}
+
+/// The centrifugal part of a pair's difference, n·(ω × (ω × b)) = n·(ω(ω·b) − |ω|²b), m/s²: sensing
+/// axis `nv` (unit), baseline `b` (m) and rotation rate `w` (rad/s), all in the sensor frame.
+#[inline]
+pub(crate) fn centrifugal_along(nv: [f64; 3], b: [f64; 3], w: [f64; 3]) -> f64 {
     let wb = w[0] * b[0] + w[1] * b[1] + w[2] * b[2];
     let w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
     let wwb = [
@@ -265,7 +271,7 @@ pub(crate) fn centrifugal_removed(d: &PairData<'_>, i: usize) -> f64 {
         w[1] * wb - w2 * b[1],
         w[2] * wb - w2 * b[2],
     ];
-    d.difference[i] - (nv[0] * wwb[0] + nv[1] * wwb[1] + nv[2] * wwb[2])
+    nv[0] * wwb[0] + nv[1] * wwb[1] + nv[2] * wwb[2]
 }
 
 /// Estimates one pair's calibration on its own, with the gyro angular acceleration as regressors of

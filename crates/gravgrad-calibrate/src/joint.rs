@@ -13,7 +13,8 @@
 //! Units: m/s² for differences, s⁻² for S, rad/s² for α.
 
 use crate::estimate::{
-    Coefficient, PairCalibration, PairData, Settings, band_passed_force, fit_polynomial, fit_series,
+    Coefficient, PairCalibration, PairData, Settings, band_passed_force, centrifugal_along,
+    fit_polynomial, fit_series,
 };
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
@@ -124,14 +125,7 @@ pub fn estimate_flight(
                         let expected = data.expected.map(|e| &e[r.clone()]);
                         for (k, zk) in zs.iter_mut().enumerate() {
                             let wk = [w[0][k], w[1][k], w[2][k]];
-                            let wb = wk[0] * b[0] + wk[1] * b[1] + wk[2] * b[2];
-                            let w2 = wk[0] * wk[0] + wk[1] * wk[1] + wk[2] * wk[2];
-                            let wwb = [
-                                wk[0] * wb - w2 * b[0],
-                                wk[1] * wb - w2 * b[1],
-                                wk[2] * wb - w2 * b[2],
-                            ];
-                            let y = diff[k] - (nv[0] * wwb[0] + nv[1] * wwb[1] + nv[2] * wwb[2]);
+                            let y = diff[k] - centrifugal_along(nv, b, wk);
                             *zk = y - expected.map_or(0.0, |e| e[k]);
                         }
                         if let Some(c) = &fixed_parts {
