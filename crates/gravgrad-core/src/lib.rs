@@ -17,6 +17,7 @@ pub mod mat3;
 pub mod pairs;
 pub mod projection;
 pub mod raster;
+pub mod stats;
 pub mod table;
 pub mod tensor;
 pub mod units;

@@ -80,16 +80,7 @@ pub fn line_spacing(lines: &[Vec<(f64, f64)>]) -> Option<f64> {
         .map(|w| w[1] - w[0])
         .filter(|&g| g >= 1.0)
         .collect();
-    if gaps.is_empty() {
-        return None;
-    }
-    gaps.sort_by(f64::total_cmp);
-    let m = gaps.len();
-    Some(if m % 2 == 1 {
-        gaps[m / 2]
-    } else {
-        0.5 * (gaps[m / 2 - 1] + gaps[m / 2])
-    })
+    gravgrad_core::stats::median(&mut gaps)
 }
 
 /// The default cell for a line spacing (m): a quarter of it, rounded down to 1, 2, 2.5 or 5 times

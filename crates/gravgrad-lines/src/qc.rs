@@ -34,6 +34,7 @@ use crate::error::{LinesError, check_finite, check_len, check_positive};
 use crate::filter::{LowPass, along_track_distance, low_pass_along_track};
 use crate::spectrum::welch;
 use gravgrad_core::mat3::Vec3;
+use gravgrad_core::stats::median;
 use gravgrad_core::units::to_eotvos;
 
 /// The recipe's `[qc]` tolerances.
@@ -167,19 +168,6 @@ fn rms(v: impl Iterator<Item = f64>) -> Option<f64> {
         .filter(|x| x.is_finite())
         .fold((0.0, 0usize), |(s, n), x| (s + x * x, n + 1));
     (n > 0).then(|| (s / n as f64).sqrt())
-}
-
-fn median(v: &mut [f64]) -> Option<f64> {
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(f64::total_cmp);
-    let n = v.len();
-    Some(if n % 2 == 1 {
-        v[n / 2]
-    } else {
-        0.5 * (v[n / 2 - 1] + v[n / 2])
-    })
 }
 
 /// Runs of consecutive usable samples, as index ranges, cut where the interval exceeds 1.5·`dt`.
