@@ -16,16 +16,53 @@ use crate::estimate::{
     Coefficient, PairCalibration, PairData, Settings, band_passed_force, centrifugal_along,
     fit_polynomial, fit_series,
 };
+use gravgrad_core::SymTensor;
+use gravgrad_core::mat3::{self, Mat3};
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
+
+/// The known gravitational field along a flight, whose part −nᵀ·G_s·b every pair difference carries
+/// and which comes off before the fit: the tensor in NED (s⁻², normal field plus the terrain's when
+/// modelled) and the attitude that turns it into the sensor frame, G_s = C_snᵀ·G·C_sn. The fit forms
+/// G_s and each pair's part sample by sample as it reads them, instead of keeping a series per pair.
+#[derive(Clone, Copy)]
+pub struct KnownField<'a> {
+    /// Normal gravitational tensor, NED, s⁻².
+    pub normal: &'a [SymTensor],
+    /// Terrain tensor, NED, s⁻², when modelled.
+    pub terrain: Option<&'a [SymTensor]>,
+    /// C_sn per sample (sensor to NED).
+    pub c_sn: &'a [Mat3],
+}
+
+impl KnownField<'_> {
+    /// G_s at sample `i`, sensor axes, s⁻².
+    #[inline]
+    pub fn sensor(&self, i: usize) -> SymTensor {
+        let mut g = self.normal[i];
+        if let Some(t) = self.terrain {
+            g = g + t[i];
+        }
+        g.rotated(&mat3::transpose(&self.c_sn[i]))
+    }
+
+    /// The part −nᵀ·G_s·b of a difference along axis `axis` over baseline `baseline` (sensor frame,
+    /// m), m/s², for a sensor-frame tensor `g_s`.
+    #[inline]
+    pub fn part(g_s: &SymTensor, axis: &[f64; 3], baseline: &[f64; 3]) -> f64 {
+        let gb = mat3::mul_vec(&g_s.to_matrix(), baseline);
+        -mat3::dot(axis, &gb)
+    }
+}
 
 /// One flight of a whole instrument, on one time base.
 pub struct FlightData<'a> {
     pub pairs: &'a [PairGeometry],
-    /// a − b per pair, m/s².
-    pub differences: Vec<&'a [f64]>,
-    /// The known field's part of each difference (−nᵀ·G·b), m/s²; empty: none.
-    pub expected: Vec<&'a [f64]>,
+    /// Each pair's outputs a and b, m/s², in the order of `pairs`; the fit reads d = a − b.
+    pub a: Vec<&'a [f64]>,
+    pub b: Vec<&'a [f64]>,
+    /// The known field to take off every difference; `None`: nothing taken off.
+    pub known: Option<KnownField<'a>>,
     /// Angular rate, sensor axes, rad/s.
     pub omega: [&'a [f64]; 3],
     /// Specific force, sensor axes, m/s².
@@ -51,7 +88,7 @@ impl<'a> FlightData<'a> {
             time: self.time,
             temperature: self.temperature,
             usable: self.usable,
-            expected: self.expected.get(k).copied(),
+            expected: None,
             relative_attitude: self.relative_attitude,
         }
     }
@@ -99,19 +136,26 @@ pub fn estimate_flight(
             })
             .collect()
     });
-    let series: Vec<PairData<'_>> = (0..np).map(|p| d.series(p, d.differences[p])).collect();
-    // Work in spans of whole blocks, each span giving every pair's block means: a pair's z over the
-    // span sample by sample (vectorised; the arithmetic of `centrifugal_removed` and the fixed
+    let series: Vec<PairData<'_>> = (0..np).map(|p| d.series(p, &[])).collect();
+    // Work in spans of whole blocks, each span giving every pair's block means: the known field in
+    // the sensor frame over the span, then a pair's z over the span sample by sample (vectorised;
+    // the difference, the arithmetic of `centrifugal_removed`, the known part and the fixed
     // correction per sample), then each block summed in sample order.
     let span = block * 256;
     let parts: Vec<Vec<Vec<f64>>> = (0..n.div_ceil(span))
         .into_par_iter()
         .map_init(
-            || vec![0.0; span],
-            |zs, q| {
+            || (vec![0.0; span], vec![SymTensor::default(); span]),
+            |(zs, gs), q| {
                 let r = q * span..((q + 1) * span).min(n);
                 let a0 = r.start;
                 let zs = &mut zs[..r.len()];
+                let gs = &mut gs[..r.len()];
+                if let Some(kf) = &d.known {
+                    for (k, g) in gs.iter_mut().enumerate() {
+                        *g = kf.sensor(a0 + k);
+                    }
+                }
                 let w = [
                     &d.omega[0][r.clone()],
                     &d.omega[1][r.clone()],
@@ -121,12 +165,14 @@ pub fn estimate_flight(
                     .map(|p| {
                         let data = &series[p];
                         let (nv, b) = (data.geometry.axis, data.geometry.baseline);
-                        let diff = &data.difference[r.clone()];
-                        let expected = data.expected.map(|e| &e[r.clone()]);
+                        let (pa, pb) = (&d.a[p][r.clone()], &d.b[p][r.clone()]);
                         for (k, zk) in zs.iter_mut().enumerate() {
                             let wk = [w[0][k], w[1][k], w[2][k]];
-                            let y = diff[k] - centrifugal_along(nv, b, wk);
-                            *zk = y - expected.map_or(0.0, |e| e[k]);
+                            let y = (pa[k] - pb[k]) - centrifugal_along(nv, b, wk);
+                            *zk = y - d
+                                .known
+                                .as_ref()
+                                .map_or(0.0, |_| KnownField::part(&gs[k], &nv, &b));
                         }
                         if let Some(c) = &fixed_parts {
                             for (k, zk) in zs.iter_mut().enumerate() {
@@ -185,8 +231,9 @@ pub fn estimate_flight(
     let s = &settings_b;
     let d = FlightData {
         pairs: d.pairs,
-        differences: vec![],
-        expected: vec![],
+        a: vec![],
+        b: vec![],
+        known: None,
         omega: d.omega,
         f: [&fb[0], &fb[1], &fb[2]],
         alpha: [&ab[0], &ab[1], &ab[2]],

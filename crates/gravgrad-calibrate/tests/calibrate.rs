@@ -135,9 +135,8 @@ fn coupling_drift_and_temperature_are_recovered_within_three_standard_errors() {
 /// and temperature coefficient within three standard errors of the injected values.
 #[test]
 fn joint_fit_recovers_every_pair_within_three_standard_errors() {
-    use gravgrad_calibrate::joint::{FlightData, estimate_flight};
+    use gravgrad_calibrate::joint::{FlightData, KnownField, estimate_flight};
     use gravgrad_core::attitude::Attitude;
-    use gravgrad_core::mat3;
     let sc: Scenario = toml::from_str(SCENARIO).unwrap();
     let sim = simulate(&sc).unwrap();
     let rate = sc.plan.sample_rate_hz;
@@ -153,40 +152,22 @@ fn joint_fit_recovers_every_pair_within_three_standard_errors() {
     let usable: Vec<bool> = sim.line.iter().map(|l| *l > 0).collect();
     let n = sim.line.len();
     let (roll, pitch, heading) = (col(&sim, "roll"), col(&sim, "pitch"), col(&sim, "heading"));
-    // Known field in the sensor frame: the truth's normal and terrain parts, turned by the logged
+    // Known field: the truth's normal and terrain parts, turned into the sensor frame by the logged
     // attitude.
-    let known: Vec<_> = (0..n)
-        .map(|i| {
-            let g = sim.truth.normal[i] + sim.truth.terrain[i];
-            let c = Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn();
-            g.rotated(&mat3::transpose(&c))
-        })
+    let c_sn: Vec<_> = (0..n)
+        .map(|i| Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn())
         .collect();
-    let diffs: Vec<Vec<f64>> = sim
-        .pairs
-        .iter()
-        .map(|p| {
-            col(&sim, &format!("{}_a", p.id))
-                .iter()
-                .zip(col(&sim, &format!("{}_b", p.id)))
-                .map(|(a, b)| a - b)
-                .collect()
-        })
-        .collect();
-    let expected: Vec<Vec<f64>> = sim
-        .pairs
-        .iter()
-        .map(|p| {
-            known
-                .iter()
-                .map(|t| -mat3::dot(&p.axis, &mat3::mul_vec(&t.to_matrix(), &p.baseline)))
-                .collect()
-        })
-        .collect();
+    let pair_col =
+        |p: &gravgrad_core::pairs::PairGeometry, end: &str| col(&sim, &format!("{}_{end}", p.id));
     let data = FlightData {
         pairs: &sim.pairs,
-        differences: diffs.iter().map(|v| &v[..]).collect(),
-        expected: expected.iter().map(|v| &v[..]).collect(),
+        a: sim.pairs.iter().map(|p| pair_col(p, "a")).collect(),
+        b: sim.pairs.iter().map(|p| pair_col(p, "b")).collect(),
+        known: Some(KnownField {
+            normal: &sim.truth.normal,
+            terrain: Some(&sim.truth.terrain),
+            c_sn: &c_sn,
+        }),
         omega: [col(&sim, "wx"), col(&sim, "wy"), col(&sim, "wz")],
         f: [col(&sim, "fx"), col(&sim, "fy"), col(&sim, "fz")],
         alpha: [&alpha[0], &alpha[1], &alpha[2]],

@@ -9,10 +9,10 @@
 
 use gravgrad_calibrate::estimate::{self, PairCalibration, PairData};
 use gravgrad_calibrate::file::CalibrationFile;
-use gravgrad_calibrate::joint::{FlightData, estimate_flight};
+use gravgrad_calibrate::joint::{FlightData, KnownField, estimate_flight};
 use gravgrad_core::attitude::Attitude;
 use gravgrad_core::ellipsoid::Ellipsoid;
-use gravgrad_core::mat3::{self, Mat3};
+use gravgrad_core::mat3::Mat3;
 use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, observability};
 use gravgrad_core::projection::TransverseMercator;
 use gravgrad_core::{Location, Problem, SymTensor};
@@ -21,7 +21,7 @@ use gravgrad_ingest::check::LoadedFlight;
 use gravgrad_ingest::instrument::Instrument;
 use gravgrad_ingest::recipe::{AlphaChoice, Recipe};
 use gravgrad_rotation::gyro::angular_acceleration;
-use gravgrad_rotation::solve::{Inputs, PairSeries, SolveSettings, solve};
+use gravgrad_rotation::solve::{Inputs, PairSeries, SolveSettings, SpanCorrection, solve};
 use rayon::prelude::*;
 
 /// The survey's map projection: UTM, with its EPSG code.
@@ -267,17 +267,6 @@ pub fn process_flight(
         .into_par_iter()
         .map(|i| Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn())
         .collect();
-    // The known field in the sensor frame, for the calibration's bias fit.
-    let known_sensor: Vec<SymTensor> = (0..n)
-        .into_par_iter()
-        .map(|i| {
-            let mut g = normal[i];
-            if let Some(t) = &terrain {
-                g = g + t[i];
-            }
-            g.rotated(&mat3::transpose(&c_sn[i]))
-        })
-        .collect();
     let alpha_gyro: Vec<Vec<f64>> = (0..3)
         .into_par_iter()
         .map(|k| angular_acceleration(omega[k], rate, recipe.rotation.gyro_lowpass_hz))
@@ -305,7 +294,6 @@ pub fn process_flight(
         rate_hz: rate,
     };
 
-    // Per pair: the difference and the known field's part of it.
     let alpha_source = alpha_source(recipe, &instrument.pairs);
     let pair_a: Vec<&[f64]> = instrument
         .pairs
@@ -317,31 +305,19 @@ pub fn process_flight(
         .iter()
         .map(|g| column(flight, &format!("{}_b", g.id)))
         .collect::<Result<_, _>>()?;
-    let diffs: Vec<Vec<f64>> = pair_a
-        .par_iter()
-        .zip(&pair_b)
-        .map(|(a, b)| a.iter().zip(*b).map(|(x, y)| x - y).collect())
-        .collect();
-    let expected: Vec<Vec<f64>> = instrument
-        .pairs
-        .par_iter()
-        .map(|g| {
-            known_sensor
-                .iter()
-                .map(|t| {
-                    let gb = mat3::mul_vec(&t.to_matrix(), &g.baseline);
-                    -mat3::dot(&g.axis, &gb)
-                })
-                .collect()
-        })
-        .collect();
     // The specific force the coupling acts on, from the pairs' own common mode where they have it.
     let f_common = common_mode_force(&instrument.pairs, &pair_a, &pair_b, f);
     let f: [&[f64]; 3] = [&f_common[0], &f_common[1], &f_common[2]];
     let data = FlightData {
         pairs: &instrument.pairs,
-        differences: diffs.iter().map(|v| &v[..]).collect(),
-        expected: expected.iter().map(|v| &v[..]).collect(),
+        a: pair_a.clone(),
+        b: pair_b.clone(),
+        // The fit forms the known field's part of each difference as it reads the samples.
+        known: Some(KnownField {
+            normal: &normal,
+            terrain: terrain.as_deref(),
+            c_sn: &c_sn,
+        }),
         omega,
         f,
         alpha: [&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]],
@@ -371,18 +347,19 @@ pub fn process_flight(
         CalibrationSource::None => None,
     };
     lap("calibration", &mut timings);
-    // The corrected `a` outputs (a − correction; b as logged), written over the differences, which
-    // the calibration no longer needs (no fresh memory for nine more series).
+    // The calibration is applied as the solve reads each span of `a` (b as logged): no corrected
+    // series is kept.
     drop(data);
     let alpha: [&[f64]; 3] = [&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]];
     let relative_attitude = relative.as_ref().map(|r| [&r[0][..], &r[1][..]]);
-    drop(expected);
-    let mut corrected_a = diffs;
-    for (k, out) in corrected_a.iter_mut().enumerate() {
-        match &cals {
-            Some(c) => {
+    let corrections: Vec<Box<SpanCorrection<'_>>> = match &cals {
+        Some(c) => instrument
+            .pairs
+            .iter()
+            .zip(c)
+            .map(|(g, cal)| {
                 let pd = PairData {
-                    geometry: &instrument.pairs[k],
+                    geometry: g,
                     // Not read by the correction.
                     difference: &[],
                     omega,
@@ -394,18 +371,23 @@ pub fn process_flight(
                     expected: None,
                     relative_attitude,
                 };
-                c[k].subtract_into(&pd, pair_a[k], out);
-            }
-            None => out.copy_from_slice(pair_a[k]),
-        }
-    }
-
+                Box::new(move |first: usize, x: &[f64], out: &mut [f64]| {
+                    cal.subtract_span(&pd, first, x, out)
+                }) as Box<SpanCorrection<'_>>
+            })
+            .collect(),
+        None => Vec::new(),
+    };
     let series: Vec<PairSeries<'_>> = instrument
         .pairs
         .iter()
-        .zip(&corrected_a)
-        .zip(&pair_b)
-        .map(|((g, a), b)| PairSeries { geometry: g, a, b })
+        .enumerate()
+        .map(|(k, g)| PairSeries {
+            geometry: g,
+            a: pair_a[k],
+            b: pair_b[k],
+            correction: corrections.get(k).map(|c| &**c),
+        })
         .collect();
     let inputs = Inputs {
         pairs: series,
@@ -430,26 +412,18 @@ pub fn process_flight(
         )
     })?;
     lap("solve and rotation", &mut timings);
-    // Both in place: the pairs' α less the gyros', and S = G_s − ΩΩ (ΩΩ = ωωᵀ − |ω|²I).
+    // In place: the pairs' α less the gyros'.
     let alpha_difference = sol.alpha_pairs.map(|mut ap| {
-        ap.par_iter_mut()
-            .zip(&sol.alpha_gyro)
-            .for_each(|(p, g)| *p = [p[0] - g[0], p[1] - g[1], p[2] - g[2]]);
+        ap.par_iter_mut().enumerate().for_each(|(i, p)| {
+            *p = [
+                p[0] - alpha_gyro[0][i],
+                p[1] - alpha_gyro[1][i],
+                p[2] - alpha_gyro[2][i],
+            ]
+        });
         ap
     });
-    let mut measured = sol.tensor_sensor;
-    measured.par_iter_mut().enumerate().for_each(|(i, g)| {
-        let (x, y, z) = (omega[0][i], omega[1][i], omega[2][i]);
-        let w2 = x * x + y * y + z * z;
-        *g = SymTensor::from_array([
-            g.xx - (x * x - w2),
-            g.xy - x * y,
-            g.xz - x * z,
-            g.yy - (y * y - w2),
-            g.yz - y * z,
-            g.zz - (z * z - w2),
-        ]);
-    });
+    drop(corrections);
     let calibration = match cals {
         Some(c) => instrument
             .pairs
@@ -464,7 +438,7 @@ pub fn process_flight(
         time: time.to_vec(),
         line,
         clearance: flight.flight.table.get("clearance").map(<[f64]>::to_vec),
-        measured,
+        measured: sol.measured,
         rotated: sol.tensor_ned,
         normal,
         terrain,

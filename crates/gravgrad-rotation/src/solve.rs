@@ -18,11 +18,19 @@ pub struct SolveSettings {
     pub components: Vec<String>,
 }
 
-/// One pair's calibrated outputs (m/s²) with its geometry.
+/// Writes a span of a pair's calibrated `a` output: (the span's first sample, the logged `a` over
+/// the span, the calibrated values out), m/s².
+pub type SpanCorrection<'a> = dyn Fn(usize, &[f64], &mut [f64]) + Sync + 'a;
+
+/// One pair's outputs (m/s²) with its geometry.
 pub struct PairSeries<'a> {
     pub geometry: &'a PairGeometry,
+    /// The `a` output: calibrated, or as logged when `correction` is given.
     pub a: &'a [f64],
     pub b: &'a [f64],
+    /// The calibration of `a`, applied span by span as the solve reads it (no calibrated series is
+    /// kept); `None`: `a` is calibrated already.
+    pub correction: Option<&'a SpanCorrection<'a>>,
 }
 
 /// Everything the solve reads, on one time base.
@@ -66,12 +74,11 @@ pub enum RotationError {
 pub struct Solution {
     /// Gradient tensor in NED, s⁻²; NaN in components the pair set does not observe.
     pub tensor_ned: Vec<SymTensor>,
-    /// Gradient tensor in the sensor frame, s⁻² (G_s = S + ΩΩ).
-    pub tensor_sensor: Vec<SymTensor>,
+    /// What the pairs give, sensor frame, s⁻²: S = sym(G_s − ΩΩ), formed as G_s less ΩΩ with
+    /// G_s = S + ΩΩ (ΩΩ = ωωᵀ − |ω|²I).
+    pub measured: Vec<SymTensor>,
     /// Angular acceleration from the pairs, rad/s², when they see it.
     pub alpha_pairs: Option<Vec<Vec3>>,
-    /// Angular acceleration from the gyros (low-passed derivative), rad/s².
-    pub alpha_gyro: Vec<Vec3>,
     /// Trace of G from the solve without the trace constraint (QC), s⁻²; NaN where not observable.
     pub trace: Vec<f64>,
     /// Which of Gxx Gxy Gxz Gyy Gyz Gzz are given.
@@ -171,10 +178,6 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
             want: n,
         });
     }
-    let alpha_gyro: Vec<Vec3> = (0..n)
-        .into_par_iter()
-        .map(|i| [alpha_g[0][i], alpha_g[1][i], alpha_g[2][i]])
-        .collect();
     let full_rotation = observed.iter().all(|o| *o);
 
     // The samples go in spans: the pair values and the unknowns of a span are kept pair by pair
@@ -186,14 +189,14 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
     let nu = op.p.len();
     let nf = op_free.as_ref().map_or(0, |f| f.p.len());
     let mut tensor_ned = vec![SymTensor::default(); n];
-    let mut tensor_sensor = vec![SymTensor::default(); n];
+    let mut measured = vec![SymTensor::default(); n];
     let mut alpha_pairs = vec![[f64::NAN; 3]; if with_alpha { n } else { 0 }];
     let mut trace = vec![0.0; n];
     let mut alpha_chunks: Vec<&mut [Vec3]> = alpha_pairs.chunks_mut(SPAN).collect();
     alpha_chunks.resize_with(n.div_ceil(SPAN), Default::default);
     tensor_ned
         .par_chunks_mut(SPAN)
-        .zip(tensor_sensor.par_chunks_mut(SPAN))
+        .zip(measured.par_chunks_mut(SPAN))
         .zip(alpha_chunks)
         .zip(trace.par_chunks_mut(SPAN))
         .enumerate()
@@ -205,9 +208,11 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                     vec![0.0; np * SPAN],
                     vec![0.0; nu * SPAN],
                     vec![0.0; nf * SPAN],
+                    vec![0.0; SPAN],
                 )
             },
-            |(w2s, ys, ycons, us, ufs), (q, (((ned_out, sensor_out), alpha_out), trace_out))| {
+            |(w2s, ys, ycons, us, ufs, cas),
+             (q, (((ned_out, sensor_out), alpha_out), trace_out))| {
                 let i0 = q * SPAN;
                 let m = ned_out.len();
                 for (k, w2) in w2s[..m].iter_mut().enumerate() {
@@ -220,13 +225,18 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                         &mut ys[p * SPAN..p * SPAN + m],
                         &mut ycons[p * SPAN..p * SPAN + m],
                     );
+                    let a: &[f64] = match ps.correction {
+                        Some(correct) => {
+                            correct(i0, &ps.a[i0..i0 + m], &mut cas[..m]);
+                            &cas[..m]
+                        }
+                        None => &ps.a[i0..i0 + m],
+                    };
                     for k in 0..m {
                         let i = i0 + k;
-                        let mut v = -(ps.a[i] - ps.b[i]);
+                        let mut v = -(a[k] - ps.b[i]);
                         if !with_alpha {
-                            v -= r[6] * alpha_gyro[i][0]
-                                + r[7] * alpha_gyro[i][1]
-                                + r[8] * alpha_gyro[i][2];
+                            v -= r[6] * alpha_g[0][i] + r[7] * alpha_g[1][i] + r[8] * alpha_g[2][i];
                         }
                         y[k] = v;
                         y_con[k] = if s.trace_constraint {
@@ -313,7 +323,8 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                         ),
                         (false, _) => rotate_heading_only(&gs, inp.heading_deg[i].to_radians()),
                     };
-                    sensor_out[k] = gs;
+                    let g = gs.to_array();
+                    sensor_out[k] = SymTensor::from_array(std::array::from_fn(|c| g[c] - ww[c]));
                     if with_alpha {
                         alpha_out[k] = alpha;
                     }
@@ -322,9 +333,8 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
         );
     Ok(Solution {
         tensor_ned,
-        tensor_sensor,
+        measured,
         alpha_pairs: with_alpha.then_some(alpha_pairs),
-        alpha_gyro,
         trace,
         observed,
         heading_only: !full_rotation,

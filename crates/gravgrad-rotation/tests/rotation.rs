@@ -48,6 +48,7 @@ fn inputs(s: &Simulation) -> Inputs<'_> {
                 geometry: p,
                 a: col(s, &format!("{}_a", p.id)),
                 b: col(s, &format!("{}_b", p.id)),
+                correction: None,
             })
             .collect(),
         omega: [col(s, "wx"), col(s, "wy"), col(s, "wz")],
