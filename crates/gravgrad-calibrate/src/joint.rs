@@ -207,6 +207,7 @@ pub fn estimate_flight(
         )
         .collect();
     let z: Vec<Vec<f64>> = (0..np)
+        .into_par_iter()
         .map(|p| {
             parts
                 .iter()
@@ -254,6 +255,7 @@ pub fn estimate_flight(
         })
         .collect();
     let u: Vec<Vec<f64>> = (0..k)
+        .into_par_iter()
         .map(|j| {
             (0..n)
                 .map(|i| (0..np).map(|p| op.p[j][p] * z[p][i]).sum())
@@ -262,6 +264,7 @@ pub fn estimate_flight(
         .collect();
     // Targets: −û_j (+ the gyro prediction of its α content), and −r_p.
     let mut targets: Vec<Vec<f64>> = (0..k)
+        .into_par_iter()
         .map(|j| {
             (0..n)
                 .map(|i| {
@@ -289,15 +292,15 @@ pub fn estimate_flight(
         .iter()
         .map(|r| r.iter().any(|v| v.abs() > 1e-9))
         .collect();
-    for p in 0..np {
-        targets.push(if has_residual[p] {
+    targets.par_extend((0..np).into_par_iter().map(|p| {
+        if has_residual[p] {
             (0..n)
                 .map(|i| -(z[p][i] - (0..k).map(|j| a[p][j] * u[j][i]).sum::<f64>()))
                 .collect()
         } else {
             Vec::new()
-        });
-    }
+        }
+    }));
     // Fit each target: the full model, or bias and drift only. The force is band-passed once.
     let force_band = band_passed_force(&d.series(0, d.time), s);
     let fits: Vec<Option<PairCalibration>> = targets
@@ -385,7 +388,7 @@ pub fn estimate_flight(
 
 /// Means of consecutive blocks of `block` samples (the last block may be shorter).
 fn block_means(x: &[f64], block: usize) -> Vec<f64> {
-    x.chunks(block)
+    x.par_chunks(block)
         .map(|c| c.iter().sum::<f64>() / c.len() as f64)
         .collect()
 }

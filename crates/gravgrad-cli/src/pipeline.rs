@@ -20,7 +20,7 @@ use gravgrad_forward::normal::NormalField;
 use gravgrad_ingest::check::LoadedFlight;
 use gravgrad_ingest::instrument::Instrument;
 use gravgrad_ingest::recipe::{AlphaChoice, Recipe};
-use gravgrad_rotation::gyro::angular_acceleration;
+use gravgrad_rotation::gyro::angular_acceleration3;
 use gravgrad_rotation::solve::{Inputs, PairSeries, SolveSettings, SpanCorrection, solve};
 use rayon::prelude::*;
 
@@ -261,16 +261,33 @@ pub fn process_flight(
     }
     let usable: Vec<bool> = line.iter().map(|l| *l > 0).collect();
 
-    // The attitude matrix C_sn of every sample, computed once: the calibration turns the known field
-    // into the sensor frame with it, the solve turns the tensor into NED.
-    let c_sn: Vec<Mat3> = (0..n)
-        .into_par_iter()
-        .map(|i| Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn())
-        .collect();
-    let alpha_gyro: Vec<Vec<f64>> = (0..3)
-        .into_par_iter()
-        .map(|k| angular_acceleration(omega[k], rate, recipe.rotation.gyro_lowpass_hz))
-        .collect();
+    let pair_a: Vec<&[f64]> = instrument
+        .pairs
+        .iter()
+        .map(|g| column(flight, &format!("{}_a", g.id)))
+        .collect::<Result<_, _>>()?;
+    let pair_b: Vec<&[f64]> = instrument
+        .pairs
+        .iter()
+        .map(|g| column(flight, &format!("{}_b", g.id)))
+        .collect::<Result<_, _>>()?;
+    // The attitude matrix C_sn of every sample, computed once (the calibration turns the known field
+    // into the sensor frame with it, the solve turns the tensor into NED), and the common-mode force,
+    // in spans of samples on one core and whatever the other leaves; beside them the gyros' angular
+    // acceleration (three recursions interleaved on one core).
+    let (alpha_gyro, (c_sn, f_common)) = rayon::join(
+        || angular_acceleration3(omega, rate, recipe.rotation.gyro_lowpass_hz),
+        || {
+            let c_sn: Vec<Mat3> = (0..n)
+                .into_par_iter()
+                .map(|i| Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn())
+                .collect();
+            (
+                c_sn,
+                common_mode_force(&instrument.pairs, &pair_a, &pair_b, f),
+            )
+        },
+    );
     let temperature = flight.flight.table.get("temp");
     let relative: Option<[Vec<f64>; 2]> = match (
         flight.flight.table.get("ac_roll"),
@@ -295,18 +312,6 @@ pub fn process_flight(
     };
 
     let alpha_source = alpha_source(recipe, &instrument.pairs);
-    let pair_a: Vec<&[f64]> = instrument
-        .pairs
-        .iter()
-        .map(|g| column(flight, &format!("{}_a", g.id)))
-        .collect::<Result<_, _>>()?;
-    let pair_b: Vec<&[f64]> = instrument
-        .pairs
-        .iter()
-        .map(|g| column(flight, &format!("{}_b", g.id)))
-        .collect::<Result<_, _>>()?;
-    // The specific force the coupling acts on, from the pairs' own common mode where they have it.
-    let f_common = common_mode_force(&instrument.pairs, &pair_a, &pair_b, f);
     let f: [&[f64]; 3] = [&f_common[0], &f_common[1], &f_common[2]];
     let data = FlightData {
         pairs: &instrument.pairs,
@@ -477,6 +482,7 @@ pub fn common_mode_force(
         }
         let w = 1.0 / along.len() as f64;
         (0..logged[k].len())
+            .into_par_iter()
             .map(|t| {
                 along
                     .iter()
