@@ -2,6 +2,7 @@
 
 use crate::bandpass::band_pass;
 use gravgrad_core::pairs::PairGeometry;
+use rayon::prelude::*;
 use rustfft::num_complex::Complex64;
 
 /// An estimate and its standard error.
@@ -86,6 +87,19 @@ fn smooth_below(n: usize) -> usize {
     (1..=n.max(1)).rev().find(|&m| smooth(m)).unwrap_or(1)
 }
 
+/// The smallest m ≥ n whose only prime factors are 2, 3 and 5.
+fn smooth_above(n: usize) -> usize {
+    let smooth = |mut m: usize| {
+        for p in [2, 3, 5] {
+            while m > 1 && m.is_multiple_of(p) {
+                m /= p;
+            }
+        }
+        m == 1
+    };
+    (n.max(1)..).find(|&m| smooth(m)).unwrap_or(n)
+}
+
 /// The runs of usable samples at least `min_len` long (all samples when `usable` is `None`), as
 /// index ranges.
 fn usable_runs(usable: Option<&[bool]>, n: usize, min_len: usize) -> Vec<std::ops::Range<usize>> {
@@ -133,38 +147,70 @@ fn band_pass_runs(
     out
 }
 
+/// The normal equations of a set of regressor columns, scaled for conditioning: what every series
+/// regressed on the same columns shares.
+pub(crate) struct Normal {
+    /// RMS of each column.
+    scale: Vec<f64>,
+    /// Inverse of the scaled XᵀX.
+    inv: Vec<Vec<f64>>,
+}
+
+impl Normal {
+    pub(crate) fn of(columns: &[Vec<f64>]) -> Self {
+        let k = columns.len();
+        let n = columns.first().map_or(0, Vec::len);
+        let scale: Vec<f64> = columns
+            .iter()
+            .map(|c| {
+                (c.iter().map(|v| v * v).sum::<f64>() / n as f64)
+                    .sqrt()
+                    .max(1e-300)
+            })
+            .collect();
+        let a: Vec<Vec<f64>> = (0..k)
+            .map(|i| {
+                (0..k)
+                    .map(|j| {
+                        columns[i]
+                            .iter()
+                            .zip(&columns[j])
+                            .map(|(p, q)| p * q)
+                            .sum::<f64>()
+                            / (scale[i] * scale[j])
+                    })
+                    .collect()
+            })
+            .collect();
+        Self {
+            inv: invert(&a),
+            scale,
+        }
+    }
+}
+
 /// Least squares y ≈ X·β with standard errors inflated for autocorrelated residuals.
 fn regress(columns: &[Vec<f64>], y: &[f64]) -> (Vec<Coefficient>, Vec<f64>) {
+    regress_with(&Normal::of(columns), columns, y)
+}
+
+/// [`regress`] with the columns' normal equations formed already.
+fn regress_with(normal: &Normal, columns: &[Vec<f64>], y: &[f64]) -> (Vec<Coefficient>, Vec<f64>) {
     let k = columns.len();
     let n = y.len();
-    // Normal equations, scaled columns for conditioning.
-    let scale: Vec<f64> = columns
-        .iter()
-        .map(|c| {
-            (c.iter().map(|v| v * v).sum::<f64>() / n as f64)
-                .sqrt()
-                .max(1e-300)
-        })
+    let (scale, inv) = (&normal.scale, &normal.inv);
+    let rhs: Vec<f64> = (0..k)
+        .map(|i| columns[i].iter().zip(y).map(|(p, q)| p * q).sum::<f64>() / scale[i])
         .collect();
-    let mut a = vec![vec![0.0; k + 1]; k];
-    for i in 0..k {
-        for j in 0..k {
-            a[i][j] = columns[i]
-                .iter()
-                .zip(&columns[j])
-                .map(|(p, q)| p * q)
-                .sum::<f64>()
-                / (scale[i] * scale[j]);
-        }
-        a[i][k] = columns[i].iter().zip(y).map(|(p, q)| p * q).sum::<f64>() / scale[i];
-    }
-    let inv = invert(&a.iter().map(|r| r[..k].to_vec()).collect::<Vec<_>>());
     let beta: Vec<f64> = (0..k)
-        .map(|i| (0..k).map(|j| inv[i][j] * a[j][k]).sum::<f64>() / scale[i])
+        .map(|i| (0..k).map(|j| inv[i][j] * rhs[j]).sum::<f64>() / scale[i])
         .collect();
-    let resid: Vec<f64> = (0..n)
-        .map(|t| y[t] - (0..k).map(|i| beta[i] * columns[i][t]).sum::<f64>())
-        .collect();
+    let mut resid = y.to_vec();
+    for (b, c) in beta.iter().zip(columns) {
+        for (r, v) in resid.iter_mut().zip(c) {
+            *r -= b * v;
+        }
+    }
     let dof = (n as f64 - k as f64).max(1.0);
     let var = resid.iter().map(|r| r * r).sum::<f64>() / dof;
     let inflation = n as f64 / effective_size(&resid);
@@ -185,22 +231,41 @@ pub fn effective_size(r: &[f64]) -> f64 {
     if var <= 0.0 || n < 4 {
         return n as f64;
     }
-    // All lags at once: the autocovariance is the inverse transform of |FFT|² of the zero-padded
-    // series (Wiener–Khinchin), O(n log n) where the lag-by-lag sum is O(n²) for smooth residuals.
-    let m = (2 * n).next_power_of_two();
-    let mut buf: Vec<Complex64> = (0..m)
-        .map(|i| Complex64::new(if i < n { r[i] } else { 0.0 }, 0.0))
-        .collect();
-    let (fwd, inv) = crate::bandpass::plans(m);
-    fwd.process(&mut buf);
-    for c in buf.iter_mut() {
+    // A residual's autocorrelation usually drops to zero within a few lags: those are summed
+    // directly, and only a residual still correlated after `DIRECT_LAGS` lags goes to the transform.
+    const DIRECT_LAGS: usize = 32;
+    let last = n / 4;
+    let norm = 1.0 / (n as f64 * var);
+    let mut sum = 0.0;
+    for lag in 1..last.min(DIRECT_LAGS + 1) {
+        let rho = r[..n - lag]
+            .iter()
+            .zip(&r[lag..])
+            .map(|(a, b)| a * b)
+            .sum::<f64>()
+            * norm;
+        if rho <= 0.0 {
+            return (n as f64 / (1.0 + 2.0 * sum)).clamp(1.0, n as f64);
+        }
+        sum += rho;
+    }
+    if last <= DIRECT_LAGS + 1 {
+        return (n as f64 / (1.0 + 2.0 * sum)).clamp(1.0, n as f64);
+    }
+    // All further lags at once: the autocovariance is the inverse transform of |FFT|² of the series padded
+    // with at least n zeros (so no lag wraps round; Wiener–Khinchin), O(n log n) where the
+    // lag-by-lag sum is O(n²) for smooth residuals. The padded length is the smallest with no prime
+    // factor above 5, where transforms run fast.
+    let m = smooth_above(2 * n);
+    let mut buf: Vec<f64> = (0..m).map(|i| if i < n { r[i] } else { 0.0 }).collect();
+    let mut spectrum = crate::bandpass::forward(&mut buf);
+    for c in spectrum.iter_mut() {
         *c = Complex64::new(c.norm_sqr(), 0.0);
     }
-    inv.process(&mut buf);
+    let acov = crate::bandpass::inverse(&mut spectrum, m);
     let scale = 1.0 / (m as f64 * n as f64 * var);
-    let mut sum = 0.0;
-    for c in buf.iter().take(n / 4).skip(1) {
-        let rho = c.re * scale;
+    for c in acov.iter().take(last).skip(DIRECT_LAGS + 1) {
+        let rho = c * scale;
         if rho <= 0.0 {
             break;
         }
@@ -283,15 +348,74 @@ pub fn estimate(d: &PairData<'_>, s: &Settings) -> PairCalibration {
         .enumerate()
         .map(|(i, v)| v - d.expected.map_or(0.0, |e| e[i]))
         .collect();
-    fit_series(&diff, d, true, s, None)
+    fit_series(&diff, d, true, s)
 }
 
-/// The specific force band-passed line by line as [`fit_series`] needs it: computed once for a
-/// flight when many series are fitted against the same force.
-pub(crate) fn band_passed_force(d: &PairData<'_>, s: &Settings) -> [Vec<f64>; 3] {
-    let [lo, hi] = s.band_hz;
-    let runs = usable_runs(d.usable, d.time.len(), (s.rate_hz / lo).ceil() as usize);
-    std::array::from_fn(|k| band_pass_runs(d.f[k], &runs, s.rate_hz, lo, hi))
+/// What every series fitted against one flight's regressors shares: the usable runs, the
+/// band-passed regressors with their normal equations (step 1), and the whole-band regressors on
+/// line samples with theirs (step 2). Formed once when many series are fitted against one flight.
+pub(crate) struct Design {
+    runs: Vec<std::ops::Range<usize>>,
+    with_alpha: bool,
+    band_columns: Vec<Vec<f64>>,
+    band_normal: Normal,
+    t_mid: f64,
+    temperature_mean: f64,
+    line_rows: Vec<usize>,
+    /// Polynomial, temperature and self-gradient columns on the line rows.
+    whole_columns: Vec<Vec<f64>>,
+    whole_normal: Normal,
+    n_poly: usize,
+}
+
+impl Design {
+    /// The design of `d`'s regressors: the force band-passed line by line, with the gyro angular
+    /// acceleration when `with_alpha`.
+    pub(crate) fn new(d: &PairData<'_>, with_alpha: bool, s: &Settings) -> Self {
+        let [lo, hi] = s.band_hz;
+        let n = d.time.len();
+        let runs = usable_runs(d.usable, n, (s.rate_hz / lo).ceil() as usize);
+        let bp = |x: &[f64]| -> Vec<f64> { band_pass_runs(x, &runs, s.rate_hz, lo, hi) };
+        let mut regressors: Vec<&[f64]> = d.f.to_vec();
+        if with_alpha {
+            regressors.extend(d.alpha);
+        }
+        let band_columns: Vec<Vec<f64>> = regressors.par_iter().map(|c| bp(c)).collect();
+        let t_mid = 0.5 * (d.time[0] + d.time[n - 1]);
+        let mut whole = polynomial_columns(d.time, t_mid, s.drift_order);
+        let n_poly = whole.len();
+        let temperature_mean = d
+            .temperature
+            .map_or(0.0, |t| t.iter().sum::<f64>() / t.len() as f64);
+        if let Some(t) = d.temperature {
+            whole.push(t.iter().map(|v| v - temperature_mean).collect());
+        }
+        if let Some(rel) = d.relative_attitude {
+            whole.extend(rel.iter().map(|c| c.to_vec()));
+        }
+        // Over line samples only: in turns the rotation terms are thousands of times larger and
+        // carry second-order terms the model leaves out.
+        let line_rows: Vec<usize> = match d.usable {
+            Some(u) => (0..n).filter(|&i| u[i]).collect(),
+            None => (0..n).collect(),
+        };
+        let whole_columns: Vec<Vec<f64>> = whole
+            .iter()
+            .map(|c| line_rows.iter().map(|&i| c[i]).collect())
+            .collect();
+        Self {
+            band_normal: Normal::of(&band_columns),
+            whole_normal: Normal::of(&whole_columns),
+            runs,
+            with_alpha,
+            band_columns,
+            t_mid,
+            temperature_mean,
+            line_rows,
+            whole_columns,
+            n_poly,
+        }
+    }
 }
 
 /// The calibration model fitted to one series `y` (m/s²) whose known field is already removed: κ
@@ -304,65 +428,46 @@ pub(crate) fn fit_series(
     d: &PairData<'_>,
     with_alpha: bool,
     s: &Settings,
-    force_band: Option<&[Vec<f64>; 3]>,
+) -> PairCalibration {
+    fit_with(&Design::new(d, with_alpha, s), y, d, s)
+}
+
+/// [`fit_series`] against a design formed already from the same `d`.
+pub(crate) fn fit_with(
+    design: &Design,
+    y: &[f64],
+    d: &PairData<'_>,
+    s: &Settings,
 ) -> PairCalibration {
     let [lo, hi] = s.band_hz;
     // Step 1: κ (and the rotation regressors) in the band where aircraft motion dominates. Each line
     // is filtered on its own, so that nothing of the turns (where rotation terms are thousands of
     // times larger) leaks into the line samples, and the ends of each line are dropped.
-    let runs = usable_runs(d.usable, y.len(), (s.rate_hz / lo).ceil() as usize);
-    let bp = |x: &[f64]| -> Vec<f64> { band_pass_runs(x, &runs, s.rate_hz, lo, hi) };
-    let mut cols: Vec<Vec<f64>> = match force_band {
-        Some(f) => f.to_vec(),
-        None => d.f.iter().map(|c| bp(c)).collect(),
-    };
-    if with_alpha {
-        cols.extend(d.alpha.iter().map(|c| bp(c)));
-    }
-    let (c1, resid) = regress(&cols, &bp(y));
+    let y_band = band_pass_runs(y, &design.runs, s.rate_hz, lo, hi);
+    let (c1, resid) = regress_with(&design.band_normal, &design.band_columns, &y_band);
     let band_residual_rms =
         (resid.iter().map(|r| r * r).sum::<f64>() / resid.len().max(1) as f64).sqrt();
     let zero = Coefficient {
         value: 0.0,
         std_error: 0.0,
     };
-    let rotation = if with_alpha {
+    let rotation = if design.with_alpha {
         [c1[3], c1[4], c1[5]]
     } else {
         [zero; 3]
     };
-    // Step 2: bias, drift and temperature from what remains over the whole band.
-    let n = y.len();
-    let t_mid = 0.5 * (d.time[0] + d.time[n - 1]);
-    let rest: Vec<f64> = (0..n)
-        .map(|i| {
+    // Step 2: bias, drift and temperature from what remains over the whole band, on line samples.
+    let rest: Vec<f64> = design
+        .line_rows
+        .iter()
+        .map(|&i| {
             y[i] - (0..3)
                 .map(|k| c1[k].value * d.f[k][i] + rotation[k].value * d.alpha[k][i])
                 .sum::<f64>()
         })
         .collect();
-    let mut cols2 = polynomial_columns(d.time, t_mid, s.drift_order);
-    let temperature_mean = d
-        .temperature
-        .map_or(0.0, |t| t.iter().sum::<f64>() / t.len() as f64);
-    let n_poly = cols2.len();
-    if let Some(t) = d.temperature {
-        cols2.push(t.iter().map(|v| v - temperature_mean).collect());
-    }
-    if let Some(rel) = d.relative_attitude {
-        cols2.extend(rel.iter().map(|c| c.to_vec()));
-    }
-    // Over line samples only: in turns the rotation terms are thousands of times larger and carry
-    // second-order terms the model leaves out.
-    let line_rows: Vec<usize> = match d.usable {
-        Some(u) => (0..n).filter(|&i| u[i]).collect(),
-        None => (0..n).collect(),
-    };
-    let on_lines = |v: &[f64]| -> Vec<f64> { line_rows.iter().map(|&i| v[i]).collect() };
-    let (c2, _) = regress(
-        &cols2.iter().map(|c| on_lines(c)).collect::<Vec<_>>(),
-        &on_lines(&rest),
-    );
+    let (c2, _) = regress_with(&design.whole_normal, &design.whole_columns, &rest);
+    let n_poly = design.n_poly;
     let polynomial = c2[..n_poly].to_vec();
     let temperature = d.temperature.map(|_| c2[n_poly]);
     let self_gradient = d.relative_attitude.map(|_| {
@@ -375,8 +480,8 @@ pub(crate) fn fit_series(
         polynomial,
         temperature,
         self_gradient,
-        t_mid,
-        temperature_mean,
+        t_mid: design.t_mid,
+        temperature_mean: design.temperature_mean,
         band_residual_rms,
     }
 }
@@ -407,4 +512,101 @@ pub(crate) fn fit_polynomial(
         .collect();
     let (c, _) = regress(&cols, &pick(y));
     (c, t_mid)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// n / (1 + 2 Σ ρ_k) with every lag summed directly (O(n²)), the definition the fast path must
+    /// match.
+    fn effective_size_direct(r: &[f64]) -> f64 {
+        let n = r.len();
+        let var = r.iter().map(|v| v * v).sum::<f64>() / n as f64;
+        let mut sum = 0.0;
+        for lag in 1..n / 4 {
+            let rho = r[..n - lag]
+                .iter()
+                .zip(&r[lag..])
+                .map(|(a, b)| a * b)
+                .sum::<f64>()
+                / (n as f64 * var);
+            if rho <= 0.0 {
+                break;
+            }
+            sum += rho;
+        }
+        (n as f64 / (1.0 + 2.0 * sum)).clamp(1.0, n as f64)
+    }
+
+    /// AR(1) series x_t = φ·x_{t−1} + e_t from a fixed linear congruential generator.
+    fn ar1(n: usize, phi: f64) -> Vec<f64> {
+        let mut state: u64 = 12345;
+        let mut x = 0.0;
+        (0..n)
+            .map(|_| {
+                state = state
+                    .wrapping_mul(6_364_136_223_846_793_005)
+                    .wrapping_add(1_442_695_040_888_963_407);
+                let e = (state >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
+                x = phi * x + e;
+                x
+            })
+            .collect()
+    }
+
+    #[test]
+    fn effective_size_matches_the_direct_sum_over_short_and_long_correlations() {
+        // φ = 0.2: the correlation dies within a few lags (direct sums only); φ = 0.995: it lasts
+        // hundreds of lags (the transform takes over after 32).
+        for phi in [0.2, 0.995] {
+            let r = ar1(6000, phi);
+            let (fast, direct) = (effective_size(&r), effective_size_direct(&r));
+            assert!(
+                ((fast - direct) / direct).abs() < 1e-9,
+                "φ {phi}: {fast} vs {direct}"
+            );
+            assert!(direct < 6000.0 * (1.0 - phi) / (1.0 + phi) * 3.0);
+        }
+    }
+
+    #[test]
+    fn shared_design_gives_the_same_fit_as_a_fresh_one() {
+        let n = 4000;
+        let rate = 10.0;
+        let time: Vec<f64> = (0..n).map(|i| i as f64 / rate).collect();
+        let f: Vec<Vec<f64>> = (0..3).map(|k| ar1(n, 0.5 + 0.1 * k as f64)).collect();
+        let zero = vec![0.0; n];
+        let geometry = PairGeometry {
+            id: "xx".into(),
+            center: [0.0; 3],
+            baseline: [0.2, 0.0, 0.0],
+            axis: [1.0, 0.0, 0.0],
+        };
+        let y: Vec<f64> = (0..n)
+            .map(|i| 1e-5 * f[0][i] - 2e-5 * f[2][i] + 1e-9 * time[i] + 3e-8)
+            .collect();
+        let d = PairData {
+            geometry: &geometry,
+            difference: &y,
+            omega: [&zero, &zero, &zero],
+            f: [&f[0], &f[1], &f[2]],
+            alpha: [&zero, &zero, &zero],
+            time: &time,
+            temperature: None,
+            usable: None,
+            expected: None,
+            relative_attitude: None,
+        };
+        let s = Settings {
+            band_hz: [0.05, 1.0],
+            drift_order: 1,
+            rate_hz: rate,
+        };
+        let design = Design::new(&d, false, &s);
+        let shared = fit_with(&design, &y, &d, &s);
+        assert_eq!(shared, fit_series(&y, &d, false, &s));
+        assert!((shared.kappa[0].value - 1e-5).abs() < 3.0 * shared.kappa[0].std_error + 1e-9);
+        assert!((shared.kappa[2].value + 2e-5).abs() < 3.0 * shared.kappa[2].std_error + 1e-9);
+    }
 }

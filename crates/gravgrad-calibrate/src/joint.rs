@@ -13,11 +13,10 @@
 //! Units: m/s² for differences, s⁻² for S, rad/s² for α.
 
 use crate::estimate::{
-    Coefficient, PairCalibration, PairData, Settings, band_passed_force, centrifugal_along,
-    fit_polynomial, fit_series,
+    Coefficient, Design, PairCalibration, PairData, Settings, fit_polynomial, fit_with,
 };
 use gravgrad_core::SymTensor;
-use gravgrad_core::mat3::{self, Mat3};
+use gravgrad_core::mat3::Mat3;
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
 
@@ -36,22 +35,20 @@ pub struct KnownField<'a> {
 }
 
 impl KnownField<'_> {
-    /// G_s at sample `i`, sensor axes, s⁻².
+    /// G_s = C_snᵀ·G·C_sn at sample `i`, sensor axes, s⁻²: P = G·C_sn, then the six distinct
+    /// entries of C_snᵀ·P (45 products where a general product of three matrices takes 54).
     #[inline]
     pub fn sensor(&self, i: usize) -> SymTensor {
         let mut g = self.normal[i];
         if let Some(t) = self.terrain {
             g = g + t[i];
         }
-        g.rotated(&mat3::transpose(&self.c_sn[i]))
-    }
-
-    /// The part −nᵀ·G_s·b of a difference along axis `axis` over baseline `baseline` (sensor frame,
-    /// m), m/s², for a sensor-frame tensor `g_s`.
-    #[inline]
-    pub fn part(g_s: &SymTensor, axis: &[f64; 3], baseline: &[f64; 3]) -> f64 {
-        let gb = mat3::mul_vec(&g_s.to_matrix(), baseline);
-        -mat3::dot(axis, &gb)
+        let (gm, c) = (g.to_matrix(), &self.c_sn[i]);
+        let p: Mat3 = std::array::from_fn(|r| {
+            std::array::from_fn(|j| gm[r][0] * c[0][j] + gm[r][1] * c[1][j] + gm[r][2] * c[2][j])
+        });
+        let e = |i: usize, j: usize| c[0][i] * p[0][j] + c[1][i] * p[1][j] + c[2][i] * p[2][j];
+        SymTensor::from_array([e(0, 0), e(0, 1), e(0, 2), e(1, 1), e(1, 2), e(2, 2)])
     }
 }
 
@@ -94,6 +91,10 @@ impl<'a> FlightData<'a> {
     }
 }
 
+/// One span's block means: of M's six components, and of each pair's difference less its fixed
+/// correction.
+type SpanMeans = (Vec<Vec<f64>>, Vec<Vec<f64>>);
+
 fn combine(parts: &[(f64, Coefficient)]) -> Coefficient {
     Coefficient {
         value: parts.iter().map(|(w, c)| w * c.value).sum(),
@@ -119,11 +120,13 @@ pub fn estimate_flight(
     let rows: Vec<[f64; 9]> = d.pairs.iter().map(PairGeometry::design_row).collect();
     let a: Vec<Vec<f64>> = rows.iter().map(|r| r[..k].to_vec()).collect();
     let op = pseudo_inverse(&a, k);
-    // z_k = −(d_k − centrifugal − expected − fixed part), less the gyro α term when the solve uses it.
+    // z_p = −(d_p − n_pᵀ·M·b_p − fixed part), less the gyro α term when the solve uses it, with
+    // M = ΩΩ − G_s (the centrifugal term and the known field, sensor frame; ΩΩ = ωωᵀ − |ω|²I).
     // Everything below is linear in the samples, so the model holds as well for block means as for
     // samples: blocks of `block` samples (a quarter of the band's top period) carry the whole band
-    // and make the fits `block` times cheaper. The z are formed sample by sample and summed into
-    // their block in one pass (no per-sample series is kept); each block is summed in sample order
+    // and make the fits `block` times cheaper. And z is linear in d_p and in M's six components, so
+    // its block means come from the block means of d_p and of M: M is formed once per sample for
+    // all pairs, and a pair costs one subtraction per sample. Each block is summed in sample order
     // whatever the thread count.
     let block = ((s.rate_hz / (4.0 * s.band_hz[1])).floor() as usize).max(1);
     let mean = |x: &[f64]| block_means(x, block);
@@ -137,81 +140,119 @@ pub fn estimate_flight(
             .collect()
     });
     let series: Vec<PairData<'_>> = (0..np).map(|p| d.series(p, &[])).collect();
-    // Work in spans of whole blocks, each span giving every pair's block means: the known field in
-    // the sensor frame over the span, then a pair's z over the span sample by sample (vectorised;
-    // the difference, the arithmetic of `centrifugal_removed`, the known part and the fixed
-    // correction per sample), then each block summed in sample order.
+    // n_pᵀ·M·b_p = Σ_c coef_p[c]·M_c over M's components xx xy xz yy yz zz.
+    let coef: Vec<[f64; 6]> = d
+        .pairs
+        .iter()
+        .map(|g| {
+            let (nv, b) = (g.axis, g.baseline);
+            [
+                nv[0] * b[0],
+                nv[0] * b[1] + nv[1] * b[0],
+                nv[0] * b[2] + nv[2] * b[0],
+                nv[1] * b[1],
+                nv[1] * b[2] + nv[2] * b[1],
+                nv[2] * b[2],
+            ]
+        })
+        .collect();
+    let sum_blocks = |x: &[f64], out: &mut Vec<f64>| {
+        out.extend(
+            x.chunks(block)
+                .map(|c| c.iter().sum::<f64>() / c.len() as f64),
+        );
+    };
+    // Spans of whole blocks; per span the block means of M's six components, then of each pair's
+    // d = a − b and, with a fixed calibration, of its correction.
     let span = block * 256;
-    let parts: Vec<Vec<Vec<f64>>> = (0..n.div_ceil(span))
+    let parts: Vec<SpanMeans> = (0..n.div_ceil(span))
         .into_par_iter()
         .map_init(
-            || (vec![0.0; span], vec![SymTensor::default(); span]),
-            |(zs, gs), q| {
+            || {
+                (
+                    std::array::from_fn::<_, 6, _>(|_| vec![0.0; span]),
+                    vec![0.0; span],
+                )
+            },
+            |(ms, ds), q| {
                 let r = q * span..((q + 1) * span).min(n);
-                let a0 = r.start;
-                let zs = &mut zs[..r.len()];
-                let gs = &mut gs[..r.len()];
-                if let Some(kf) = &d.known {
-                    for (k, g) in gs.iter_mut().enumerate() {
-                        *g = kf.sensor(a0 + k);
-                    }
-                }
+                let (a0, len) = (r.start, r.len());
                 let w = [
                     &d.omega[0][r.clone()],
                     &d.omega[1][r.clone()],
                     &d.omega[2][r.clone()],
                 ];
-                (0..np)
+                for k in 0..len {
+                    let (x, y, z) = (w[0][k], w[1][k], w[2][k]);
+                    let w2 = x * x + y * y + z * z;
+                    let mut m = [x * x - w2, x * y, x * z, y * y - w2, y * z, z * z - w2];
+                    if let Some(kf) = &d.known {
+                        let g = kf.sensor(a0 + k).to_array();
+                        for (mc, gc) in m.iter_mut().zip(g) {
+                            *mc -= gc;
+                        }
+                    }
+                    for (c, mc) in m.into_iter().enumerate() {
+                        ms[c][k] = mc;
+                    }
+                }
+                let mut m_means = Vec::with_capacity(6);
+                for mc in ms.iter() {
+                    let mut v = Vec::with_capacity(len.div_ceil(block));
+                    sum_blocks(&mc[..len], &mut v);
+                    m_means.push(v);
+                }
+                let ds = &mut ds[..len];
+                let d_means = (0..np)
                     .map(|p| {
-                        let data = &series[p];
-                        let (nv, b) = (data.geometry.axis, data.geometry.baseline);
                         let (pa, pb) = (&d.a[p][r.clone()], &d.b[p][r.clone()]);
-                        for (k, zk) in zs.iter_mut().enumerate() {
-                            let wk = [w[0][k], w[1][k], w[2][k]];
-                            let y = (pa[k] - pb[k]) - centrifugal_along(nv, b, wk);
-                            *zk = y - d
-                                .known
-                                .as_ref()
-                                .map_or(0.0, |_| KnownField::part(&gs[k], &nv, &b));
+                        for ((dk, ak), bk) in ds.iter_mut().zip(pa).zip(pb) {
+                            *dk = ak - bk;
                         }
                         if let Some(c) = &fixed_parts {
-                            for (k, zk) in zs.iter_mut().enumerate() {
-                                *zk -= c[p].correction_at(data, a0 + k);
+                            for (k, dk) in ds.iter_mut().enumerate() {
+                                *dk -= c[p].correction_at(&series[p], a0 + k);
                             }
                         }
-                        if d.alpha_from_pairs {
-                            for zk in zs.iter_mut() {
-                                *zk = -*zk;
-                            }
-                        } else {
-                            let al = [
-                                &d.alpha[0][r.clone()],
-                                &d.alpha[1][r.clone()],
-                                &d.alpha[2][r.clone()],
-                            ];
-                            let rw = &rows[p];
-                            for (k, zk) in zs.iter_mut().enumerate() {
-                                *zk = -*zk
-                                    - (-0.0
-                                        + rw[6] * al[0][k]
-                                        + rw[7] * al[1][k]
-                                        + rw[8] * al[2][k]);
-                            }
-                        }
-                        zs.chunks(block)
-                            .map(|c| c.iter().sum::<f64>() / c.len() as f64)
-                            .collect()
+                        let mut v = Vec::with_capacity(len.div_ceil(block));
+                        sum_blocks(ds, &mut v);
+                        v
                     })
-                    .collect()
+                    .collect();
+                (m_means, d_means)
             },
         )
         .collect();
+    let m_b: Vec<Vec<f64>> = (0..6)
+        .map(|c| {
+            parts
+                .iter()
+                .flat_map(|part| part.0[c].iter().copied())
+                .collect()
+        })
+        .collect();
+    let ab_gyro: Vec<Vec<f64>> = if d.alpha_from_pairs {
+        Vec::new()
+    } else {
+        d.alpha.iter().map(|v| mean(v)).collect()
+    };
     let z: Vec<Vec<f64>> = (0..np)
         .into_par_iter()
         .map(|p| {
+            let (cp, rw) = (&coef[p], &rows[p]);
             parts
                 .iter()
-                .flat_map(|part| part[p].iter().copied())
+                .flat_map(|part| part.1[p].iter().copied())
+                .enumerate()
+                .map(|(i, db)| {
+                    let known: f64 = (0..6).map(|c| cp[c] * m_b[c][i]).sum();
+                    let zi = -(db - known);
+                    if d.alpha_from_pairs {
+                        zi
+                    } else {
+                        zi - (rw[6] * ab_gyro[0][i] + rw[7] * ab_gyro[1][i] + rw[8] * ab_gyro[2][i])
+                    }
+                })
                 .collect()
         })
         .collect();
@@ -254,12 +295,17 @@ pub fn estimate_flight(
                 .collect()
         })
         .collect();
+    // û_j = Σ_p P_jp·z_p, whole series at a time (vectorised), terms added in pair order.
     let u: Vec<Vec<f64>> = (0..k)
         .into_par_iter()
         .map(|j| {
-            (0..n)
-                .map(|i| (0..np).map(|p| op.p[j][p] * z[p][i]).sum())
-                .collect()
+            let mut uj = vec![-0.0; n];
+            for (pjp, zp) in op.p[j].iter().zip(&z) {
+                for (x, zv) in uj.iter_mut().zip(zp) {
+                    *x += pjp * zv;
+                }
+            }
+            uj
         })
         .collect();
     // Targets: −û_j (+ the gyro prediction of its α content), and −r_p.
@@ -301,8 +347,12 @@ pub fn estimate_flight(
             Vec::new()
         }
     }));
-    // Fit each target: the full model, or bias and drift only. The force is band-passed once.
-    let force_band = band_passed_force(&d.series(0, d.time), s);
+    // Fit each target: the full model, or bias and drift only. The regressors (the force
+    // band-passed, the polynomial and temperature columns) and their normal equations are formed
+    // once for all targets.
+    let design = fixed
+        .is_none()
+        .then(|| Design::new(&d.series(0, d.time), false, s));
     let fits: Vec<Option<PairCalibration>> = targets
         .par_iter()
         .map(|y| {
@@ -310,17 +360,17 @@ pub fn estimate_flight(
                 return None;
             }
             let data = d.series(0, y);
-            Some(match fixed {
-                None => fit_series(y, &data, false, s, Some(&force_band)),
+            match fixed {
+                None => design.as_ref().map(|g| fit_with(g, y, &data, s)),
                 Some(fx) => {
                     let (poly, t_mid) = fit_polynomial(y, d.time, s.drift_order, d.usable);
                     let mut c = fx[0].clone();
                     c.polynomial = poly;
                     c.t_mid = t_mid;
                     c.band_residual_rms = 0.0;
-                    c
+                    Some(c)
                 }
-            })
+            }
         })
         .collect();
     (0..np)

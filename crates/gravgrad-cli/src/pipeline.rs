@@ -470,6 +470,7 @@ pub fn common_mode_force(
     b: &[&[f64]],
     logged: [&[f64]; 3],
 ) -> [Vec<f64>; 3] {
+    const SPAN: usize = 4096;
     std::array::from_fn(|k| {
         let along: Vec<(usize, f64)> = pairs
             .iter()
@@ -481,15 +482,21 @@ pub fn common_mode_force(
             return logged[k].to_vec();
         }
         let w = 1.0 / along.len() as f64;
-        (0..logged[k].len())
-            .into_par_iter()
-            .map(|t| {
-                along
-                    .iter()
-                    .map(|(i, sign)| sign * 0.5 * (a[*i][t] + b[*i][t]))
-                    .sum::<f64>()
-                    * w
-            })
-            .collect()
+        // Span by span, pair by pair across the span (vectorised); a zeroed vector's pages are
+        // first touched, and mapped, by the span that writes them, on every core.
+        let mut out = vec![0.0; logged[k].len()];
+        out.par_chunks_mut(SPAN).enumerate().for_each(|(q, o)| {
+            let r = q * SPAN..q * SPAN + o.len();
+            for (i, sign) in &along {
+                let h = 0.5 * sign;
+                for ((x, av), bv) in o.iter_mut().zip(&a[*i][r.clone()]).zip(&b[*i][r.clone()]) {
+                    *x += h * (av + bv);
+                }
+            }
+            for x in o.iter_mut() {
+                *x *= w;
+            }
+        });
+        out
     })
 }

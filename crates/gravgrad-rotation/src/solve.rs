@@ -188,10 +188,10 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
     let np = inp.pairs.len();
     let nu = op.p.len();
     let nf = op_free.as_ref().map_or(0, |f| f.p.len());
-    let mut tensor_ned = vec![SymTensor::default(); n];
-    let mut measured = vec![SymTensor::default(); n];
-    let mut alpha_pairs = vec![[f64::NAN; 3]; if with_alpha { n } else { 0 }];
-    let mut trace = vec![0.0; n];
+    let mut tensor_ned = filled(n, SymTensor::default());
+    let mut measured = filled(n, SymTensor::default());
+    let mut alpha_pairs = filled(if with_alpha { n } else { 0 }, [f64::NAN; 3]);
+    let mut trace = filled(n, 0.0);
     let mut alpha_chunks: Vec<&mut [Vec3]> = alpha_pairs.chunks_mut(SPAN).collect();
     alpha_chunks.resize_with(n.div_ceil(SPAN), Default::default);
     tensor_ned
@@ -339,6 +339,14 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
         observed,
         heading_only: !full_rotation,
     })
+}
+
+/// `n` copies of `v`, written in parallel: a fresh vector's pages are first touched (and mapped by
+/// the kernel, a cost comparable to the solve's arithmetic) on every core instead of one.
+fn filled<T: Copy + Send + Sync>(n: usize, v: T) -> Vec<T> {
+    let mut out = Vec::with_capacity(n);
+    (0..n).into_par_iter().map(|_| v).collect_into_vec(&mut out);
+    out
 }
 
 /// Rz(ψ)·G·Rz(ψ)ᵀ, keeping the horizontal block (xx, xy, yy), the vertical pair (xz, yz) and zz
