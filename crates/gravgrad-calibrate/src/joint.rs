@@ -16,6 +16,7 @@ use crate::estimate::{
     Coefficient, Design, PairCalibration, PairData, Settings, fit_polynomial, fit_with,
 };
 use gravgrad_core::SymTensor;
+use gravgrad_core::attitude::c_sn_degrees_span;
 use gravgrad_core::mat3::Mat3;
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
@@ -23,27 +24,29 @@ use rayon::prelude::*;
 /// The known gravitational field along a flight, whose part −nᵀ·G_s·b every pair difference carries
 /// and which comes off before the fit: the tensor in NED (s⁻², normal field plus the terrain's when
 /// modelled) and the attitude that turns it into the sensor frame, G_s = C_snᵀ·G·C_sn. The fit forms
-/// G_s and each pair's part sample by sample as it reads them, instead of keeping a series per pair.
+/// C_sn and G_s sample by sample as it reads them, instead of keeping a series of either.
 #[derive(Clone, Copy)]
 pub struct KnownField<'a> {
     /// Normal gravitational tensor, NED, s⁻².
     pub normal: &'a [SymTensor],
     /// Terrain tensor, NED, s⁻², when modelled.
     pub terrain: Option<&'a [SymTensor]>,
-    /// C_sn per sample (sensor to NED).
-    pub c_sn: &'a [Mat3],
+    /// Roll, pitch and heading of the sensor frame, degrees (C_sn as in
+    /// [`gravgrad_core::attitude`]).
+    pub attitude_deg: [&'a [f64]; 3],
 }
 
 impl KnownField<'_> {
-    /// G_s = C_snᵀ·G·C_sn at sample `i`, sensor axes, s⁻²: P = G·C_sn, then the six distinct
-    /// entries of C_snᵀ·P (45 products where a general product of three matrices takes 54).
+    /// G_s = C_snᵀ·G·C_sn at sample `i`, sensor axes, s⁻², given that sample's C_sn: P = G·C_sn,
+    /// then the six distinct entries of C_snᵀ·P (45 products where a general product of three
+    /// matrices takes 54).
     #[inline]
-    pub fn sensor(&self, i: usize) -> SymTensor {
+    pub fn sensor(&self, i: usize, c: &Mat3) -> SymTensor {
         let mut g = self.normal[i];
         if let Some(t) = self.terrain {
             g = g + t[i];
         }
-        let (gm, c) = (g.to_matrix(), &self.c_sn[i]);
+        let gm = g.to_matrix();
         let p: Mat3 = std::array::from_fn(|r| {
             std::array::from_fn(|j| gm[r][0] * c[0][j] + gm[r][1] * c[1][j] + gm[r][2] * c[2][j])
         });
@@ -172,11 +175,21 @@ pub fn estimate_flight(
                 (
                     std::array::from_fn::<_, 6, _>(|_| vec![0.0; span]),
                     vec![0.0; span],
+                    vec![[[0.0; 3]; 3]; span],
                 )
             },
-            |(ms, ds), q| {
+            |(ms, ds, cs), q| {
                 let r = q * span..((q + 1) * span).min(n);
                 let (a0, len) = (r.start, r.len());
+                if let Some(kf) = &d.known {
+                    let [roll, pitch, heading] = kf.attitude_deg;
+                    c_sn_degrees_span(
+                        &roll[r.clone()],
+                        &pitch[r.clone()],
+                        &heading[r.clone()],
+                        &mut cs[..len],
+                    );
+                }
                 let w = [
                     &d.omega[0][r.clone()],
                     &d.omega[1][r.clone()],
@@ -187,7 +200,7 @@ pub fn estimate_flight(
                     let w2 = x * x + y * y + z * z;
                     let mut m = [x * x - w2, x * y, x * z, y * y - w2, y * z, z * z - w2];
                     if let Some(kf) = &d.known {
-                        let g = kf.sensor(a0 + k).to_array();
+                        let g = kf.sensor(a0 + k, &cs[k]).to_array();
                         for (mc, gc) in m.iter_mut().zip(g) {
                             *mc -= gc;
                         }
@@ -223,46 +236,53 @@ pub fn estimate_flight(
             },
         )
         .collect();
-    let m_b: Vec<Vec<f64>> = (0..6)
-        .map(|c| {
-            parts
-                .iter()
-                .flat_map(|part| part.0[c].iter().copied())
+    // The spans' means of M joined into whole series, beside the block means of what the fits read
+    // (force, gyro α, time, temperature, relative attitude).
+    let (m_b, (fb, ab, tb, temp_b, rel_b)) = rayon::join(
+        || -> Vec<Vec<f64>> {
+            (0..6)
+                .map(|c| {
+                    parts
+                        .iter()
+                        .flat_map(|part| part.0[c].iter().copied())
+                        .collect()
+                })
                 .collect()
-        })
-        .collect();
-    let ab_gyro: Vec<Vec<f64>> = if d.alpha_from_pairs {
-        Vec::new()
-    } else {
-        d.alpha.iter().map(|v| mean(v)).collect()
-    };
+        },
+        || {
+            let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
+            let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
+            let rel_b: Option<Vec<Vec<f64>>> = d
+                .relative_attitude
+                .map(|r| r.iter().map(|v| mean(v)).collect());
+            (fb, ab, mean(d.time), d.temperature.map(mean), rel_b)
+        },
+    );
+    // z_p per block: the pair's difference less n_pᵀ·M·b_p, M's components one at a time across
+    // the blocks (vectorised), less the gyro α term when the solve takes α from the gyros.
     let z: Vec<Vec<f64>> = (0..np)
         .into_par_iter()
         .map(|p| {
             let (cp, rw) = (&coef[p], &rows[p]);
-            parts
+            let db: Vec<f64> = parts
                 .iter()
                 .flat_map(|part| part.1[p].iter().copied())
-                .enumerate()
-                .map(|(i, db)| {
-                    let known: f64 = (0..6).map(|c| cp[c] * m_b[c][i]).sum();
-                    let zi = -(db - known);
-                    if d.alpha_from_pairs {
-                        zi
-                    } else {
-                        zi - (rw[6] * ab_gyro[0][i] + rw[7] * ab_gyro[1][i] + rw[8] * ab_gyro[2][i])
-                    }
-                })
-                .collect()
+                .collect();
+            let mut known = vec![-0.0; db.len()];
+            for (cc, mc) in cp.iter().zip(&m_b) {
+                for (kv, m) in known.iter_mut().zip(mc) {
+                    *kv += cc * m;
+                }
+            }
+            let mut zp: Vec<f64> = db.iter().zip(&known).map(|(v, k)| -(v - k)).collect();
+            if !d.alpha_from_pairs {
+                for (i, zv) in zp.iter_mut().enumerate() {
+                    *zv -= rw[6] * ab[0][i] + rw[7] * ab[1][i] + rw[8] * ab[2][i];
+                }
+            }
+            zp
         })
         .collect();
-    let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
-    let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
-    let tb = mean(d.time);
-    let temp_b = d.temperature.map(mean);
-    let rel_b: Option<Vec<Vec<f64>>> = d
-        .relative_attitude
-        .map(|r| r.iter().map(|v| mean(v)).collect());
     let usable_b: Option<Vec<bool>> = d
         .usable
         .map(|u| u.chunks(block).map(|c| c.iter().all(|x| *x)).collect());
@@ -295,64 +315,64 @@ pub fn estimate_flight(
                 .collect()
         })
         .collect();
-    // û_j = Σ_p P_jp·z_p, whole series at a time (vectorised), terms added in pair order.
-    let u: Vec<Vec<f64>> = (0..k)
-        .into_par_iter()
-        .map(|j| {
-            let mut uj = vec![-0.0; n];
-            for (pjp, zp) in op.p[j].iter().zip(&z) {
-                for (x, zv) in uj.iter_mut().zip(zp) {
-                    *x += pjp * zv;
-                }
-            }
-            uj
+    // The residual projector I − A·P; rows that vanish carry nothing.
+    let has_residual: Vec<bool> = (0..np)
+        .map(|p| {
+            (0..np).any(|q| {
+                let ap: f64 = (0..k).map(|j| a[p][j] * op.p[j][q]).sum();
+                let v = if p == q { 1.0 - ap } else { -ap };
+                v.abs() > 1e-9
+            })
         })
         .collect();
-    // Targets: −û_j (+ the gyro prediction of its α content), and −r_p.
-    let mut targets: Vec<Vec<f64>> = (0..k)
-        .into_par_iter()
-        .map(|j| {
-            (0..n)
-                .map(|i| {
-                    let mut t = -u[j][i];
+    // The fits' regressors (the force band-passed, the polynomial and temperature columns) and
+    // their normal equations, formed once for all targets, beside the targets: −û_j (+ the gyro
+    // prediction of its α content) and −r_p.
+    let (design, targets) = rayon::join(
+        || {
+            fixed
+                .is_none()
+                .then(|| Design::new(&d.series(0, d.time), false, s))
+        },
+        || {
+            // û_j = Σ_p P_jp·z_p, whole series at a time (vectorised), terms added in pair order.
+            let u: Vec<Vec<f64>> = (0..k)
+                .into_par_iter()
+                .map(|j| {
+                    let mut uj = vec![-0.0; n];
+                    for (pjp, zp) in op.p[j].iter().zip(&z) {
+                        for (x, zv) in uj.iter_mut().zip(zp) {
+                            *x += pjp * zv;
+                        }
+                    }
+                    uj
+                })
+                .collect();
+            let mut targets: Vec<Vec<f64>> = (0..k)
+                .into_par_iter()
+                .map(|j| {
+                    let mut t: Vec<f64> = u[j].iter().map(|v| -v).collect();
                     if d.alpha_from_pairs {
-                        t += (0..3).map(|m| pa[j][6 + m] * d.alpha[m][i]).sum::<f64>();
+                        for (i, tv) in t.iter_mut().enumerate() {
+                            *tv += (0..3).map(|m| pa[j][6 + m] * d.alpha[m][i]).sum::<f64>();
+                        }
                     }
                     t
                 })
-                .collect()
-        })
-        .collect();
-    // The residual projector I − A·P; rows that vanish carry nothing.
-    let proj: Vec<Vec<f64>> = (0..np)
-        .map(|p| {
-            (0..np)
-                .map(|q| {
-                    let ap: f64 = (0..k).map(|j| a[p][j] * op.p[j][q]).sum();
-                    if p == q { 1.0 - ap } else { -ap }
-                })
-                .collect()
-        })
-        .collect();
-    let has_residual: Vec<bool> = proj
-        .iter()
-        .map(|r| r.iter().any(|v| v.abs() > 1e-9))
-        .collect();
-    targets.par_extend((0..np).into_par_iter().map(|p| {
-        if has_residual[p] {
-            (0..n)
-                .map(|i| -(z[p][i] - (0..k).map(|j| a[p][j] * u[j][i]).sum::<f64>()))
-                .collect()
-        } else {
-            Vec::new()
-        }
-    }));
-    // Fit each target: the full model, or bias and drift only. The regressors (the force
-    // band-passed, the polynomial and temperature columns) and their normal equations are formed
-    // once for all targets.
-    let design = fixed
-        .is_none()
-        .then(|| Design::new(&d.series(0, d.time), false, s));
+                .collect();
+            targets.par_extend((0..np).into_par_iter().map(|p| {
+                if has_residual[p] {
+                    (0..n)
+                        .map(|i| -(z[p][i] - (0..k).map(|j| a[p][j] * u[j][i]).sum::<f64>()))
+                        .collect()
+                } else {
+                    Vec::new()
+                }
+            }));
+            targets
+        },
+    );
+    // Fit each target: the full model, or bias and drift only.
     let fits: Vec<Option<PairCalibration>> = targets
         .par_iter()
         .map(|y| {

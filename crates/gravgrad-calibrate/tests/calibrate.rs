@@ -154,9 +154,6 @@ fn joint_fit_recovers_every_pair_within_three_standard_errors() {
     let (roll, pitch, heading) = (col(&sim, "roll"), col(&sim, "pitch"), col(&sim, "heading"));
     // Known field: the truth's normal and terrain parts, turned into the sensor frame by the logged
     // attitude.
-    let c_sn: Vec<_> = (0..n)
-        .map(|i| Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn())
-        .collect();
     let pair_col =
         |p: &gravgrad_core::pairs::PairGeometry, end: &str| col(&sim, &format!("{}_{end}", p.id));
     let data = FlightData {
@@ -166,7 +163,7 @@ fn joint_fit_recovers_every_pair_within_three_standard_errors() {
         known: Some(KnownField {
             normal: &sim.truth.normal,
             terrain: Some(&sim.truth.terrain),
-            c_sn: &c_sn,
+            attitude_deg: [roll, pitch, heading],
         }),
         omega: [col(&sim, "wx"), col(&sim, "wy"), col(&sim, "wz")],
         f: [col(&sim, "fx"), col(&sim, "fy"), col(&sim, "fz")],

@@ -10,7 +10,6 @@
 use gravgrad_calibrate::estimate::{self, PairCalibration, PairData};
 use gravgrad_calibrate::file::CalibrationFile;
 use gravgrad_calibrate::joint::{FlightData, KnownField, estimate_flight};
-use gravgrad_core::attitude::Attitude;
 use gravgrad_core::ellipsoid::Ellipsoid;
 use gravgrad_core::mat3::Mat3;
 use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, observability};
@@ -271,22 +270,11 @@ pub fn process_flight(
         .iter()
         .map(|g| column(flight, &format!("{}_b", g.id)))
         .collect::<Result<_, _>>()?;
-    // The attitude matrix C_sn of every sample, computed once (the calibration turns the known field
-    // into the sensor frame with it, the solve turns the tensor into NED), and the common-mode force,
-    // in spans of samples on one core and whatever the other leaves; beside them the gyros' angular
-    // acceleration (three recursions interleaved on one core).
-    let (alpha_gyro, (c_sn, f_common)) = rayon::join(
+    // The gyros' angular acceleration (three recursions interleaved on one core) beside the
+    // common-mode force (spans of samples, on the other core and whatever the first leaves).
+    let (alpha_gyro, f_common) = rayon::join(
         || angular_acceleration3(omega, rate, recipe.rotation.gyro_lowpass_hz),
-        || {
-            let c_sn: Vec<Mat3> = (0..n)
-                .into_par_iter()
-                .map(|i| Attitude::from_degrees(roll[i], pitch[i], heading[i]).c_sn())
-                .collect();
-            (
-                c_sn,
-                common_mode_force(&instrument.pairs, &pair_a, &pair_b, f),
-            )
-        },
+        || common_mode_force(&instrument.pairs, &pair_a, &pair_b, f),
     );
     let temperature = flight.flight.table.get("temp");
     let relative: Option<[Vec<f64>; 2]> = match (
@@ -321,7 +309,7 @@ pub fn process_flight(
         known: Some(KnownField {
             normal: &normal,
             terrain: terrain.as_deref(),
-            c_sn: &c_sn,
+            attitude_deg: [roll, pitch, heading],
         }),
         omega,
         f,
@@ -402,7 +390,6 @@ pub fn process_flight(
         heading_deg: heading,
         rate_hz: rate,
         alpha_gyro: Some([&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]]),
-        c_sn: Some(&c_sn),
     };
     let solve_settings = SolveSettings {
         alpha: alpha_source,

@@ -2,7 +2,7 @@
 
 use crate::gyro::angular_acceleration;
 use gravgrad_core::SymTensor;
-use gravgrad_core::attitude::Attitude;
+use gravgrad_core::attitude::c_sn_degrees_span;
 use gravgrad_core::mat3::{self, Mat3, Vec3};
 use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, observability, pseudo_inverse};
 use rayon::prelude::*;
@@ -46,9 +46,6 @@ pub struct Inputs<'a> {
     /// The gyro-derived angular acceleration (sensor axes, rad/s²) when the caller has it already
     /// (low-passed at `SolveSettings::gyro_lowpass_hz`); `None`: computed here.
     pub alpha_gyro: Option<[&'a [f64]; 3]>,
-    /// The attitude matrix C_sn of every sample (sensor to NED, from the same roll, pitch and
-    /// heading) when the caller has it already; `None`: computed here.
-    pub c_sn: Option<&'a [Mat3]>,
 }
 
 /// Why a solve cannot be done.
@@ -169,7 +166,6 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
     if let Some((name, got)) = alpha_g
         .iter()
         .map(|a| ("alpha_gyro", a.len()))
-        .chain(inp.c_sn.map(|c| ("c_sn", c.len())))
         .find(|x| x.1 != n)
     {
         return Err(RotationError::Length {
@@ -209,9 +205,10 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                     vec![0.0; nu * SPAN],
                     vec![0.0; nf * SPAN],
                     vec![0.0; SPAN],
+                    vec![[[0.0; 3]; 3]; if full_rotation { SPAN } else { 0 }],
                 )
             },
-            |(w2s, ys, ycons, us, ufs, cas),
+            |(w2s, ys, ycons, us, ufs, cas, cs),
              (q, (((ned_out, sensor_out), alpha_out), trace_out))| {
                 let i0 = q * SPAN;
                 let m = ned_out.len();
@@ -246,18 +243,29 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                         };
                     }
                 }
-                // u_j = Σ_p P_jp·y_p, the terms added in pair order from −0 (as `Iterator::sum`).
+                // u_j = Σ_p P_jp·y_p, the terms added in pair order from −0 (as `Iterator::sum`);
+                // entries of P that are exactly zero (most, for pairs along the sensor axes) are
+                // skipped.
                 let product = |pm: &[Vec<f64>], y: &[f64], u: &mut [f64]| {
                     for (j, row) in pm.iter().enumerate() {
                         let uj = &mut u[j * SPAN..j * SPAN + m];
                         uj.fill(-0.0);
-                        for (p, pj) in row.iter().enumerate() {
+                        for (p, pj) in row.iter().enumerate().filter(|(_, pj)| **pj != 0.0) {
                             for (a, yv) in uj.iter_mut().zip(&y[p * SPAN..p * SPAN + m]) {
                                 *a += pj * yv;
                             }
                         }
                     }
                 };
+                if full_rotation {
+                    let r = i0..i0 + m;
+                    c_sn_degrees_span(
+                        &inp.roll_deg[r.clone()],
+                        &inp.pitch_deg[r.clone()],
+                        &inp.heading_deg[r],
+                        &mut cs[..m],
+                    );
+                }
                 product(&op.p, ycons, us);
                 if let Some(f) = &op_free {
                     product(&f.p, ys, ufs);
@@ -311,17 +319,10 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                         }
                         None => gs.trace(),
                     };
-                    ned_out[k] = match (full_rotation, inp.c_sn) {
-                        (true, Some(c)) => gs.rotated(&c[i]),
-                        (true, None) => gs.rotated(
-                            &Attitude::from_degrees(
-                                inp.roll_deg[i],
-                                inp.pitch_deg[i],
-                                inp.heading_deg[i],
-                            )
-                            .c_sn(),
-                        ),
-                        (false, _) => rotate_heading_only(&gs, inp.heading_deg[i].to_radians()),
+                    ned_out[k] = if full_rotation {
+                        congruence(&gs, &cs[k])
+                    } else {
+                        rotate_heading_only(&gs, inp.heading_deg[i].to_radians())
                     };
                     let g = gs.to_array();
                     sensor_out[k] = SymTensor::from_array(std::array::from_fn(|c| g[c] - ww[c]));
@@ -339,6 +340,19 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
         observed,
         heading_only: !full_rotation,
     })
+}
+
+/// C·G·Cᵀ for a symmetric G: P = C·G, then the six distinct entries of P·Cᵀ (45 products where a
+/// general product of three matrices takes 54). With C = C_sn it turns a sensor-frame tensor into
+/// NED.
+#[inline]
+fn congruence(g: &SymTensor, c: &Mat3) -> SymTensor {
+    let gm = g.to_matrix();
+    let p: Mat3 = std::array::from_fn(|r| {
+        std::array::from_fn(|j| c[r][0] * gm[0][j] + c[r][1] * gm[1][j] + c[r][2] * gm[2][j])
+    });
+    let e = |i: usize, j: usize| p[i][0] * c[j][0] + p[i][1] * c[j][1] + p[i][2] * c[j][2];
+    SymTensor::from_array([e(0, 0), e(0, 1), e(0, 2), e(1, 1), e(1, 2), e(2, 2)])
 }
 
 /// `n` copies of `v`, written in parallel: a fresh vector's pages are first touched (and mapped by

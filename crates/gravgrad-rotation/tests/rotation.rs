@@ -57,7 +57,6 @@ fn inputs(s: &Simulation) -> Inputs<'_> {
         heading_deg: col(s, "heading"),
         rate_hz: 20.0,
         alpha_gyro: None,
-        c_sn: None,
     }
 }
 
