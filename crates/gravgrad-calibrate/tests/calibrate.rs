@@ -136,7 +136,6 @@ fn coupling_drift_and_temperature_are_recovered_within_three_standard_errors() {
 #[test]
 fn joint_fit_recovers_every_pair_within_three_standard_errors() {
     use gravgrad_calibrate::joint::{FlightData, KnownField, estimate_flight};
-    use gravgrad_core::attitude::Attitude;
     let sc: Scenario = toml::from_str(SCENARIO).unwrap();
     let sim = simulate(&sc).unwrap();
     let rate = sc.plan.sample_rate_hz;
@@ -150,7 +149,6 @@ fn joint_fit_recovers_every_pair_within_three_standard_errors() {
         rate_hz: rate,
     };
     let usable: Vec<bool> = sim.line.iter().map(|l| *l > 0).collect();
-    let n = sim.line.len();
     let (roll, pitch, heading) = (col(&sim, "roll"), col(&sim, "pitch"), col(&sim, "heading"));
     // Known field: the truth's normal and terrain parts, turned into the sensor frame by the logged
     // attitude.
