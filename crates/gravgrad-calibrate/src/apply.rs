@@ -5,16 +5,13 @@ use rayon::prelude::*;
 
 impl PairCalibration {
     /// The calibration part of pair difference `i`, m/s²: κ·f(O) + bias and drift (polynomial in
-    /// t − t_mid) + temperature term + self-gradient term. The rotation terms (ΩΩ, α) are physics,
-    /// not calibration: the solve removes them.
+    /// t − t_mid, by Horner's rule) + temperature term + self-gradient term. The rotation terms (ΩΩ,
+    /// α) are physics, not calibration: the solve removes them.
     pub fn correction_at(&self, d: &PairData<'_>, i: usize) -> f64 {
         let mut c = (0..3).map(|k| self.kappa[k].value * d.f[k][i]).sum::<f64>();
         let dt = d.time[i] - self.t_mid;
-        let mut power = 1.0;
-        for p in &self.polynomial {
-            c += p.value * power;
-            power *= dt;
-        }
+        let poly: Vec<f64> = self.polynomial.iter().rev().map(|p| p.value).collect();
+        c += horner(&poly, dt);
         if let (Some(coef), Some(t)) = (self.temperature, d.temperature) {
             c += coef.value * (t[i] - self.temperature_mean);
         }
@@ -45,53 +42,45 @@ impl PairCalibration {
 
     /// `out[k]` = `x[k]` − the correction of sample `first + k`, m/s², for a span of samples: `x` the
     /// span of a pair output or difference (m/s²), `d`'s series indexed from the flight's first
-    /// sample. The same arithmetic as [`Self::correction_at`] in the same order, with the
-    /// coefficients and the optional terms settled once instead of per sample, term by term across
-    /// the samples (vectorised). Reads only `d`'s force, time, temperature and relative attitude, so
-    /// a caller can apply the calibration as it reads the samples instead of keeping a corrected
-    /// series.
+    /// sample. The terms of [`Self::correction_at`], with the coefficients and the optional terms
+    /// settled once instead of per sample, in passes across the samples (vectorised); the optional
+    /// terms are subtracted one after the other, so the result may differ from x − correction_at in
+    /// the last bit. Reads only `d`'s force, time, temperature and relative attitude, so a caller
+    /// can apply the calibration as it reads the samples instead of keeping a corrected series.
     pub fn subtract_span(&self, d: &PairData<'_>, first: usize, x: &[f64], out: &mut [f64]) {
-        const CHUNK: usize = 256;
         let kappa = self.kappa.map(|k| k.value);
-        let temperature = self
-            .temperature
-            .zip(d.temperature)
-            .map(|(c, t)| (c.value, t));
-        let self_gradient = self
-            .self_gradient
-            .zip(d.relative_attitude)
-            .map(|(sg, rel)| ([sg[0].value, sg[1].value], rel));
-        let (mut cs, mut dts, mut powers) = ([0.0; CHUNK], [0.0; CHUNK], [0.0; CHUNK]);
-        for (q, (o, xs)) in out.chunks_mut(CHUNK).zip(x.chunks(CHUNK)).enumerate() {
-            let r = first + q * CHUNK..first + q * CHUNK + o.len();
-            let m = o.len();
-            let (c, dt, power) = (&mut cs[..m], &mut dts[..m], &mut powers[..m]);
-            let f = [&d.f[0][r.clone()], &d.f[1][r.clone()], &d.f[2][r.clone()]];
-            for (k, ck) in c.iter_mut().enumerate() {
-                *ck = -0.0 + kappa[0] * f[0][k] + kappa[1] * f[1][k] + kappa[2] * f[2][k];
-            }
-            for ((dtk, pk), t) in dt.iter_mut().zip(power.iter_mut()).zip(&d.time[r.clone()]) {
-                *dtk = t - self.t_mid;
-                *pk = 1.0;
-            }
-            for p in self.polynomial.iter().map(|p| p.value) {
-                for ((ck, pk), dtk) in c.iter_mut().zip(power.iter_mut()).zip(dt.iter()) {
-                    *ck += p * *pk;
-                    *pk *= dtk;
+        let poly: Vec<f64> = self.polynomial.iter().rev().map(|p| p.value).collect();
+        let r = first..first + x.len();
+        let f = [&d.f[0][r.clone()], &d.f[1][r.clone()], &d.f[2][r.clone()]];
+        let time = &d.time[r.clone()];
+        // One pass for κ·f and the polynomial (its usual orders unrolled), then the optional terms.
+        match poly[..] {
+            [p1, p0] => {
+                for (k, (o, xk)) in out.iter_mut().zip(x).enumerate() {
+                    let dt = time[k] - self.t_mid;
+                    let c = -0.0 + kappa[0] * f[0][k] + kappa[1] * f[1][k] + kappa[2] * f[2][k];
+                    *o = xk - (c + (p1 * dt + p0));
                 }
             }
-            if let Some((coef, t)) = temperature {
-                for (ck, tk) in c.iter_mut().zip(&t[r.clone()]) {
-                    *ck += coef * (tk - self.temperature_mean);
+            _ => {
+                for (k, (o, xk)) in out.iter_mut().zip(x).enumerate() {
+                    let dt = time[k] - self.t_mid;
+                    let c = -0.0 + kappa[0] * f[0][k] + kappa[1] * f[1][k] + kappa[2] * f[2][k];
+                    *o = xk - (c + horner(&poly, dt));
                 }
             }
-            if let Some((sg, rel)) = self_gradient {
-                for ((ck, a), b) in c.iter_mut().zip(&rel[0][r.clone()]).zip(&rel[1][r.clone()]) {
-                    *ck += sg[0] * a + sg[1] * b;
-                }
+        }
+        // o = x − c so far; each further term t makes it x − (c + t), taken as (x − c) − t.
+        if let Some((coef, t)) = self.temperature.zip(d.temperature) {
+            let (coef, mean) = (coef.value, self.temperature_mean);
+            for (o, tk) in out.iter_mut().zip(&t[r.clone()]) {
+                *o -= coef * (tk - mean);
             }
-            for ((v, xk), ck) in o.iter_mut().zip(xs).zip(c.iter()) {
-                *v = xk - ck;
+        }
+        if let Some((sg, rel)) = self.self_gradient.zip(d.relative_attitude) {
+            let (s0, s1) = (sg[0].value, sg[1].value);
+            for ((o, a), b) in out.iter_mut().zip(&rel[0][r.clone()]).zip(&rel[1][r]) {
+                *o -= s0 * a + s1 * b;
             }
         }
     }
@@ -101,5 +90,14 @@ impl PairCalibration {
         (0..d.difference.len())
             .map(|i| d.difference[i] - self.correction_at(d, i))
             .collect()
+    }
+}
+
+/// Σ c_k·x^k by Horner's rule, the coefficients from the highest power down; 0 for none.
+#[inline]
+fn horner(highest_first: &[f64], x: f64) -> f64 {
+    match highest_first.split_first() {
+        Some((top, rest)) => rest.iter().fold(*top, |acc, c| acc * x + c),
+        None => 0.0,
     }
 }

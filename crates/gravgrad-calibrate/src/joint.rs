@@ -94,10 +94,6 @@ impl<'a> FlightData<'a> {
     }
 }
 
-/// One span's block means: of M's six components, and of each pair's difference less its fixed
-/// correction.
-type SpanMeans = (Vec<Vec<f64>>, Vec<Vec<f64>>);
-
 fn combine(parts: &[(f64, Coefficient)]) -> Coefficient {
     Coefficient {
         value: parts.iter().map(|(w, c)| w * c.value).sum(),
@@ -109,6 +105,161 @@ fn combine(parts: &[(f64, Coefficient)]) -> Coefficient {
     }
 }
 
+/// Every pair's samples over a flight, as the first stage of the fit reads them: the outputs, the
+/// angular rate and the known field. Nothing else of the flight is needed to form the block means
+/// ([`PairBlocks`]), so a caller can form them while it is still computing the rest.
+pub struct PairSamples<'a> {
+    pub pairs: &'a [PairGeometry],
+    /// Each pair's outputs a and b, m/s², in the order of `pairs`.
+    pub a: Vec<&'a [f64]>,
+    pub b: Vec<&'a [f64]>,
+    /// The known field to take off every difference; `None`: nothing taken off.
+    pub known: Option<KnownField<'a>>,
+    /// Angular rate, sensor axes, rad/s.
+    pub omega: [&'a [f64]; 3],
+}
+
+/// The block means the fit works on: of each pair's difference d_p = a_p − b_p (m/s²) and of the
+/// six components xx xy xz yy yz zz of M = ΩΩ − G_s (s⁻²; the centrifugal term and the known field,
+/// sensor frame, ΩΩ = ωωᵀ − |ω|²I), over blocks of `block` samples.
+pub struct PairBlocks {
+    block: usize,
+    m: Vec<Vec<f64>>,
+    d: Vec<Vec<f64>>,
+}
+
+impl PairBlocks {
+    /// The block length for settings `s`: a quarter of the band's top period, in samples. Blocks of
+    /// it carry the whole band and make the fits that many times cheaper.
+    pub fn block_length(s: &Settings) -> usize {
+        ((s.rate_hz / (4.0 * s.band_hz[1])).floor() as usize).max(1)
+    }
+
+    /// Reads every sample once, in spans of whole blocks: per span M's six components sample by
+    /// sample (once for all pairs), then the block means of each, then of each pair's difference
+    /// (one subtraction per sample and pair). Each block is summed in sample order whatever the
+    /// thread count.
+    pub fn of(x: &PairSamples<'_>, s: &Settings) -> Self {
+        let block = Self::block_length(s);
+        let np = x.pairs.len();
+        let n = x.omega[0].len();
+        let sum_blocks = |v: &[f64], out: &mut Vec<f64>| {
+            out.extend(
+                v.chunks(block)
+                    .map(|c| c.iter().sum::<f64>() / c.len() as f64),
+            );
+        };
+        let span = block * 256;
+        let parts: Vec<(Vec<Vec<f64>>, Vec<Vec<f64>>)> = (0..n.div_ceil(span))
+            .into_par_iter()
+            .map_init(
+                || {
+                    (
+                        std::array::from_fn::<_, 6, _>(|_| vec![0.0; span]),
+                        vec![0.0; span],
+                        vec![[[0.0; 3]; 3]; span],
+                    )
+                },
+                |(ms, ds, cs), q| {
+                    let r = q * span..((q + 1) * span).min(n);
+                    let (a0, len) = (r.start, r.len());
+                    if let Some(kf) = &x.known {
+                        let [roll, pitch, heading] = kf.attitude_deg;
+                        c_sn_degrees_span(
+                            &roll[r.clone()],
+                            &pitch[r.clone()],
+                            &heading[r.clone()],
+                            &mut cs[..len],
+                        );
+                    }
+                    let w = [
+                        &x.omega[0][r.clone()],
+                        &x.omega[1][r.clone()],
+                        &x.omega[2][r.clone()],
+                    ];
+                    for k in 0..len {
+                        let (wx, wy, wz) = (w[0][k], w[1][k], w[2][k]);
+                        let w2 = wx * wx + wy * wy + wz * wz;
+                        let mut m = [
+                            wx * wx - w2,
+                            wx * wy,
+                            wx * wz,
+                            wy * wy - w2,
+                            wy * wz,
+                            wz * wz - w2,
+                        ];
+                        if let Some(kf) = &x.known {
+                            let g = kf.sensor(a0 + k, &cs[k]).to_array();
+                            for (mc, gc) in m.iter_mut().zip(g) {
+                                *mc -= gc;
+                            }
+                        }
+                        for (c, mc) in m.into_iter().enumerate() {
+                            ms[c][k] = mc;
+                        }
+                    }
+                    let m_means: Vec<Vec<f64>> = ms
+                        .iter()
+                        .map(|mc| {
+                            let mut v = Vec::with_capacity(len.div_ceil(block));
+                            sum_blocks(&mc[..len], &mut v);
+                            v
+                        })
+                        .collect();
+                    let ds = &mut ds[..len];
+                    let d_means = (0..np)
+                        .map(|p| {
+                            let (pa, pb) = (&x.a[p][r.clone()], &x.b[p][r.clone()]);
+                            for ((dk, ak), bk) in ds.iter_mut().zip(pa).zip(pb) {
+                                *dk = ak - bk;
+                            }
+                            let mut v = Vec::with_capacity(len.div_ceil(block));
+                            sum_blocks(ds, &mut v);
+                            v
+                        })
+                        .collect();
+                    (m_means, d_means)
+                },
+            )
+            .collect();
+        // The spans joined into whole series.
+        let joined = |pick: &(dyn Fn(&(Vec<Vec<f64>>, Vec<Vec<f64>>)) -> &Vec<f64> + Sync)| {
+            parts
+                .iter()
+                .flat_map(|part| pick(part).iter().copied())
+                .collect::<Vec<f64>>()
+        };
+        let (m, d) = rayon::join(
+            || {
+                (0..6)
+                    .into_par_iter()
+                    .map(|c| joined(&|part| &part.0[c]))
+                    .collect()
+            },
+            || {
+                (0..np)
+                    .into_par_iter()
+                    .map(|p| joined(&|part| &part.1[p]))
+                    .collect()
+            },
+        );
+        Self { block, m, d }
+    }
+}
+
+impl<'a> FlightData<'a> {
+    /// The samples the first stage reads.
+    pub fn samples(&self) -> PairSamples<'a> {
+        PairSamples {
+            pairs: self.pairs,
+            a: self.a.clone(),
+            b: self.b.clone(),
+            known: self.known,
+            omega: self.omega,
+        }
+    }
+}
+
 /// Estimates every pair's calibration from one flight. With `fixed` (a calibration flight's
 /// coefficients, one per pair in order), κ, temperature and self-gradient are kept and only bias and
 /// drift are fitted, also in the space of the unknowns.
@@ -117,22 +268,29 @@ pub fn estimate_flight(
     s: &Settings,
     fixed: Option<&[PairCalibration]>,
 ) -> Vec<PairCalibration> {
+    estimate_from_blocks(d, &PairBlocks::of(&d.samples(), s), s, fixed)
+}
+
+/// [`estimate_flight`] from the block means of `d`'s pair samples formed already (with the same
+/// settings). `d`'s own pair outputs, known field and angular rate are not read again.
+pub fn estimate_from_blocks(
+    d: &FlightData<'_>,
+    blocks: &PairBlocks,
+    s: &Settings,
+    fixed: Option<&[PairCalibration]>,
+) -> Vec<PairCalibration> {
     let np = d.pairs.len();
-    let n = d.time.len();
     let k = if d.alpha_from_pairs { 9 } else { 6 };
     let rows: Vec<[f64; 9]> = d.pairs.iter().map(PairGeometry::design_row).collect();
     let a: Vec<Vec<f64>> = rows.iter().map(|r| r[..k].to_vec()).collect();
     let op = pseudo_inverse(&a, k);
-    // z_p = −(d_p − n_pᵀ·M·b_p − fixed part), less the gyro α term when the solve uses it, with
-    // M = ΩΩ − G_s (the centrifugal term and the known field, sensor frame; ΩΩ = ωωᵀ − |ω|²I).
-    // Everything below is linear in the samples, so the model holds as well for block means as for
-    // samples: blocks of `block` samples (a quarter of the band's top period) carry the whole band
-    // and make the fits `block` times cheaper. And z is linear in d_p and in M's six components, so
-    // its block means come from the block means of d_p and of M: M is formed once per sample for
-    // all pairs, and a pair costs one subtraction per sample. Each block is summed in sample order
-    // whatever the thread count.
-    let block = ((s.rate_hz / (4.0 * s.band_hz[1])).floor() as usize).max(1);
+    // z_p = −(d_p − n_pᵀ·M·b_p − fixed part), less the gyro α term when the solve uses it.
+    // Everything here is linear in the samples, so the model holds as well for block means as for
+    // samples; and z is linear in d_p and in M's components, so its block means come from theirs.
+    let block = blocks.block;
     let mean = |x: &[f64]| block_means(x, block);
+    // The fixed part (κ·f, temperature and self-gradient terms; bias and drift are fitted) is linear
+    // too: taken off at block level, from the block means of its regressors.
     let fixed_parts: Option<Vec<PairCalibration>> = fixed.map(|fx| {
         fx.iter()
             .map(|c| {
@@ -142,7 +300,6 @@ pub fn estimate_flight(
             })
             .collect()
     });
-    let series: Vec<PairData<'_>> = (0..np).map(|p| d.series(p, &[])).collect();
     // n_pᵀ·M·b_p = Σ_c coef_p[c]·M_c over M's components xx xy xz yy yz zz.
     let coef: Vec<[f64; 6]> = d
         .pairs
@@ -159,122 +316,51 @@ pub fn estimate_flight(
             ]
         })
         .collect();
-    let sum_blocks = |x: &[f64], out: &mut Vec<f64>| {
-        out.extend(
-            x.chunks(block)
-                .map(|c| c.iter().sum::<f64>() / c.len() as f64),
-        );
+    let m_b = &blocks.m;
+    // The block means of what the fits read: force, gyro α, time, temperature, relative attitude.
+    let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
+    let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
+    let tb = mean(d.time);
+    let temp_b = d.temperature.map(mean);
+    let rel_b: Option<Vec<Vec<f64>>> = d
+        .relative_attitude
+        .map(|r| r.iter().map(|v| mean(v)).collect());
+    let block_data = |p: usize| PairData {
+        geometry: &d.pairs[p],
+        difference: &[],
+        omega: d.omega,
+        f: [&fb[0], &fb[1], &fb[2]],
+        alpha: [&ab[0], &ab[1], &ab[2]],
+        time: &tb,
+        temperature: temp_b.as_deref(),
+        usable: None,
+        expected: None,
+        relative_attitude: rel_b.as_ref().map(|r| [&r[0][..], &r[1][..]]),
     };
-    // Spans of whole blocks; per span the block means of M's six components, then of each pair's
-    // d = a − b and, with a fixed calibration, of its correction.
-    let span = block * 256;
-    let parts: Vec<SpanMeans> = (0..n.div_ceil(span))
-        .into_par_iter()
-        .map_init(
-            || {
-                (
-                    std::array::from_fn::<_, 6, _>(|_| vec![0.0; span]),
-                    vec![0.0; span],
-                    vec![[[0.0; 3]; 3]; span],
-                )
-            },
-            |(ms, ds, cs), q| {
-                let r = q * span..((q + 1) * span).min(n);
-                let (a0, len) = (r.start, r.len());
-                if let Some(kf) = &d.known {
-                    let [roll, pitch, heading] = kf.attitude_deg;
-                    c_sn_degrees_span(
-                        &roll[r.clone()],
-                        &pitch[r.clone()],
-                        &heading[r.clone()],
-                        &mut cs[..len],
-                    );
-                }
-                let w = [
-                    &d.omega[0][r.clone()],
-                    &d.omega[1][r.clone()],
-                    &d.omega[2][r.clone()],
-                ];
-                for k in 0..len {
-                    let (x, y, z) = (w[0][k], w[1][k], w[2][k]);
-                    let w2 = x * x + y * y + z * z;
-                    let mut m = [x * x - w2, x * y, x * z, y * y - w2, y * z, z * z - w2];
-                    if let Some(kf) = &d.known {
-                        let g = kf.sensor(a0 + k, &cs[k]).to_array();
-                        for (mc, gc) in m.iter_mut().zip(g) {
-                            *mc -= gc;
-                        }
-                    }
-                    for (c, mc) in m.into_iter().enumerate() {
-                        ms[c][k] = mc;
-                    }
-                }
-                let mut m_means = Vec::with_capacity(6);
-                for mc in ms.iter() {
-                    let mut v = Vec::with_capacity(len.div_ceil(block));
-                    sum_blocks(&mc[..len], &mut v);
-                    m_means.push(v);
-                }
-                let ds = &mut ds[..len];
-                let d_means = (0..np)
-                    .map(|p| {
-                        let (pa, pb) = (&d.a[p][r.clone()], &d.b[p][r.clone()]);
-                        for ((dk, ak), bk) in ds.iter_mut().zip(pa).zip(pb) {
-                            *dk = ak - bk;
-                        }
-                        if let Some(c) = &fixed_parts {
-                            for (k, dk) in ds.iter_mut().enumerate() {
-                                *dk -= c[p].correction_at(&series[p], a0 + k);
-                            }
-                        }
-                        let mut v = Vec::with_capacity(len.div_ceil(block));
-                        sum_blocks(ds, &mut v);
-                        v
-                    })
-                    .collect();
-                (m_means, d_means)
-            },
-        )
-        .collect();
-    // The spans' means of M joined into whole series, beside the block means of what the fits read
-    // (force, gyro α, time, temperature, relative attitude).
-    let (m_b, (fb, ab, tb, temp_b, rel_b)) = rayon::join(
-        || -> Vec<Vec<f64>> {
-            (0..6)
-                .map(|c| {
-                    parts
-                        .iter()
-                        .flat_map(|part| part.0[c].iter().copied())
-                        .collect()
-                })
-                .collect()
-        },
-        || {
-            let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
-            let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
-            let rel_b: Option<Vec<Vec<f64>>> = d
-                .relative_attitude
-                .map(|r| r.iter().map(|v| mean(v)).collect());
-            (fb, ab, mean(d.time), d.temperature.map(mean), rel_b)
-        },
-    );
     // z_p per block: the pair's difference less n_pᵀ·M·b_p, M's components one at a time across
     // the blocks (vectorised), less the gyro α term when the solve takes α from the gyros.
     let z: Vec<Vec<f64>> = (0..np)
         .into_par_iter()
         .map(|p| {
             let (cp, rw) = (&coef[p], &rows[p]);
-            let db: Vec<f64> = parts
-                .iter()
-                .flat_map(|part| part.1[p].iter().copied())
-                .collect();
+            let db = &blocks.d[p];
             let mut known = vec![-0.0; db.len()];
-            for (cc, mc) in cp.iter().zip(&m_b) {
+            for (cc, mc) in cp.iter().zip(m_b) {
                 for (kv, m) in known.iter_mut().zip(mc) {
                     *kv += cc * m;
                 }
             }
-            let mut zp: Vec<f64> = db.iter().zip(&known).map(|(v, k)| -(v - k)).collect();
+            let mut zp: Vec<f64> = match &fixed_parts {
+                None => db.iter().zip(&known).map(|(v, k)| -(v - k)).collect(),
+                Some(c) => {
+                    let bd = block_data(p);
+                    db.iter()
+                        .zip(&known)
+                        .enumerate()
+                        .map(|(i, (v, k))| -((v - c[p].correction_at(&bd, i)) - k))
+                        .collect()
+                }
+            };
             if !d.alpha_from_pairs {
                 for (i, zv) in zp.iter_mut().enumerate() {
                     *zv -= rw[6] * ab[0][i] + rw[7] * ab[1][i] + rw[8] * ab[2][i];

@@ -9,7 +9,9 @@
 
 use gravgrad_calibrate::estimate::{self, PairCalibration, PairData};
 use gravgrad_calibrate::file::CalibrationFile;
-use gravgrad_calibrate::joint::{FlightData, KnownField, estimate_flight};
+use gravgrad_calibrate::joint::{
+    FlightData, KnownField, PairBlocks, PairSamples, estimate_from_blocks,
+};
 use gravgrad_core::ellipsoid::Ellipsoid;
 use gravgrad_core::mat3::Mat3;
 use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, observability};
@@ -270,11 +272,52 @@ pub fn process_flight(
         .iter()
         .map(|g| column(flight, &format!("{}_b", g.id)))
         .collect::<Result<_, _>>()?;
+    let settings = estimate::Settings {
+        band_hz: recipe.calibration.band_hz,
+        drift_order: recipe.calibration.drift_order as usize,
+        rate_hz: rate,
+    };
+    let stored: Option<Vec<PairCalibration>> = match &calibration {
+        CalibrationSource::File(file) => Some(
+            instrument
+                .pairs
+                .iter()
+                .map(|g| {
+                    file.get(&g.id).ok_or_else(|| {
+                        Problem::error(
+                            Location::file(&instrument.path).with_key("pair"),
+                            format!("the calibration file has no pair `{}`", g.id),
+                        )
+                    })
+                })
+                .collect::<Result<_, _>>()?,
+        ),
+        _ => None,
+    };
+    let samples = PairSamples {
+        pairs: &instrument.pairs,
+        a: pair_a.clone(),
+        b: pair_b.clone(),
+        // The fit forms the known field's part of each difference as it reads the samples.
+        known: Some(KnownField {
+            normal: &normal,
+            terrain: terrain.as_deref(),
+            attitude_deg: [roll, pitch, heading],
+        }),
+        omega,
+    };
+    let fitted = !matches!(calibration, CalibrationSource::None);
     // The gyros' angular acceleration (three recursions interleaved on one core) beside the
-    // common-mode force (spans of samples, on the other core and whatever the first leaves).
-    let (alpha_gyro, f_common) = rayon::join(
+    // common-mode force and the block means of the pairs' samples (spans of samples, on the other
+    // core and whatever the first leaves).
+    let (alpha_gyro, (f_common, blocks)) = rayon::join(
         || angular_acceleration3(omega, rate, recipe.rotation.gyro_lowpass_hz),
-        || common_mode_force(&instrument.pairs, &pair_a, &pair_b, f),
+        || {
+            (
+                common_mode_force(&instrument.pairs, &pair_a, &pair_b, f),
+                fitted.then(|| PairBlocks::of(&samples, &settings)),
+            )
+        },
     );
     let temperature = flight.flight.table.get("temp");
     let relative: Option<[Vec<f64>; 2]> = match (
@@ -293,24 +336,13 @@ pub fn process_flight(
         ]),
         _ => None,
     };
-    let settings = estimate::Settings {
-        band_hz: recipe.calibration.band_hz,
-        drift_order: recipe.calibration.drift_order as usize,
-        rate_hz: rate,
-    };
-
     let alpha_source = alpha_source(recipe, &instrument.pairs);
     let f: [&[f64]; 3] = [&f_common[0], &f_common[1], &f_common[2]];
     let data = FlightData {
         pairs: &instrument.pairs,
-        a: pair_a.clone(),
-        b: pair_b.clone(),
-        // The fit forms the known field's part of each difference as it reads the samples.
-        known: Some(KnownField {
-            normal: &normal,
-            terrain: terrain.as_deref(),
-            attitude_deg: [roll, pitch, heading],
-        }),
+        a: samples.a.clone(),
+        b: samples.b.clone(),
+        known: samples.known,
         omega,
         f,
         alpha: [&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]],
@@ -320,25 +352,9 @@ pub fn process_flight(
         relative_attitude: relative.as_ref().map(|r| [&r[0][..], &r[1][..]]),
         alpha_from_pairs: alpha_source == AlphaSource::Pairs,
     };
-    let cals: Option<Vec<PairCalibration>> = match &calibration {
-        CalibrationSource::Estimate => Some(estimate_flight(&data, &settings, None)),
-        CalibrationSource::File(file) => {
-            let stored: Vec<PairCalibration> = instrument
-                .pairs
-                .iter()
-                .map(|g| {
-                    file.get(&g.id).ok_or_else(|| {
-                        Problem::error(
-                            Location::file(&instrument.path).with_key("pair"),
-                            format!("the calibration file has no pair `{}`", g.id),
-                        )
-                    })
-                })
-                .collect::<Result<_, _>>()?;
-            Some(estimate_flight(&data, &settings, Some(&stored)))
-        }
-        CalibrationSource::None => None,
-    };
+    // Block means formed already: the pair outputs are not read again here.
+    let cals: Option<Vec<PairCalibration>> =
+        blocks.map(|b| estimate_from_blocks(&data, &b, &settings, stored.as_deref()));
     lap("calibration", &mut timings);
     // The calibration is applied as the solve reads each span of `a` (b as logged): no corrected
     // series is kept.

@@ -229,18 +229,24 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                         }
                         None => &ps.a[i0..i0 + m],
                     };
-                    for k in 0..m {
-                        let i = i0 + k;
-                        let mut v = -(a[k] - ps.b[i]);
-                        if !with_alpha {
-                            v -= r[6] * alpha_g[0][i] + r[7] * alpha_g[1][i] + r[8] * alpha_g[2][i];
+                    // Term by term across the span (vectorised).
+                    for ((yk, ak), bk) in y.iter_mut().zip(a).zip(&ps.b[i0..i0 + m]) {
+                        *yk = -(ak - bk);
+                    }
+                    if !with_alpha {
+                        let al = [
+                            &alpha_g[0][i0..i0 + m],
+                            &alpha_g[1][i0..i0 + m],
+                            &alpha_g[2][i0..i0 + m],
+                        ];
+                        for (k, yk) in y.iter_mut().enumerate() {
+                            *yk -= r[6] * al[0][k] + r[7] * al[1][k] + r[8] * al[2][k];
                         }
-                        y[k] = v;
-                        y_con[k] = if s.trace_constraint {
-                            v - r[5] * 2.0 * w2s[k]
-                        } else {
-                            v
-                        };
+                    }
+                    if s.trace_constraint {
+                        for ((c, v), w2) in y_con.iter_mut().zip(y.iter()).zip(&w2s[..m]) {
+                            *c = v - r[5] * 2.0 * w2;
+                        }
                     }
                 }
                 // u_j = Σ_p P_jp·y_p, the terms added in pair order from −0 (as `Iterator::sum`);
@@ -266,7 +272,8 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                         &mut cs[..m],
                     );
                 }
-                product(&op.p, ycons, us);
+                // Without the trace constraint the constrained values are the values themselves.
+                product(&op.p, if s.trace_constraint { ycons } else { ys }, us);
                 if let Some(f) = &op_free {
                     product(&f.p, ys, ufs);
                 }
