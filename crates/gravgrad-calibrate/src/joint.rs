@@ -128,6 +128,9 @@ pub struct PairBlocks {
     d: Vec<Vec<f64>>,
 }
 
+/// One span's block means: of M's six components, and of each pair's difference.
+type SpanMeans = (Vec<Vec<f64>>, Vec<Vec<f64>>);
+
 impl PairBlocks {
     /// The block length for settings `s`: a quarter of the band's top period, in samples. Blocks of
     /// it carry the whole band and make the fits that many times cheaper.
@@ -150,7 +153,7 @@ impl PairBlocks {
             );
         };
         let span = block * 256;
-        let parts: Vec<(Vec<Vec<f64>>, Vec<Vec<f64>>)> = (0..n.div_ceil(span))
+        let parts: Vec<SpanMeans> = (0..n.div_ceil(span))
             .into_par_iter()
             .map_init(
                 || {
@@ -223,7 +226,7 @@ impl PairBlocks {
             )
             .collect();
         // The spans joined into whole series.
-        let joined = |pick: &(dyn Fn(&(Vec<Vec<f64>>, Vec<Vec<f64>>)) -> &Vec<f64> + Sync)| {
+        let joined = |pick: &(dyn Fn(&SpanMeans) -> &Vec<f64> + Sync)| {
             parts
                 .iter()
                 .flat_map(|part| pick(part).iter().copied())
