@@ -146,12 +146,7 @@ impl PairBlocks {
         let block = Self::block_length(s);
         let np = x.pairs.len();
         let n = x.omega[0].len();
-        let sum_blocks = |v: &[f64], out: &mut Vec<f64>| {
-            out.extend(
-                v.chunks(block)
-                    .map(|c| c.iter().sum::<f64>() / c.len() as f64),
-            );
-        };
+        let sum_blocks = |v: &[f64], out: &mut Vec<f64>| push_block_means(v, block, out);
         let span = block * 256;
         let parts: Vec<SpanMeans> = (0..n.div_ceil(span))
             .into_par_iter()
@@ -545,9 +540,75 @@ pub fn estimate_from_blocks(
         .collect()
 }
 
-/// Means of consecutive blocks of `block` samples (the last block may be shorter).
+/// Means of consecutive blocks of `block` samples (the last block may be shorter), spans of blocks
+/// in parallel.
 fn block_means(x: &[f64], block: usize) -> Vec<f64> {
-    x.par_chunks(block)
-        .map(|c| c.iter().sum::<f64>() / c.len() as f64)
-        .collect()
+    let span = block * 1024;
+    let parts: Vec<Vec<f64>> = x
+        .par_chunks(span)
+        .map(|c| {
+            let mut out = Vec::with_capacity(c.len().div_ceil(block));
+            push_block_means(c, block, &mut out);
+            out
+        })
+        .collect();
+    parts.concat()
+}
+
+/// Appends the means of consecutive blocks of `block` samples of `x` (the last may be shorter) to
+/// `out`. Each block is summed in sample order from −0 (as `Iterator::sum`), but four blocks at a
+/// time in one loop: one sum's additions wait on each other, four independent sums keep the core
+/// busy. The same bits as summing each block alone.
+fn push_block_means(x: &[f64], block: usize, out: &mut Vec<f64>) {
+    let groups = x.len() / (4 * block);
+    for g in x[..groups * 4 * block].chunks_exact(4 * block) {
+        let (b0, rest) = g.split_at(block);
+        let (b1, rest) = rest.split_at(block);
+        let (b2, b3) = rest.split_at(block);
+        let mut s = [-0.0f64; 4];
+        for i in 0..block {
+            s[0] += b0[i];
+            s[1] += b1[i];
+            s[2] += b2[i];
+            s[3] += b3[i];
+        }
+        out.extend(s.iter().map(|v| v / block as f64));
+    }
+    out.extend(
+        x[groups * 4 * block..]
+            .chunks(block)
+            .map(|c| c.iter().sum::<f64>() / c.len() as f64),
+    );
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn block_means_four_at_a_time_give_each_block_alone_bit_for_bit() {
+        let x: Vec<f64> = (0..10_007)
+            .map(|i| ((i * 7919) % 1000) as f64 * 1.3e-3 - 0.4)
+            .collect();
+        for block in [1, 5, 12, 13] {
+            let mut got = Vec::new();
+            push_block_means(&x, block, &mut got);
+            let want: Vec<f64> = x
+                .chunks(block)
+                .map(|c| c.iter().sum::<f64>() / c.len() as f64)
+                .collect();
+            assert_eq!(got.len(), want.len());
+            assert!(
+                got.iter()
+                    .zip(&want)
+                    .all(|(a, b)| a.to_bits() == b.to_bits())
+            );
+            let par = block_means(&x, block);
+            assert!(
+                par.iter()
+                    .zip(&want)
+                    .all(|(a, b)| a.to_bits() == b.to_bits())
+            );
+        }
+    }
 }
