@@ -46,13 +46,20 @@ impl KnownField<'_> {
         if let Some(t) = self.terrain {
             g = g + t[i];
         }
-        let gm = g.to_matrix();
-        let p: Mat3 = std::array::from_fn(|r| {
-            std::array::from_fn(|j| gm[r][0] * c[0][j] + gm[r][1] * c[1][j] + gm[r][2] * c[2][j])
-        });
-        let e = |i: usize, j: usize| c[0][i] * p[0][j] + c[1][i] * p[1][j] + c[2][i] * p[2][j];
-        SymTensor::from_array([e(0, 0), e(0, 1), e(0, 2), e(1, 1), e(1, 2), e(2, 2)])
+        to_sensor(&g, c)
     }
+}
+
+/// C_snᵀ·G·C_sn for a symmetric G (NED) and C_sn: P = G·C_sn, then the six distinct entries of
+/// C_snᵀ·P.
+#[inline]
+fn to_sensor(g: &SymTensor, c: &Mat3) -> SymTensor {
+    let gm = g.to_matrix();
+    let p: Mat3 = std::array::from_fn(|r| {
+        std::array::from_fn(|j| gm[r][0] * c[0][j] + gm[r][1] * c[1][j] + gm[r][2] * c[2][j])
+    });
+    let e = |i: usize, j: usize| c[0][i] * p[0][j] + c[1][i] * p[1][j] + c[2][i] * p[2][j];
+    SymTensor::from_array([e(0, 0), e(0, 1), e(0, 2), e(1, 1), e(1, 2), e(2, 2)])
 }
 
 /// One flight of a whole instrument, on one time base.
@@ -160,7 +167,7 @@ impl PairBlocks {
                 },
                 |(ms, ds, cs), q| {
                     let r = q * span..((q + 1) * span).min(n);
-                    let (a0, len) = (r.start, r.len());
+                    let len = r.len();
                     if let Some(kf) = &x.known {
                         let [roll, pitch, heading] = kf.attitude_deg;
                         c_sn_degrees_span(
@@ -175,6 +182,13 @@ impl PairBlocks {
                         &x.omega[1][r.clone()],
                         &x.omega[2][r.clone()],
                     ];
+                    // Every series cut to the span first, so that the loop's indexing needs no checks.
+                    let [m0, m1, m2, m3, m4, m5] = ms.each_mut().map(|v| &mut v[..len]);
+                    let cs = &cs[..len];
+                    let known = x
+                        .known
+                        .as_ref()
+                        .map(|kf| (&kf.normal[r.clone()], kf.terrain.map(|t| &t[r.clone()])));
                     for k in 0..len {
                         let (wx, wy, wz) = (w[0][k], w[1][k], w[2][k]);
                         let w2 = wx * wx + wy * wy + wz * wz;
@@ -186,15 +200,18 @@ impl PairBlocks {
                             wy * wz,
                             wz * wz - w2,
                         ];
-                        if let Some(kf) = &x.known {
-                            let g = kf.sensor(a0 + k, &cs[k]).to_array();
+                        if let Some((normal, terrain)) = known {
+                            let mut g = normal[k];
+                            if let Some(t) = terrain {
+                                g = g + t[k];
+                            }
+                            let g = to_sensor(&g, &cs[k]).to_array();
                             for (mc, gc) in m.iter_mut().zip(g) {
                                 *mc -= gc;
                             }
                         }
-                        for (c, mc) in m.into_iter().enumerate() {
-                            ms[c][k] = mc;
-                        }
+                        (m0[k], m1[k], m2[k], m3[k], m4[k], m5[k]) =
+                            (m[0], m[1], m[2], m[3], m[4], m[5]);
                     }
                     let m_means: Vec<Vec<f64>> = ms
                         .iter()

@@ -206,9 +206,12 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                     vec![0.0; nf * SPAN],
                     vec![0.0; SPAN],
                     vec![[[0.0; 3]; 3]; if full_rotation { SPAN } else { 0 }],
+                    vec![0.0; 6 * SPAN],
+                    vec![0.0; 6 * SPAN],
+                    vec![0.0; 6 * SPAN],
                 )
             },
-            |(w2s, ys, ycons, us, ufs, cas, cs),
+            |(w2s, ys, ycons, us, ufs, cas, cs, wws, svs, gss),
              (q, (((ned_out, sensor_out), alpha_out), trace_out))| {
                 let i0 = q * SPAN;
                 let m = ned_out.len();
@@ -277,64 +280,92 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                 if let Some(f) = &op_free {
                     product(&f.p, ys, ufs);
                 }
-                for k in 0..m {
-                    let i = i0 + k;
-                    let u = |j: usize| us[j * SPAN + k];
-                    let w = [inp.omega[0][i], inp.omega[1][i], inp.omega[2][i]];
-                    let w2 = w2s[k];
-                    let mut sv = [f64::NAN; 6];
-                    let mut alpha = [f64::NAN; 3];
-                    if s.trace_constraint {
-                        let map = [0usize, 1, 2, 3, 4];
-                        for (j, &c) in map.iter().enumerate() {
-                            sv[c] = if op.observed[j] { u(j) } else { f64::NAN };
-                        }
-                        sv[5] = 2.0 * w2 - sv[0] - sv[3];
-                        if with_alpha {
-                            for (a, j) in alpha.iter_mut().zip(5..8) {
-                                *a = if op.observed[j] { u(j) } else { f64::NAN };
-                            }
+                // Component by component across the span (vectorised): ΩΩ = ωωᵀ − |ω|²I; S with
+                // NaN where not observed (Szz = 2|ω|² − Sxx − Syy under the trace constraint);
+                // G_s = S + ΩΩ.
+                let w = [
+                    &inp.omega[0][i0..i0 + m],
+                    &inp.omega[1][i0..i0 + m],
+                    &inp.omega[2][i0..i0 + m],
+                ];
+                let w2 = &w2s[..m];
+                for (c, (a, b)) in [(0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2)]
+                    .into_iter()
+                    .enumerate()
+                {
+                    let out = &mut wws[c * SPAN..c * SPAN + m];
+                    let (wa, wb) = (w[a], w[b]);
+                    if a == b {
+                        for k in 0..m {
+                            out[k] = wa[k] * wb[k] - w2[k];
                         }
                     } else {
-                        for (c, v) in sv.iter_mut().enumerate() {
-                            *v = if op.observed[c] { u(c) } else { f64::NAN };
-                        }
-                        if with_alpha {
-                            for (a, j) in alpha.iter_mut().zip(6..9) {
-                                *a = if op.observed[j] { u(j) } else { f64::NAN };
-                            }
+                        for k in 0..m {
+                            out[k] = wa[k] * wb[k];
                         }
                     }
-                    // G_s = S + ΩΩ, ΩΩ = ωωᵀ − |ω|²I.
-                    let ww = [
-                        w[0] * w[0] - w2,
-                        w[0] * w[1],
-                        w[0] * w[2],
-                        w[1] * w[1] - w2,
-                        w[1] * w[2],
-                        w[2] * w[2] - w2,
-                    ];
-                    let gs = SymTensor::from_array(std::array::from_fn(|c| sv[c] + ww[c]));
-                    trace_out[k] = match &op_free {
-                        Some(f) => {
-                            let uf = |j: usize| ufs[j * SPAN + k];
-                            if f.observed[0] && f.observed[3] && f.observed[5] {
-                                uf(0) + uf(3) + uf(5) - 2.0 * w2
+                }
+                let given = if s.trace_constraint { 5 } else { 6 };
+                for c in 0..given {
+                    let out = &mut svs[c * SPAN..c * SPAN + m];
+                    if op.observed[c] {
+                        out.copy_from_slice(&us[c * SPAN..c * SPAN + m]);
+                    } else {
+                        out.fill(f64::NAN);
+                    }
+                }
+                if s.trace_constraint {
+                    let (head, zz) = svs.split_at_mut(5 * SPAN);
+                    let (xx, yy) = (&head[..m], &head[3 * SPAN..3 * SPAN + m]);
+                    for k in 0..m {
+                        zz[k] = 2.0 * w2[k] - xx[k] - yy[k];
+                    }
+                }
+                for c in 0..6 {
+                    let (sv, ww) = (&svs[c * SPAN..c * SPAN + m], &wws[c * SPAN..c * SPAN + m]);
+                    let g = &mut gss[c * SPAN..c * SPAN + m];
+                    for k in 0..m {
+                        g[k] = sv[k] + ww[k];
+                    }
+                }
+                let comp = |v: &[f64], c: usize, k: usize| v[c * SPAN + k];
+                match &op_free {
+                    Some(f) if f.observed[0] && f.observed[3] && f.observed[5] => {
+                        for (k, t) in trace_out.iter_mut().enumerate() {
+                            *t = comp(ufs, 0, k) + comp(ufs, 3, k) + comp(ufs, 5, k) - 2.0 * w2[k];
+                        }
+                    }
+                    Some(_) => trace_out.fill(f64::NAN),
+                    None => {
+                        for (k, t) in trace_out.iter_mut().enumerate() {
+                            *t = comp(gss, 0, k) + comp(gss, 3, k) + comp(gss, 5, k);
+                        }
+                    }
+                }
+                for (k, out) in sensor_out.iter_mut().enumerate() {
+                    *out = SymTensor::from_array(std::array::from_fn(|c| {
+                        comp(gss, c, k) - comp(wws, c, k)
+                    }));
+                }
+                for (k, out) in ned_out.iter_mut().enumerate() {
+                    let gs = SymTensor::from_array(std::array::from_fn(|c| comp(gss, c, k)));
+                    *out = if full_rotation {
+                        congruence(&gs, &cs[k])
+                    } else {
+                        rotate_heading_only(&gs, inp.heading_deg[i0 + k].to_radians())
+                    };
+                }
+                if with_alpha {
+                    let first = if s.trace_constraint { 5 } else { 6 };
+                    for (k, out) in alpha_out.iter_mut().enumerate() {
+                        *out = std::array::from_fn(|a| {
+                            let j = first + a;
+                            if op.observed[j] {
+                                comp(us, j, k)
                             } else {
                                 f64::NAN
                             }
-                        }
-                        None => gs.trace(),
-                    };
-                    ned_out[k] = if full_rotation {
-                        congruence(&gs, &cs[k])
-                    } else {
-                        rotate_heading_only(&gs, inp.heading_deg[i].to_radians())
-                    };
-                    let g = gs.to_array();
-                    sensor_out[k] = SymTensor::from_array(std::array::from_fn(|c| g[c] - ww[c]));
-                    if with_alpha {
-                        alpha_out[k] = alpha;
+                        });
                     }
                 }
             },
