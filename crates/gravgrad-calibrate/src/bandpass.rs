@@ -6,7 +6,7 @@
 
 use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
 use rustfft::num_complex::Complex64;
-use std::sync::Arc;
+use std::sync::{Arc, LazyLock, Mutex};
 
 /// Gain of the pass band at frequency f (Hz).
 pub fn gain(f: f64, lo: f64, hi: f64) -> f64 {
@@ -24,19 +24,17 @@ pub fn gain(f: f64, lo: f64, hi: f64) -> f64 {
     up * edge(f, hi, false)
 }
 
-thread_local! {
-    /// One planner per thread: it keeps the plans (and their twiddle factors) of every length
-    /// already used, which a fresh planner would recompute for each series.
-    static PLANNER: std::cell::RefCell<RealFftPlanner<f64>> =
-        std::cell::RefCell::new(RealFftPlanner::new());
-}
+/// One planner for the process: it keeps the plans (and their twiddle factors) of every length
+/// already used, which a fresh planner, or one per thread, would compute again. A plan depends only
+/// on its length, so which thread made it changes no result.
+static PLANNER: LazyLock<Mutex<RealFftPlanner<f64>>> =
+    LazyLock::new(|| Mutex::new(RealFftPlanner::new()));
 
-/// Forward (real to half spectrum) and inverse plans of length `m`, from this thread's planner.
+/// Forward (real to half spectrum) and inverse plans of length `m`, from the process's planner.
 pub(crate) fn plans(m: usize) -> (Arc<dyn RealToComplex<f64>>, Arc<dyn ComplexToReal<f64>>) {
-    PLANNER.with(|p| {
-        let mut p = p.borrow_mut();
-        (p.plan_fft_forward(m), p.plan_fft_inverse(m))
-    })
+    // A planner left by a panicking thread is still a valid cache.
+    let mut p = PLANNER.lock().unwrap_or_else(|e| e.into_inner());
+    (p.plan_fft_forward(m), p.plan_fft_inverse(m))
 }
 
 /// The half spectrum (m/2 + 1 bins) of the real series `x` (length m, overwritten).
