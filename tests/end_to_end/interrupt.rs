@@ -1,7 +1,7 @@
 //! A run killed with SIGKILL part-way leaves no half-written product in its output folder, and
 //! running it again completes with the products of an uninterrupted run, byte for byte.
 
-use crate::{copy_demo, ok};
+use crate::{copy_demo, run_to_end};
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command};
 use std::time::{Duration, Instant};
@@ -44,17 +44,6 @@ fn staged(dir: &Path) -> Vec<(PathBuf, Vec<PathBuf>)> {
         .filter(|e| e.file_name().to_string_lossy().starts_with(STAGING))
         .map(|e| (e.path(), products(&e.path())))
         .collect()
-}
-
-/// Runs `gravgrad run` on `recipe` into `out` to the end; asserts exit 0.
-fn run_to_end(recipe: &Path, out: &Path) {
-    ok(&[
-        "--quiet",
-        "run",
-        recipe.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-    ]);
 }
 
 fn start_run(recipe: &Path, out: &Path) -> Child {

@@ -37,6 +37,17 @@ pub fn ok(args: &[&str]) -> String {
     String::from_utf8_lossy(&o.stdout).into_owned()
 }
 
+/// Runs `gravgrad run` on `recipe` into `out` to the end; asserts exit 0.
+pub fn run_to_end(recipe: &std::path::Path, out: &std::path::Path) {
+    ok(&[
+        "--quiet",
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+}
+
 /// Simulates `scenario` into `dir/survey`, appending `recipe_extra` to the recipe it writes.
 pub fn simulate_survey(dir: &std::path::Path, scenario: &str, recipe_extra: &str) {
     let sc = dir.join("scenario.toml");

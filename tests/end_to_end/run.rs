@@ -1,7 +1,7 @@
 //! `gravgrad run`, `calibrate` and `score` on simulated surveys (issues 4, 5, 6): what the products
 //! hold against the simulation's truth, computed by the simulator independently of the pipeline.
 
-use crate::{copy_demo, gravgrad, ok, simulate_survey};
+use crate::{copy_demo, gravgrad, ok, run_to_end, simulate_survey};
 use std::path::Path;
 
 /// Base scenario: two geology bodies under rough terrain with a hill, four 3 km lines and a tie.
@@ -95,16 +95,9 @@ fn assert_within_half_an_eotvos_of_the_floor(s: &serde_json::Value, label: &str)
     }
 }
 
+/// Runs the recipe `simulate_survey` wrote in `dir` into `dir/run`.
 fn run(dir: &Path) {
-    let recipe = dir.join("survey/recipe.toml");
-    let out = dir.join("run");
-    ok(&[
-        "--quiet",
-        "run",
-        recipe.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    run_to_end(&dir.join("survey/recipe.toml"), &dir.join("run"));
 }
 
 /// Column `name` of a CSV flight log written by the simulator.

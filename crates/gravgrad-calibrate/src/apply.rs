@@ -1,7 +1,6 @@
 //! Applying a pair's calibration: the correction subtracted from its difference d = a − b.
 
 use crate::estimate::{PairCalibration, PairData};
-use rayon::prelude::*;
 
 impl PairCalibration {
     /// The calibration part of pair difference `i`, m/s²: κ·f(O) + bias and drift (polynomial in
@@ -19,25 +18,6 @@ impl PairCalibration {
             c += sg[0].value * rel[0][i] + sg[1].value * rel[1][i];
         }
         c
-    }
-
-    /// `x[i]` − the correction of sample `i` for every sample, m/s² (x: a pair output or difference,
-    /// m/s²). See [`Self::subtract_into`].
-    pub fn subtract_from(&self, d: &PairData<'_>, x: &[f64]) -> Vec<f64> {
-        let mut out = vec![0.0; x.len()];
-        self.subtract_into(d, x, &mut out);
-        out
-    }
-
-    /// Writes `x[i]` − the correction of sample `i` into `out[i]` for every sample, m/s² (x: a pair
-    /// output or difference, m/s²; `out` as long as `x`, e.g. a buffer no longer needed). Spans of
-    /// samples in parallel, each as [`Self::subtract_span`].
-    pub fn subtract_into(&self, d: &PairData<'_>, x: &[f64], out: &mut [f64]) {
-        const SPAN: usize = 1024;
-        out.par_chunks_mut(SPAN)
-            .zip(x.par_chunks(SPAN))
-            .enumerate()
-            .for_each(|(q, (o, xs))| self.subtract_span(d, q * SPAN, xs, o));
     }
 
     /// `out[k]` = `x[k]` − the correction of sample `first + k`, m/s², for a span of samples: `x` the
@@ -83,13 +63,6 @@ impl PairCalibration {
                 *o -= s0 * a + s1 * b;
             }
         }
-    }
-
-    /// The calibrated difference d − correction for every sample, m/s².
-    pub fn corrected(&self, d: &PairData<'_>) -> Vec<f64> {
-        (0..d.difference.len())
-            .map(|i| d.difference[i] - self.correction_at(d, i))
-            .collect()
     }
 }
 

@@ -74,30 +74,24 @@ pub struct PairCalibration {
     pub band_residual_rms: f64,
 }
 
+/// True when `m` ≥ 1 has no prime factor but 2, 3 and 5 (a length transforms run fast at).
+fn is_5_smooth(mut m: usize) -> bool {
+    for p in [2, 3, 5] {
+        while m > 1 && m.is_multiple_of(p) {
+            m /= p;
+        }
+    }
+    m == 1
+}
+
 /// The largest n' ≤ n whose only prime factors are 2, 3 and 5 (n ≥ 1).
 fn smooth_below(n: usize) -> usize {
-    let smooth = |mut m: usize| {
-        for p in [2, 3, 5] {
-            while m > 1 && m.is_multiple_of(p) {
-                m /= p;
-            }
-        }
-        m == 1
-    };
-    (1..=n.max(1)).rev().find(|&m| smooth(m)).unwrap_or(1)
+    (1..=n.max(1)).rev().find(|&m| is_5_smooth(m)).unwrap_or(1)
 }
 
 /// The smallest m ≥ n whose only prime factors are 2, 3 and 5.
 fn smooth_above(n: usize) -> usize {
-    let smooth = |mut m: usize| {
-        for p in [2, 3, 5] {
-            while m > 1 && m.is_multiple_of(p) {
-                m /= p;
-            }
-        }
-        m == 1
-    };
-    (n.max(1)..).find(|&m| smooth(m)).unwrap_or(n)
+    (n.max(1)..).find(|&m| is_5_smooth(m)).unwrap_or(n)
 }
 
 /// The runs of usable samples at least `min_len` long (all samples when `usable` is `None`), as

@@ -17,7 +17,6 @@ use crate::estimate::{
 };
 use gravgrad_core::SymTensor;
 use gravgrad_core::attitude::c_sn_degrees_span;
-use gravgrad_core::mat3::Mat3;
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
 
@@ -36,42 +35,10 @@ pub struct KnownField<'a> {
     pub attitude_deg: [&'a [f64]; 3],
 }
 
-impl KnownField<'_> {
-    /// G_s = C_snᵀ·G·C_sn at sample `i`, sensor axes, s⁻², given that sample's C_sn: P = G·C_sn,
-    /// then the six distinct entries of C_snᵀ·P (45 products where a general product of three
-    /// matrices takes 54).
-    #[inline]
-    pub fn sensor(&self, i: usize, c: &Mat3) -> SymTensor {
-        let mut g = self.normal[i];
-        if let Some(t) = self.terrain {
-            g = g + t[i];
-        }
-        to_sensor(&g, c)
-    }
-}
-
-/// C_snᵀ·G·C_sn for a symmetric G (NED) and C_sn: P = G·C_sn, then the six distinct entries of
-/// C_snᵀ·P.
-#[inline]
-fn to_sensor(g: &SymTensor, c: &Mat3) -> SymTensor {
-    let gm = g.to_matrix();
-    let p: Mat3 = std::array::from_fn(|r| {
-        std::array::from_fn(|j| gm[r][0] * c[0][j] + gm[r][1] * c[1][j] + gm[r][2] * c[2][j])
-    });
-    let e = |i: usize, j: usize| c[0][i] * p[0][j] + c[1][i] * p[1][j] + c[2][i] * p[2][j];
-    SymTensor::from_array([e(0, 0), e(0, 1), e(0, 2), e(1, 1), e(1, 2), e(2, 2)])
-}
-
 /// One flight of a whole instrument, on one time base.
 pub struct FlightData<'a> {
-    pub pairs: &'a [PairGeometry],
-    /// Each pair's outputs a and b, m/s², in the order of `pairs`; the fit reads d = a − b.
-    pub a: Vec<&'a [f64]>,
-    pub b: Vec<&'a [f64]>,
-    /// The known field to take off every difference; `None`: nothing taken off.
-    pub known: Option<KnownField<'a>>,
-    /// Angular rate, sensor axes, rad/s.
-    pub omega: [&'a [f64]; 3],
+    /// The pairs' samples: what the block means are formed from.
+    pub samples: PairSamples<'a>,
     /// Specific force, sensor axes, m/s².
     pub f: [&'a [f64]; 3],
     /// Angular acceleration from the gyros, sensor axes, rad/s².
@@ -82,23 +49,6 @@ pub struct FlightData<'a> {
     pub relative_attitude: Option<[&'a [f64]; 2]>,
     /// True when the solve takes α from the pairs; false: from the gyros.
     pub alpha_from_pairs: bool,
-}
-
-impl<'a> FlightData<'a> {
-    fn series(&self, k: usize, y: &'a [f64]) -> PairData<'a> {
-        PairData {
-            geometry: &self.pairs[k],
-            difference: y,
-            omega: self.omega,
-            f: self.f,
-            alpha: self.alpha,
-            time: self.time,
-            temperature: self.temperature,
-            usable: self.usable,
-            expected: None,
-            relative_attitude: self.relative_attitude,
-        }
-    }
 }
 
 fn combine(parts: &[(f64, Coefficient)]) -> Coefficient {
@@ -205,7 +155,7 @@ impl PairBlocks {
                             if let Some(t) = terrain {
                                 g = g + t[k];
                             }
-                            let g = to_sensor(&g, &cs[k]).to_array();
+                            let g = g.congruence_transposed(&cs[k]).to_array();
                             for (mc, gc) in m.iter_mut().zip(g) {
                                 *mc -= gc;
                             }
@@ -262,19 +212,6 @@ impl PairBlocks {
     }
 }
 
-impl<'a> FlightData<'a> {
-    /// The samples the first stage reads.
-    pub fn samples(&self) -> PairSamples<'a> {
-        PairSamples {
-            pairs: self.pairs,
-            a: self.a.clone(),
-            b: self.b.clone(),
-            known: self.known,
-            omega: self.omega,
-        }
-    }
-}
-
 /// Estimates every pair's calibration from one flight. With `fixed` (a calibration flight's
 /// coefficients, one per pair in order), κ, temperature and self-gradient are kept and only bias and
 /// drift are fitted, also in the space of the unknowns.
@@ -283,20 +220,22 @@ pub fn estimate_flight(
     s: &Settings,
     fixed: Option<&[PairCalibration]>,
 ) -> Vec<PairCalibration> {
-    estimate_from_blocks(d, &PairBlocks::of(&d.samples(), s), s, fixed)
+    estimate_from_blocks(d, &PairBlocks::of(&d.samples, s), s, fixed)
 }
 
 /// [`estimate_flight`] from the block means of `d`'s pair samples formed already (with the same
-/// settings). `d`'s own pair outputs, known field and angular rate are not read again.
+/// settings). `d`'s pair samples are not read again, only their geometry.
 pub fn estimate_from_blocks(
     d: &FlightData<'_>,
     blocks: &PairBlocks,
     s: &Settings,
     fixed: Option<&[PairCalibration]>,
 ) -> Vec<PairCalibration> {
-    let np = d.pairs.len();
-    let k = if d.alpha_from_pairs { 9 } else { 6 };
-    let rows: Vec<[f64; 9]> = d.pairs.iter().map(PairGeometry::design_row).collect();
+    let pairs = d.samples.pairs;
+    let np = pairs.len();
+    let alpha_from_pairs = d.alpha_from_pairs;
+    let k = if alpha_from_pairs { 9 } else { 6 };
+    let rows: Vec<[f64; 9]> = pairs.iter().map(PairGeometry::design_row).collect();
     let a: Vec<Vec<f64>> = rows.iter().map(|r| r[..k].to_vec()).collect();
     let op = pseudo_inverse(&a, k);
     // z_p = −(d_p − n_pᵀ·M·b_p − fixed part), less the gyro α term when the solve uses it.
@@ -315,22 +254,6 @@ pub fn estimate_from_blocks(
             })
             .collect()
     });
-    // n_pᵀ·M·b_p = Σ_c coef_p[c]·M_c over M's components xx xy xz yy yz zz.
-    let coef: Vec<[f64; 6]> = d
-        .pairs
-        .iter()
-        .map(|g| {
-            let (nv, b) = (g.axis, g.baseline);
-            [
-                nv[0] * b[0],
-                nv[0] * b[1] + nv[1] * b[0],
-                nv[0] * b[2] + nv[2] * b[0],
-                nv[1] * b[1],
-                nv[1] * b[2] + nv[2] * b[1],
-                nv[2] * b[2],
-            ]
-        })
-        .collect();
     let m_b = &blocks.m;
     // The block means of what the fits read: force, gyro α, time, temperature, relative attitude.
     let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
@@ -340,24 +263,31 @@ pub fn estimate_from_blocks(
     let rel_b: Option<Vec<Vec<f64>>> = d
         .relative_attitude
         .map(|r| r.iter().map(|v| mean(v)).collect());
-    let block_data = |p: usize| PairData {
-        geometry: &d.pairs[p],
-        difference: &[],
-        omega: d.omega,
+    let usable_b: Option<Vec<bool>> = d
+        .usable
+        .map(|u| u.chunks(block).map(|c| c.iter().all(|x| *x)).collect());
+    // A series at block level with the regressors' block means (pair geometry not read by the fits
+    // or the corrections; the angular rate, at full rate, not read either).
+    let block_series = |y| PairData {
+        geometry: &pairs[0],
+        difference: y,
+        omega: d.samples.omega,
         f: [&fb[0], &fb[1], &fb[2]],
         alpha: [&ab[0], &ab[1], &ab[2]],
         time: &tb,
         temperature: temp_b.as_deref(),
-        usable: None,
+        usable: usable_b.as_deref(),
         expected: None,
         relative_attitude: rel_b.as_ref().map(|r| [&r[0][..], &r[1][..]]),
     };
     // z_p per block: the pair's difference less n_pᵀ·M·b_p, M's components one at a time across
-    // the blocks (vectorised), less the gyro α term when the solve takes α from the gyros.
+    // the blocks (vectorised), less the gyro α term when the solve takes α from the gyros. The
+    // coefficients of n_pᵀ·M·b_p on M's components xx xy xz yy yz zz are those of S in the pair's
+    // design row.
     let z: Vec<Vec<f64>> = (0..np)
         .into_par_iter()
         .map(|p| {
-            let (cp, rw) = (&coef[p], &rows[p]);
+            let (cp, rw) = (&rows[p][..6], &rows[p]);
             let db = &blocks.d[p];
             let mut known = vec![-0.0; db.len()];
             for (cc, mc) in cp.iter().zip(m_b) {
@@ -368,7 +298,7 @@ pub fn estimate_from_blocks(
             let mut zp: Vec<f64> = match &fixed_parts {
                 None => db.iter().zip(&known).map(|(v, k)| -(v - k)).collect(),
                 Some(c) => {
-                    let bd = block_data(p);
+                    let bd = block_series(&[]);
                     db.iter()
                         .zip(&known)
                         .enumerate()
@@ -376,7 +306,7 @@ pub fn estimate_from_blocks(
                         .collect()
                 }
             };
-            if !d.alpha_from_pairs {
+            if !alpha_from_pairs {
                 for (i, zv) in zp.iter_mut().enumerate() {
                     *zv -= rw[6] * ab[0][i] + rw[7] * ab[1][i] + rw[8] * ab[2][i];
                 }
@@ -384,29 +314,11 @@ pub fn estimate_from_blocks(
             zp
         })
         .collect();
-    let usable_b: Option<Vec<bool>> = d
-        .usable
-        .map(|u| u.chunks(block).map(|c| c.iter().all(|x| *x)).collect());
     let settings_b = Settings {
         rate_hz: s.rate_hz / block as f64,
         ..s.clone()
     };
     let s = &settings_b;
-    let d = FlightData {
-        pairs: d.pairs,
-        a: vec![],
-        b: vec![],
-        known: None,
-        omega: d.omega,
-        f: [&fb[0], &fb[1], &fb[2]],
-        alpha: [&ab[0], &ab[1], &ab[2]],
-        time: &tb,
-        temperature: temp_b.as_deref(),
-        usable: usable_b.as_deref(),
-        relative_attitude: rel_b.as_ref().map(|r| [&r[0][..], &r[1][..]]),
-        alpha_from_pairs: d.alpha_from_pairs,
-    };
-    let d = &d;
     let n = tb.len();
     // PA, to predict the α the unknown rows carry from the gyros.
     let pa: Vec<Vec<f64>> = (0..k)
@@ -433,7 +345,7 @@ pub fn estimate_from_blocks(
         || {
             fixed
                 .is_none()
-                .then(|| Design::new(&d.series(0, d.time), false, s))
+                .then(|| Design::new(&block_series(&tb), false, s))
         },
         || {
             // û_j = Σ_p P_jp·z_p, whole series at a time (vectorised), terms added in pair order.
@@ -453,9 +365,9 @@ pub fn estimate_from_blocks(
                 .into_par_iter()
                 .map(|j| {
                     let mut t: Vec<f64> = u[j].iter().map(|v| -v).collect();
-                    if d.alpha_from_pairs {
+                    if alpha_from_pairs {
                         for (i, tv) in t.iter_mut().enumerate() {
-                            *tv += (0..3).map(|m| pa[j][6 + m] * d.alpha[m][i]).sum::<f64>();
+                            *tv += (0..3).map(|m| pa[j][6 + m] * ab[m][i]).sum::<f64>();
                         }
                     }
                     t
@@ -480,11 +392,11 @@ pub fn estimate_from_blocks(
             if y.is_empty() {
                 return None;
             }
-            let data = d.series(0, y);
+            let data = block_series(y);
             match fixed {
                 None => design.as_ref().map(|g| fit_with(g, y, &data, s)),
                 Some(fx) => {
-                    let (poly, t_mid) = fit_polynomial(y, d.time, s.drift_order, d.usable);
+                    let (poly, t_mid) = fit_polynomial(y, &tb, s.drift_order, data.usable);
                     let mut c = fx[0].clone();
                     c.polynomial = poly;
                     c.t_mid = t_mid;

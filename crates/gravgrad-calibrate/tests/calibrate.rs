@@ -135,7 +135,7 @@ fn coupling_drift_and_temperature_are_recovered_within_three_standard_errors() {
 /// and temperature coefficient within three standard errors of the injected values.
 #[test]
 fn joint_fit_recovers_every_pair_within_three_standard_errors() {
-    use gravgrad_calibrate::joint::{FlightData, KnownField, estimate_flight};
+    use gravgrad_calibrate::joint::{FlightData, KnownField, PairSamples, estimate_flight};
     let sc: Scenario = toml::from_str(SCENARIO).unwrap();
     let sim = simulate(&sc).unwrap();
     let rate = sc.plan.sample_rate_hz;
@@ -155,15 +155,17 @@ fn joint_fit_recovers_every_pair_within_three_standard_errors() {
     let pair_col =
         |p: &gravgrad_core::pairs::PairGeometry, end: &str| col(&sim, &format!("{}_{end}", p.id));
     let data = FlightData {
-        pairs: &sim.pairs,
-        a: sim.pairs.iter().map(|p| pair_col(p, "a")).collect(),
-        b: sim.pairs.iter().map(|p| pair_col(p, "b")).collect(),
-        known: Some(KnownField {
-            normal: &sim.truth.normal,
-            terrain: Some(&sim.truth.terrain),
-            attitude_deg: [roll, pitch, heading],
-        }),
-        omega: [col(&sim, "wx"), col(&sim, "wy"), col(&sim, "wz")],
+        samples: PairSamples {
+            pairs: &sim.pairs,
+            a: sim.pairs.iter().map(|p| pair_col(p, "a")).collect(),
+            b: sim.pairs.iter().map(|p| pair_col(p, "b")).collect(),
+            known: Some(KnownField {
+                normal: &sim.truth.normal,
+                terrain: Some(&sim.truth.terrain),
+                attitude_deg: [roll, pitch, heading],
+            }),
+            omega: [col(&sim, "wx"), col(&sim, "wy"), col(&sim, "wz")],
+        },
         f: [col(&sim, "fx"), col(&sim, "fy"), col(&sim, "fz")],
         alpha: [&alpha[0], &alpha[1], &alpha[2]],
         time: col(&sim, "time"),

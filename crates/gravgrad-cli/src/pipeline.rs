@@ -339,11 +339,7 @@ pub fn process_flight(
     let alpha_source = alpha_source(recipe, &instrument.pairs);
     let f: [&[f64]; 3] = [&f_common[0], &f_common[1], &f_common[2]];
     let data = FlightData {
-        pairs: &instrument.pairs,
-        a: samples.a.clone(),
-        b: samples.b.clone(),
-        known: samples.known,
-        omega,
+        samples,
         f,
         alpha: [&alpha_gyro[0], &alpha_gyro[1], &alpha_gyro[2]],
         time,

@@ -87,6 +87,31 @@ impl SymTensor {
         Self::sym_of(&mat3::mul(&ct, &mat3::transpose(c)))
     }
 
+    /// [`Self::rotated`] with the symmetry used: P = C·T_a, then the six distinct entries of P·Cᵀ
+    /// (45 products where the general product takes 54), for per-sample rotations on hot paths. The
+    /// same matrix to within rounding; units those of the tensor.
+    #[inline]
+    pub fn congruence(&self, c: &Mat3) -> Self {
+        let g = self.to_matrix();
+        let p: Mat3 = std::array::from_fn(|r| {
+            std::array::from_fn(|j| c[r][0] * g[0][j] + c[r][1] * g[1][j] + c[r][2] * g[2][j])
+        });
+        let e = |i: usize, j: usize| p[i][0] * c[j][0] + p[i][1] * c[j][1] + p[i][2] * c[j][2];
+        Self::from_array([e(0, 0), e(0, 1), e(0, 2), e(1, 1), e(1, 2), e(2, 2)])
+    }
+
+    /// The inverse rotation, T_a = Cᵀ·T_b·C (with C = C_sn: NED to the sensor frame), formed as
+    /// P = T_b·C, then the six distinct entries of Cᵀ·P (45 products); units those of the tensor.
+    #[inline]
+    pub fn congruence_transposed(&self, c: &Mat3) -> Self {
+        let g = self.to_matrix();
+        let p: Mat3 = std::array::from_fn(|r| {
+            std::array::from_fn(|j| g[r][0] * c[0][j] + g[r][1] * c[1][j] + g[r][2] * c[2][j])
+        });
+        let e = |i: usize, j: usize| c[0][i] * p[0][j] + c[1][i] * p[1][j] + c[2][i] * p[2][j];
+        Self::from_array([e(0, 0), e(0, 1), e(0, 2), e(1, 1), e(1, 2), e(2, 2)])
+    }
+
     /// Component-wise scaling (for unit conversion at the edges).
     pub fn scaled(&self, k: f64) -> Self {
         Self::from_array(self.to_array().map(|v| v * k))
@@ -131,6 +156,24 @@ mod tests {
     use super::*;
     use crate::attitude::Attitude;
     use crate::mat3::mul_vec;
+
+    #[test]
+    fn congruences_equal_the_general_rotation() {
+        let g = SymTensor::from_array([1200.0, -35.0, 410.0, -900.0, 77.0, -300.0]);
+        let c = Attitude::from_degrees(4.0, -9.5, 213.0).c_sn();
+        let close = |a: SymTensor, b: SymTensor| {
+            a.to_array()
+                .iter()
+                .zip(b.to_array())
+                .all(|(x, y)| (x - y).abs() < 1e-12)
+        };
+        assert!(close(g.congruence(&c), g.rotated(&c)));
+        assert!(close(
+            g.congruence_transposed(&c),
+            g.rotated(&mat3::transpose(&c))
+        ));
+        assert!(close(g.congruence(&c).congruence_transposed(&c), g));
+    }
 
     fn rel_close(a: f64, b: f64, rel: f64, abs: f64) -> bool {
         (a - b).abs() <= rel * a.abs().max(b.abs()) + abs

@@ -2,7 +2,7 @@
 //! forward and backward, so its amplitude response is 1/(1 + (f/fc)²) and its phase zero; common
 //! practice) followed by central differences. Units: rad/s in, rad/s² out, sensor axes.
 
-use rayon::prelude::*;
+use crate::first_touch::filled;
 
 /// Low-passes `rate` (rad/s, sampled at `rate_hz`) with cutoff `cutoff_hz` and differentiates it.
 pub fn angular_acceleration(rate: &[f64], rate_hz: f64, cutoff_hz: f64) -> Vec<f64> {
@@ -19,7 +19,14 @@ pub fn angular_acceleration(rate: &[f64], rate_hz: f64, cutoff_hz: f64) -> Vec<f
     for i in (0..n - 1).rev() {
         y[i] = a * y[i + 1] + (1.0 - a) * y[i];
     }
-    // Central differences in place (one-sided at the ends), keeping the previous filtered value.
+    differentiate_in_place(&mut y, dt);
+    y
+}
+
+/// Central differences of `y` (sampled every `dt` s) in place, one-sided at the ends, keeping the
+/// previous value as it goes; `y` has at least 3 samples.
+fn differentiate_in_place(y: &mut [f64], dt: f64) {
+    let n = y.len();
     let mut prev = y[0];
     y[0] = (y[1] - y[0]) / dt;
     for i in 1..n - 1 {
@@ -28,7 +35,6 @@ pub fn angular_acceleration(rate: &[f64], rate_hz: f64, cutoff_hz: f64) -> Vec<f
         prev = here;
     }
     y[n - 1] = (y[n - 1] - prev) / dt;
-    y
 }
 
 /// [`angular_acceleration`] of the three axes at once, the same arithmetic per axis: the three
@@ -43,13 +49,8 @@ pub fn angular_acceleration3(rates: [&[f64]; 3], rate_hz: f64, cutoff_hz: f64) -
     let a = (-2.0 * std::f64::consts::PI * cutoff_hz * dt).exp();
     let [x0, x1, x2] = rates;
     // The outputs' pages are first touched (and mapped by the kernel, a cost comparable to the
-    // recursions) in parallel, before the recursions run on one core.
-    let touched = || {
-        let mut y = vec![0.0; n];
-        y.par_chunks_mut(1 << 14).for_each(|c| c.fill(0.0));
-        y
-    };
-    let (mut y0, mut y1, mut y2) = (touched(), touched(), touched());
+    // recursions) on every core, before the recursions run on one.
+    let (mut y0, mut y1, mut y2) = (filled(n, 0.0), filled(n, 0.0), filled(n, 0.0));
     let (mut p0, mut p1, mut p2) = (x0[0], x1[0], x2[0]);
     y0[0] = p0;
     y1[0] = p1;
@@ -72,14 +73,7 @@ pub fn angular_acceleration3(rates: [&[f64]; 3], rate_hz: f64, cutoff_hz: f64) -
         y2[i] = p2;
     }
     for y in [&mut y0, &mut y1, &mut y2] {
-        let mut prev = y[0];
-        y[0] = (y[1] - y[0]) / dt;
-        for i in 1..n - 1 {
-            let here = y[i];
-            y[i] = (y[i + 1] - prev) / (2.0 * dt);
-            prev = here;
-        }
-        y[n - 1] = (y[n - 1] - prev) / dt;
+        differentiate_in_place(y, dt);
     }
     [y0, y1, y2]
 }

@@ -10,6 +10,7 @@
 //! Frames and units: pair outputs m/s² (sensor frame), rates rad/s (sensor axes), attitude in degrees
 //! as logged, tensors s⁻² (sensor frame s, then NED n). This crate does no I/O.
 
+mod first_touch;
 pub mod gyro;
 pub mod solve;
 

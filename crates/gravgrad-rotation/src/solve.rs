@@ -1,6 +1,7 @@
 //! The per-sample tensor solve, rotation-term removal and rotation to NED.
 
-use crate::gyro::angular_acceleration;
+use crate::first_touch::filled;
+use crate::gyro::angular_acceleration3;
 use gravgrad_core::SymTensor;
 use gravgrad_core::attitude::c_sn_degrees_span;
 use gravgrad_core::mat3::{self, Mat3, Vec3};
@@ -152,14 +153,11 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
         )
     });
 
-    let computed: Vec<Vec<f64>>;
+    let computed: [Vec<f64>; 3];
     let alpha_g: [&[f64]; 3] = match inp.alpha_gyro {
         Some(a) => a,
         None => {
-            computed = (0..3)
-                .into_par_iter()
-                .map(|k| angular_acceleration(inp.omega[k], inp.rate_hz, s.gyro_lowpass_hz))
-                .collect();
+            computed = angular_acceleration3(inp.omega, inp.rate_hz, s.gyro_lowpass_hz);
             [&computed[0], &computed[1], &computed[2]]
         }
     };
@@ -350,7 +348,7 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
                 for (k, out) in ned_out.iter_mut().enumerate() {
                     let gs = SymTensor::from_array(std::array::from_fn(|c| comp(gss, c, k)));
                     *out = if full_rotation {
-                        congruence(&gs, &cs[k])
+                        gs.congruence(&cs[k])
                     } else {
                         rotate_heading_only(&gs, inp.heading_deg[i0 + k].to_radians())
                     };
@@ -378,27 +376,6 @@ pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationEr
         observed,
         heading_only: !full_rotation,
     })
-}
-
-/// C·G·Cᵀ for a symmetric G: P = C·G, then the six distinct entries of P·Cᵀ (45 products where a
-/// general product of three matrices takes 54). With C = C_sn it turns a sensor-frame tensor into
-/// NED.
-#[inline]
-fn congruence(g: &SymTensor, c: &Mat3) -> SymTensor {
-    let gm = g.to_matrix();
-    let p: Mat3 = std::array::from_fn(|r| {
-        std::array::from_fn(|j| c[r][0] * gm[0][j] + c[r][1] * gm[1][j] + c[r][2] * gm[2][j])
-    });
-    let e = |i: usize, j: usize| p[i][0] * c[j][0] + p[i][1] * c[j][1] + p[i][2] * c[j][2];
-    SymTensor::from_array([e(0, 0), e(0, 1), e(0, 2), e(1, 1), e(1, 2), e(2, 2)])
-}
-
-/// `n` copies of `v`, written in parallel: a fresh vector's pages are first touched (and mapped by
-/// the kernel, a cost comparable to the solve's arithmetic) on every core instead of one.
-fn filled<T: Copy + Send + Sync>(n: usize, v: T) -> Vec<T> {
-    let mut out = Vec::with_capacity(n);
-    (0..n).into_par_iter().map(|_| v).collect_into_vec(&mut out);
-    out
 }
 
 /// Rz(ψ)·G·Rz(ψ)ᵀ, keeping the horizontal block (xx, xy, yy), the vertical pair (xz, yz) and zz
