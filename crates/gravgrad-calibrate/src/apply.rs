@@ -1,6 +1,6 @@
 //! Applying a pair's calibration: the correction subtracted from its difference d = a − b.
 
-use crate::estimate::{PairCalibration, PairData};
+use crate::estimate::{PRODUCTS, PairCalibration, PairData};
 
 impl PairCalibration {
     /// The calibration part of pair difference `i`, m/s²: κ·f(O) + bias and drift (polynomial in
@@ -16,6 +16,14 @@ impl PairCalibration {
         }
         if let (Some(sg), Some(rel)) = (self.self_gradient, d.relative_attitude) {
             c += sg[0].value * rel[0][i] + sg[1].value * rel[1][i];
+        }
+        if let Some(q) = self.quadratic {
+            let df: [f64; 3] = std::array::from_fn(|k| d.f[k][i] - self.force_mean[k]);
+            c += PRODUCTS
+                .iter()
+                .zip(q)
+                .map(|((a, b), qm)| qm.value * df[*a] * df[*b])
+                .sum::<f64>();
         }
         c
     }
@@ -59,8 +67,26 @@ impl PairCalibration {
         }
         if let Some((sg, rel)) = self.self_gradient.zip(d.relative_attitude) {
             let (s0, s1) = (sg[0].value, sg[1].value);
-            for ((o, a), b) in out.iter_mut().zip(&rel[0][r.clone()]).zip(&rel[1][r]) {
+            for ((o, a), b) in out
+                .iter_mut()
+                .zip(&rel[0][r.clone()])
+                .zip(&rel[1][r.clone()])
+            {
                 *o -= s0 * a + s1 * b;
+            }
+        }
+        // Quadratic terms: only those applied (non-zero), each across the span.
+        if let Some(q) = self.quadratic {
+            let f0 = self.force_mean;
+            for ((a, b), qm) in PRODUCTS.iter().zip(q) {
+                if qm.value == 0.0 {
+                    continue;
+                }
+                let (fa, fb) = (&d.f[*a][r.clone()], &d.f[*b][r.clone()]);
+                let (ma, mb) = (f0[*a], f0[*b]);
+                for ((o, x), y) in out.iter_mut().zip(fa).zip(fb) {
+                    *o -= qm.value * ((x - ma) * (y - mb));
+                }
             }
         }
     }

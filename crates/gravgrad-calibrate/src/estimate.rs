@@ -1,6 +1,7 @@
 //! The least-squares estimates of one pair's calibration and their standard errors.
 
 use crate::bandpass::band_pass;
+use gravgrad_core::lstsq::PivotedCholesky;
 use gravgrad_core::pairs::PairGeometry;
 use rayon::prelude::*;
 use rustfft::num_complex::Complex64;
@@ -20,6 +21,25 @@ pub struct Settings {
     /// Polynomial order of the drift in time (0: bias only).
     pub drift_order: usize,
     pub rate_hz: f64,
+    /// Also fit the six quadratic terms of the force (products of its deviations from the mean).
+    pub quadratic: bool,
+    /// A coefficient is applied only when its estimate exceeds this many standard errors; below,
+    /// it is held at its prior (zero, or the calibration file's value).
+    pub min_significance: f64,
+}
+
+impl Settings {
+    /// Default settings at `rate_hz`: band 0.05–1 Hz, linear drift, no quadratic terms, four
+    /// standard errors to apply a coefficient.
+    pub fn at_rate(rate_hz: f64) -> Self {
+        Self {
+            band_hz: [0.05, 1.0],
+            drift_order: 1,
+            rate_hz,
+            quadratic: false,
+            min_significance: 4.0,
+        }
+    }
 }
 
 /// What is known of one pair's difference over a flight.
@@ -66,6 +86,12 @@ pub struct PairCalibration {
     /// Self-gradient coefficients, m/s² per radian of relative roll and of relative pitch, when the
     /// aircraft attitude was logged.
     pub self_gradient: Option<[Coefficient; 2]>,
+    /// Quadratic coefficients, (m/s²)⁻¹, of the products (f_a − f0_a)(f_b − f0_b) of the force's
+    /// deviations from `force_mean`, in the order of [`PRODUCT_NAMES`] (each product once), when
+    /// fitted: the accelerometers' second-order terms and cross-axis coupling (IEEE Std 1293).
+    pub quadratic: Option<[Coefficient; 6]>,
+    /// Origin of the quadratic terms, sensor axes, m/s².
+    pub force_mean: [f64; 3],
     /// Mid time of the flight, s (the polynomial's origin).
     pub t_mid: f64,
     /// Mean temperature, °C (the temperature term's origin).
@@ -141,14 +167,20 @@ fn band_pass_runs(
     out
 }
 
-/// The normal equations of a set of regressor columns, scaled for conditioning: what every series
-/// regressed on the same columns shares.
+/// The normal equations of a set of regressor columns, scaled for conditioning, and their
+/// rank-revealing factorisation: what every series regressed on the same columns shares.
 pub(crate) struct Normal {
     /// RMS of each column.
     scale: Vec<f64>,
-    /// Inverse of the scaled XᵀX.
-    inv: Vec<Vec<f64>>,
+    /// Scaled XᵀX (unit-RMS columns).
+    a: Vec<Vec<f64>>,
+    /// Its Cholesky factorisation with pivoting: which columns the data resolve.
+    chol: PivotedCholesky,
 }
+
+/// Columns whose part independent of the others has less than 1e-5 of their RMS are not resolved
+/// (the remaining diagonal of the scaled normal matrix below 1e-10 of the column's own).
+const COLLINEAR_TOLERANCE: f64 = 1e-10;
 
 impl Normal {
     pub(crate) fn of(columns: &[Vec<f64>]) -> Self {
@@ -156,65 +188,184 @@ impl Normal {
         let n = columns.first().map_or(0, Vec::len);
         let scale: Vec<f64> = columns
             .iter()
-            .map(|c| {
-                (c.iter().map(|v| v * v).sum::<f64>() / n as f64)
-                    .sqrt()
-                    .max(1e-300)
-            })
+            .map(|c| (c.iter().map(|v| v * v).sum::<f64>() / n.max(1) as f64).sqrt())
             .collect();
         let a: Vec<Vec<f64>> = (0..k)
             .map(|i| {
                 (0..k)
                     .map(|j| {
-                        columns[i]
-                            .iter()
-                            .zip(&columns[j])
-                            .map(|(p, q)| p * q)
-                            .sum::<f64>()
-                            / (scale[i] * scale[j])
+                        if scale[i] > 0.0 && scale[j] > 0.0 {
+                            columns[i]
+                                .iter()
+                                .zip(&columns[j])
+                                .map(|(p, q)| p * q)
+                                .sum::<f64>()
+                                / (scale[i] * scale[j])
+                        } else {
+                            0.0
+                        }
                     })
                     .collect()
             })
             .collect();
         Self {
-            inv: invert(&a),
+            chol: PivotedCholesky::of(&a, COLLINEAR_TOLERANCE),
+            a,
             scale,
         }
     }
+
+    /// Condition number estimate of the scaled regressors.
+    pub(crate) fn condition(&self) -> f64 {
+        self.chol.condition
+    }
+}
+
+/// Why a coefficient of the model was not applied: held at its prior (the calibration file in
+/// force, else zero).
+#[derive(Clone, Debug, PartialEq)]
+pub struct HeldTerm {
+    /// The term, e.g. `κx`, `fz²`, `drift`, `temperature`.
+    pub term: String,
+    /// What the data gave for it (value and standard error), when they gave anything.
+    pub estimate: Option<Coefficient>,
+    pub reason: String,
+}
+
+/// A regression's outcome: coefficients (zero where held), residual and what was held.
+pub(crate) struct Fit {
+    pub coefs: Vec<Coefficient>,
+    pub resid: Vec<f64>,
+    pub held: Vec<HeldTerm>,
 }
 
 /// Least squares y ≈ X·β with standard errors inflated for autocorrelated residuals.
-fn regress(columns: &[Vec<f64>], y: &[f64]) -> (Vec<Coefficient>, Vec<f64>) {
-    regress_with(&Normal::of(columns), columns, y)
+fn regress(columns: &[Vec<f64>], y: &[f64]) -> Vec<Coefficient> {
+    let names: Vec<String> = (0..columns.len()).map(|i| format!("c{i}")).collect();
+    regress_with(&Normal::of(columns), columns, y, &names, &[], 0.0).coefs
 }
 
-/// [`regress`] with the columns' normal equations formed already.
-fn regress_with(normal: &Normal, columns: &[Vec<f64>], y: &[f64]) -> (Vec<Coefficient>, Vec<f64>) {
+/// [`regress`] with the columns' normal equations formed already, which estimates only what the
+/// data resolve: a column collinear with the others, or constant, is held at zero (reported); then,
+/// one at a time, the coefficient of smallest |value/standard error| is held at zero and the rest
+/// refitted while that ratio is below `min_z`, for the columns not listed in `always` (e.g. the
+/// bias). Standard errors come from the residual variance and the inverse normal matrix, inflated
+/// by n/n_eff (Bretherton et al. 1999), n_eff from the full model's residual.
+fn regress_with(
+    normal: &Normal,
+    columns: &[Vec<f64>],
+    y: &[f64],
+    names: &[String],
+    always: &[usize],
+    min_z: f64,
+) -> Fit {
     let k = columns.len();
     let n = y.len();
-    let (scale, inv) = (&normal.scale, &normal.inv);
+    let scale = &normal.scale;
     let rhs: Vec<f64> = (0..k)
-        .map(|i| columns[i].iter().zip(y).map(|(p, q)| p * q).sum::<f64>() / scale[i])
-        .collect();
-    let beta: Vec<f64> = (0..k)
-        .map(|i| (0..k).map(|j| inv[i][j] * rhs[j]).sum::<f64>() / scale[i])
-        .collect();
-    let mut resid = y.to_vec();
-    for (b, c) in beta.iter().zip(columns) {
-        for (r, v) in resid.iter_mut().zip(c) {
-            *r -= b * v;
-        }
-    }
-    let dof = (n as f64 - k as f64).max(1.0);
-    let var = resid.iter().map(|r| r * r).sum::<f64>() / dof;
-    let inflation = n as f64 / effective_size(&resid);
-    let coefs = (0..k)
-        .map(|i| Coefficient {
-            value: beta[i],
-            std_error: (var * inv[i][i] * inflation).sqrt() / scale[i],
+        .map(|i| {
+            if scale[i] > 0.0 {
+                columns[i].iter().zip(y).map(|(p, q)| p * q).sum::<f64>() / scale[i]
+            } else {
+                0.0
+            }
         })
         .collect();
-    (coefs, resid)
+    let yy: f64 = y.iter().map(|v| v * v).sum();
+    let mut held: Vec<HeldTerm> = normal
+        .chol
+        .dependent
+        .iter()
+        .map(|&c| HeldTerm {
+            term: names[c].clone(),
+            estimate: None,
+            reason: if scale[c] == 0.0 {
+                "its regressor is zero on the lines".into()
+            } else {
+                "its regressor is not resolved from the others (collinear)".into()
+            },
+        })
+        .collect();
+    let mut active: Vec<usize> = normal.chol.kept_sorted().to_vec();
+    // Solve on a set of active columns: scaled β̃ and the inverse's diagonal.
+    let solve = |act: &[usize]| -> (Vec<f64>, Vec<f64>) {
+        let sub: Vec<Vec<f64>> = act
+            .iter()
+            .map(|&i| act.iter().map(|&j| normal.a[i][j]).collect())
+            .collect();
+        let f = PivotedCholesky::of(&sub, COLLINEAR_TOLERANCE);
+        let ks = f.kept_sorted();
+        let mut beta = vec![0.0; act.len()];
+        let mut diag = vec![f64::INFINITY; act.len()];
+        for (a, &ia) in ks.iter().enumerate() {
+            beta[ia] = ks
+                .iter()
+                .enumerate()
+                .map(|(b, &ib)| f.inverse_entry(a, b) * rhs[act[ib]])
+                .sum();
+            diag[ia] = f.inverse_entry(a, a);
+        }
+        (beta, diag)
+    };
+    let residual = |act: &[usize], beta: &[f64]| -> Vec<f64> {
+        let mut r = y.to_vec();
+        for (b, &c) in beta.iter().zip(act) {
+            let w = b / scale[c];
+            for (rv, v) in r.iter_mut().zip(&columns[c]) {
+                *rv -= w * v;
+            }
+        }
+        r
+    };
+    let (mut beta, mut diag) = solve(&active);
+    let inflation = n as f64 / effective_size(&residual(&active, &beta));
+    let sigma = |act: &[usize], beta: &[f64], diag: &[f64]| -> Vec<f64> {
+        // RSS = yᵀy − β̃ᵀ·X̃ᵀy at the least-squares solution.
+        let rss = (yy - beta.iter().zip(act).map(|(b, &c)| b * rhs[c]).sum::<f64>()).max(0.0);
+        let var = rss / (n as f64 - act.len() as f64).max(1.0);
+        diag.iter().map(|d| (var * d * inflation).sqrt()).collect()
+    };
+    let mut se = sigma(&active, &beta, &diag);
+    loop {
+        let weakest = active
+            .iter()
+            .enumerate()
+            .filter(|(_, c)| !always.contains(c))
+            .map(|(a, &c)| (a, c, (beta[a] / se[a]).abs()))
+            .filter(|x| x.2.is_nan() || x.2 < min_z)
+            .min_by(|x, y| x.2.total_cmp(&y.2));
+        let Some((a, c, z)) = weakest else { break };
+        held.push(HeldTerm {
+            term: names[c].clone(),
+            estimate: Some(Coefficient {
+                value: beta[a] / scale[c],
+                std_error: se[a] / scale[c],
+            }),
+            reason: format!("not significant (|estimate| {z:.1} standard errors, {min_z} needed)"),
+        });
+        active.remove(a);
+        (beta, diag) = solve(&active);
+        se = sigma(&active, &beta, &diag);
+    }
+    let resid = residual(&active, &beta);
+    let mut coefs: Vec<Coefficient> = (0..k)
+        .map(|_| Coefficient {
+            value: 0.0,
+            std_error: 0.0,
+        })
+        .collect();
+    for (a, &c) in active.iter().enumerate() {
+        coefs[c] = Coefficient {
+            value: beta[a] / scale[c],
+            std_error: se[a] / scale[c],
+        };
+    }
+    for h in &held {
+        if let Some(c) = names.iter().position(|x| *x == h.term) {
+            coefs[c].std_error = h.estimate.map_or(f64::INFINITY, |e| e.std_error);
+        }
+    }
+    Fit { coefs, resid, held }
 }
 
 /// Effective number of independent samples of an autocorrelated series: n / (1 + 2 Σ ρ_k), the sum
@@ -268,43 +419,6 @@ pub fn effective_size(r: &[f64]) -> f64 {
     (n as f64 / (1.0 + 2.0 * sum)).clamp(1.0, n as f64)
 }
 
-/// Gauss–Jordan inverse with partial pivoting of a small, well-conditioned matrix.
-fn invert(m: &[Vec<f64>]) -> Vec<Vec<f64>> {
-    let k = m.len();
-    let mut a: Vec<Vec<f64>> = m
-        .iter()
-        .enumerate()
-        .map(|(i, r)| {
-            r.iter()
-                .cloned()
-                .chain((0..k).map(|j| if i == j { 1.0 } else { 0.0 }))
-                .collect()
-        })
-        .collect();
-    for c in 0..k {
-        let p = (c..k)
-            .max_by(|&i, &j| a[i][c].abs().total_cmp(&a[j][c].abs()))
-            .unwrap_or(c);
-        a.swap(c, p);
-        let piv = a[c][c];
-        if piv == 0.0 {
-            continue;
-        }
-        let row = a[c].clone();
-        for (r, other) in a.iter_mut().enumerate() {
-            if r != c {
-                let f = other[c] / piv;
-                for (x, y) in other.iter_mut().zip(&row) {
-                    *x -= f * y;
-                }
-            }
-        }
-    }
-    (0..k)
-        .map(|i| (0..k).map(|j| a[i][k + j] / a[i][i]).collect())
-        .collect()
-}
-
 /// d − nᵀ·ΩΩ·b, m/s², with ΩΩ·b = ω(ω·b) − |ω|²b: the known centrifugal term removed.
 pub(crate) fn without_centrifugal(d: &PairData<'_>) -> Vec<f64> {
     (0..d.difference.len())
@@ -337,6 +451,11 @@ pub(crate) fn centrifugal_along(nv: [f64; 3], b: [f64; 3], w: [f64; 3]) -> f64 {
 /// the rotation term. [`crate::joint::estimate_flight`] does better for a whole instrument: it fits
 /// in the space of the solved unknowns, where the angular acceleration drops out.
 pub fn estimate(d: &PairData<'_>, s: &Settings) -> PairCalibration {
+    estimate_with_held(d, s).0
+}
+
+/// [`estimate`], with the terms held at zero and why.
+pub fn estimate_with_held(d: &PairData<'_>, s: &Settings) -> (PairCalibration, Vec<HeldTerm>) {
     let diff: Vec<f64> = without_centrifugal(d)
         .iter()
         .enumerate()
@@ -345,47 +464,107 @@ pub fn estimate(d: &PairData<'_>, s: &Settings) -> PairCalibration {
     fit_series(&diff, d, true, s)
 }
 
+/// Names of the six products of the force's deviations, in the order of
+/// [`PairCalibration::quadratic`].
+pub const PRODUCT_NAMES: [&str; 6] = ["fx²", "fy²", "fz²", "fx·fy", "fx·fz", "fy·fz"];
+
+/// Index pairs (a, b) of the products f_a·f_b, in the order of [`PRODUCT_NAMES`].
+pub const PRODUCTS: [(usize, usize); 6] = [(0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2)];
+
+/// The six products (f_a − f0_a)(f_b − f0_b) of a force series, m²/s⁴, sample by sample.
+pub fn force_products(f: [&[f64]; 3], f0: [f64; 3]) -> [Vec<f64>; 6] {
+    PRODUCTS.map(|(a, b)| {
+        f[a].iter()
+            .zip(f[b])
+            .map(|(x, y)| (x - f0[a]) * (y - f0[b]))
+            .collect()
+    })
+}
+
+/// Mean of each force component over the `usable` samples (all when `None`), m/s²: the origin of
+/// the quadratic terms.
+pub fn force_mean(f: [&[f64]; 3], usable: Option<&[bool]>) -> [f64; 3] {
+    std::array::from_fn(|k| {
+        let (mut s, mut c) = (0.0, 0usize);
+        for (i, v) in f[k].iter().enumerate() {
+            if usable.is_none_or(|u| u[i]) {
+                s += v;
+                c += 1;
+            }
+        }
+        if c > 0 { s / c as f64 } else { 0.0 }
+    })
+}
+
 /// What every series fitted against one flight's regressors shares: the usable runs, the
 /// band-passed regressors with their normal equations (step 1), and the whole-band regressors on
 /// line samples with theirs (step 2). Formed once when many series are fitted against one flight.
 pub(crate) struct Design {
     runs: Vec<std::ops::Range<usize>>,
     with_alpha: bool,
+    /// Whether the six quadratic columns follow the force (and α) in step 1.
+    quadratic: bool,
     band_columns: Vec<Vec<f64>>,
+    band_names: Vec<String>,
     band_normal: Normal,
     t_mid: f64,
     temperature_mean: f64,
+    force_mean: [f64; 3],
     line_rows: Vec<usize>,
     /// Polynomial, temperature and self-gradient columns on the line rows.
     whole_columns: Vec<Vec<f64>>,
+    whole_names: Vec<String>,
     whole_normal: Normal,
     n_poly: usize,
+    has_temperature: bool,
+    has_self_gradient: bool,
 }
 
 impl Design {
     /// The design of `d`'s regressors: the force band-passed line by line, with the gyro angular
-    /// acceleration when `with_alpha`.
-    pub(crate) fn new(d: &PairData<'_>, with_alpha: bool, s: &Settings) -> Self {
+    /// acceleration when `with_alpha`, and the six products of the force's deviations from
+    /// `force_mean` (`products`, on `d`'s time base) when given.
+    pub(crate) fn new(
+        d: &PairData<'_>,
+        with_alpha: bool,
+        products: Option<(&[Vec<f64>; 6], [f64; 3])>,
+        s: &Settings,
+    ) -> Self {
         let [lo, hi] = s.band_hz;
         let n = d.time.len();
         let runs = usable_runs(d.usable, n, (s.rate_hz / lo).ceil() as usize);
         let bp = |x: &[f64]| -> Vec<f64> { band_pass_runs(x, &runs, s.rate_hz, lo, hi) };
         let mut regressors: Vec<&[f64]> = d.f.to_vec();
+        let mut band_names: Vec<String> = ["κx", "κy", "κz"].map(String::from).to_vec();
         if with_alpha {
             regressors.extend(d.alpha);
+            band_names.extend(["αx", "αy", "αz"].map(String::from));
+        }
+        if let Some((p, _)) = products {
+            regressors.extend(p.iter().map(|v| &v[..]));
+            band_names.extend(PRODUCT_NAMES.map(String::from));
         }
         let band_columns: Vec<Vec<f64>> = regressors.par_iter().map(|c| bp(c)).collect();
         let t_mid = 0.5 * (d.time[0] + d.time[n - 1]);
         let mut whole = polynomial_columns(d.time, t_mid, s.drift_order);
+        let mut whole_names: Vec<String> = (0..whole.len())
+            .map(|p| match p {
+                0 => "bias".to_string(),
+                1 => "drift".to_string(),
+                _ => format!("drift t^{p}"),
+            })
+            .collect();
         let n_poly = whole.len();
         let temperature_mean = d
             .temperature
             .map_or(0.0, |t| t.iter().sum::<f64>() / t.len() as f64);
         if let Some(t) = d.temperature {
             whole.push(t.iter().map(|v| v - temperature_mean).collect());
+            whole_names.push("temperature".into());
         }
         if let Some(rel) = d.relative_attitude {
             whole.extend(rel.iter().map(|c| c.to_vec()));
+            whole_names.extend(["self-gradient roll", "self-gradient pitch"].map(String::from));
         }
         // Over line samples only: in turns the rotation terms are thousands of times larger and
         // carry second-order terms the model leaves out.
@@ -402,13 +581,24 @@ impl Design {
             whole_normal: Normal::of(&whole_columns),
             runs,
             with_alpha,
+            quadratic: products.is_some(),
             band_columns,
+            band_names,
             t_mid,
             temperature_mean,
+            force_mean: products.map_or([0.0; 3], |p| p.1),
             line_rows,
             whole_columns,
+            whole_names,
             n_poly,
+            has_temperature: d.temperature.is_some(),
+            has_self_gradient: d.relative_attitude.is_some(),
         }
+    }
+
+    /// Condition number estimates of the band fit's and the whole-band fit's regressors.
+    pub(crate) fn conditions(&self) -> [f64; 2] {
+        [self.band_normal.condition(), self.whole_normal.condition()]
     }
 }
 
@@ -422,25 +612,39 @@ pub(crate) fn fit_series(
     d: &PairData<'_>,
     with_alpha: bool,
     s: &Settings,
-) -> PairCalibration {
-    fit_with(&Design::new(d, with_alpha, s), y, d, s)
+) -> (PairCalibration, Vec<HeldTerm>) {
+    let f0 = force_mean(d.f, d.usable);
+    let products = s.quadratic.then(|| force_products(d.f, f0));
+    let design = Design::new(d, with_alpha, products.as_ref().map(|p| (p, f0)), s);
+    fit_with(&design, y, d, products.as_ref(), s)
 }
 
-/// [`fit_series`] against a design formed already from the same `d`.
+/// [`fit_series`] against a design formed already from the same `d` (and the same `products`).
+/// Returns the calibration (held terms at zero) and the terms held, with why.
 pub(crate) fn fit_with(
     design: &Design,
     y: &[f64],
     d: &PairData<'_>,
+    products: Option<&[Vec<f64>; 6]>,
     s: &Settings,
-) -> PairCalibration {
+) -> (PairCalibration, Vec<HeldTerm>) {
     let [lo, hi] = s.band_hz;
-    // Step 1: κ (and the rotation regressors) in the band where aircraft motion dominates. Each line
-    // is filtered on its own, so that nothing of the turns (where rotation terms are thousands of
-    // times larger) leaks into the line samples, and the ends of each line are dropped.
+    // Step 1: κ (and the rotation and quadratic regressors) in the band where aircraft motion
+    // dominates. Each line is filtered on its own, so that nothing of the turns (where rotation
+    // terms are thousands of times larger) leaks into the line samples, and the ends of each line
+    // are dropped. Only what the data resolve, and significantly, is kept.
     let y_band = band_pass_runs(y, &design.runs, s.rate_hz, lo, hi);
-    let (c1, resid) = regress_with(&design.band_normal, &design.band_columns, &y_band);
+    let fit1 = regress_with(
+        &design.band_normal,
+        &design.band_columns,
+        &y_band,
+        &design.band_names,
+        &[],
+        s.min_significance,
+    );
+    let c1 = &fit1.coefs;
     let band_residual_rms =
-        (resid.iter().map(|r| r * r).sum::<f64>() / resid.len().max(1) as f64).sqrt();
+        (fit1.resid.iter().map(|r| r * r).sum::<f64>() / fit1.resid.len().max(1) as f64).sqrt();
     let zero = Coefficient {
         value: 0.0,
         std_error: 0.0,
@@ -450,34 +654,58 @@ pub(crate) fn fit_with(
     } else {
         [zero; 3]
     };
+    let q0 = if design.with_alpha { 6 } else { 3 };
+    let quadratic: Option<[Coefficient; 6]> = design
+        .quadratic
+        .then(|| std::array::from_fn(|m| c1[q0 + m]));
     // Step 2: bias, drift and temperature from what remains over the whole band, on line samples.
     let rest: Vec<f64> = design
         .line_rows
         .iter()
         .map(|&i| {
-            y[i] - (0..3)
-                .map(|k| c1[k].value * d.f[k][i] + rotation[k].value * d.alpha[k][i])
-                .sum::<f64>()
+            let mut v = y[i]
+                - (0..3)
+                    .map(|k| c1[k].value * d.f[k][i] + rotation[k].value * d.alpha[k][i])
+                    .sum::<f64>();
+            if let (Some(q), Some(p)) = (&quadratic, products) {
+                v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
+            }
+            v
         })
         .collect();
-    let (c2, _) = regress_with(&design.whole_normal, &design.whole_columns, &rest);
+    let fit2 = regress_with(
+        &design.whole_normal,
+        &design.whole_columns,
+        &rest,
+        &design.whole_names,
+        &[0],
+        s.min_significance,
+    );
+    let c2 = &fit2.coefs;
     let n_poly = design.n_poly;
     let polynomial = c2[..n_poly].to_vec();
-    let temperature = d.temperature.map(|_| c2[n_poly]);
-    let self_gradient = d.relative_attitude.map(|_| {
+    let temperature = design.has_temperature.then(|| c2[n_poly]);
+    let self_gradient = design.has_self_gradient.then(|| {
         let k = c2.len();
         [c2[k - 2], c2[k - 1]]
     });
-    PairCalibration {
-        kappa: [c1[0], c1[1], c1[2]],
-        rotation,
-        polynomial,
-        temperature,
-        self_gradient,
-        t_mid: design.t_mid,
-        temperature_mean: design.temperature_mean,
-        band_residual_rms,
-    }
+    let mut held = fit1.held;
+    held.extend(fit2.held);
+    (
+        PairCalibration {
+            kappa: [c1[0], c1[1], c1[2]],
+            rotation,
+            polynomial,
+            temperature,
+            self_gradient,
+            quadratic,
+            force_mean: design.force_mean,
+            t_mid: design.t_mid,
+            temperature_mean: design.temperature_mean,
+            band_residual_rms,
+        },
+        held,
+    )
 }
 
 /// Columns (t − t_mid)^p, p = 0 … order.
@@ -504,8 +732,7 @@ pub(crate) fn fit_polynomial(
         .iter()
         .map(|c| pick(c))
         .collect();
-    let (c, _) = regress(&cols, &pick(y));
-    (c, t_mid)
+    (regress(&cols, &pick(y)), t_mid)
 }
 
 #[cfg(test)]
@@ -592,14 +819,10 @@ mod tests {
             expected: None,
             relative_attitude: None,
         };
-        let s = Settings {
-            band_hz: [0.05, 1.0],
-            drift_order: 1,
-            rate_hz: rate,
-        };
-        let design = Design::new(&d, false, &s);
-        let shared = fit_with(&design, &y, &d, &s);
-        assert_eq!(shared, fit_series(&y, &d, false, &s));
+        let s = Settings::at_rate(rate);
+        let design = Design::new(&d, false, None, &s);
+        let shared = fit_with(&design, &y, &d, None, &s).0;
+        assert_eq!(shared, fit_series(&y, &d, false, &s).0);
         assert!((shared.kappa[0].value - 1e-5).abs() < 3.0 * shared.kappa[0].std_error + 1e-9);
         assert!((shared.kappa[2].value + 2e-5).abs() < 3.0 * shared.kappa[2].std_error + 1e-9);
     }

@@ -57,6 +57,15 @@ pub struct PairEntry {
     pub self_gradient_m_s2_per_rad: Option<[f64; 2]>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub self_gradient_se: Option<[f64; 2]>,
+    /// Quadratic coefficients, (m/s²)⁻¹, of (f_a − f0_a)(f_b − f0_b) in the order fx², fy², fz²,
+    /// fx·fy, fx·fz, fy·fz, with f0 = `force_mean_m_s2`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub quadratic_per_m_s2: Option<[f64; 6]>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub quadratic_se: Option<[f64; 6]>,
+    /// Origin of the quadratic terms, sensor axes, m/s².
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub force_mean_m_s2: Option<[f64; 3]>,
     /// RMS of the band-limited residual of the fit, m/s².
     #[serde(default)]
     pub band_residual_m_s2: f64,
@@ -94,6 +103,9 @@ impl PairEntry {
             temperature_mean_c: c.temperature_mean,
             self_gradient_m_s2_per_rad: c.self_gradient.map(|s| [s[0].value, s[1].value]),
             self_gradient_se: c.self_gradient.map(|s| [s[0].std_error, s[1].std_error]),
+            quadratic_per_m_s2: c.quadratic.map(|q| q.map(|x| x.value)),
+            quadratic_se: c.quadratic.map(|q| q.map(|x| x.std_error)),
+            force_mean_m_s2: c.quadratic.map(|_| c.force_mean),
             band_residual_m_s2: c.band_residual_rms,
         }
     }
@@ -119,6 +131,11 @@ impl PairEntry {
                 let e = self.self_gradient_se.unwrap_or([f64::NAN; 2]);
                 [coef(s[0], e[0]), coef(s[1], e[1])]
             }),
+            quadratic: self.quadratic_per_m_s2.map(|q| {
+                let e = self.quadratic_se.unwrap_or([f64::NAN; 6]);
+                std::array::from_fn(|m| coef(q[m], e[m]))
+            }),
+            force_mean: self.force_mean_m_s2.unwrap_or([0.0; 3]),
             t_mid: self.t_mid_s,
             temperature_mean: self.temperature_mean_c,
             band_residual_rms: self.band_residual_m_s2,
@@ -174,6 +191,18 @@ impl CalibrationFile {
             }
             if let Some(s) = p.self_gradient_m_s2_per_rad {
                 values.extend(s.iter().map(|v| ("self_gradient_m_s2_per_rad", *v)));
+            }
+            if let Some(q) = p.quadratic_per_m_s2 {
+                values.extend(q.iter().map(|v| ("quadratic_per_m_s2", *v)));
+            }
+            if let Some(f) = p.force_mean_m_s2 {
+                values.extend(f.iter().map(|v| ("force_mean_m_s2", *v)));
+            }
+            if p.quadratic_per_m_s2.is_some() != p.force_mean_m_s2.is_some() {
+                push(
+                    key("force_mean_m_s2"),
+                    "`quadratic_per_m_s2` and `force_mean_m_s2` go together".into(),
+                );
             }
             if let Some((k, v)) = values.iter().find(|(_, v)| !v.is_finite()) {
                 push(key(k), format!("{v} is not a finite number"));

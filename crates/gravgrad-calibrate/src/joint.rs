@@ -13,10 +13,12 @@
 //! Units: m/s² for differences, s⁻² for S, rad/s² for α.
 
 use crate::estimate::{
-    Coefficient, Design, PairCalibration, PairData, Settings, fit_polynomial, fit_with,
+    Coefficient, Design, HeldTerm, PRODUCTS, PairCalibration, PairData, Settings, fit_polynomial,
+    fit_with,
 };
 use gravgrad_core::SymTensor;
 use gravgrad_core::attitude::c_sn_degrees_span;
+use gravgrad_core::pairs::UNKNOWNS;
 use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
 
@@ -212,6 +214,53 @@ impl PairBlocks {
     }
 }
 
+/// What a flight's calibration could and could not determine, for the log, `gravgrad calibrate`'s
+/// report and QC.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Health {
+    /// Terms held at their prior, per fitted series: the tensor's unknowns (`Gxx` … `αz`) and each
+    /// pair's own residual (`pair xy`).
+    pub held: Vec<(String, HeldTerm)>,
+    /// Condition number estimates of the band fit's and the whole-band fit's scaled regressors
+    /// (no fit: 0).
+    pub condition: [f64; 2],
+    /// Band the coupling was fitted in, Hz.
+    pub band_hz: [f64; 2],
+    /// RMS of the band-limited residual of each unknown's fit, s⁻² (`Gxx` … in the solve's order).
+    pub band_residual: Vec<(String, f64)>,
+}
+
+/// Every pair's calibration from one flight, and what the flight could not determine.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FlightCalibration {
+    pub pairs: Vec<PairCalibration>,
+    pub health: Health,
+}
+
+/// Block means of the six products (f_a − f0_a)(f_b − f0_b) of the force's deviations (m²/s⁴),
+/// over blocks of `block` samples, spans in parallel; each block summed in sample order.
+fn product_block_means(f: [&[f64]; 3], f0: [f64; 3], block: usize) -> [Vec<f64>; 6] {
+    let n = f[0].len();
+    let span = block * 1024;
+    PRODUCTS.map(|(a, b)| {
+        let parts: Vec<Vec<f64>> = (0..n.div_ceil(span))
+            .into_par_iter()
+            .map(|q| {
+                let r = q * span..((q + 1) * span).min(n);
+                let prod: Vec<f64> = f[a][r.clone()]
+                    .iter()
+                    .zip(&f[b][r])
+                    .map(|(x, y)| (x - f0[a]) * (y - f0[b]))
+                    .collect();
+                let mut out = Vec::with_capacity(prod.len().div_ceil(block));
+                push_block_means(&prod, block, &mut out);
+                out
+            })
+            .collect();
+        parts.concat()
+    })
+}
+
 /// Estimates every pair's calibration from one flight. With `fixed` (a calibration flight's
 /// coefficients, one per pair in order), κ, temperature and self-gradient are kept and only bias and
 /// drift are fitted, also in the space of the unknowns.
@@ -219,7 +268,7 @@ pub fn estimate_flight(
     d: &FlightData<'_>,
     s: &Settings,
     fixed: Option<&[PairCalibration]>,
-) -> Vec<PairCalibration> {
+) -> FlightCalibration {
     estimate_from_blocks(d, &PairBlocks::of(&d.samples, s), s, fixed)
 }
 
@@ -230,7 +279,7 @@ pub fn estimate_from_blocks(
     blocks: &PairBlocks,
     s: &Settings,
     fixed: Option<&[PairCalibration]>,
-) -> Vec<PairCalibration> {
+) -> FlightCalibration {
     let pairs = d.samples.pairs;
     let np = pairs.len();
     let alpha_from_pairs = d.alpha_from_pairs;
@@ -250,6 +299,8 @@ pub fn estimate_from_blocks(
             .map(|c| {
                 let mut c = c.clone();
                 c.polynomial.clear();
+                // Taken off below from the products' block means.
+                c.quadratic = None;
                 c
             })
             .collect()
@@ -259,6 +310,12 @@ pub fn estimate_from_blocks(
     let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
     let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
     let tb = mean(d.time);
+    // The quadratic terms' regressors: block means of the products of the force's deviations from
+    // its mean over the lines (products of block means would miss the power inside a block).
+    let f0 = crate::estimate::force_mean(d.f, d.usable);
+    let fixed_quadratic = fixed.is_some_and(|fx| fx.iter().any(|c| c.quadratic.is_some()));
+    let pb: Option<[Vec<f64>; 6]> = ((s.quadratic && fixed.is_none()) || fixed_quadratic)
+        .then(|| product_block_means(d.f, f0, block));
     let temp_b = d.temperature.map(mean);
     let rel_b: Option<Vec<Vec<f64>>> = d
         .relative_attitude
@@ -299,10 +356,35 @@ pub fn estimate_from_blocks(
                 None => db.iter().zip(&known).map(|(v, k)| -(v - k)).collect(),
                 Some(c) => {
                     let bd = block_series(&[]);
+                    // The file's quadratic part about its own origin m, from the products about
+                    // this flight's f0: (f_a − m_a)(f_b − m_b) = P_ab + δ_a(f_b − f0_b) +
+                    // δ_b(f_a − f0_a) + δ_a·δ_b with δ = f0 − m.
+                    let quad = |i: usize| -> f64 {
+                        match (fixed.and_then(|fx| fx[p].quadratic), &pb) {
+                            (Some(q), Some(pb)) => {
+                                let m = fixed.map_or([0.0; 3], |fx| fx[p].force_mean);
+                                let dl: [f64; 3] = std::array::from_fn(|k| f0[k] - m[k]);
+                                let dev: [f64; 3] = std::array::from_fn(|k| fb[k][i] - f0[k]);
+                                PRODUCTS
+                                    .iter()
+                                    .zip(q)
+                                    .enumerate()
+                                    .map(|(j, ((a, b), qm))| {
+                                        qm.value
+                                            * (pb[j][i]
+                                                + dl[*a] * dev[*b]
+                                                + dl[*b] * dev[*a]
+                                                + dl[*a] * dl[*b])
+                                    })
+                                    .sum()
+                            }
+                            _ => 0.0,
+                        }
+                    };
                     db.iter()
                         .zip(&known)
                         .enumerate()
-                        .map(|(i, (v, k))| -((v - c[p].correction_at(&bd, i)) - k))
+                        .map(|(i, (v, k))| -((v - c[p].correction_at(&bd, i) - quad(i)) - k))
                         .collect()
                 }
             };
@@ -343,9 +425,10 @@ pub fn estimate_from_blocks(
     // prediction of its α content) and −r_p.
     let (design, targets) = rayon::join(
         || {
-            fixed
-                .is_none()
-                .then(|| Design::new(&block_series(&tb), false, s))
+            fixed.is_none().then(|| {
+                let products = if s.quadratic { pb.as_ref() } else { None };
+                Design::new(&block_series(&tb), false, products.map(|p| (p, f0)), s)
+            })
         },
         || {
             // û_j = Σ_p P_jp·z_p, whole series at a time (vectorised), terms added in pair order.
@@ -386,7 +469,8 @@ pub fn estimate_from_blocks(
         },
     );
     // Fit each target: the full model, or bias and drift only.
-    let fits: Vec<Option<PairCalibration>> = targets
+    let products = if s.quadratic { pb.as_ref() } else { None };
+    let fitted: Vec<Option<(PairCalibration, Vec<HeldTerm>)>> = targets
         .par_iter()
         .map(|y| {
             if y.is_empty() {
@@ -394,19 +478,45 @@ pub fn estimate_from_blocks(
             }
             let data = block_series(y);
             match fixed {
-                None => design.as_ref().map(|g| fit_with(g, y, &data, s)),
+                None => design.as_ref().map(|g| fit_with(g, y, &data, products, s)),
                 Some(fx) => {
                     let (poly, t_mid) = fit_polynomial(y, &tb, s.drift_order, data.usable);
                     let mut c = fx[0].clone();
                     c.polynomial = poly;
                     c.t_mid = t_mid;
                     c.band_residual_rms = 0.0;
-                    Some(c)
+                    Some((c, Vec::new()))
                 }
             }
         })
         .collect();
-    (0..np)
+    // The series' names: the unknowns, then each pair's own residual.
+    let target_name = |t: usize| -> String {
+        if t < k {
+            UNKNOWNS[t].to_string()
+        } else {
+            format!("pair {}", pairs[t - k].id)
+        }
+    };
+    let mut health = Health {
+        condition: design.as_ref().map_or([0.0; 2], Design::conditions),
+        band_hz: s.band_hz,
+        ..Health::default()
+    };
+    for (t, f) in fitted.iter().enumerate() {
+        if let Some((c, held)) = f {
+            health
+                .held
+                .extend(held.iter().map(|h| (target_name(t), h.clone())));
+            if t < k {
+                health
+                    .band_residual
+                    .push((target_name(t), c.band_residual_rms));
+            }
+        }
+    }
+    let fits: Vec<Option<PairCalibration>> = fitted.into_iter().map(|f| f.map(|x| x.0)).collect();
+    let pair_cals = (0..np)
         .map(|p| {
             // Weights: A_pj for the unknown rows, 1 for the pair's own residual row.
             let mut parts: Vec<(f64, &PairCalibration)> = (0..k)
@@ -444,6 +554,12 @@ pub fn estimate_from_blocks(
                     rotation: [zero; 3],
                     polynomial: vec![],
                     temperature: pick(&|c| c.temperature),
+                    quadratic: first.and_then(|c| c.quadratic).map(|_| {
+                        std::array::from_fn(|m| {
+                            pick(&|c| c.quadratic.map(|q| q[m])).unwrap_or(zero)
+                        })
+                    }),
+                    force_mean: f0,
                     self_gradient: {
                         let r = pick(&|c| c.self_gradient.map(|x| x[0]));
                         let q = pick(&|c| c.self_gradient.map(|x| x[1]));
@@ -466,7 +582,11 @@ pub fn estimate_from_blocks(
                 ..base
             }
         })
-        .collect()
+        .collect();
+    FlightCalibration {
+        pairs: pair_cals,
+        health,
+    }
 }
 
 /// Means of consecutive blocks of `block` samples (the last block may be shorter), spans of blocks

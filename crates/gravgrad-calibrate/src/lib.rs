@@ -15,6 +15,7 @@
 
 pub mod apply;
 pub mod bandpass;
+pub mod channels;
 pub mod estimate;
 pub mod file;
 pub mod joint;

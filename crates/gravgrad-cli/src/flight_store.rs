@@ -81,6 +81,8 @@ pub fn write(path: &Path, key: &str, name: &str, r: &FlightResult) -> Result<(),
         }),
     );
     b.set_attr("heading_only", AttrValue::I64(i64::from(r.heading_only)));
+    // What calibration held or dropped, one line each (empty: nothing).
+    b.set_attr("calibration_notes", string(&r.calibration_notes.join("\n")));
     b.set_attr(
         "observed",
         AttrValue::I64Array(r.observed.iter().map(|o| i64::from(*o)).collect()),
@@ -153,6 +155,11 @@ pub fn write(path: &Path, key: &str, name: &str, r: &FlightResult) -> Result<(),
         if let Some(t) = c.temperature {
             g.create_dataset("temperature")
                 .with_f64_data(&[t.value, t.std_error]);
+        }
+        if let Some(q) = c.quadratic {
+            g.create_dataset("quadratic").with_f64_data(&values(&q));
+            g.create_dataset("quadratic_se").with_f64_data(&errors(&q));
+            g.create_dataset("force_mean").with_f64_data(&c.force_mean);
         }
         if let Some([roll, pitch]) = c.self_gradient {
             g.create_dataset("self_gradient").with_f64_data(&[
@@ -291,6 +298,10 @@ pub fn read(path: &Path, key: &str) -> Result<Stored, String> {
         heading_only: heading_only != 0,
         alpha_source,
         calibration,
+        calibration_notes: attr_text(&attrs, "calibration_notes")
+            .filter(|t| !t.is_empty())
+            .map(|t| t.lines().map(String::from).collect())
+            .unwrap_or_default(),
         timings: Vec::new(),
     })))
 }
@@ -399,9 +410,34 @@ fn read_pair(
         }
         None => None,
     };
+    let quadratic = match (get("quadratic")?, get("quadratic_se")?) {
+        (Some(v), Some(e)) if v.len() == 6 && e.len() == 6 => {
+            Some(std::array::from_fn(|m| Coefficient {
+                value: v[m],
+                std_error: e[m],
+            }))
+        }
+        (None, None) => None,
+        _ => {
+            return Err(at(format!(
+                "group `calibration/{name}`: `quadratic` and `quadratic_se` must hold 6 values each"
+            )));
+        }
+    };
+    let force_mean = match get("force_mean")? {
+        Some(f) if f.len() == 3 => [f[0], f[1], f[2]],
+        None => [0.0; 3],
+        Some(_) => {
+            return Err(at(format!(
+                "dataset `calibration/{name}/force_mean`: expected 3 values"
+            )));
+        }
+    };
     Ok((
         id,
         PairCalibration {
+            quadratic,
+            force_mean,
             kappa: three(need("kappa", Some(3))?, need("kappa_se", Some(3))?),
             rotation: three(need("rotation", Some(3))?, need("rotation_se", Some(3))?),
             polynomial,

@@ -33,6 +33,21 @@ impl Log {
         }
     }
 
+    /// A warning: the run goes on, but the user should know (what was dropped, held or bridged).
+    /// Printed unless `--quiet`.
+    pub fn warn(&self, msg: &str) {
+        if self.quiet {
+            return;
+        }
+        self.clear_progress();
+        if self.json {
+            let v = serde_json::json!({ "level": "warning", "message": msg });
+            eprintln!("{v}");
+        } else {
+            eprintln!("warning: {msg}");
+        }
+    }
+
     /// Progress through `total` items: a counter redrawn in place on a terminal, plain lines
     /// (or JSON lines) otherwise.
     pub fn progress(&self, done: usize, total: usize, what: &str) {

@@ -7,6 +7,7 @@
 //! Frames and units: tensors in s⁻² here (Eötvös only in files), NED with true north unless a name
 //! says grid; positions in degrees (geodetic) and projected metres.
 
+use gravgrad_calibrate::channels::{self, ScreenLimits, Screened};
 use gravgrad_calibrate::estimate::{self, PairCalibration, PairData};
 use gravgrad_calibrate::file::CalibrationFile;
 use gravgrad_calibrate::joint::{
@@ -167,6 +168,9 @@ pub struct FlightResult {
     pub heading_only: bool,
     pub alpha_source: AlphaSource,
     pub calibration: Vec<(String, PairCalibration)>,
+    /// What the calibration held at its prior, dropped or bridged, one line each, for the log and
+    /// QC (empty: every term the model has was determined and applied).
+    pub calibration_notes: Vec<String>,
     /// Wall time of each stage, s.
     pub timings: Vec<(&'static str, f64)>,
 }
@@ -272,11 +276,8 @@ pub fn process_flight(
         .iter()
         .map(|g| column(flight, &format!("{}_b", g.id)))
         .collect::<Result<_, _>>()?;
-    let settings = estimate::Settings {
-        band_hz: recipe.calibration.band_hz,
-        drift_order: recipe.calibration.drift_order as usize,
-        rate_hz: rate,
-    };
+    let mut notes: Vec<String> = Vec::new();
+    let settings = calibration_settings(recipe, flight, &pos, &line, rate, &mut notes)?;
     let stored: Option<Vec<PairCalibration>> = match &calibration {
         CalibrationSource::File(file) => Some(
             instrument
@@ -319,11 +320,48 @@ pub fn process_flight(
             )
         },
     );
-    let temperature = flight.flight.table.get("temp");
-    let relative: Option<[Vec<f64>; 2]> = match (
-        flight.flight.table.get("ac_roll"),
-        flight.flight.table.get("ac_pitch"),
-    ) {
+    // Optional regressor channels screened: a constant channel, or one with empty or NaN cells
+    // beyond short bridgeable runs, drops its term (with a note) instead of making NaN.
+    let mut screened = |name: &str, limits: ScreenLimits| -> Option<std::borrow::Cow<'_, [f64]>> {
+        let x = flight.flight.table.get(name)?;
+        match channels::screen(name, x, Some(&usable), rate, limits) {
+            Screened::Use(v, note) => {
+                notes.extend(note);
+                Some(v)
+            }
+            Screened::Drop(why) => {
+                notes.push(why);
+                None
+            }
+        }
+    };
+    let temperature_c = if fitted {
+        screened("temp", ScreenLimits::TEMPERATURE)
+    } else {
+        None
+    };
+    let temperature: Option<&[f64]> = temperature_c.as_deref();
+    let (ac_roll, ac_pitch) = if fitted {
+        (
+            screened("ac_roll", ScreenLimits::ATTITUDE),
+            screened("ac_pitch", ScreenLimits::ATTITUDE),
+        )
+    } else {
+        (None, None)
+    };
+    if fitted && (ac_roll.is_some() != ac_pitch.is_some()) {
+        notes.push("the self-gradient term needs both `ac_roll` and `ac_pitch`: dropped".into());
+    }
+    if let Some(file) = &stored
+        && temperature.is_none()
+        && file.iter().any(|c| c.temperature.is_some())
+        && flight.flight.table.get("temp").is_some()
+    {
+        notes.push(
+            "the calibration file's temperature term is not applied (no usable `temp`)".into(),
+        );
+    }
+    let relative: Option<[Vec<f64>; 2]> = match (ac_roll.as_deref(), ac_pitch.as_deref()) {
         (Some(ar), Some(ap)) => Some([
             ar.iter()
                 .zip(roll)
@@ -349,8 +387,28 @@ pub fn process_flight(
         alpha_from_pairs: alpha_source == AlphaSource::Pairs,
     };
     // Block means formed already: the pair outputs are not read again here.
-    let cals: Option<Vec<PairCalibration>> =
-        blocks.map(|b| estimate_from_blocks(&data, &b, &settings, stored.as_deref()));
+    let fitted_cal = blocks.map(|b| estimate_from_blocks(&data, &b, &settings, stored.as_deref()));
+    let cals: Option<Vec<PairCalibration>> = fitted_cal.map(|fc| {
+        for (series, h) in &fc.health.held {
+            notes.push(format!(
+                "calibration of {series}: {} held at {} — {}{}",
+                h.term,
+                if stored.is_some() {
+                    "the file's value"
+                } else {
+                    "zero"
+                },
+                h.reason,
+                h.estimate.map_or(String::new(), |e| format!(
+                    " (estimate {:.3e} ± {:.1e})",
+                    e.value, e.std_error
+                ))
+            ));
+        }
+        fc.pairs
+    });
+    // With a file, terms the file has but the flight cannot use (e.g. temperature) are not
+    // applied: the correction below reads only what the flight has.
     lap("calibration", &mut timings);
     // The calibration is applied as the solve reads each span of `a` (b as logged): no corrected
     // series is kept.
@@ -452,7 +510,87 @@ pub fn process_flight(
         heading_only: sol.heading_only,
         alpha_source,
         calibration,
+        calibration_notes: notes,
         timings,
+    })
+}
+
+/// The calibration settings for one flight: the recipe's, with the band's low edge raised to the
+/// median line speed over the shortest geology wavelength (so that the coupling fit stays above
+/// the geology's band), and checked against the Nyquist frequency.
+fn calibration_settings(
+    recipe: &Recipe,
+    flight: &LoadedFlight,
+    pos: &Positions,
+    line: &[i64],
+    rate: f64,
+    notes: &mut Vec<String>,
+) -> Result<estimate::Settings, Problem> {
+    let c = &recipe.calibration;
+    let [lo, hi] = c.band_hz;
+    if hi >= 0.5 * rate {
+        return Err(Problem::error(
+            Location::file(recipe.folder.join("recipe")).with_key("calibration.band_hz"),
+            format!(
+                "the band's top {hi} Hz is not below the Nyquist frequency {} Hz of {} \
+                 (sampled at {rate} Hz)",
+                0.5 * rate,
+                flight.flight.source
+            ),
+        ));
+    }
+    let on_line = |i: usize| line[i] > 0;
+    let median_of = |v: Vec<f64>| -> Option<f64> {
+        let mut v: Vec<f64> = v.into_iter().filter(|x| x.is_finite()).collect();
+        gravgrad_core::stats::median(&mut v)
+    };
+    // Ground speed from consecutive projected positions on the lines.
+    let time = flight.flight.table.get("time").unwrap_or(&[]);
+    let speed = median_of(
+        (1..line.len().min(time.len()))
+            .filter(|&i| on_line(i) && line[i - 1] == line[i] && time[i] > time[i - 1])
+            .map(|i| {
+                (pos.easting_m[i] - pos.easting_m[i - 1])
+                    .hypot(pos.northing_m[i] - pos.northing_m[i - 1])
+                    / (time[i] - time[i - 1])
+            })
+            .collect(),
+    );
+    let clearance = flight.flight.table.get("clearance").and_then(|cl| {
+        median_of(
+            (0..line.len())
+                .filter(|&i| on_line(i))
+                .map(|i| cl[i])
+                .collect(),
+        )
+    });
+    let wavelength = c
+        .geology_wavelength_m
+        .or(clearance.map(|h| 2.5 * h))
+        .unwrap_or(250.0);
+    let mut band = [lo, hi];
+    if let Some(v) = speed {
+        let edge = v / wavelength;
+        if edge > lo {
+            if edge >= 0.8 * hi {
+                notes.push(format!(
+                    "calibration band: geology reaches {edge:.2} Hz at {v:.0} m/s (wavelengths \
+                     down to {wavelength:.0} m), too close to the band's top {hi} Hz; the low \
+                     edge is kept at {:.2} Hz and geology may leak into the coupling",
+                    0.8 * hi
+                ));
+                band[0] = 0.8 * hi;
+            } else {
+                band[0] = edge;
+            }
+        }
+    }
+    Ok(estimate::Settings {
+        band_hz: band,
+        drift_order: c.drift_order as usize,
+        rate_hz: rate,
+        quadratic: c.quadratic,
+        min_significance: c.min_significance,
     })
 }
 

@@ -217,6 +217,9 @@ pub fn process_units(
                 ""
             }
         ));
+        for note in &r.calibration_notes {
+            log.warn(&format!("{name}: {note}"));
+        }
         log.info(&format!(
             "{name}: {} samples; {}",
             r.time.len(),

@@ -136,19 +136,12 @@ pub fn observability(
         t[5] = k;
         rows.push(t);
     }
-    let mut ata = vec![vec![0.0; n]; n];
-    for r in &rows {
-        for i in 0..n {
-            for j in 0..n {
-                ata[i][j] += r[i] * r[j];
-            }
-        }
-    }
-    let (vals, vecs) = jacobi_eigen(ata);
-    let vmax = vals.iter().cloned().fold(0.0_f64, f64::max);
+    // Singular vectors of the rows themselves (not of AᵀA, whose condition number is squared).
+    let d = crate::lstsq::svd(&rows, n);
+    let smax = d.sigma.iter().cloned().fold(0.0_f64, f64::max);
     let null: Vec<Vec<f64>> = (0..n)
-        .filter(|&k| vals[k] <= 1e-10 * vmax.max(1e-300))
-        .map(|k| (0..n).map(|i| vecs[i][k]).collect())
+        .filter(|&k| d.sigma[k] <= crate::lstsq::RANK_TOLERANCE * smax.max(1e-300))
+        .map(|k| (0..n).map(|i| d.v[i][k]).collect())
         .collect();
     let observed = (0..n)
         .map(|i| {
@@ -193,7 +186,6 @@ fn describe_combination(v: &[f64]) -> String {
     out
 }
 
-/// Eigen-decomposition of a small symmetric matrix by cyclic Jacobi rotations (Golub & Van Loan,
 /// A least-squares operator: unknowns = P·y, with the unknowns it determines.
 pub struct Operator {
     /// k × rows: unknowns = P·y.
@@ -202,35 +194,25 @@ pub struct Operator {
     pub observed: Vec<bool>,
 }
 
-/// The pseudo-inverse of A (rows × k) from the eigenvectors of AᵀA (minimum-norm in the blind
-/// directions, which are reported as unobserved).
+/// The pseudo-inverse of A (rows × k) from A's singular value decomposition
+/// ([`crate::lstsq::svd`], on A itself, so the condition number is not squared): minimum-norm in
+/// the blind directions (singular values below [`crate::lstsq::RANK_TOLERANCE`] of the largest),
+/// which are reported as unobserved.
 pub fn pseudo_inverse(rows: &[Vec<f64>], k: usize) -> Operator {
-    let mut n = vec![vec![0.0; k]; k];
-    for r in rows {
-        for i in 0..k {
-            for j in 0..k {
-                n[i][j] += r[i] * r[j];
-            }
-        }
-    }
-    let (vals, vecs) = jacobi_eigen(n);
-    let vmax = vals.iter().cloned().fold(0.0f64, f64::max);
+    let d = crate::lstsq::svd(rows, k);
+    let smax = d.sigma.iter().cloned().fold(0.0f64, f64::max);
     let keep: Vec<usize> = (0..k)
-        .filter(|&e| vals[e] > 1e-10 * vmax.max(1e-300))
+        .filter(|&e| d.sigma[e] > crate::lstsq::RANK_TOLERANCE * smax.max(1e-300))
         .collect();
-    // N⁺ = Σ v vᵀ / λ over kept eigenpairs; P = N⁺ Aᵀ.
-    let mut ninv = vec![vec![0.0; k]; k];
-    for &e in &keep {
-        for i in 0..k {
-            for j in 0..k {
-                ninv[i][j] += vecs[i][e] * vecs[j][e] / vals[e];
-            }
-        }
-    }
+    // P = V·Σ⁺·Uᵀ over the kept singular triplets.
     let p = (0..k)
         .map(|i| {
-            rows.iter()
-                .map(|r| (0..k).map(|j| ninv[i][j] * r[j]).sum())
+            (0..rows.len())
+                .map(|r| {
+                    keep.iter()
+                        .map(|&e| d.v[i][e] * d.u[r][e] / d.sigma[e])
+                        .sum()
+                })
                 .collect()
         })
         .collect();
@@ -238,7 +220,7 @@ pub fn pseudo_inverse(rows: &[Vec<f64>], k: usize) -> Operator {
         .map(|i| {
             let leak: f64 = (0..k)
                 .filter(|e| !keep.contains(e))
-                .map(|e| vecs[i][e] * vecs[i][e])
+                .map(|e| d.v[i][e] * d.v[i][e])
                 .sum();
             leak < 1e-12
         })
@@ -246,6 +228,7 @@ pub fn pseudo_inverse(rows: &[Vec<f64>], k: usize) -> Operator {
     Operator { p, observed }
 }
 
+/// Eigen-decomposition of a small symmetric matrix by cyclic Jacobi rotations (Golub & Van Loan,
 /// "Matrix Computations", §8.5). Returns eigenvalues and the matrix whose columns are eigenvectors.
 pub fn jacobi_eigen(mut a: Vec<Vec<f64>>) -> (Vec<f64>, Vec<Vec<f64>>) {
     let n = a.len();

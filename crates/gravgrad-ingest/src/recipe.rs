@@ -117,6 +117,18 @@ pub struct Calibration {
     pub band_hz: [f64; 2],
     /// Polynomial order of the drift in time.
     pub drift_order: u32,
+    /// Also estimate the accelerometers' quadratic and cross-axis terms (products of the specific
+    /// force's components), where the data resolve them.
+    pub quadratic: bool,
+    /// A coefficient is applied only when its estimate exceeds this many standard errors; below,
+    /// it is held at its prior (the calibration file's value, else zero).
+    pub min_significance: f64,
+    /// Shortest wavelength of the geology, m: the band's low edge is raised, flight by flight, to
+    /// the median line speed over this wavelength, so that the fit does not take geology for
+    /// motion coupling. Absent: 2.5 × the median clearance over the lines when the log has a
+    /// `clearance` column, else 250 m.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub geology_wavelength_m: Option<f64>,
 }
 
 impl Default for Calibration {
@@ -126,6 +138,9 @@ impl Default for Calibration {
             file: None,
             band_hz: [0.05, 1.0],
             drift_order: 1,
+            quadratic: true,
+            min_significance: 4.0,
+            geology_wavelength_m: None,
         }
     }
 }
@@ -397,6 +412,21 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
         p.push(Problem::error(
             loc("calibration.band_hz"),
             format!("[{lo}, {hi}] is not a band: expected 0 < low < high (Hz)"),
+        ));
+    }
+    let z = r.calibration.min_significance;
+    if !(z.is_finite() && (1.0..=100.0).contains(&z)) {
+        p.push(Problem::error(
+            loc("calibration.min_significance"),
+            format!("{z} standard errors: expected a number from 1 to 100"),
+        ));
+    }
+    if let Some(w) = r.calibration.geology_wavelength_m
+        && !(w.is_finite() && (1.0..=1e5).contains(&w))
+    {
+        p.push(Problem::error(
+            loc("calibration.geology_wavelength_m"),
+            format!("{w} m: expected a wavelength from 1 m to 100 km"),
         ));
     }
     if r.calibration.drift_order > 5 {
