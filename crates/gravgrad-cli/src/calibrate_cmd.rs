@@ -119,7 +119,15 @@ pub fn run(args: &CalibrateArgs, log: &Log) -> u8 {
         .unwrap_or_default();
     for ((name, r), path) in p.names.iter().zip(&p.results).zip(target_paths(&p, args)) {
         let file = CalibrationFile::new(name, band, &r.calibration);
-        let text = report(name, &file, &baselines);
+        let mut text = report(name, &file, &baselines);
+        if !r.calibration_notes.is_empty() || !r.calibration_held.is_empty() {
+            text.push_str(
+                "\nwhat the flight could not determine (applied at the prior instead):\n",
+            );
+            for line in r.calibration_held.iter().chain(&r.calibration_notes) {
+                let _ = writeln!(text, "  {line}");
+            }
+        }
         let report_path = path.with_extension("report.txt");
         if let Err(e) =
             write_text(&path, &file.to_toml()).and_then(|_| write_text(&report_path, &text))

@@ -302,6 +302,7 @@ pub fn read(path: &Path, key: &str) -> Result<Stored, String> {
             .filter(|t| !t.is_empty())
             .map(|t| t.lines().map(String::from).collect())
             .unwrap_or_default(),
+        calibration_held: Vec::new(),
         timings: Vec::new(),
     })))
 }

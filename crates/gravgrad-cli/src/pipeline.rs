@@ -171,6 +171,9 @@ pub struct FlightResult {
     /// What the calibration held at its prior, dropped or bridged, one line each, for the log and
     /// QC (empty: every term the model has was determined and applied).
     pub calibration_notes: Vec<String>,
+    /// Each term held at its prior, with the reason and the estimate (not kept by the flight
+    /// store: empty for a reused flight).
+    pub calibration_held: Vec<String>,
     /// Wall time of each stage, s.
     pub timings: Vec<(&'static str, f64)>,
 }
@@ -388,21 +391,39 @@ pub fn process_flight(
     };
     // Block means formed already: the pair outputs are not read again here.
     let fitted_cal = blocks.map(|b| estimate_from_blocks(&data, &b, &settings, stored.as_deref()));
+    let mut held_lines = Vec::new();
     let cals: Option<Vec<PairCalibration>> = fitted_cal.map(|fc| {
+        let prior = if stored.is_some() {
+            "the file's value"
+        } else {
+            "zero"
+        };
+        // One line per fitted series for the log; one per term for the report.
+        let mut summary: Vec<(String, Vec<String>)> = Vec::new();
         for (series, h) in &fc.health.held {
-            notes.push(format!(
-                "calibration of {series}: {} held at {} — {}{}",
+            held_lines.push(format!(
+                "{series}: {} held at {prior} — {}{}",
                 h.term,
-                if stored.is_some() {
-                    "the file's value"
-                } else {
-                    "zero"
-                },
                 h.reason,
                 h.estimate.map_or(String::new(), |e| format!(
                     " (estimate {:.3e} ± {:.1e})",
                     e.value, e.std_error
                 ))
+            ));
+            match summary.iter_mut().find(|(s, _)| s == series) {
+                Some((_, terms)) => terms.push(h.term.clone()),
+                None => summary.push((series.clone(), vec![h.term.clone()])),
+            }
+        }
+        if !summary.is_empty() {
+            notes.push(format!(
+                "calibration terms held at {prior} (not resolved, or below {} standard errors): {}",
+                settings.min_significance,
+                summary
+                    .iter()
+                    .map(|(s, t)| format!("{s} [{}]", t.join(", ")))
+                    .collect::<Vec<_>>()
+                    .join("; ")
             ));
         }
         fc.pairs
@@ -511,6 +532,7 @@ pub fn process_flight(
         alpha_source,
         calibration,
         calibration_notes: notes,
+        calibration_held: held_lines,
         timings,
     })
 }
