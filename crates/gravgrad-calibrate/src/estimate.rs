@@ -251,7 +251,7 @@ fn regress(columns: &[Vec<f64>], y: &[f64]) -> Vec<Coefficient> {
 /// refitted while that ratio is below `min_z`, for the columns not listed in `always` (e.g. the
 /// bias). Standard errors come from the residual variance and the inverse normal matrix, inflated
 /// by n/n_eff (Bretherton et al. 1999), n_eff from the full model's residual.
-fn regress_with(
+pub(crate) fn regress_with(
     normal: &Normal,
     columns: &[Vec<f64>],
     y: &[f64],
@@ -326,6 +326,28 @@ fn regress_with(
         diag.iter().map(|d| (var * d * inflation).sqrt()).collect()
     };
     let mut se = sigma(&active, &beta, &diag);
+    // With fewer than three degrees of freedom the residual says nothing of the errors: every
+    // tested term is held.
+    if n < active.len() + 3 {
+        let tested: Vec<usize> = active
+            .iter()
+            .copied()
+            .filter(|c| !always.contains(c))
+            .collect();
+        for c in tested {
+            held.push(HeldTerm {
+                term: names[c].clone(),
+                estimate: None,
+                reason: format!(
+                    "too few samples to test it ({n} for {} terms)",
+                    active.len()
+                ),
+            });
+            active.retain(|x| *x != c);
+        }
+        (beta, diag) = solve(&active);
+        se = sigma(&active, &beta, &diag);
+    }
     loop {
         let weakest = active
             .iter()
@@ -706,6 +728,42 @@ pub(crate) fn fit_with(
         },
         held,
     )
+}
+
+impl Design {
+    /// The line samples (indices into the block or sample series) the whole-band fit uses.
+    pub(crate) fn line_rows(&self) -> &[usize] {
+        &self.line_rows
+    }
+
+    /// Bias and self-gradient refitted to `rest` (on [`Self::line_rows`]) from which drift and
+    /// temperature are already taken off: the bias always, the self-gradient where significant.
+    pub(crate) fn refit_level(
+        &self,
+        rest: &[f64],
+        min_z: f64,
+    ) -> (Coefficient, Option<[Coefficient; 2]>, Vec<HeldTerm>) {
+        let pick: Vec<usize> = self
+            .whole_names
+            .iter()
+            .enumerate()
+            .filter(|(_, n)| *n == "bias" || n.starts_with("self-gradient"))
+            .map(|(i, _)| i)
+            .collect();
+        let columns: Vec<Vec<f64>> = pick
+            .iter()
+            .map(|&i| self.whole_columns[i].clone())
+            .collect();
+        let names: Vec<String> = pick.iter().map(|&i| self.whole_names[i].clone()).collect();
+        let fit = regress_with(&Normal::of(&columns), &columns, rest, &names, &[0], min_z);
+        let sg = self.has_self_gradient.then(|| {
+            [
+                fit.coefs[fit.coefs.len() - 2],
+                fit.coefs[fit.coefs.len() - 1],
+            ]
+        });
+        (fit.coefs[0], sg, fit.held)
+    }
 }
 
 /// Columns (t − t_mid)^p, p = 0 … order.

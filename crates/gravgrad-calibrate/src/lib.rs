@@ -16,6 +16,7 @@
 pub mod apply;
 pub mod bandpass;
 pub mod channels;
+pub mod crossings;
 pub mod estimate;
 pub mod file;
 pub mod joint;

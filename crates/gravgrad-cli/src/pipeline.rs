@@ -379,6 +379,11 @@ pub fn process_flight(
     };
     let alpha_source = alpha_source(recipe, &instrument.pairs);
     let f: [&[f64]; 3] = [&f_common[0], &f_common[1], &f_common[2]];
+    let crossings = if fitted {
+        flight_crossings(flight, &pos, time, recipe.level.first_tie_line)
+    } else {
+        Vec::new()
+    };
     let data = FlightData {
         samples,
         f,
@@ -388,6 +393,7 @@ pub fn process_flight(
         usable: Some(&usable),
         relative_attitude: relative.as_ref().map(|r| [&r[0][..], &r[1][..]]),
         alpha_from_pairs: alpha_source == AlphaSource::Pairs,
+        crossings: Some(&crossings),
     };
     // Block means formed already: the pair outputs are not read again here.
     let fitted_cal = blocks.map(|b| estimate_from_blocks(&data, &b, &settings, stored.as_deref()));
@@ -535,6 +541,42 @@ pub fn process_flight(
         calibration_held: held_lines,
         timings,
     })
+}
+
+/// Where the flight's survey lines cross its tie lines (line number at least `first_tie`): the
+/// nearest sample of each pass, survey first. Positions in the map frame, m.
+fn flight_crossings(
+    flight: &LoadedFlight,
+    pos: &Positions,
+    time: &[f64],
+    first_tie: i64,
+) -> Vec<(usize, usize)> {
+    let zeros = vec![0.0; time.len()];
+    let track = |s: &gravgrad_ingest::segment::Segment| gravgrad_lines::crossover::Track {
+        time_s: &time[s.start..s.end],
+        x_m: &pos.easting_m[s.start..s.end],
+        y_m: &pos.northing_m[s.start..s.end],
+        value: &zeros[s.start..s.end],
+    };
+    let (survey, ties): (Vec<_>, Vec<_>) = flight
+        .lines
+        .iter()
+        .filter(|s| s.end <= time.len() && s.end > s.start + 1)
+        .partition(|s| s.line < first_tie);
+    let st: Vec<_> = survey.iter().map(|s| track(s)).collect();
+    let tt: Vec<_> = ties.iter().map(|s| track(s)).collect();
+    let Ok(found) = gravgrad_lines::crossover::find_crossovers(&st, &tt) else {
+        return Vec::new();
+    };
+    found
+        .iter()
+        .map(|c| {
+            (
+                survey[c.survey].start + c.survey_position.round() as usize,
+                ties[c.tie].start + c.tie_position.round() as usize,
+            )
+        })
+        .collect()
 }
 
 /// The calibration settings for one flight: the recipe's, with the band's low edge raised to the
