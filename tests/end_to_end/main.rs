@@ -1,6 +1,7 @@
 //! End-to-end tests: run the real `gravgrad` binary on files and read what it prints and returns.
 
 mod batch;
+mod calibration;
 mod commands;
 mod corpus;
 mod interrupt;

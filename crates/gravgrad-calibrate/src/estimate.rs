@@ -736,18 +736,20 @@ impl Design {
         &self.line_rows
     }
 
-    /// Bias and self-gradient refitted to `rest` (on [`Self::line_rows`]) from which drift and
-    /// temperature are already taken off: the bias always, the self-gradient where significant.
+    /// Bias and (with `self_gradient`) self-gradient refitted to `rest` (on [`Self::line_rows`])
+    /// from which drift and temperature are already taken off: the bias always, the self-gradient
+    /// where significant.
     pub(crate) fn refit_level(
         &self,
         rest: &[f64],
+        self_gradient: bool,
         min_z: f64,
     ) -> (Coefficient, Option<[Coefficient; 2]>, Vec<HeldTerm>) {
         let pick: Vec<usize> = self
             .whole_names
             .iter()
             .enumerate()
-            .filter(|(_, n)| *n == "bias" || n.starts_with("self-gradient"))
+            .filter(|(_, n)| *n == "bias" || (self_gradient && n.starts_with("self-gradient")))
             .map(|(i, _)| i)
             .collect();
         let columns: Vec<Vec<f64>> = pick
@@ -756,7 +758,7 @@ impl Design {
             .collect();
         let names: Vec<String> = pick.iter().map(|&i| self.whole_names[i].clone()).collect();
         let fit = regress_with(&Normal::of(&columns), &columns, rest, &names, &[0], min_z);
-        let sg = self.has_self_gradient.then(|| {
+        let sg = (self_gradient && self.has_self_gradient).then(|| {
             [
                 fit.coefs[fit.coefs.len() - 2],
                 fit.coefs[fit.coefs.len() - 1],

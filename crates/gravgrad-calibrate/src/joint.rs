@@ -431,10 +431,18 @@ pub fn estimate_from_blocks(
     // prediction of its α content) and −r_p.
     let (design, targets) = rayon::join(
         || {
-            fixed.is_none().then(|| {
-                let products = if s.quadratic { pb.as_ref() } else { None };
-                Design::new(&block_series(&tb), false, products.map(|p| (p, f0)), s)
-            })
+            // With a file, the design serves the drift from crossings and the bias refit only.
+            let products = if s.quadratic && fixed.is_none() {
+                pb.as_ref()
+            } else {
+                None
+            };
+            Some(Design::new(
+                &block_series(&tb),
+                false,
+                products.map(|p| (p, f0)),
+                s,
+            ))
         },
         || {
             // û_j = Σ_p P_jp·z_p, whole series at a time (vectorised), terms added in pair order.
@@ -524,9 +532,11 @@ pub fn estimate_from_blocks(
             }
             None => Vec::new(),
         };
-        // Each tensor row with its coupling and quadratic parts taken off.
+        // Each tensor row with its coupling and quadratic parts taken off (with a file, they came
+        // off with the file's other fixed parts already).
         let rest: Vec<Vec<f64>> = (0..6)
             .map(|j| match &fitted[j] {
+                Some(_) if fixed.is_some() => targets[j].clone(),
                 Some((c, _)) => targets[j]
                     .iter()
                     .enumerate()
@@ -545,11 +555,17 @@ pub fn estimate_from_blocks(
         let t_mid = fitted[0].as_ref().map_or(0.0, |x| x.0.t_mid);
         let temp_mean = fitted[0].as_ref().map_or(0.0, |x| x.0.temperature_mean);
         let half_window = (0.5 * s.rate_hz).ceil() as usize;
+        // A file's temperature term is the calibration flight's: not refitted here.
+        let temp_fit = if fixed.is_some() {
+            None
+        } else {
+            temp_b.as_deref().map(|t| (t, temp_mean))
+        };
         let cf = crate::crossings::fit_drift(
             &r6,
             &tb,
             t_mid,
-            temp_b.as_deref().map(|t| (t, temp_mean)),
+            temp_fit,
             usable_b.as_deref(),
             s.drift_order,
             &crossings,
@@ -565,7 +581,7 @@ pub fn estimate_from_blocks(
                 let why = format!(
                     "{} crossings of survey and tie lines in the flight ({} needed): left to levelling",
                     crossings.len(),
-                    2 + s.drift_order + usize::from(temp_b.is_some())
+                    2 + s.drift_order + usize::from(temp_fit.is_some())
                 );
                 let zero = Coefficient {
                     value: 0.0,
@@ -573,7 +589,7 @@ pub fn estimate_from_blocks(
                 };
                 let comp = crate::crossings::ComponentDrift {
                     drift: vec![zero; s.drift_order],
-                    temperature: temp_b.as_ref().map(|_| zero),
+                    temperature: temp_fit.map(|_| zero),
                 };
                 let mut held = Vec::new();
                 for name in &UNKNOWNS[..6] {
@@ -587,7 +603,7 @@ pub fn estimate_from_blocks(
                             },
                         ));
                     }
-                    if temp_b.is_some() {
+                    if temp_fit.is_some() {
                         held.push((
                             name.to_string(),
                             HeldTerm {
@@ -629,15 +645,17 @@ pub fn estimate_from_blocks(
                     v
                 })
                 .collect();
-            let (bias, sg, held_level) = g.refit_level(&level, s.min_significance);
+            let (bias, sg, held_level) = g.refit_level(&level, fixed.is_none(), s.min_significance);
             held.extend(held_level);
             c.polynomial = std::iter::once(bias)
                 .chain(comp.drift.iter().copied())
                 .collect();
-            if c.temperature.is_some() {
-                c.temperature = comp.temperature;
+            if fixed.is_none() {
+                if c.temperature.is_some() {
+                    c.temperature = comp.temperature;
+                }
+                c.self_gradient = sg;
             }
-            c.self_gradient = sg;
             held.extend(
                 held_x
                     .iter()
