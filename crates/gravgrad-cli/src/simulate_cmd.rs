@@ -10,7 +10,7 @@ use gravgrad_core::units::EOTVOS;
 use gravgrad_grid::geotiff::{WriteOptions, write_geotiff};
 use gravgrad_ingest::tomlfile;
 use gravgrad_sim::scenario::Scenario;
-use gravgrad_sim::simulate::{Simulation, simulate};
+use gravgrad_sim::simulate::{FlightLog, Simulation, simulate};
 use std::path::{Path, PathBuf};
 
 #[derive(Args, Debug)]
@@ -93,16 +93,29 @@ fn write_all(
     log: &Log,
 ) -> Result<(), String> {
     let name = slug(&s.name);
-    // Raw flight logs, one per flight: layout columns plus `line`.
+    // Raw flight logs, one per flight: layout columns plus `line`; the calibration flight last.
     let flights = out.join("flights");
-    for (k, log_k) in sim.flights.iter().enumerate() {
+    let mut logs: Vec<(String, &FlightLog, bool)> = sim
+        .flights
+        .iter()
+        .enumerate()
+        .map(|(k, f)| (format!("{name}-f{:02}", k + 1), f, false))
+        .collect();
+    if let Some(c) = &sim.calibration {
+        logs.push((format!("{name}-cal"), &c.log, true));
+    }
+    for (stem, log_k, _) in &logs {
+        // A missing temperature (NaN) is an empty cell in CSV, which the reader takes as missing
+        // in an optional channel.
         let mut cols: Vec<(&str, Column<'_>)> = log_k
             .columns
             .iter()
-            .map(|(n, v)| (n.as_str(), Column::F64(v)))
+            .map(|(n, v)| match n.as_str() {
+                "temp" => (n.as_str(), Column::F64Blank(v)),
+                _ => (n.as_str(), Column::F64(v)),
+            })
             .collect();
         cols.push(("line", Column::I64(&log_k.line)));
-        let stem = format!("{name}-f{:02}", k + 1);
         write_parquet(&flights.join(format!("{stem}.parquet")), &cols)
             .map_err(|e| e.to_string())?;
         write_csv(
@@ -114,7 +127,7 @@ fn write_all(
     }
     log.info(&format!(
         "{} raw flight log(s) written (Parquet and CSV)",
-        sim.flights.len()
+        logs.len()
     ));
 
     // Instrument file.
@@ -145,19 +158,58 @@ fn write_all(
     write_geotiff(&raster, &out.join("dem.tif"), &WriteOptions::default())
         .map_err(|e| e.to_string())?;
 
-    // Recipe that processes the survey.
-    let recipe = format!(
-        "# Processes the simulated survey `{}` (seed {}).\nlayout = \"recipe/1\"\n\n[survey]\nname = \"{}\"\nprojection = \"EPSG:{}\"\n\n[input]\nflights = [\"flights/*.parquet\"]\n\n[instrument]\npath = \"instrument.toml\"\n\n[terrain]\ndem = \"dem.tif\"\ndensity_kg_m3 = {:?}\nmargin_m = {:?}\n\n[level]\nfirst_tie_line = {}\n\n[grid]\ncell_m = {:?}\n",
-        s.name,
-        s.seed,
-        s.name,
-        sim.projection.epsg(),
-        s.terrain.density_kg_m3,
-        s.terrain.margin_m,
-        s.plan.first_tie,
-        s.plan.line_spacing_m / 4.0
+    // Recipe that processes the survey. With a calibration flight, the survey recipe reads the
+    // survey flights only (`-fNN`), the calibration recipe the calibration flight only, and a third
+    // recipe processes the survey with the calibration estimated from the calibration flight.
+    let head = format!(
+        "# Processes the simulated survey `{}` (seed {}).\n",
+        s.name, s.seed
     );
-    write_text(&out.join("recipe.toml"), &recipe)?;
+    match &sim.calibration {
+        None => write_text(
+            &out.join("recipe.toml"),
+            &recipe(s, sim, &head, "flights/*.parquet", ""),
+        )?,
+        Some(_) => {
+            let survey_glob = format!("flights/{name}-f*.parquet");
+            write_text(
+                &out.join("recipe.toml"),
+                &recipe(s, sim, &head, &survey_glob, ""),
+            )?;
+            let cal_head = format!(
+                "# Estimates the calibration of the simulated survey `{}` (seed {}) from its \
+                 calibration flight:\n# `gravgrad calibrate recipe-calibration.toml` writes \
+                 calibration.toml.\n",
+                s.name, s.seed
+            );
+            write_text(
+                &out.join("recipe-calibration.toml"),
+                &recipe(
+                    s,
+                    sim,
+                    &cal_head,
+                    &format!("flights/{name}-cal.parquet"),
+                    "[calibration]\nmode = \"estimate\"\nfile = \"calibration.toml\"\n\n",
+                ),
+            )?;
+            let with_head = format!(
+                "# Processes the simulated survey `{}` (seed {}) with the calibration that \
+                 recipe-calibration.toml estimates\n# from the calibration flight (run \
+                 `gravgrad calibrate recipe-calibration.toml` first).\n",
+                s.name, s.seed
+            );
+            write_text(
+                &out.join("recipe-with-calibration.toml"),
+                &recipe(
+                    s,
+                    sim,
+                    &with_head,
+                    &survey_glob,
+                    "[calibration]\nmode = \"file\"\nfile = \"calibration.toml\"\n\n",
+                ),
+            )?;
+        }
+    }
 
     // Truth along the path (NED, Eötvös) and on the grid (map frame, Eötvös).
     let t = &sim.truth;
@@ -248,11 +300,80 @@ fn write_all(
         )
         .map_err(|e| e.to_string())?;
     }
+    write_text(
+        &out.join("truth/calibration.toml"),
+        &calibration_truth(s, sim, &logs),
+    )?;
     let scenario_text = std::fs::read_to_string(scenario_path)
         .map_err(|e| format!("{}: {e}", scenario_path.display()))?;
     write_text(&out.join("truth/scenario.toml"), &scenario_text)?;
-    log.info("truth written (truth/lines.parquet, truth/grid.parquet)");
+    log.info("truth written (truth/lines.parquet, truth/grid.parquet, truth/calibration.toml)");
     Ok(())
+}
+
+/// A recipe for the simulated survey: `head` (comment lines), the flights `flights` (a file or glob)
+/// and `calibration` (a `[calibration]` section or nothing).
+fn recipe(s: &Scenario, sim: &Simulation, head: &str, flights: &str, calibration: &str) -> String {
+    format!(
+        "{head}layout = \"recipe/1\"\n\n[survey]\nname = \"{}\"\nprojection = \"EPSG:{}\"\n\n[input]\nflights = [\"{flights}\"]\n\n[instrument]\npath = \"instrument.toml\"\n\n{calibration}[terrain]\ndem = \"dem.tif\"\ndensity_kg_m3 = {:?}\nmargin_m = {:?}\n\n[level]\nfirst_tie_line = {}\n\n[grid]\ncell_m = {:?}\n",
+        s.name,
+        sim.projection.epsg(),
+        s.terrain.density_kg_m3,
+        s.terrain.margin_m,
+        s.plan.first_tie,
+        s.plan.line_spacing_m / 4.0
+    )
+}
+
+/// `truth/calibration.toml` (layout `calibration-truth/1`, docs/formats.md): the injected pair-level
+/// calibration of every flight, the calibration flight last.
+fn calibration_truth(
+    s: &Scenario,
+    sim: &Simulation,
+    logs: &[(String, &FlightLog, bool)],
+) -> String {
+    let text = |v: &str| toml::Value::String(v.to_string()).to_string();
+    let mut t = format!(
+        "# The calibration injected into each flight's pairs (difference a − b, to first order): what \
+         an estimator\n# should recover. Layout: docs/formats.md.\nlayout = \"calibration-truth/1\"\n\
+         scenario = {}\nseed = {}\nlinear_errors = \"{}\"\n",
+        text(&s.name),
+        s.seed,
+        if s.linear_errors_per_instrument() {
+            "per_instrument"
+        } else {
+            "per_flight"
+        }
+    );
+    for (stem, f, is_calibration) in logs {
+        t.push_str(&format!(
+            "\n[[flight]]\nname = {}\ncalibration_flight = {}\ntime_ref_s = {:?}\ntemperature_ref_c = {:?}\n",
+            text(stem),
+            is_calibration,
+            f.time_ref_s,
+            f.temperature_ref_c
+        ));
+        for (p, e) in sim.pairs.iter().zip(&f.pair_errors) {
+            let q = e.quadratic;
+            t.push_str(&format!(
+                "\n[[flight.pair]]\nid = {}\nkappa = [{:?}, {:?}, {:?}]\nbias_m_s2 = {:?}\ndrift_m_s2_per_s = {:?}\ntemperature_m_s2_per_c = {:?}\nquadratic = [{:?}, {:?}, {:?}, {:?}, {:?}, {:?}]\n",
+                text(&p.id),
+                e.kappa[0],
+                e.kappa[1],
+                e.kappa[2],
+                e.bias,
+                e.drift,
+                e.tempco,
+                q[0],
+                q[1],
+                q[2],
+                q[3],
+                q[4],
+                q[5]
+            ));
+        }
+    }
+    t
 }
 
 fn write_text(path: &Path, text: &str) -> Result<(), String> {

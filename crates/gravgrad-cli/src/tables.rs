@@ -16,12 +16,14 @@ use std::sync::Arc;
 pub enum Column<'a> {
     F64(&'a [f64]),
     I64(&'a [i64]),
+    /// Float64 whose NaN (a missing value) is an empty cell in CSV; in Parquet, NaN as in `F64`.
+    F64Blank(&'a [f64]),
 }
 
 impl Column<'_> {
     fn len(&self) -> usize {
         match self {
-            Column::F64(v) => v.len(),
+            Column::F64(v) | Column::F64Blank(v) => v.len(),
             Column::I64(v) => v.len(),
         }
     }
@@ -91,7 +93,7 @@ pub fn write_parquet_with_metadata(
     let fields: Vec<String> = columns
         .iter()
         .map(|(name, c)| match c {
-            Column::F64(_) => format!("REQUIRED DOUBLE {name};"),
+            Column::F64(_) | Column::F64Blank(_) => format!("REQUIRED DOUBLE {name};"),
             Column::I64(_) => format!("REQUIRED INT64 {name};"),
         })
         .collect();
@@ -123,10 +125,9 @@ pub fn write_parquet_with_metadata(
             for (_, c) in columns {
                 if let Some(mut col) = rg.next_column().map_err(|e| e.to_string())? {
                     match c {
-                        Column::F64(v) => {
-                            col.typed::<DoubleType>()
-                                .write_batch(&v[start..end], None, None)
-                        }
+                        Column::F64(v) | Column::F64Blank(v) => col
+                            .typed::<DoubleType>()
+                            .write_batch(&v[start..end], None, None),
                         Column::I64(v) => {
                             col.typed::<Int64Type>()
                                 .write_batch(&v[start..end], None, None)
@@ -162,6 +163,8 @@ pub fn write_csv(
                 }
                 match c {
                     Column::F64(v) => text.push_str(&format!("{}", v[i])),
+                    Column::F64Blank(v) if v[i].is_nan() => {}
+                    Column::F64Blank(v) => text.push_str(&format!("{}", v[i])),
                     Column::I64(v) => text.push_str(&format!("{}", v[i])),
                 }
             }

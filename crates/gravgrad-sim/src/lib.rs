@@ -3,6 +3,7 @@
 //! This crate returns data; the binary writes the files. Work in progress (issue 4): the scenario,
 //! path, terrain, truth and instrument model are here; file output and scoring follow.
 
+pub mod calflight;
 pub mod flights;
 pub mod noise;
 pub mod path;

@@ -27,6 +27,11 @@ pub struct Track {
     pub line: Vec<i64>,
     /// Planned drape height (terrain + clearance), m.
     pub drape: Vec<f64>,
+    /// Heading of the aircraft (and of the platform that follows it) minus the ground track, rad,
+    /// from a yaw manoeuvre (sideslip); empty on survey paths (no sideslip).
+    pub sideslip: Vec<f64>,
+    /// Its rate of change, rad/s; empty with `sideslip`.
+    pub sideslip_rate: Vec<f64>,
 }
 
 impl Track {
@@ -43,8 +48,19 @@ impl Track {
             accel: self.accel[r.clone()].to_vec(),
             velocity: self.velocity[r.clone()].to_vec(),
             line: self.line[r.clone()].to_vec(),
-            drape: self.drape[r].to_vec(),
+            drape: self.drape[r.clone()].to_vec(),
+            sideslip: optional(&self.sideslip, r.clone()),
+            sideslip_rate: optional(&self.sideslip_rate, r),
         }
+    }
+}
+
+/// The samples `r` of a series that may be empty (empty stays empty).
+fn optional(v: &[f64], r: std::ops::Range<usize>) -> Vec<f64> {
+    if v.is_empty() {
+        Vec::new()
+    } else {
+        v[r].to_vec()
     }
 }
 
@@ -99,7 +115,7 @@ pub fn legs(plan: &Plan) -> Vec<Leg> {
 }
 
 /// A curve segment of the path, parametrised by u ∈ [0, 1].
-enum Piece {
+pub(crate) enum Piece {
     Straight {
         a: [f64; 2],
         b: [f64; 2],
@@ -115,7 +131,7 @@ enum Piece {
 }
 
 impl Piece {
-    fn hermite(p0: [f64; 2], t0: [f64; 2], p1: [f64; 2], t1: [f64; 2]) -> Self {
+    pub(crate) fn hermite(p0: [f64; 2], t0: [f64; 2], p1: [f64; 2], t1: [f64; 2]) -> Self {
         let mut piece = Piece::Hermite {
             p0,
             t0,
@@ -142,7 +158,7 @@ impl Piece {
         piece
     }
 
-    fn length(&self) -> f64 {
+    pub(crate) fn length(&self) -> f64 {
         match self {
             Piece::Straight { a, b, .. } => norm([b[0] - a[0], b[1] - a[1]]),
             Piece::Hermite { table, .. } => table.last().map_or(0.0, |x| x.1),
@@ -150,7 +166,7 @@ impl Piece {
     }
 
     /// Position, first and second derivative with respect to u.
-    fn eval(&self, u: f64) -> ([f64; 2], [f64; 2], [f64; 2]) {
+    pub(crate) fn eval(&self, u: f64) -> ([f64; 2], [f64; 2], [f64; 2]) {
         match self {
             Piece::Straight { a, b, .. } => {
                 let d = [b[0] - a[0], b[1] - a[1]];
@@ -189,7 +205,7 @@ impl Piece {
     }
 
     /// The parameter u at arc length s.
-    fn u_at(&self, s: f64) -> f64 {
+    pub(crate) fn u_at(&self, s: f64) -> f64 {
         match self {
             Piece::Straight { .. } => (s / self.length().max(1e-12)).clamp(0.0, 1.0),
             Piece::Hermite { table, .. } => {
@@ -213,7 +229,7 @@ impl Piece {
     }
 }
 
-fn norm(v: [f64; 2]) -> f64 {
+pub(crate) fn norm(v: [f64; 2]) -> f64 {
     (v[0] * v[0] + v[1] * v[1]).sqrt()
 }
 

@@ -29,6 +29,90 @@ pub struct Scenario {
     /// One line flown badly on purpose (absent: every line flown to plan).
     #[serde(default)]
     pub badly_flown: Option<BadlyFlown>,
+    /// A calibration flight flown after the survey (absent: none).
+    #[serde(default)]
+    pub calibration_flight: Option<CalibrationFlight>,
+}
+
+impl Scenario {
+    /// Whether scale, misalignment and temperature coefficient are drawn once for the instrument:
+    /// as `instrument.linear_errors` says, else so when there is a calibration flight.
+    pub fn linear_errors_per_instrument(&self) -> bool {
+        match self.instrument.linear_errors {
+            Some(LinearErrors::PerInstrument) => true,
+            Some(LinearErrors::PerFlight) => false,
+            None => self.calibration_flight.is_some(),
+        }
+    }
+}
+
+/// A manoeuvre flown on a leg of the calibration flight.
+#[derive(Clone, Copy, Debug, Deserialize, PartialEq, Eq)]
+#[serde(rename_all = "lowercase")]
+pub enum Manoeuvre {
+    /// Bank oscillation: the path weaves sideways in coordinated flight (lateral acceleration).
+    Roll,
+    /// Pitch oscillation: the path weaves up and down (vertical acceleration).
+    Pitch,
+    /// Heading oscillation about a straight path (sideslip): rotation about the vertical.
+    Yaw,
+    /// One climb and descent over the leg.
+    Climb,
+    /// Speed oscillation along the path (along-track acceleration).
+    Surge,
+}
+
+/// A calibration flight: straight legs at several headings around the survey area, each carrying
+/// one manoeuvre, flown at a constant height above the mean ground; the survey's speed, sample
+/// rate and turn rate, the same instrument and logged channels.
+#[derive(Clone, Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct CalibrationFlight {
+    /// Height above the mean ground (`area.ground_height_m`), m.
+    pub altitude_m: f64,
+    /// Headings of the legs, degrees clockwise from grid north, flown in this order for each
+    /// manoeuvre.
+    pub headings_deg: Vec<f64>,
+    /// Manoeuvres, one after the other; each flown once on every heading.
+    pub manoeuvres: Vec<Manoeuvre>,
+    /// Duration of a leg, s.
+    pub leg_s: f64,
+    /// Period of the roll, pitch, yaw and surge oscillations, s (rounded so that a leg holds a
+    /// whole number of periods).
+    pub period_s: f64,
+    pub roll_amplitude_deg: f64,
+    pub pitch_amplitude_deg: f64,
+    pub yaw_amplitude_deg: f64,
+    /// Highest rate of climb (and descent) of a climb leg, m/s.
+    pub climb_rate_m_s: f64,
+    /// Amplitude of the along-track acceleration of a surge leg, m/s².
+    pub surge_amplitude_m_s2: f64,
+    /// Line number of the first leg; the others follow in flying order.
+    pub first_line: i64,
+}
+
+impl Default for CalibrationFlight {
+    fn default() -> Self {
+        Self {
+            altitude_m: 1500.0,
+            headings_deg: vec![0.0, 90.0, 180.0, 270.0],
+            manoeuvres: vec![
+                Manoeuvre::Roll,
+                Manoeuvre::Pitch,
+                Manoeuvre::Yaw,
+                Manoeuvre::Climb,
+                Manoeuvre::Surge,
+            ],
+            leg_s: 60.0,
+            period_s: 8.0,
+            roll_amplitude_deg: 15.0,
+            pitch_amplitude_deg: 5.0,
+            yaw_amplitude_deg: 5.0,
+            climb_rate_m_s: 5.0,
+            surge_amplitude_m_s2: 2.0,
+            first_line: 7001,
+        }
+    }
 }
 
 /// A line flown badly on purpose, to rehearse the QC verdict: extra turbulence and a clearance held
@@ -264,6 +348,45 @@ pub struct InstrumentErrors {
     /// RMS of a constant offset per line and component, E (0 = none): a trace-free tensor in NED,
     /// drawn per line, added to what the instrument senses; written to `truth/line_offsets.csv`.
     pub line_offset_e_rms: f64,
+    /// Second-order coefficient K2 of each accelerometer, (m/s²)⁻¹: the output adds K2·(n·f)².
+    pub quadratic_rms_per_m_s2: f64,
+    /// Cross-axis coefficients K_u, K_v of each accelerometer, (m/s²)⁻¹: the output adds
+    /// K_u·(n·f)(u·f) + K_v·(n·f)(v·f), u and v the axes perpendicular to the input axis n.
+    pub cross_axis_rms_per_m_s2: f64,
+    /// Rise of the sensor temperature from each flight's start, °C per hour (on top of the wander).
+    pub temperature_ramp_c_h: f64,
+    /// What the log's `temp` column holds.
+    pub temperature_log: TemperatureLog,
+    /// Whether scale, misalignment and temperature coefficient are drawn afresh for every flight or
+    /// once for the instrument (absent: per flight, or per instrument with a calibration flight).
+    pub linear_errors: Option<LinearErrors>,
+}
+
+/// What the log's `temp` column holds.
+#[derive(Clone, Copy, Debug, Deserialize, PartialEq, Eq, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum TemperatureLog {
+    /// The sensor temperature.
+    #[default]
+    True,
+    /// The set-point of a thermostatted sensor, 31.0 °C on every row (the accelerometers still
+    /// feel the true temperature).
+    Constant,
+    /// The sensor temperature with short runs of missing values (NaN; empty cells in CSV).
+    Gaps,
+    /// No `temp` column.
+    Absent,
+}
+
+/// How often the linear accelerometer errors (scale, misalignment, temperature coefficient) are
+/// drawn.
+#[derive(Clone, Copy, Debug, Deserialize, PartialEq, Eq)]
+#[serde(rename_all = "snake_case")]
+pub enum LinearErrors {
+    /// Afresh for every flight, from the flight's own random streams.
+    PerFlight,
+    /// Once for the instrument, from streams of their own: the same in every flight.
+    PerInstrument,
 }
 
 impl Default for InstrumentErrors {
@@ -288,6 +411,11 @@ impl Default for InstrumentErrors {
             attitude_noise_deg: 0.005,
             self_gradient_e: 0.0,
             line_offset_e_rms: 0.0,
+            quadratic_rms_per_m_s2: 0.0,
+            cross_axis_rms_per_m_s2: 0.0,
+            temperature_ramp_c_h: 0.0,
+            temperature_log: TemperatureLog::True,
+            linear_errors: None,
         }
     }
 }
@@ -313,6 +441,11 @@ impl InstrumentErrors {
             attitude_noise_deg: 0.0,
             self_gradient_e: 0.0,
             line_offset_e_rms: 0.0,
+            quadratic_rms_per_m_s2: 0.0,
+            cross_axis_rms_per_m_s2: 0.0,
+            temperature_ramp_c_h: self.temperature_ramp_c_h,
+            temperature_log: self.temperature_log,
+            linear_errors: self.linear_errors,
         }
     }
 }

@@ -5,10 +5,11 @@
 //! Frames: the truth is in NED (local north/east metres, heights above the ellipsoid), the instrument
 //! in the sensor frame; accelerations m/s², rates rad/s, tensors s⁻², angles in the log in degrees.
 
+use crate::calflight::{self, CalibrationLeg};
 use crate::flights;
 use crate::noise::{self, Rng};
 use crate::path::{self, Track};
-use crate::scenario::{LAYOUT, Scenario};
+use crate::scenario::{CalibrationFlight, LAYOUT, Scenario, TemperatureLog};
 use crate::terrain::{self, Dem, Surface};
 use gravgrad_core::SymTensor;
 use gravgrad_core::attitude::Attitude;
@@ -132,6 +133,18 @@ pub struct Simulation {
     /// The injected offset of each line (NED, s⁻²), in flying order; empty without
     /// `instrument.line_offset_e_rms`.
     pub line_offsets: Vec<(i64, SymTensor)>,
+    /// The calibration flight, when the scenario has one.
+    pub calibration: Option<CalibrationRun>,
+}
+
+/// The calibration flight: its log, path and truth (samples of its own, not those of `truth`).
+#[derive(Clone, Debug)]
+pub struct CalibrationRun {
+    pub log: FlightLog,
+    pub track: Track,
+    pub truth: Truth,
+    /// Its legs in flying order, with their manoeuvres and line numbers.
+    pub legs: Vec<CalibrationLeg>,
 }
 
 /// The raw log of one flight.
@@ -145,6 +158,13 @@ pub struct FlightLog {
     pub first_sample: usize,
     /// The injected errors of each pair's difference a − b in this flight, in the order of `pairs`.
     pub pair_errors: Vec<PairErrors>,
+    /// The injected errors of each pair's accelerometers (a, b) in this flight, in the order of
+    /// `pairs`.
+    pub accelerometers: Vec<[AccelerometerErrors; 2]>,
+    /// GPS time of the first sample, s: the bias is its value then, the drift counts from it.
+    pub time_ref_s: f64,
+    /// T0 of the temperature term: the sensor's true temperature at the first sample, °C.
+    pub temperature_ref_c: f64,
 }
 
 impl Simulation {
@@ -168,8 +188,35 @@ impl FlightLog {
     }
 }
 
+/// The injected errors of one accelerometer in one flight. Its output is
+/// a = (1 + ε)(n + δ)·f + β + β̇·t + τ·(T − T0) + K2·(n′·f)² + K_u·(n′·f)(u·f) + K_v·(n′·f)(v·f) +
+/// noise, with n′ = n + δ the misaligned input axis and f the specific force at the accelerometer
+/// (the second-order and cross-coupling terms after IEEE Std 1293-2018).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct AccelerometerErrors {
+    /// ε, dimensionless.
+    pub scale: f64,
+    /// δ, perpendicular to the nominal axis, sensor frame (rad).
+    pub misalignment: Vec3,
+    /// β, m/s², at the flight's first sample.
+    pub bias: f64,
+    /// β̇, m/s² per second from the flight's first sample.
+    pub drift: f64,
+    /// τ, m/s² per °C.
+    pub tempco: f64,
+    /// K2, (m/s²)⁻¹.
+    pub quadratic: f64,
+    /// K_u and K_v, (m/s²)⁻¹.
+    pub cross_u: f64,
+    pub cross_v: f64,
+    /// u and v: unit axes perpendicular to the nominal axis and to each other (sensor frame).
+    pub u_axis: Vec3,
+    pub v_axis: Vec3,
+}
+
 /// The injected errors of one pair's difference d = a − b, to first order:
-/// d = κ·f(O) + Δβ + Δβ̇·t + Δτ·(T − T0) + … (`docs/physics.md`).
+/// d = κ·f(O) + Δβ + Δβ̇·t + Δτ·(T − T0) + Q(f(O)) + … (`docs/physics.md`), t from the flight's first
+/// sample, T0 the sensor temperature there ([`FlightLog::temperature_ref_c`]).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct PairErrors {
     /// κ = (1 + ε_a)(n + δ_a) − (1 + ε_b)(n + δ_b), sensor frame, dimensionless.
@@ -180,6 +227,10 @@ pub struct PairErrors {
     pub drift: f64,
     /// Δτ, m/s² per °C.
     pub tempco: f64,
+    /// Q(f) = q_xx·fx² + q_yy·fy² + q_zz·fz² + q_xy·fx·fy + q_xz·fx·fz + q_yz·fy·fz: the quadratic
+    /// form of the difference in the sensor-frame specific force at the sensor origin, to first
+    /// order, [q_xx, q_yy, q_zz, q_xy, q_xz, q_yz], (m/s²)⁻¹.
+    pub quadratic: [f64; 6],
 }
 
 /// The scenario's UTM projection (the zone of its origin, southern when the origin is) and the grid
@@ -302,6 +353,166 @@ fn validate(s: &Scenario) -> Result<(), SimError> {
             return Err(SimError::Pair(id.clone()));
         }
     }
+    let ie = &s.instrument;
+    let not_negative = [
+        (
+            "instrument.quadratic_rms_per_m_s2",
+            ie.quadratic_rms_per_m_s2,
+        ),
+        (
+            "instrument.cross_axis_rms_per_m_s2",
+            ie.cross_axis_rms_per_m_s2,
+        ),
+    ];
+    for (key, value) in not_negative {
+        if !(value.is_finite() && value >= 0.0) {
+            return Err(SimError::Value {
+                key,
+                value,
+                what: "expected an RMS of zero or more",
+            });
+        }
+    }
+    if !ie.temperature_ramp_c_h.is_finite() {
+        return Err(SimError::Value {
+            key: "instrument.temperature_ramp_c_h",
+            value: ie.temperature_ramp_c_h,
+            what: "expected a finite rate",
+        });
+    }
+    if let Some(cf) = &s.calibration_flight {
+        validate_calibration_flight(s, cf)?;
+    }
+    Ok(())
+}
+
+fn validate_calibration_flight(s: &Scenario, cf: &CalibrationFlight) -> Result<(), SimError> {
+    let within = |key: &'static str, value: f64, lo: f64, hi: f64, what: &'static str| {
+        if value.is_finite() && (lo..=hi).contains(&value) {
+            Ok(())
+        } else {
+            Err(SimError::Value { key, value, what })
+        }
+    };
+    within(
+        "calibration_flight.altitude_m",
+        cf.altitude_m,
+        300.0,
+        10_000.0,
+        "expected 300 to 10 000 m above the ground",
+    )?;
+    within(
+        "calibration_flight.period_s",
+        cf.period_s,
+        8.0 / s.plan.sample_rate_hz,
+        600.0,
+        "expected a period of at least 8 samples and at most 600 s",
+    )?;
+    within(
+        "calibration_flight.leg_s",
+        cf.leg_s,
+        2.0 * cf.period_s,
+        3600.0,
+        "expected at least two periods (2 × period_s) and at most an hour",
+    )?;
+    within(
+        "calibration_flight.roll_amplitude_deg",
+        cf.roll_amplitude_deg,
+        0.0,
+        45.0,
+        "expected a bank of 0 to 45 degrees",
+    )?;
+    within(
+        "calibration_flight.pitch_amplitude_deg",
+        cf.pitch_amplitude_deg,
+        0.0,
+        10.0,
+        "expected a pitch of 0 to 10 degrees",
+    )?;
+    within(
+        "calibration_flight.yaw_amplitude_deg",
+        cf.yaw_amplitude_deg,
+        0.0,
+        10.0,
+        "expected a heading swing of 0 to 10 degrees",
+    )?;
+    within(
+        "calibration_flight.climb_rate_m_s",
+        cf.climb_rate_m_s,
+        0.0,
+        15.0,
+        "expected a rate of climb of 0 to 15 m/s",
+    )?;
+    within(
+        "calibration_flight.surge_amplitude_m_s2",
+        cf.surge_amplitude_m_s2,
+        0.0,
+        5.0,
+        "expected an along-track acceleration of 0 to 5 m/s²",
+    )?;
+    // What the amplitudes mean at this speed and period (the leg's period is rounded to whole
+    // periods, `calflight::periods_per_leg`).
+    let v = s.plan.speed_m_s;
+    let omega = 2.0 * std::f64::consts::PI * calflight::periods_per_leg(cf) as f64 / cf.leg_s;
+    within(
+        "calibration_flight.pitch_amplitude_deg",
+        cf.pitch_amplitude_deg,
+        0.0,
+        (0.5 * 9.81 / (v * omega)).min(1.0).asin().to_degrees(),
+        "at this speed and period the vertical acceleration would exceed half of g",
+    )?;
+    within(
+        "calibration_flight.surge_amplitude_m_s2",
+        cf.surge_amplitude_m_s2,
+        0.0,
+        0.25 * v * omega,
+        "at this period the speed would swing by more than a quarter of plan.speed_m_s",
+    )?;
+    if cf.headings_deg.is_empty() || cf.headings_deg.iter().any(|h| !h.is_finite()) {
+        return Err(SimError::Value {
+            key: "calibration_flight.headings_deg",
+            value: cf.headings_deg.len() as f64,
+            what: "expected one or more finite headings (degrees)",
+        });
+    }
+    if cf.manoeuvres.is_empty() {
+        return Err(SimError::Value {
+            key: "calibration_flight.manoeuvres",
+            value: 0.0,
+            what: "expected one or more manoeuvres",
+        });
+    }
+    // Consecutive legs in flying order (the headings repeat for each manoeuvre) must turn.
+    let seq: Vec<f64> = cf
+        .manoeuvres
+        .iter()
+        .flat_map(|_| cf.headings_deg.iter().copied())
+        .collect();
+    for w in seq.windows(2) {
+        let d = (w[1] - w[0]).rem_euclid(360.0);
+        if d.min(360.0 - d) < 30.0 {
+            return Err(SimError::Value {
+                key: "calibration_flight.headings_deg",
+                value: w[1],
+                what: "consecutive legs (the headings repeat for each manoeuvre) must differ \
+                       in heading by 30 degrees or more",
+            });
+        }
+    }
+    let n_legs = seq.len() as i64;
+    let first = cf.first_line;
+    let overlaps = |a: i64, count: i64| count > 0 && first < a + count && a < first + n_legs;
+    if first <= 0
+        || overlaps(s.plan.first_line, s.plan.lines as i64)
+        || overlaps(s.plan.first_tie, s.plan.ties as i64)
+    {
+        return Err(SimError::Value {
+            key: "calibration_flight.first_line",
+            value: first as f64,
+            what: "expected a positive line number whose legs do not reuse the survey's line or \
+                   tie numbers",
+        });
+    }
     Ok(())
 }
 
@@ -326,44 +537,9 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
     let prisms = terrain::terrain_prisms(&dem, reference, s.terrain.density_kg_m3);
 
     // Local coordinates are UTM grid metres from the origin's projection (zone of the origin): the
-    // frame the DEM and the products use. Geodetic positions by the inverse projection; tensors
-    // computed in the grid frame are turned to true north by the meridian convergence γ.
+    // frame the DEM and the products use.
     let (tm, e0, n0) = map_origin(s)?;
-    let geo: Vec<(f64, f64, f64)> = (0..n)
-        .into_par_iter()
-        .map(|i| {
-            let (la, lo) = tm.inverse(e0 + track.east[i], n0 + track.north[i]);
-            let (_, _, gamma, _) = tm.forward(la, lo);
-            (la, lo, gamma)
-        })
-        .collect();
-    let lat: Vec<f64> = geo.iter().map(|g| g.0).collect();
-    let lon: Vec<f64> = geo.iter().map(|g| g.1).collect();
-    let gamma: Vec<f64> = geo.iter().map(|g| g.2).collect();
-    let to_true = |t: SymTensor, g: f64| t.rotated(&rz(g));
-
-    let points: Vec<[f64; 3]> = (0..n)
-        .map(|i| [track.north[i], track.east[i], track.height[i]])
-        .collect();
-    let terrain_t: Vec<SymTensor> = terrain::terrain_tensor(&prisms, &points)
-        .into_iter()
-        .zip(&gamma)
-        .map(|(t, g)| to_true(t, *g))
-        .collect();
-    let nf = NormalField::new(&GRS80);
-    let normal_t: Vec<SymTensor> = (0..n)
-        .into_par_iter()
-        .map(|i| nf.gravitational_tensor_ned(lat[i], track.height[i]))
-        .collect();
-    let geology_t: Vec<SymTensor> = points
-        .par_iter()
-        .zip(&gamma)
-        .map(|(p, g)| to_true(geology_tensor(s, [p[0], p[1], -p[2]]), *g))
-        .collect();
-    let gravity_n: Vec<[f64; 3]> = (0..n)
-        .into_par_iter()
-        .map(|i| nf.gravity_ned(lat[i], track.height[i]))
-        .collect();
+    let fields = path_fields(s, &track, &tm, [e0, n0], &prisms);
 
     let ie = &s.instrument;
     let pairs: Vec<PairGeometry> = ie
@@ -372,35 +548,56 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         .filter_map(|id| standard_pair(id, ie.baseline_m))
         .collect();
     let line_offsets = draw_line_offsets(&track.line, s.instrument.line_offset_e_rms, seed);
-
-    let truth = Truth {
-        north: track.north.clone(),
-        east: track.east.clone(),
-        height: track.height.clone(),
-        geology: geology_t,
-        terrain: terrain_t,
-        normal: normal_t,
-    };
+    let instrument = draw_instrument(s, &pairs);
 
     // The flights: the path cut in the transits between legs, each flight its own log.
     let ranges = flights::ranges(&track.line, &flights::leg_groups(&s.plan));
     let part = SurveyPart {
         s,
         track: &track,
-        lat: &lat,
-        lon: &lon,
-        gamma: &gamma,
-        gravity_n: &gravity_n,
-        truth: &truth,
+        fields: &fields,
         pairs: &pairs,
         line_offsets: &line_offsets,
         surface: &surface,
+        instrument: &instrument,
     };
     let logs: Vec<FlightLog> = ranges
         .iter()
         .enumerate()
-        .map(|(k, r)| flight_log(&part, k, r.clone()))
+        .map(|(k, r)| flight_log(&part, k, r.clone(), k as f64 * s.plan.flight_gap_s))
         .collect();
+
+    // The calibration flight, after the survey: a flight of its own (its own random streams, those
+    // of the flight after the last survey flight), over the middle of the surveyed area.
+    let calibration = match &s.calibration_flight {
+        None => None,
+        Some(cf) => {
+            let last = logs
+                .last()
+                .and_then(|f| f.column("time"))
+                .and_then(|t| t.last().copied())
+                .unwrap_or(s.area.start_time_s);
+            let start = last + 1.0 / rate + s.plan.flight_gap_s;
+            let centre = [0.5 * (nmin + nmax), 0.5 * (emin + emax)];
+            let height = s.area.ground_height_m + cf.altitude_m;
+            let cal_track = calflight::fly(cf, &s.plan, centre, height, start);
+            let cal_fields = path_fields(s, &cal_track, &tm, [e0, n0], &prisms);
+            let cal_part = SurveyPart {
+                track: &cal_track,
+                fields: &cal_fields,
+                ..part
+            };
+            let m = cal_track.time_s.len();
+            let log = flight_log(&cal_part, s.plan.flights, 0..m, 0.0);
+            Some(CalibrationRun {
+                log,
+                legs: calflight::legs(cf, &s.plan, centre),
+                track: cal_track,
+                truth: cal_fields.truth,
+            })
+        }
+    };
+    let truth = fields.truth;
 
     // Geology truth on a grid at the mean survey height over the surveyed area.
     let mean_h = track.height.iter().sum::<f64>() / n.max(1) as f64;
@@ -438,43 +635,183 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
             false_origin: [e0, n0],
         },
         line_offsets,
+        calibration,
     })
+}
+
+/// What the flights read along a path: geodetic positions (rad), the meridian convergence (rad),
+/// normal gravity (NED, m/s²) and the truth tensors.
+struct PathFields {
+    lat: Vec<f64>,
+    lon: Vec<f64>,
+    gamma: Vec<f64>,
+    gravity_n: Vec<[f64; 3]>,
+    truth: Truth,
+}
+
+/// The fields along `track`: geodetic positions by the inverse projection, tensors computed in the
+/// grid frame turned to true north by the meridian convergence γ.
+fn path_fields(
+    s: &Scenario,
+    track: &Track,
+    tm: &TransverseMercator,
+    origin: [f64; 2],
+    prisms: &[Prism],
+) -> PathFields {
+    let n = track.time_s.len();
+    let [e0, n0] = origin;
+    let geo: Vec<(f64, f64, f64)> = (0..n)
+        .into_par_iter()
+        .map(|i| {
+            let (la, lo) = tm.inverse(e0 + track.east[i], n0 + track.north[i]);
+            let (_, _, gamma, _) = tm.forward(la, lo);
+            (la, lo, gamma)
+        })
+        .collect();
+    let lat: Vec<f64> = geo.iter().map(|g| g.0).collect();
+    let lon: Vec<f64> = geo.iter().map(|g| g.1).collect();
+    let gamma: Vec<f64> = geo.iter().map(|g| g.2).collect();
+    let to_true = |t: SymTensor, g: f64| t.rotated(&rz(g));
+
+    let points: Vec<[f64; 3]> = (0..n)
+        .map(|i| [track.north[i], track.east[i], track.height[i]])
+        .collect();
+    let terrain_t: Vec<SymTensor> = terrain::terrain_tensor(prisms, &points)
+        .into_iter()
+        .zip(&gamma)
+        .map(|(t, g)| to_true(t, *g))
+        .collect();
+    let nf = NormalField::new(&GRS80);
+    let normal_t: Vec<SymTensor> = (0..n)
+        .into_par_iter()
+        .map(|i| nf.gravitational_tensor_ned(lat[i], track.height[i]))
+        .collect();
+    let geology_t: Vec<SymTensor> = points
+        .par_iter()
+        .zip(&gamma)
+        .map(|(p, g)| to_true(geology_tensor(s, [p[0], p[1], -p[2]]), *g))
+        .collect();
+    let gravity_n: Vec<[f64; 3]> = (0..n)
+        .into_par_iter()
+        .map(|i| nf.gravity_ned(lat[i], track.height[i]))
+        .collect();
+    PathFields {
+        lat,
+        lon,
+        gamma,
+        gravity_n,
+        truth: Truth {
+            north: track.north.clone(),
+            east: track.east.clone(),
+            height: track.height.clone(),
+            geology: geology_t,
+            terrain: terrain_t,
+            normal: normal_t,
+        },
+    }
 }
 
 /// What the per-flight part of the simulation reads from the survey-wide part: the path, its
 /// geodetic positions and convergence, the normal gravity, the truth, the pairs and line offsets.
+#[derive(Clone, Copy)]
 struct SurveyPart<'a> {
     s: &'a Scenario,
     track: &'a Track,
-    lat: &'a [f64],
-    lon: &'a [f64],
-    gamma: &'a [f64],
-    gravity_n: &'a [[f64; 3]],
-    truth: &'a Truth,
+    fields: &'a PathFields,
     pairs: &'a [PairGeometry],
     line_offsets: &'a [(i64, SymTensor)],
     surface: &'a Surface,
+    /// The instrument's own errors, per pair and accelerometer (a, b).
+    instrument: &'a [[InstrumentDraw; 2]],
+}
+
+/// First stream of the errors drawn once for the instrument (`draw_instrument`): above every
+/// per-flight stream (`flights::STREAMS_PER_FLIGHT` × flight + x) of any plausible survey.
+const INSTRUMENT_STREAMS: u64 = 1 << 40;
+
+/// Errors of one accelerometer that belong to the instrument, not to a flight: drawn once, the same
+/// in every flight. Scale, misalignment and temperature coefficient replace the per-flight draws
+/// only when the scenario asks for linear errors per instrument.
+#[derive(Clone, Copy, Debug)]
+struct InstrumentDraw {
+    quadratic: f64,
+    cross_u: f64,
+    cross_v: f64,
+    scale: f64,
+    misalign: Vec3,
+    tempco: f64,
+}
+
+/// Two unit axes perpendicular to `axis` and to each other: the directions of misalignment and
+/// of the cross-axis terms.
+fn perpendicular_axes(axis: &Vec3) -> (Vec3, Vec3) {
+    let any = if axis[0].abs() < 0.9 {
+        [1.0, 0.0, 0.0]
+    } else {
+        [0.0, 1.0, 0.0]
+    };
+    let u = unit(mat3::cross(axis, &any));
+    let v = mat3::cross(axis, &u);
+    (u, v)
+}
+
+/// The instrument's own errors, one stream per accelerometer (stream `INSTRUMENT_STREAMS` + 2k + j
+/// for pair k, accelerometer j), drawn in the order K2, K_u, K_v, scale, two misalignment angles,
+/// temperature coefficient.
+fn draw_instrument(s: &Scenario, pairs: &[PairGeometry]) -> Vec<[InstrumentDraw; 2]> {
+    let ie = &s.instrument;
+    pairs
+        .iter()
+        .enumerate()
+        .map(|(k, p)| {
+            std::array::from_fn(|j| {
+                let mut r = Rng::new(s.seed, INSTRUMENT_STREAMS + 2 * k as u64 + j as u64);
+                let (u, v) = perpendicular_axes(&p.axis);
+                let quadratic = ie.quadratic_rms_per_m_s2 * r.normal();
+                let cross_u = ie.cross_axis_rms_per_m_s2 * r.normal();
+                let cross_v = ie.cross_axis_rms_per_m_s2 * r.normal();
+                let scale = ie.scale_rms * r.normal();
+                let (m1, m2) = (
+                    ie.misalignment_rms_rad * r.normal(),
+                    ie.misalignment_rms_rad * r.normal(),
+                );
+                InstrumentDraw {
+                    quadratic,
+                    cross_u,
+                    cross_v,
+                    scale,
+                    misalign: std::array::from_fn(|c| m1 * u[c] + m2 * v[c]),
+                    tempco: ie.temperature_coefficient_rms_m_s2_c * r.normal(),
+                }
+            })
+        })
+        .collect()
 }
 
 /// The log of flight `flight` (0-based), the path samples `range`: platform motion, turbulence,
 /// instrument and navigation errors drawn afresh for the flight (its own random streams, its own
-/// biases, drifts and temperature), time shifted by the ground time between flights.
-fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> FlightLog {
+/// biases, drifts and temperature), time shifted by `time_shift_s` (the ground time between
+/// flights).
+fn flight_log(
+    part: &SurveyPart<'_>,
+    flight: usize,
+    range: Range<usize>,
+    time_shift_s: f64,
+) -> FlightLog {
     let s = part.s;
     let seed = s.seed;
     let rate = s.plan.sample_rate_hz;
     let first_sample = range.start;
-    let track = &part
-        .track
-        .slice(range.clone(), flight as f64 * s.plan.flight_gap_s);
+    let track = &part.track.slice(range.clone(), time_shift_s);
     let n = track.time_s.len();
+    let f = part.fields;
     let (lat, lon, gamma) = (
-        &part.lat[range.clone()],
-        &part.lon[range.clone()],
-        &part.gamma[range.clone()],
+        &f.lat[range.clone()],
+        &f.lon[range.clone()],
+        &f.gamma[range.clone()],
     );
-    let gravity_n = &part.gravity_n[range.clone()];
-    let total: Vec<SymTensor> = range.map(|i| part.truth.total(i)).collect();
+    let gravity_n = &f.gravity_n[range.clone()];
+    let total: Vec<SymTensor> = range.map(|i| f.truth.total(i)).collect();
     let (pairs, line_offsets, surface) = (part.pairs, part.line_offsets, part.surface);
     // Flight 0 draws from the streams a single-flight survey always used.
     let stream = |x: u64| x + flights::STREAMS_PER_FLIGHT * flight as u64;
@@ -537,8 +874,12 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
                 ang[k] -= a[k] * arg.cos() / (2.0 * std::f64::consts::PI * f);
             }
         }
-        // True heading = grid track + convergence + crab.
-        let heading = (track.track_deg[i] + s.dynamics.crab_deg).to_radians() + gamma[i] + ang[2];
+        // True heading = grid track + convergence + crab (+ sideslip of a yaw manoeuvre).
+        let mut heading =
+            (track.track_deg[i] + s.dynamics.crab_deg).to_radians() + gamma[i] + ang[2];
+        if let Some(b) = track.sideslip.get(i) {
+            heading += b;
+        }
         let a = Attitude {
             roll: ang[0],
             pitch: ang[1],
@@ -549,11 +890,14 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
         let (vn, ve) = (v_true[0], v_true[1]);
         let (sl, cl) = lat[i].sin_cos();
         let h = track.height[i];
-        let w_n = [
+        let mut w_n = [
             GRS80.omega * cl + ve / (r_n(lat[i]) + h),
             -vn / (r_m(lat[i]) + h),
             -GRS80.omega * sl - ve * sl / cl / (r_n(lat[i]) + h) + track.track_rate[i],
         ];
+        if let Some(rate_b) = track.sideslip_rate.get(i) {
+            w_n[2] += rate_b;
+        }
         let w_s = mat3::mul_vec(&mat3::transpose(&c), &w_n);
         omega.push([w_s[0] + w_res[0], w_s[1] + w_res[1], w_s[2] + w_res[2]]);
         att.push(a);
@@ -578,16 +922,21 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
     let temp_rng = &mut Rng::new(seed, stream(20));
     let temperature: Vec<f64> = {
         let slow = noise::gauss_markov(temp_rng, n, ie.temperature_swing_c, 600.0, rate);
-        slow.iter().map(|v| 31.0 + v).collect()
+        if ie.temperature_ramp_c_h != 0.0 {
+            let per_sample = ie.temperature_ramp_c_h / 3600.0 / rate;
+            slow.iter()
+                .enumerate()
+                .map(|(i, v)| 31.0 + v + per_sample * i as f64)
+                .collect()
+        } else {
+            slow.iter().map(|v| 31.0 + v).collect()
+        }
     };
     let t0 = temperature.first().copied().unwrap_or(31.0);
+    let per_instrument = s.linear_errors_per_instrument();
 
     struct Acc {
-        scale: f64,
-        misalign: Vec3,
-        bias: f64,
-        drift: f64,
-        tempco: f64,
+        e: AccelerometerErrors,
         noise: Vec<f64>,
     }
     let accels: Vec<[Acc; 2]> = pairs
@@ -597,13 +946,7 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
             std::array::from_fn(|j| {
                 let mut r = Rng::new(seed, stream(100 + 2 * k as u64 + j as u64));
                 // Misalignment perpendicular to the axis.
-                let any = if p.axis[0].abs() < 0.9 {
-                    [1.0, 0.0, 0.0]
-                } else {
-                    [0.0, 1.0, 0.0]
-                };
-                let u = unit(mat3::cross(&p.axis, &any));
-                let v = mat3::cross(&p.axis, &u);
+                let (u, v) = perpendicular_axes(&p.axis);
                 let (m1, m2) = (
                     ie.misalignment_rms_rad * r.normal(),
                     ie.misalignment_rms_rad * r.normal(),
@@ -613,9 +956,9 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
                 for (a, b) in nz.iter_mut().zip(fl) {
                     *a += b;
                 }
-                Acc {
+                let mut e = AccelerometerErrors {
                     scale: ie.scale_rms * r.normal(),
-                    misalign: [
+                    misalignment: [
                         m1 * u[0] + m2 * v[0],
                         m1 * u[1] + m2 * v[1],
                         m1 * u[2] + m2 * v[2],
@@ -623,8 +966,18 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
                     bias: ie.bias_rms_m_s2 * r.normal(),
                     drift: ie.drift_rms_m_s2_h * r.normal() / 3600.0,
                     tempco: ie.temperature_coefficient_rms_m_s2_c * r.normal(),
-                    noise: nz,
+                    quadratic: 0.0,
+                    cross_u: 0.0,
+                    cross_v: 0.0,
+                    u_axis: u,
+                    v_axis: v,
+                };
+                let d = &part.instrument[k][j];
+                (e.quadratic, e.cross_u, e.cross_v) = (d.quadratic, d.cross_u, d.cross_v);
+                if per_instrument {
+                    (e.scale, e.misalignment, e.tempco) = (d.scale, d.misalign, d.tempco);
                 }
+                Acc { e, noise: nz }
             })
         })
         .collect();
@@ -632,14 +985,18 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
     let pair_errors: Vec<PairErrors> = pairs
         .iter()
         .zip(&accels)
-        .map(|(p, [ea, eb])| PairErrors {
-            kappa: std::array::from_fn(|k| {
-                (1.0 + ea.scale) * (p.axis[k] + ea.misalign[k])
-                    - (1.0 + eb.scale) * (p.axis[k] + eb.misalign[k])
-            }),
-            bias: ea.bias - eb.bias,
-            drift: ea.drift - eb.drift,
-            tempco: ea.tempco - eb.tempco,
+        .map(|(p, [a, b])| {
+            let (ea, eb) = (&a.e, &b.e);
+            PairErrors {
+                kappa: std::array::from_fn(|k| {
+                    (1.0 + ea.scale) * (p.axis[k] + ea.misalignment[k])
+                        - (1.0 + eb.scale) * (p.axis[k] + eb.misalignment[k])
+                }),
+                bias: ea.bias - eb.bias,
+                drift: ea.drift - eb.drift,
+                tempco: ea.tempco - eb.tempco,
+                quadratic: quadratic_form(&p.axis, ea, eb),
+            }
         })
         .collect();
 
@@ -679,6 +1036,7 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
     let ac_pitch: Vec<f64> = (0..n).map(|i| 2f64.to_radians() + gust_pitch[i]).collect();
 
     // Pair outputs.
+    let nonlinear = ie.quadratic_rms_per_m_s2 != 0.0 || ie.cross_axis_rms_per_m_s2 != 0.0;
     let mut pair_cols: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 2 * pairs.len()];
     let mut fs_all = Vec::with_capacity(n);
     for i in 0..n {
@@ -727,17 +1085,25 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
                 ];
                 let mr = mat3::mul_vec(&m, &r);
                 let f = [f_s[0] + mr[0], f_s[1] + mr[1], f_s[2] + mr[2]];
-                let e = &accels[k][j];
+                let (e, noise) = (&accels[k][j].e, &accels[k][j].noise);
                 let axis = [
-                    p.axis[0] + e.misalign[0],
-                    p.axis[1] + e.misalign[1],
-                    p.axis[2] + e.misalign[2],
+                    p.axis[0] + e.misalignment[0],
+                    p.axis[1] + e.misalignment[1],
+                    p.axis[2] + e.misalignment[2],
                 ];
-                let out = (1.0 + e.scale) * mat3::dot(&axis, &f)
+                let mut out = (1.0 + e.scale) * mat3::dot(&axis, &f)
                     + e.bias
                     + e.drift * t
                     + e.tempco * (temperature[i] - t0)
-                    + e.noise[i];
+                    + noise[i];
+                if nonlinear {
+                    // IEEE Std 1293-2018: second-order and cross-coupling terms of the input
+                    // (misaligned) axis with the two axes across it.
+                    let fi = mat3::dot(&axis, &f);
+                    out += e.quadratic * fi * fi
+                        + fi * (e.cross_u * mat3::dot(&e.u_axis, &f)
+                            + e.cross_v * mat3::dot(&e.v_axis, &f));
+                }
                 pair_cols[2 * k + j].push(out);
             }
         }
@@ -817,7 +1183,18 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
     for (k, name) in ["fx", "fy", "fz"].iter().enumerate() {
         columns.push((name.to_string(), accel[k].clone()));
     }
-    columns.push(("temp".into(), temperature.clone()));
+    match ie.temperature_log {
+        TemperatureLog::True => columns.push(("temp".into(), temperature.clone())),
+        TemperatureLog::Constant => columns.push(("temp".into(), vec![SET_POINT_C; n])),
+        TemperatureLog::Gaps => {
+            let mut logged = temperature.clone();
+            for i in gap_samples(&mut Rng::new(seed, stream(50)), n) {
+                logged[i] = f64::NAN;
+            }
+            columns.push(("temp".into(), logged));
+        }
+        TemperatureLog::Absent => {}
+    }
     columns.push((
         "clearance".into(),
         (0..n)
@@ -856,7 +1233,74 @@ fn flight_log(part: &SurveyPart<'_>, flight: usize, range: Range<usize>) -> Flig
         line: track.line.clone(),
         first_sample,
         pair_errors,
+        accelerometers: accels.iter().map(|[a, b]| [a.e, b.e]).collect(),
+        time_ref_s: track.time_s.first().copied().unwrap_or(0.0),
+        temperature_ref_c: t0,
     }
+}
+
+/// The set-point of the thermostatted sensor and the mean of its wandering temperature, °C.
+const SET_POINT_C: f64 = 31.0;
+
+/// Which samples of a temperature log of `n` rows are missing: about 1 % of them
+/// (round(n/100), at least one), in runs of 1 to 20 samples, the first run a single sample; every
+/// run has a logged sample on both sides (none touches another run or the ends of the log).
+/// Placement is by rejection (at most 100 000 tries), so a very short log may get fewer.
+pub fn gap_samples(r: &mut Rng, n: usize) -> Vec<usize> {
+    let mut missing = vec![false; n];
+    let target = ((n as f64) / 100.0).round().max(1.0) as usize;
+    let mut count = 0;
+    let mut tries = 0;
+    while count < target && tries < 100_000 && n >= 3 {
+        tries += 1;
+        let len = if count == 0 {
+            1
+        } else {
+            (1 + (r.uniform() * 20.0) as usize)
+                .min(20)
+                .min(target - count)
+        };
+        if len + 2 > n {
+            continue;
+        }
+        // Start in 1..=n−1−len, so both neighbours exist.
+        let start = 1 + (r.uniform() * (n - 1 - len) as f64) as usize;
+        let (lo, hi) = (start - 1, (start + len).min(n - 1));
+        if missing[lo..=hi].iter().any(|m| *m) {
+            continue;
+        }
+        missing[start..start + len]
+            .iter_mut()
+            .for_each(|m| *m = true);
+        count += len;
+    }
+    (0..n).filter(|&i| missing[i]).collect()
+}
+
+/// The quadratic form of the pair difference a − b in the specific force f (sensor frame), to first
+/// order: Σ over a (+) and b (−) of K2·(n·f)² + K_u·(n·f)(u·f) + K_v·(n·f)(v·f) with the nominal
+/// axis n, written as [q_xx, q_yy, q_zz, q_xy, q_xz, q_yz] for q_xx·fx² + … + q_xy·fx·fy + …, each
+/// product counted once, (m/s²)⁻¹.
+fn quadratic_form(n: &Vec3, a: &AccelerometerErrors, b: &AccelerometerErrors) -> [f64; 6] {
+    // Symmetric matrix Q with fᵀQf the form: K2·nnᵀ + K_u·sym(nuᵀ) + K_v·sym(nvᵀ), a less b.
+    let q = |x: usize, y: usize| -> f64 {
+        let one = |e: &AccelerometerErrors| {
+            e.quadratic * n[x] * n[y]
+                + 0.5 * e.cross_u * (n[x] * e.u_axis[y] + e.u_axis[x] * n[y])
+                + 0.5 * e.cross_v * (n[x] * e.v_axis[y] + e.v_axis[x] * n[y])
+        };
+        one(a) - one(b)
+    };
+    // + 0.0 turns a negative zero (of zero coefficients) into zero.
+    [
+        q(0, 0),
+        q(1, 1),
+        q(2, 2),
+        2.0 * q(0, 1),
+        2.0 * q(0, 2),
+        2.0 * q(1, 2),
+    ]
+    .map(|x| x + 0.0)
 }
 
 /// Raises the flown height of line `line` by `offset_m` above the drape plan, eased in and out with

@@ -353,3 +353,521 @@ fn flights_split_the_path_each_with_its_own_clock_and_errors() {
     let e = simulate(&s).unwrap_err().to_string();
     assert!(e.contains("plan.flights"), "{e}");
 }
+
+/// The SMALL scenario with every instrument error zero (noise-free, logged f and gyro rates exact).
+fn quiet_small() -> Scenario {
+    let mut s = scenario(SMALL);
+    s.instrument = s.instrument.perfect();
+    s
+}
+
+/// Pair outputs of every flight end to end, `<id>_a` then `<id>_b`.
+fn outputs(sim: &Simulation, id: &str) -> (Vec<f64>, Vec<f64>) {
+    (
+        sim.survey_column(&format!("{id}_a")).unwrap(),
+        sim.survey_column(&format!("{id}_b")).unwrap(),
+    )
+}
+
+#[test]
+fn second_order_term_is_k2_times_the_square_of_the_ideal_output() {
+    // IEEE Std 1293-2018 model: with no other error, an accelerometer's output is
+    // n·f + K2·(n·f)², and n·f is exactly what the same accelerometer outputs with K2 = 0 (the new
+    // coefficients come from random streams of their own, so nothing else changes). The check is
+    // at the float64 resolution of the outputs: fl(a + q) − a differs from q by at most ulp(a + q),
+    // and q = K2·a² carries a few roundings of its own: ε·(|a + q| + 4|q|).
+    let base = quiet_small();
+    let mut with_k2 = base.clone();
+    with_k2.instrument.quadratic_rms_per_m_s2 = 1e-4;
+    let (s0, s1) = (simulate(&base).unwrap(), simulate(&with_k2).unwrap());
+    let errors = &s1.flights[0].accelerometers;
+    let (mut largest, mut worst_rel_z) = (0.0f64, 0.0f64);
+    for (k, p) in s1.pairs.iter().enumerate() {
+        let ((a0, b0), (a1, b1)) = (outputs(&s0, &p.id), outputs(&s1, &p.id));
+        for (j, (ideal, with)) in [(&a0, &a1), (&b0, &b1)].into_iter().enumerate() {
+            let e = errors[k][j];
+            assert!(e.quadratic != 0.0 && e.cross_u == 0.0 && e.cross_v == 0.0);
+            for (x, y) in ideal.iter().zip(with) {
+                let q = e.quadratic * x * x;
+                let tol = f64::EPSILON * (y.abs() + 4.0 * q.abs());
+                assert!(
+                    ((y - x) - q).abs() <= tol,
+                    "{}{}: {} vs {q}",
+                    p.id,
+                    ["a", "b"][j],
+                    y - x
+                );
+                largest = largest.max(q.abs());
+                if p.axis[2] == 1.0 {
+                    worst_rel_z = worst_rel_z.max(((y - x) - q).abs() / q.abs());
+                }
+            }
+        }
+    }
+    eprintln!(
+        "K2 term up to {largest:.2e} m/s²; z accelerometers within {worst_rel_z:.1e} relative"
+    );
+    // The term is there (K2 ~ 1e-4 per m/s² on g² ≈ 96 m²/s⁴), and on the z axes it is exact to
+    // 1e-12 relative.
+    assert!(largest > 1e-3, "{largest}");
+    assert!(worst_rel_z < 1e-12, "{worst_rel_z}");
+}
+
+#[test]
+fn pair_difference_carries_the_truth_quadratic_form_of_the_logged_force() {
+    // The truth's `quadratic` coefficients applied to the logged specific force (fx fy fz, the
+    // force at the sensor origin) give the change of each pair difference that K2 and the
+    // cross-axis terms make, to first order. What first order leaves out: each accelerometer feels
+    // f(r) = f(O) + M·r (docs/physics.md) with M = Ω̇ + ΩΩ − G, so its term K·(n·f)(m·f) moves by at
+    // most ‖K‖·(2|f(O)|·|Mr| + |Mr|²); ‖M‖_F ≤ ‖G‖_F + √2·|ω|² + √2·|ω̇|, with G from the truth, ω
+    // from the (error-free) gyros and ω̇ by central differences of them. Plus float rounding of the
+    // four outputs, ε·Σ|a|. On line samples: the turns of this small plan reach several rad/s, where
+    // |Mr| is no longer small against f (survey data are the lines).
+    let base = quiet_small();
+    let mut nl = base.clone();
+    nl.instrument.quadratic_rms_per_m_s2 = 1e-4;
+    nl.instrument.cross_axis_rms_per_m_s2 = 1e-4;
+    let (s0, s1) = (simulate(&base).unwrap(), simulate(&nl).unwrap());
+    let f = &s1.flights[0];
+    let (fx, fy, fz) = (
+        f.column("fx").unwrap(),
+        f.column("fy").unwrap(),
+        f.column("fz").unwrap(),
+    );
+    let w: Vec<[f64; 3]> = (0..fx.len())
+        .map(|i| {
+            [
+                f.column("wx").unwrap()[i],
+                f.column("wy").unwrap()[i],
+                f.column("wz").unwrap()[i],
+            ]
+        })
+        .collect();
+    let rate = s1.sample_rate_hz;
+    let norm = |v: [f64; 3]| (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt();
+    let (mut largest, mut worst_miss, mut widest) = (0.0f64, 0.0f64, 0.0f64);
+    for (k, p) in s1.pairs.iter().enumerate() {
+        let q = f.pair_errors[k].quadratic;
+        let e = f.accelerometers[k];
+        let ((a0, b0), (a1, b1)) = (outputs(&s0, &p.id), outputs(&s1, &p.id));
+        for i in (0..fx.len()).filter(|&i| s1.line[i] > 0) {
+            let (x, y, z) = (fx[i], fy[i], fz[i]);
+            // Written out from the layout in docs/formats.md: products counted once.
+            let form = q[0] * x * x
+                + q[1] * y * y
+                + q[2] * z * z
+                + q[3] * x * y
+                + q[4] * x * z
+                + q[5] * y * z;
+            let change = (a1[i] - b1[i]) - (a0[i] - b0[i]);
+            let (lo, hi) = (i.saturating_sub(1), (i + 1).min(fx.len() - 1));
+            let alpha =
+                std::array::from_fn(|c| (w[hi][c] - w[lo][c]) * rate / (hi - lo).max(1) as f64);
+            let g = s1.truth.total(i).to_matrix();
+            let g_f = g.iter().flatten().map(|v| v * v).sum::<f64>().sqrt();
+            let m = g_f + 2f64.sqrt() * (norm(w[i]).powi(2) + norm(alpha));
+            let f0 = norm([x, y, z]);
+            let mut bound = f64::EPSILON * (a0[i].abs() + b0[i].abs() + a1[i].abs() + b1[i].abs());
+            for (j, sign) in [(0usize, 0.5), (1usize, -0.5)] {
+                let r: [f64; 3] = std::array::from_fn(|c| p.center[c] + sign * p.baseline[c]);
+                let dr = m * norm(r);
+                let kk = e[j].quadratic.abs() + e[j].cross_u.abs() + e[j].cross_v.abs();
+                bound += kk * (2.0 * f0 * dr + dr * dr);
+            }
+            assert!(
+                (change - form).abs() <= bound,
+                "{} sample {i}: {change} vs {form} (bound {bound})",
+                p.id
+            );
+            largest = largest.max(form.abs());
+            worst_miss = worst_miss.max((change - form).abs());
+            widest = widest.max(bound);
+        }
+    }
+    eprintln!(
+        "quadratic form up to {largest:.2e} m/s², missed by at most {worst_miss:.1e} m/s² (bound \
+         up to {widest:.1e})"
+    );
+    // The form reaches 1e-2 m/s² and the bound stays below a thousandth of that (it is largest where
+    // the angular acceleration of a line's first and last seconds reaches 2e-3 rad/s²): a wrong
+    // coefficient (a product counted twice, a sign) would miss by the size of its term.
+    assert!(largest > 1e-3, "{largest}");
+    assert!(widest < 1e-3 * largest, "{widest}");
+}
+
+#[test]
+fn temperature_log_modes_change_only_the_temp_column() {
+    use gravgrad_sim::scenario::TemperatureLog;
+    let run = |mode: TemperatureLog| {
+        let mut s = scenario(SMALL);
+        s.instrument.temperature_log = mode;
+        s.instrument.temperature_coefficient_rms_m_s2_c = 1e-6; // so T shows in the outputs
+        simulate(&s).unwrap()
+    };
+    let truth = run(TemperatureLog::True);
+    let t_true = col(&truth, "temp").to_vec();
+    let n = t_true.len();
+    for mode in [
+        TemperatureLog::Constant,
+        TemperatureLog::Gaps,
+        TemperatureLog::Absent,
+    ] {
+        let sim = run(mode);
+        // Every other column, the pair outputs among them, is the same to the bit.
+        for (name, v) in &truth.flights[0].columns {
+            if name == "temp" {
+                continue;
+            }
+            let w = col(&sim, name);
+            assert!(
+                v.iter().zip(w).all(|(a, b)| a.to_bits() == b.to_bits()),
+                "{mode:?}: {name} changed"
+            );
+        }
+        let names = |s: &Simulation| -> Vec<String> {
+            s.flights[0]
+                .columns
+                .iter()
+                .map(|c| c.0.clone())
+                .filter(|c| c != "temp")
+                .collect()
+        };
+        assert_eq!(names(&sim), names(&truth));
+        let temp = sim.flights[0].column("temp");
+        match mode {
+            TemperatureLog::Constant => {
+                // The set-point of the thermostatted sensor (scenario reference).
+                assert!(temp.unwrap().iter().all(|t| *t == 31.0));
+                assert!(t_true.iter().any(|t| (t - 31.0).abs() > 0.01));
+            }
+            TemperatureLog::Absent => assert!(temp.is_none()),
+            TemperatureLog::Gaps => {
+                let temp = temp.unwrap();
+                // As designed (docs/scenario.md): round(n/100) missing rows in runs of 1 to 20, at
+                // least one run a single sample, each run between logged samples; the rest is the
+                // sensor temperature.
+                let missing: Vec<usize> = (0..n).filter(|&i| temp[i].is_nan()).collect();
+                assert_eq!(missing.len(), (n as f64 / 100.0).round() as usize);
+                assert!(!temp[0].is_nan() && !temp[n - 1].is_nan());
+                let mut runs = Vec::new();
+                let mut i = 0;
+                while i < n {
+                    if temp[i].is_nan() {
+                        let start = i;
+                        while i < n && temp[i].is_nan() {
+                            i += 1;
+                        }
+                        runs.push(i - start);
+                    }
+                    i += 1;
+                }
+                assert!(runs.iter().all(|r| (1..=20).contains(r)), "{runs:?}");
+                assert!(runs.contains(&1), "{runs:?}");
+                assert!(runs.len() >= 2, "{runs:?}");
+                for i in 0..n {
+                    if !temp[i].is_nan() {
+                        assert_eq!(temp[i].to_bits(), t_true[i].to_bits());
+                    }
+                }
+            }
+            TemperatureLog::True => unreachable!(),
+        }
+    }
+}
+
+#[test]
+fn temperature_ramp_adds_its_rate_times_elapsed_time() {
+    // T(t) = T_wander(t) + ramp·t, t from the flight's first sample; each accelerometer's output
+    // moves by τ·ramp·t (the error model, T0 the temperature at the first sample). Tolerances:
+    // float64 resolution of the values compared (ε per operand).
+    let mut s = quiet_small();
+    s.instrument.temperature_coefficient_rms_m_s2_c = 1e-6;
+    let mut ramped = s.clone();
+    ramped.instrument.temperature_ramp_c_h = 3.6;
+    let (a, b) = (simulate(&s).unwrap(), simulate(&ramped).unwrap());
+    let (ta, tb) = (col(&a, "temp"), col(&b, "temp"));
+    let rate = a.sample_rate_hz;
+    for i in 0..ta.len() {
+        let rise = 3.6 / 3600.0 * i as f64 / rate;
+        assert!(((tb[i] - ta[i]) - rise).abs() <= 4.0 * f64::EPSILON * tb[i].abs());
+    }
+    assert_eq!(
+        a.flights[0].temperature_ref_c,
+        b.flights[0].temperature_ref_c
+    );
+    let errors = &b.flights[0].accelerometers;
+    for (k, p) in b.pairs.iter().enumerate() {
+        let ((a0, _), (a1, _)) = (outputs(&a, &p.id), outputs(&b, &p.id));
+        let tau = errors[k][0].tempco;
+        for i in 0..a0.len() {
+            let want = tau * 3.6 / 3600.0 * i as f64 / rate;
+            let tol = 4.0 * f64::EPSILON * (a1[i].abs() + 31.0 * tau.abs());
+            assert!(((a1[i] - a0[i]) - want).abs() <= tol, "{} {i}", p.id);
+        }
+    }
+}
+
+/// SMALL with a calibration flight of 40 s legs (five whole 8 s periods), default manoeuvres.
+fn with_calibration_flight() -> Scenario {
+    scenario(&format!("{SMALL}\n[calibration_flight]\nleg_s = 40.0\n"))
+}
+
+#[test]
+fn calibration_flight_excites_every_sensor_axis_with_consistent_kinematics() {
+    use gravgrad_sim::scenario::Manoeuvre;
+    let s = with_calibration_flight();
+    let cf = s.calibration_flight.clone().unwrap();
+    let sim = simulate(&s).unwrap();
+    let cal = sim.calibration.as_ref().unwrap();
+    let (tr, log) = (&cal.track, &cal.log);
+    let rate = s.plan.sample_rate_hz;
+    let dt = 1.0 / rate;
+    let v = s.plan.speed_m_s;
+
+    // Legs: one per manoeuvre and heading, numbered from first_line in flying order, each
+    // leg_s long.
+    assert_eq!(cal.legs.len(), 20);
+    let mut seen: Vec<i64> = log.line.iter().copied().filter(|l| *l > 0).collect();
+    seen.dedup();
+    assert_eq!(seen, (7001..=7020).collect::<Vec<i64>>());
+    for (k, leg) in cal.legs.iter().enumerate() {
+        assert_eq!(leg.line, 7001 + k as i64);
+        assert_eq!(leg.manoeuvre, cf.manoeuvres[k / 4]);
+        assert!((leg.heading.to_degrees() - cf.headings_deg[k % 4]).abs() < 1e-9);
+        let count = log.line.iter().filter(|l| **l == leg.line).count();
+        assert!((count as f64 - cf.leg_s * rate).abs() <= 1.0, "{count}");
+    }
+    // After the survey: the ground time between flights, as between survey flights.
+    let survey_end = *sim.flights[0].column("time").unwrap().last().unwrap();
+    let t = log.column("time").unwrap();
+    assert!((t[0] - survey_end - dt - s.plan.flight_gap_s).abs() < 1e-6);
+    // At the altitude asked for above the mean ground.
+    let on_roll = |i: usize| log.line[i] > 0 && leg_of(cal, log.line[i]) == Manoeuvre::Roll;
+    let h = (0..tr.height.len()).find(|&i| on_roll(i)).unwrap();
+    assert!((tr.height[h] - s.area.ground_height_m - cf.altitude_m).abs() < 1e-9);
+
+    // Amplitudes on the legs' untapered middle (whole periods, one period of taper at each end):
+    // a coordinated bank φ turns with lateral acceleration g·tan φ (common textbook relation,
+    // g = 9.81 m/s²); a flight-path angle θ oscillating at ω climbs at v·sin θ and accelerates
+    // vertically by v·sin θ·ω; the highest climb rate is climb_rate_m_s. Samples reach a peak
+    // within half an interval, cos(ω·dt/2) ≥ 0.999 of it.
+    let n_periods = (cf.leg_s / cf.period_s).round();
+    let omega = 2.0 * std::f64::consts::PI * n_periods / cf.leg_s;
+    let period = cf.leg_s / n_periods;
+    let peak = |m: Manoeuvre, value: &dyn Fn(usize, f64) -> f64| -> f64 {
+        let mut best = 0.0f64;
+        for leg in cal.legs.iter().filter(|l| l.manoeuvre == m) {
+            let idx: Vec<usize> = (0..log.line.len())
+                .filter(|&i| log.line[i] == leg.line)
+                .collect();
+            let t0 = tr.time_s[idx[0]];
+            for &i in &idx {
+                let tau = tr.time_s[i] - t0;
+                if tau > period && tau < cf.leg_s - period {
+                    best = best.max(value(i, leg.heading).abs());
+                }
+            }
+        }
+        best
+    };
+    let lateral = |i: usize, hd: f64| -tr.accel[i][0] * hd.sin() + tr.accel[i][1] * hd.cos();
+    let along = |i: usize, hd: f64| tr.accel[i][0] * hd.cos() + tr.accel[i][1] * hd.sin();
+    let close = |got: f64, want: f64| got <= want * (1.0 + 1e-12) && got >= 0.999 * want;
+    let g_tan = 9.81 * cf.roll_amplitude_deg.to_radians().tan();
+    let pitch_acc = v * cf.pitch_amplitude_deg.to_radians().sin() * omega;
+    let checks = [
+        (Manoeuvre::Roll, peak(Manoeuvre::Roll, &lateral), g_tan),
+        (
+            Manoeuvre::Pitch,
+            peak(Manoeuvre::Pitch, &|i, _| tr.accel[i][2]),
+            pitch_acc,
+        ),
+        (
+            Manoeuvre::Surge,
+            peak(Manoeuvre::Surge, &along),
+            cf.surge_amplitude_m_s2,
+        ),
+        (
+            Manoeuvre::Yaw,
+            peak(Manoeuvre::Yaw, &|i, _| tr.sideslip[i]),
+            cf.yaw_amplitude_deg.to_radians(),
+        ),
+    ];
+    for (m, got, want) in checks {
+        assert!(close(got, want), "{m:?}: {got} vs {want}");
+    }
+    let climb = (0..log.line.len())
+        .filter(|&i| log.line[i] > 0 && leg_of(cal, log.line[i]) == Manoeuvre::Climb)
+        .map(|i| -tr.velocity[i][2])
+        .fold(0.0f64, f64::max);
+    assert!(close(climb, cf.climb_rate_m_s), "climb {climb}");
+
+    // What the manoeuvres are for: the logged specific force (sensor frame) varies by more than
+    // 1 m/s² RMS in x on surge legs, in y on roll legs, in z on pitch legs, and over all legs by
+    // several m/s² peak to peak on every axis.
+    let std_on = |m: Manoeuvre, name: &str| {
+        let c = log.column(name).unwrap();
+        let v: Vec<f64> = (0..c.len())
+            .filter(|&i| log.line[i] > 0 && leg_of(cal, log.line[i]) == m)
+            .map(|i| c[i])
+            .collect();
+        let mean = v.iter().sum::<f64>() / v.len() as f64;
+        (v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / v.len() as f64).sqrt()
+    };
+    let (sx, sy, sz) = (
+        std_on(Manoeuvre::Surge, "fx"),
+        std_on(Manoeuvre::Roll, "fy"),
+        std_on(Manoeuvre::Pitch, "fz"),
+    );
+    eprintln!("specific force RMS: fx {sx:.2} (surge), fy {sy:.2} (roll), fz {sz:.2} (pitch) m/s²");
+    assert!(sx > 1.0 && sy > 1.0 && sz > 1.0);
+    for name in ["fx", "fy", "fz"] {
+        let c = log.column(name).unwrap();
+        let on: Vec<f64> = (0..c.len())
+            .filter(|&i| log.line[i] > 0)
+            .map(|i| c[i])
+            .collect();
+        let (lo, hi) = on.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |a, x| {
+            (a.0.min(*x), a.1.max(*x))
+        });
+        assert!(hi - lo > 3.0, "{name}: {lo} to {hi}");
+    }
+
+    // Kinematics: velocity is the derivative of position and acceleration that of velocity, by
+    // Simpson's rule over two intervals within a leg: x(t+h) − x(t−h) = (h/3)(ẋ₋ + 4ẋ + ẋ₊) up to
+    // (2h)⁵/2880·max|x⁽⁵⁾|. Each displacement is a sum of sinusoids of frequency at most 1.5ω and
+    // amplitudes adding up to its amplitude A (the taper is sin², a half-frequency cosine), so
+    // |x⁽ᵏ⁾| ≤ A·(1.5ω)ᵏ; the climb, Z·sin⁴, is slower. Plus float rounding of the positions.
+    let amp = [
+        g_tan / (omega * omega),
+        v * cf.pitch_amplitude_deg.to_radians().sin() / omega,
+        cf.surge_amplitude_m_s2 / (omega * omega),
+    ]
+    .into_iter()
+    .fold(0.0f64, f64::max);
+    let simpson = |k: u32| (2.0 * dt).powi(5) / 2880.0 * amp * (1.5 * omega).powi(4 + k as i32);
+    let series = |c: usize| -> (Vec<f64>, Vec<f64>, Vec<f64>) {
+        let pos: Vec<f64> = match c {
+            0 => tr.north.clone(),
+            1 => tr.east.clone(),
+            _ => tr.height.iter().map(|h| -h).collect(),
+        };
+        let vel = tr.velocity.iter().map(|x| x[c]).collect();
+        let acc = tr.accel.iter().map(|x| x[c]).collect();
+        (pos, vel, acc)
+    };
+    let mut checked = 0;
+    for c in 0..3 {
+        let (pos, vel, acc) = series(c);
+        for i in 1..pos.len() - 1 {
+            if !(log.line[i - 1] > 0 && log.line[i - 1] == log.line[i + 1]) {
+                continue;
+            }
+            // The jerk jumps where the taper meets the flat part (τ = one period from either end,
+            // where the sin² taper's second derivative stops): no Simpson bound across it.
+            let start = log.line.iter().position(|l| *l == log.line[i]).unwrap_or(i);
+            let tau = tr.time_s[i] - tr.time_s[start];
+            if (tau - period).abs() < 1.5 * dt || (tau - (cf.leg_s - period)).abs() < 1.5 * dt {
+                continue;
+            }
+            let dp = pos[i + 1] - pos[i - 1];
+            let iv = dt / 3.0 * (vel[i - 1] + 4.0 * vel[i] + vel[i + 1]);
+            let tol = simpson(1) + 4.0 * f64::EPSILON * pos[i].abs().max(1.0);
+            assert!((dp - iv).abs() <= tol, "axis {c} sample {i}: {dp} vs {iv}");
+            let dv = vel[i + 1] - vel[i - 1];
+            let ia = dt / 3.0 * (acc[i - 1] + 4.0 * acc[i] + acc[i + 1]);
+            assert!(
+                (dv - ia).abs() <= simpson(2) + 1e-13,
+                "axis {c} sample {i}: {dv} vs {ia}"
+            );
+            checked += 1;
+        }
+    }
+    assert!(checked > 3 * 700, "{checked}");
+    eprintln!(
+        "Simpson tolerance {:.1e} m, {:.1e} m/s",
+        simpson(1),
+        simpson(2)
+    );
+
+    // The same instrument: second-order and cross-axis coefficients as in the survey flight, and
+    // (per instrument, the default with a calibration flight) the same κ; a new take-off's biases.
+    let survey = &sim.flights[0];
+    assert!(s.linear_errors_per_instrument());
+    for (a, b) in survey.accelerometers.iter().zip(&log.accelerometers) {
+        for j in 0..2 {
+            assert_eq!(a[j].quadratic, b[j].quadratic);
+            assert_eq!((a[j].cross_u, a[j].cross_v), (b[j].cross_u, b[j].cross_v));
+        }
+    }
+    for (a, b) in survey.pair_errors.iter().zip(&log.pair_errors) {
+        assert_eq!(a.kappa, b.kappa);
+        assert_eq!(a.quadratic, b.quadratic);
+        assert!(a.bias != b.bias);
+    }
+}
+
+/// The manoeuvre of the calibration leg numbered `line`.
+fn leg_of(
+    cal: &gravgrad_sim::simulate::CalibrationRun,
+    line: i64,
+) -> gravgrad_sim::scenario::Manoeuvre {
+    cal.legs.iter().find(|l| l.line == line).unwrap().manoeuvre
+}
+
+#[test]
+fn a_calibration_flight_with_linear_errors_per_flight_leaves_the_survey_as_it_was() {
+    use gravgrad_sim::scenario::LinearErrors;
+    let plain = simulate(&scenario(SMALL)).unwrap();
+    let mut s = with_calibration_flight();
+    s.instrument.linear_errors = Some(LinearErrors::PerFlight);
+    let sim = simulate(&s).unwrap();
+    for ((na, va), (nb, vb)) in plain.flights[0].columns.iter().zip(&sim.flights[0].columns) {
+        assert_eq!(na, nb);
+        assert!(
+            va.iter().zip(vb).all(|(x, y)| x.to_bits() == y.to_bits()),
+            "{na} differs"
+        );
+    }
+    // Per flight, the calibration flight is a take-off of its own: other κ.
+    let cal = &sim.calibration.as_ref().unwrap().log;
+    assert!(
+        cal.pair_errors
+            .iter()
+            .zip(&sim.flights[0].pair_errors)
+            .all(|(a, b)| a.kappa != b.kappa)
+    );
+}
+
+#[test]
+fn bad_calibration_flight_keys_are_refused_by_name() {
+    let cases = [
+        (
+            "roll_amplitude_deg = 50.0",
+            "calibration_flight.roll_amplitude_deg",
+        ),
+        ("altitude_m = 100.0", "calibration_flight.altitude_m"),
+        ("period_s = 0.0", "calibration_flight.period_s"),
+        ("leg_s = 10.0", "calibration_flight.leg_s"),
+        ("first_line = 101", "calibration_flight.first_line"),
+        (
+            "headings_deg = [0.0, 10.0]",
+            "calibration_flight.headings_deg",
+        ),
+        ("headings_deg = []", "calibration_flight.headings_deg"),
+        (
+            "pitch_amplitude_deg = 9.0",
+            "calibration_flight.pitch_amplitude_deg",
+        ),
+        ("manoeuvres = []", "calibration_flight.manoeuvres"),
+    ];
+    for (line, key) in cases {
+        let s = scenario(&format!("{SMALL}\n[calibration_flight]\n{line}\n"));
+        let e = simulate(&s).unwrap_err().to_string();
+        assert!(e.contains(key), "{line}: {e}");
+    }
+    let mut s = scenario(SMALL);
+    s.instrument.quadratic_rms_per_m_s2 = -1.0;
+    let e = simulate(&s).unwrap_err().to_string();
+    assert!(e.contains("instrument.quadratic_rms_per_m_s2"), "{e}");
+}
