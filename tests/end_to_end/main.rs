@@ -4,6 +4,7 @@ mod batch;
 mod commands;
 mod corpus;
 mod interrupt;
+mod motion;
 mod qc;
 mod run;
 mod simulate;
