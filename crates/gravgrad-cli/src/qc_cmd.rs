@@ -1,7 +1,9 @@
 //! `gravgrad qc RECIPE`: the survey processed as `gravgrad run` does it, then per line the QC metrics
-//! of `gravgrad_lines::qc` and a verdict against the recipe's `[qc]` tolerances. Writes
-//! `qc/lines.csv` and the self-contained `qc/report.html` (`report_html.rs`), prints a table (or JSON
-//! with `--json`). Exit 0 when it ran, whatever the verdicts (they are data); 2 on bad input.
+//! of `gravgrad_lines::qc` (the motion-correlation test among them, fed with the logged specific force
+//! and angular rate and the gyro angular acceleration) and a verdict against the recipe's `[qc]`
+//! tolerances. Writes `qc/lines.csv` and the self-contained `qc/report.html` (`report_html.rs`),
+//! prints a table (or JSON with `--json`). Exit 0 when it ran, whatever the verdicts (they are data);
+//! 2 on bad input.
 
 use crate::EXIT_FAILURE;
 use crate::line_stages::{self, LineStages, Segment};

@@ -1,8 +1,8 @@
 //! `qc/report.html`: one self-contained page (inline CSS and SVG drawn here; no script, no font, no
 //! image, nothing fetched) with the verdict of every line, the map of the lines coloured by verdict,
-//! the crossover statistics before and after levelling, the noise spectra and each line's Gzz profile
-//! at every stage. Same input, same bytes: no time stamp, no path, numbers formatted at fixed
-//! precision, everything in the order of the lines.
+//! the crossover statistics before and after levelling, the motion-correlation test per line and
+//! component, the noise spectra and each line's Gzz profile at every stage. Same input, same bytes:
+//! no time stamp, no path, numbers formatted at fixed precision, everything in the order of the lines.
 
 use crate::line_stages::{self, LineStages};
 use crate::qc_cmd::{LineQc, NAMES, worst_motion, worst_noise};
