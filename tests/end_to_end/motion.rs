@@ -223,4 +223,26 @@ fn a_wrong_calibration_file_fails_for_motion_correlation_and_the_right_one_does_
     }
     let html = std::fs::read_to_string(tmp.path().join("zz/qc/report.html")).unwrap();
     assert!(html.contains("<table id=\"motion\">") && html.contains("<strong>"));
+
+    // Bad motion settings are refused by key, exit 2, nothing written.
+    let text = std::fs::read_to_string(&recipe).unwrap();
+    std::fs::write(
+        &recipe,
+        format!("{text}\n[qc]\nmotion_band_hz = [1.0, 0.1]\nmax_motion_e = 0.0\n"),
+    )
+    .unwrap();
+    let out = tmp.path().join("refused");
+    let o = crate::gravgrad(&[
+        "qc",
+        recipe.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("qc.motion_band_hz") && err.contains("qc.max_motion_e"),
+        "{err}"
+    );
+    assert!(!out.join("qc").exists());
 }
