@@ -5,6 +5,7 @@ mod calibration;
 mod commands;
 mod corpus;
 mod interrupt;
+mod motion;
 mod qc;
 mod run;
 mod simulate;

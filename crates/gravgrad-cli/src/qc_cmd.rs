@@ -1,7 +1,9 @@
 //! `gravgrad qc RECIPE`: the survey processed as `gravgrad run` does it, then per line the QC metrics
-//! of `gravgrad_lines::qc` and a verdict against the recipe's `[qc]` tolerances. Writes
-//! `qc/lines.csv` and the self-contained `qc/report.html` (`report_html.rs`), prints a table (or JSON
-//! with `--json`). Exit 0 when it ran, whatever the verdicts (they are data); 2 on bad input.
+//! of `gravgrad_lines::qc` (the motion-correlation test among them, fed with the logged specific force
+//! and angular rate and the gyro angular acceleration) and a verdict against the recipe's `[qc]`
+//! tolerances. Writes `qc/lines.csv` and the self-contained `qc/report.html` (`report_html.rs`),
+//! prints a table (or JSON with `--json`). Exit 0 when it ran, whatever the verdicts (they are data);
+//! 2 on bad input.
 
 use crate::EXIT_FAILURE;
 use crate::line_stages::{self, LineStages, Segment};
@@ -13,7 +15,10 @@ use clap::Args;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_ingest::plan::{Plan, read_plan};
 use gravgrad_lines::qc::{Component, LineMetrics, PlannedLine};
-use gravgrad_lines::{LineInputs, LowPass, QcSettings, Tolerances, Verdict, assess_line};
+use gravgrad_lines::{
+    LineInputs, LowPass, MotionSeries, MotionSettings, QcSettings, Tolerances, Verdict, assess_line,
+};
+use gravgrad_rotation::gyro::angular_acceleration3;
 use rayon::prelude::*;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -51,13 +56,72 @@ pub fn settings(recipe: &gravgrad_ingest::recipe::Recipe) -> QcSettings {
             max_turbulence_m_s2: q.max_turbulence_m_s2,
             max_noise_e: q.max_noise_e,
             max_gap_s: q.max_gap_s,
+            max_motion_e: q.max_motion_e,
+            ..Tolerances::default()
         },
         low_pass: LowPass {
             cutoff_wavelength_m: recipe.filter.cutoff_wavelength_m,
             ..LowPass::default()
         },
+        motion: MotionSettings {
+            band_hz: q.motion_band_hz,
+            ..MotionSettings::default()
+        },
         ..QcSettings::default()
     }
+}
+
+/// The angular acceleration of a flight's sensor frame, rad/s², sensor axes: the logged `wx wy wz`
+/// differentiated after the recipe's `rotation.gyro_lowpass_hz` low-pass, the same function and
+/// settings the solve's gyro α comes from. `None` when the flight lacks a column or a time base, or
+/// its table does not match the processed samples.
+pub struct FlightMotion {
+    alpha: [Vec<f64>; 3],
+}
+
+fn flight_motion(p: &Processed, k: usize, cutoff_hz: f64) -> Option<FlightMotion> {
+    let f = p.survey.flights.get(k)?;
+    let n = p.results.get(k)?.time.len();
+    let rate = f.time_base.as_ref()?.rate_hz;
+    let w = [
+        f.flight.table.get("wx")?,
+        f.flight.table.get("wy")?,
+        f.flight.table.get("wz")?,
+    ];
+    if w.iter().any(|c| c.len() != n) || rate.is_nan() || rate <= 0.0 {
+        return None;
+    }
+    Some(FlightMotion {
+        alpha: angular_acceleration3(w, rate, cutoff_hz),
+    })
+}
+
+/// The motion series of samples `range` of flight `k`: logged specific force `fx fy fz` and
+/// angular rate `wx wy wz` (sensor axes) and the flight's gyro angular acceleration. The tensor
+/// judged is in NED and these are in sensor axes: along a line the attitude is close to one fixed
+/// rotation, so for a correlation test they serve as they are (docs/methods/lines.md).
+fn motion_series<'a>(
+    p: &'a Processed,
+    k: usize,
+    m: Option<&'a FlightMotion>,
+    range: std::ops::Range<usize>,
+) -> Option<MotionSeries<'a>> {
+    let m = m?;
+    let t = &p.survey.flights.get(k)?.flight.table;
+    let n = m.alpha[0].len();
+    let col = |name: &str| -> Option<&'a [f64]> {
+        let c = t.get(name)?;
+        (c.len() == n).then(|| &c[range.clone()])
+    };
+    Some(MotionSeries {
+        specific_force_m_s2: [col("fx")?, col("fy")?, col("fz")?],
+        angular_rate_rad_s: [col("wx")?, col("wy")?, col("wz")?],
+        angular_acceleration_rad_s2: [
+            &m.alpha[0][range.clone()],
+            &m.alpha[1][range.clone()],
+            &m.alpha[2][range.clone()],
+        ],
+    })
 }
 
 /// The vertical acceleration on a line: the logged `fz` less its mean over the line's finite
@@ -90,6 +154,7 @@ fn assess(
     k: usize,
     settings: &QcSettings,
     plan: Option<&Plan>,
+    motion: &[Option<FlightMotion>],
 ) -> LineQc {
     let s: &Segment = &st.segments[k];
     let r = &p.results[s.flight];
@@ -146,6 +211,12 @@ fn assess(
                 end_m: [v[2], v[3]],
             })
             .or_else(|| chord(x, y)),
+        motion: motion_series(
+            p,
+            s.flight,
+            motion.get(s.flight).and_then(Option::as_ref),
+            range.clone(),
+        ),
     };
     let flight_name = p.names.get(s.flight).cloned().unwrap_or_default();
     match assess_line(&inputs, settings) {
@@ -174,9 +245,18 @@ pub fn assess_all(
     settings: &QcSettings,
     plan: Option<&Plan>,
 ) -> Vec<LineQc> {
+    let cutoff = p
+        .survey
+        .recipe
+        .as_ref()
+        .map_or(2.0, |r| r.rotation.gyro_lowpass_hz);
+    let motion: Vec<Option<FlightMotion>> = (0..p.results.len())
+        .into_par_iter()
+        .map(|k| flight_motion(p, k, cutoff))
+        .collect();
     (0..st.segments.len())
         .into_par_iter()
-        .map(|k| assess(p, st, k, settings, plan))
+        .map(|k| assess(p, st, k, settings, plan, &motion))
         .collect()
 }
 
@@ -195,6 +275,22 @@ pub fn worst_noise(m: &LineMetrics) -> Option<f64> {
         .reduce(f64::max)
 }
 
+/// The largest motion part over the components whose fit is significant at `level`, E (0 when
+/// none is); `None` when no component was tested.
+pub fn worst_motion(m: &LineMetrics, level: f64) -> Option<f64> {
+    m.components
+        .iter()
+        .filter_map(|c| c.motion.as_ref())
+        .map(|f| {
+            if f.p_value < level {
+                f.motion_rms_e
+            } else {
+                0.0
+            }
+        })
+        .reduce(f64::max)
+}
+
 fn csv_quote(s: &str) -> String {
     if s.contains([',', '"', '\n']) {
         format!("\"{}\"", s.replace('"', "\"\""))
@@ -203,7 +299,7 @@ fn csv_quote(s: &str) -> String {
     }
 }
 
-/// `qc/lines.csv` (layout `qc-lines/1`, docs/formats.md).
+/// `qc/lines.csv` (layout `qc-lines/2`, docs/formats.md).
 pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
     let comps: Vec<usize> = (0..6).filter(|c| st.observed[*c]).collect();
     let mut head: Vec<String> = [
@@ -222,6 +318,11 @@ pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
         head.push(format!("noise_{n}_e"));
         head.push(format!("residual_{n}_e"));
         head.push(format!("spikes_{n}"));
+        head.push(format!("motion_{n}_e"));
+        head.push(format!("motion_se_{n}_e"));
+        head.push(format!("motion_f_{n}"));
+        head.push(format!("motion_p_{n}"));
+        head.push(format!("motion_regressor_{n}"));
     }
     for h in [
         "trace_rms_e",
@@ -242,7 +343,7 @@ pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
     head.push("verdict".into());
     head.push("reasons".into());
     let mut out = format!(
-        "# gravgrad qc-lines/1: one row per line; {} stage; E = 1e-9 s^-2\n{}\n",
+        "# gravgrad qc-lines/2: one row per line; {} stage; E = 1e-9 s^-2\n{}\n",
         st.reduced_stage,
         head.join(",")
     );
@@ -265,8 +366,21 @@ pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
                             row.push(opt(x.noise_after_filter_e, 4));
                             row.push(opt(x.residual_rms_e, 4));
                             row.push(x.spikes.to_string());
+                            match &x.motion {
+                                Some(f) => {
+                                    row.push(format!("{:.4}", f.motion_rms_e));
+                                    row.push(format!("{:.4}", f.motion_rms_se_e));
+                                    row.push(opt(Some(f.f_statistic), 4));
+                                    row.push(match f.p_value {
+                                        v if v.is_finite() => format!("{v:.3e}"),
+                                        _ => String::new(),
+                                    });
+                                    row.push(csv_quote(f.strongest().map_or("", |r| r.name)));
+                                }
+                                None => row.extend(std::iter::repeat_n(String::new(), 5)),
+                            }
                         }
-                        None => row.extend(std::iter::repeat_n(String::new(), 4)),
+                        None => row.extend(std::iter::repeat_n(String::new(), 9)),
                     }
                 }
                 row.push(opt(m.trace_rms_e, 4));
@@ -278,7 +392,7 @@ pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
             }
             None => {
                 row.push((s.end - s.start).to_string());
-                row.extend(std::iter::repeat_n(String::new(), 2 + 4 * comps.len() + 6));
+                row.extend(std::iter::repeat_n(String::new(), 2 + 9 * comps.len() + 6));
             }
         }
         let crossings = st.levelling[5]
@@ -307,8 +421,9 @@ pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
     out
 }
 
-/// The terminal table.
-fn table(st: &LineStages, qcs: &[LineQc]) -> String {
+/// The terminal table. `motion E`: the largest motion part of a component whose fit is significant
+/// at `level` (0 when none is).
+fn table(st: &LineStages, qcs: &[LineQc], level: f64) -> String {
     let fw = qcs
         .iter()
         .map(|q| q.flight_name.chars().count())
@@ -316,8 +431,17 @@ fn table(st: &LineStages, qcs: &[LineQc]) -> String {
         .unwrap_or(0)
         .max(6);
     let mut out = format!(
-        "{:>6}  {:<fw$} {:<6} {:>8} {:>8} {:>10} {:>9} {:>9}  {:<7} reasons\n",
-        "line", "flight", "role", "samples", "noise E", "turb m/s²", "clear m", "dev m", "verdict"
+        "{:>6}  {:<fw$} {:<6} {:>8} {:>8} {:>10} {:>9} {:>9} {:>9}  {:<7} reasons\n",
+        "line",
+        "flight",
+        "role",
+        "samples",
+        "noise E",
+        "turb m/s²",
+        "clear m",
+        "dev m",
+        "motion E",
+        "verdict"
     );
     for q in qcs {
         let s = &st.segments[q.segment];
@@ -327,7 +451,7 @@ fn table(st: &LineStages, qcs: &[LineQc]) -> String {
             if t.is_empty() { "-".into() } else { t }
         };
         out.push_str(&format!(
-            "{:>6}  {:<fw$} {:<6} {:>8} {:>8} {:>10} {:>9} {:>9}  {:<7} {}\n",
+            "{:>6}  {:<fw$} {:<6} {:>8} {:>8} {:>10} {:>9} {:>9} {:>9}  {:<7} {}\n",
             s.line,
             q.flight_name,
             if s.tie { "tie" } else { "survey" },
@@ -336,6 +460,7 @@ fn table(st: &LineStages, qcs: &[LineQc]) -> String {
             dash(m.and_then(|m| m.turbulence_m_s2), 2),
             dash(m.and_then(|m| m.clearance_departure_m), 1),
             dash(m.and_then(|m| m.line_deviation_m), 1),
+            dash(m.and_then(|m| worst_motion(m, level)), 2),
             if q.verdict.pass { "pass" } else { "FAIL" },
             q.verdict.reasons.join("; ")
         ));
@@ -384,6 +509,30 @@ fn json(survey: &str, st: &LineStages, qcs: &[LineQc]) -> serde_json::Value {
                     "noise_after_filter_e": num(c.noise_after_filter_e),
                     "residual_rms_e": num(c.residual_rms_e),
                     "spikes": c.spikes,
+                    "motion": c.motion.as_ref().map(|f| json!({
+                        "band_hz": f.band_hz,
+                        "samples": f.samples,
+                        "effective_samples": f.effective_samples,
+                        "motion_rms_e": f.motion_rms_e,
+                        "motion_rms_se_e": f.motion_rms_se_e,
+                        "fitted_rms_e": f.fitted_rms_e,
+                        "band_rms_e": f.band_rms_e,
+                        "residual_rms_e": f.residual_rms_e,
+                        "f_statistic": num(Some(f.f_statistic)),
+                        "dof": f.dof,
+                        "p_value": num(Some(f.p_value)),
+                        "strongest": f.strongest().map(|r| r.name),
+                        "regressors": f.regressors.iter().map(|r| json!({
+                            "name": r.name,
+                            "coefficient_e": num(Some(r.coefficient_e)),
+                            "std_error_e": num(Some(r.std_error_e)),
+                            "t": num(Some(r.t)),
+                        })).collect::<Vec<_>>(),
+                        "dropped": f.dropped.iter().map(|(n, why)| json!({
+                            "name": n,
+                            "why": why.as_str(),
+                        })).collect::<Vec<_>>(),
+                    })),
                 })).collect::<Vec<_>>()),
                 "trace_rms_e": num(m.and_then(|m| m.trace_rms_e)),
                 "alpha_difference_rms_rad_s2": num(m.and_then(|m| m.alpha_difference_rms_rad_s2)),
@@ -483,7 +632,8 @@ pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
     if json_out {
         println!("{}", json(survey, &stages, &qcs));
     } else {
-        print!("{}", table(&stages, &qcs));
+        let level = settings(recipe).tolerances.motion_significance;
+        print!("{}", table(&stages, &qcs, level));
     }
     let failed = qcs.iter().filter(|q| !q.verdict.pass).count();
     log.info(&format!(

@@ -1,11 +1,11 @@
 //! `qc/report.html`: one self-contained page (inline CSS and SVG drawn here; no script, no font, no
 //! image, nothing fetched) with the verdict of every line, the map of the lines coloured by verdict,
-//! the crossover statistics before and after levelling, the noise spectra and each line's Gzz profile
-//! at every stage. Same input, same bytes: no time stamp, no path, numbers formatted at fixed
-//! precision, everything in the order of the lines.
+//! the crossover statistics before and after levelling, the motion-correlation test per line and
+//! component, the noise spectra and each line's Gzz profile at every stage. Same input, same bytes:
+//! no time stamp, no path, numbers formatted at fixed precision, everything in the order of the lines.
 
 use crate::line_stages::{self, LineStages};
-use crate::qc_cmd::{LineQc, NAMES, worst_noise};
+use crate::qc_cmd::{LineQc, NAMES, worst_motion, worst_noise};
 use crate::run_cmd::Processed;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_lines::QcSettings;
@@ -188,7 +188,7 @@ fn range_of<'a>(v: impl Iterator<Item = &'a f64>) -> Option<(f64, f64)> {
     Some((lo - pad, hi + pad))
 }
 
-fn summary(out: &mut String, p: &Processed, st: &LineStages, qcs: &[LineQc]) {
+fn summary(out: &mut String, p: &Processed, st: &LineStages, qcs: &[LineQc], level: f64) {
     let comps: Vec<usize> = (0..6).filter(|c| st.observed[*c]).collect();
     out.push_str("<table id=\"summary\"><thead><tr><th class=\"l\">line</th><th class=\"l\">flight</th><th class=\"l\">role</th><th>samples</th><th>noise after filter, E<br>(largest of ");
     out.push_str(
@@ -198,7 +198,7 @@ fn summary(out: &mut String, p: &Processed, st: &LineStages, qcs: &[LineQc]) {
             .collect::<Vec<_>>()
             .join(" "),
     );
-    out.push_str(")</th><th>Gzz density, E/√Hz</th><th>turbulence, m/s²</th><th>clearance departure, m</th><th>deviation, m</th><th>longest gap, s</th><th>Gzz offset, E</th><th>verdict</th><th class=\"l\">reasons</th></tr></thead><tbody>\n");
+    out.push_str(")</th><th>Gzz density, E/√Hz</th><th>turbulence, m/s²</th><th>clearance departure, m</th><th>deviation, m</th><th>longest gap, s</th><th>motion part, E<br>(largest significant)</th><th>Gzz offset, E</th><th>verdict</th><th class=\"l\">reasons</th></tr></thead><tbody>\n");
     let _ = p;
     for q in qcs {
         let s = &st.segments[q.segment];
@@ -221,7 +221,7 @@ fn summary(out: &mut String, p: &Processed, st: &LineStages, qcs: &[LineQc]) {
         };
         let _ = writeln!(
             out,
-            "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"{class}\">{word}</td><td class=\"l\">{}</td></tr>",
+            "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"{class}\">{word}</td><td class=\"l\">{}</td></tr>",
             s.line,
             esc(&q.flight_name),
             if s.tie { "tie" } else { "survey" },
@@ -232,6 +232,7 @@ fn summary(out: &mut String, p: &Processed, st: &LineStages, qcs: &[LineQc]) {
             fmt_opt(m.and_then(|m| m.clearance_departure_m), 1),
             fmt_opt(m.and_then(|m| m.line_deviation_m), 1),
             fmt_opt(m.map(|m| m.longest_gap_s), 2),
+            fmt_opt(m.and_then(|m| worst_motion(m, level)), 2),
             fmt_opt(offset, 2),
             esc(&q.verdict.reasons.join("; "))
         );
@@ -377,6 +378,75 @@ fn crossovers(out: &mut String, st: &LineStages) {
                 NAMES[c], b.count, b.mean, b.rms, b.max_abs, a.mean, a.rms, a.max_abs
             );
         }
+    }
+    out.push_str("</tbody></table>\n");
+}
+
+/// One row per line, one cell per observed component: the motion part ± its standard error, the
+/// p-value of the F test and the regressor that explains most; bold where it failed the line.
+fn motion(out: &mut String, st: &LineStages, qcs: &[LineQc], s: &QcSettings) {
+    let comps: Vec<usize> = (0..6).filter(|c| st.observed[*c]).collect();
+    let tested = qcs.iter().any(|q| {
+        q.metrics
+            .as_ref()
+            .is_some_and(|m| m.components.iter().any(|c| c.motion.is_some()))
+    });
+    if !tested {
+        out.push_str("<p class=\"note\">No line was tested for motion correlation (no specific force, angular rate or time base in the logs, or every line too short for the band).</p>\n");
+        return;
+    }
+    let t = &s.tolerances;
+    out.push_str(
+        "<table id=\"motion\"><thead><tr><th class=\"l\">line</th><th class=\"l\">role</th>",
+    );
+    for c in &comps {
+        let _ = write!(
+            out,
+            "<th class=\"l\">{}: motion part, E · p · most from</th>",
+            NAMES[*c]
+        );
+    }
+    out.push_str("</tr></thead><tbody>\n");
+    for q in qcs {
+        let seg = &st.segments[q.segment];
+        let _ = write!(
+            out,
+            "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td>",
+            seg.line,
+            if seg.tie { "tie" } else { "survey" }
+        );
+        for c in &comps {
+            let fit = q.metrics.as_ref().and_then(|m| {
+                m.components
+                    .iter()
+                    .find(|x| x.name == NAMES[*c])
+                    .and_then(|x| x.motion.as_ref())
+            });
+            match fit {
+                Some(f) => {
+                    let failed =
+                        f.p_value < t.motion_significance && f.motion_rms_e > t.max_motion_e;
+                    let text = format!(
+                        "{:.2} ± {:.2} · {} · {}",
+                        f.motion_rms_e,
+                        f.motion_rms_se_e,
+                        if f.p_value.is_finite() {
+                            format!("{:.1e}", f.p_value)
+                        } else {
+                            "–".into()
+                        },
+                        esc(f.strongest().map_or("–", |r| r.name))
+                    );
+                    if failed {
+                        let _ = write!(out, "<td class=\"l\"><strong>{text}</strong></td>");
+                    } else {
+                        let _ = write!(out, "<td class=\"l\">{text}</td>");
+                    }
+                }
+                None => out.push_str("<td class=\"l\">–</td>"),
+            }
+        }
+        out.push_str("</tr>\n");
     }
     out.push_str("</tbody></table>\n");
 }
@@ -699,7 +769,7 @@ pub fn render(p: &Processed, st: &LineStages, qcs: &[LineQc], s: &QcSettings) ->
     );
     let _ = writeln!(
         out,
-        "<p class=\"note\">Tolerances: noise after filtering {} E RMS; turbulence {} m/s² RMS; clearance within {} m of {}; deviation from the line's straight chord {} m; longest gap {} s.</p>",
+        "<p class=\"note\">Tolerances: noise after filtering {} E RMS; turbulence {} m/s² RMS; clearance within {} m of {}; deviation from the line's straight chord {} m; longest gap {} s; motion part {} E where significant at {}.</p>",
         t.max_noise_e,
         t.max_turbulence_m_s2,
         t.clearance_tolerance_m,
@@ -708,17 +778,25 @@ pub fn render(p: &Processed, st: &LineStages, qcs: &[LineQc], s: &QcSettings) ->
             None => "the plan (no planned clearance in the recipe: not judged)".into(),
         },
         t.max_line_deviation_m,
-        t.max_gap_s
+        t.max_gap_s,
+        t.max_motion_e,
+        t.motion_significance
     );
     for n in &st.notes {
         let _ = writeln!(out, "<p class=\"note\">{}</p>", esc(n));
     }
     out.push_str("<h2>Verdict per line</h2>\n");
-    summary(&mut out, p, st, qcs);
+    summary(&mut out, p, st, qcs, t.motion_significance);
     out.push_str("<h2>Map of the lines</h2>\n");
     map(&mut out, p, st, qcs);
     out.push_str("<h2>Crossovers before and after levelling</h2>\n");
     crossovers(&mut out, st);
+    let _ = writeln!(
+        out,
+        "<h2>Motion correlation</h2>\n<p class=\"note\">Each component regressed, in {}–{} Hz, on the aircraft's specific force, the products of its deviations from the line mean, angular rate and angular acceleration (sensor axes). Motion part: the RMS the regression explains, less its expected noise share, ± its standard error; p: the F test with the residual's effective sample size. A line fails when p &lt; {} and the motion part exceeds {} E (bold).</p>",
+        s.motion.band_hz[0], s.motion.band_hz[1], t.motion_significance, t.max_motion_e
+    );
+    motion(&mut out, st, qcs, s);
     out.push_str("<h2>Noise spectra</h2>\n<p class=\"note\">Welch amplitude density of each line (segments of 10 s overlapping by half, Hann window, straight line removed per segment). The shaded band is where the noise density is read.</p>\n");
     spectra(&mut out, p, st, qcs, s);
     out.push_str("<h2>Profiles of Gzz at each stage</h2>\n");

@@ -330,6 +330,13 @@ pub struct Qc {
     pub max_noise_e: f64,
     /// Longest gap inside a line, s.
     pub max_gap_s: f64,
+    /// Largest RMS of a component's motion part in the motion band (the part the aircraft's
+    /// specific force, its products, angular rate and acceleration explain, when the fit is
+    /// significant at 0.1 %), E.
+    pub max_motion_e: f64,
+    /// Band of the motion-correlation test, Hz (the upper edge is clipped below the Nyquist
+    /// frequency).
+    pub motion_band_hz: [f64; 2],
     /// Clearance of the drape plan, m (absent: clearance is not judged).
     pub planned_clearance_m: Option<f64>,
     /// CSV of planned lines (docs/formats.md); absent: a line's deviation is measured from its own
@@ -345,6 +352,8 @@ impl Default for Qc {
             max_turbulence_m_s2: 1.0,
             max_noise_e: 5.0,
             max_gap_s: 2.0,
+            max_motion_e: 0.5,
+            motion_band_hz: [0.1, 1.0],
             planned_clearance_m: None,
             plan: None,
         }
@@ -396,6 +405,7 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
     positive("qc.max_turbulence_m_s2", r.qc.max_turbulence_m_s2);
     positive("qc.max_noise_e", r.qc.max_noise_e);
     positive("qc.max_gap_s", r.qc.max_gap_s);
+    positive("qc.max_motion_e", r.qc.max_motion_e);
     if let Some(c) = r.qc.planned_clearance_m {
         positive("qc.planned_clearance_m", c);
     }
@@ -406,6 +416,13 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
         if let Some(w) = t.water_density_kg_m3 {
             positive("terrain.water_density_kg_m3", w);
         }
+    }
+    let [lo, hi] = r.qc.motion_band_hz;
+    if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo) {
+        p.push(Problem::error(
+            loc("qc.motion_band_hz"),
+            format!("[{lo}, {hi}] is not a band: expected 0 < low < high (Hz)"),
+        ));
     }
     let [lo, hi] = r.calibration.band_hz;
     if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo) {

@@ -8,8 +8,11 @@
 //! - [`crossover`]: intersections of survey lines with tie lines and the difference survey − tie.
 //! - [`level`]: least-squares levelling from the crossovers (per-line offset, optional linear trend in
 //!   time; tie lines held fixed or every line solved with a zero-mean constraint).
+//! - [`motion`]: the motion-correlation test — each component regressed, in the band where the
+//!   aircraft's motion lives, on specific force, its products, angular rate and acceleration.
 //! - [`qc`]: per-line metrics (noise, trace, angular acceleration, turbulence, clearance, line
-//!   deviation, gaps, spikes) and a pass/fail verdict against the recipe's `[qc]` tolerances.
+//!   deviation, gaps, spikes, motion correlation) and a pass/fail verdict against the recipe's `[qc]`
+//!   tolerances.
 //!
 //! Frames and units: positions are projected grid metres (x east, y north of the survey's projection;
 //! only distances and intersections are used, so any right-handed planar frame works), time in
@@ -21,12 +24,15 @@ pub mod crossover;
 pub mod error;
 pub mod filter;
 pub mod level;
+pub mod motion;
 pub mod qc;
 mod solve;
+mod special;
 pub mod spectrum;
 
 pub use crossover::{Crossover, Track, find_crossovers};
 pub use error::LinesError;
 pub use filter::{LowPass, low_pass_along_track};
 pub use level::{LevelMode, LevelSettings, Levelling, LineCorrection, level};
+pub use motion::{MotionFit, MotionSeries, MotionSettings, motion_correlation};
 pub use qc::{LineInputs, LineMetrics, QcSettings, Tolerances, Verdict, assess_line};

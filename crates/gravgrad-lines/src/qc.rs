@@ -17,6 +17,11 @@
 //!   low-pass at the temporal cutoff fc = v/λc for the line's median ground speed v
 //!   ([`LowPass::noise_bandwidth`]): the white-noise RMS the filtered product keeps. This is the value
 //!   held against `max_noise_e`;
+//! - motion correlation (when the motion series are given): the component regressed on the
+//!   aircraft's motion in the band where it lives ([`crate::motion`]): RMS of the motion part (E),
+//!   its F statistic and p-value, the regressor that explains most. Held against `max_motion_e` and
+//!   `motion_significance`: the line fails when the fit is significant AND its motion part exceeds
+//!   the level;
 //! - spikes: runs of consecutive samples whose residual lies more than `spike_threshold` robust
 //!   standard deviations from the median residual, the robust standard deviation being 1.4826 × the
 //!   median absolute deviation (Hampel 1974, "The influence curve and its role in robust estimation",
@@ -32,6 +37,7 @@
 
 use crate::error::{LinesError, check_finite, check_len, check_positive};
 use crate::filter::{LowPass, along_track_distance, low_pass_along_track};
+use crate::motion::{self, Design, MotionFit, MotionSeries, MotionSettings};
 use crate::spectrum::welch;
 use gravgrad_core::mat3::Vec3;
 use gravgrad_core::stats::median;
@@ -50,9 +56,19 @@ pub struct Tolerances {
     pub max_noise_e: f64,
     /// Longest gap inside a line, s.
     pub max_gap_s: f64,
+    /// Largest RMS of a component's motion part (the part the motion regressors explain in the
+    /// motion band), E.
+    pub max_motion_e: f64,
+    /// Level of the motion-correlation F test: the fit counts as significant when its p-value is
+    /// below this.
+    pub motion_significance: f64,
 }
 
 impl Default for Tolerances {
+    /// `max_motion_e` 0.5 E: a tenth of the default `max_noise_e`, and at 5 E/√Hz and 0.1–1 Hz about
+    /// a tenth of the band's noise RMS (4.7 E), so a calibration error this size is still small beside
+    /// the noise the line carries; a 0.1 % test level keeps false alarms rare over a survey of
+    /// hundreds of lines and six components.
     fn default() -> Self {
         Self {
             max_line_deviation_m: 50.0,
@@ -60,6 +76,8 @@ impl Default for Tolerances {
             max_turbulence_m_s2: 1.0,
             max_noise_e: 5.0,
             max_gap_s: 2.0,
+            max_motion_e: 0.5,
+            motion_significance: 1e-3,
         }
     }
 }
@@ -76,6 +94,8 @@ pub struct QcSettings {
     pub welch_segment_s: f64,
     /// Spike threshold in robust standard deviations.
     pub spike_threshold: f64,
+    /// Band and filter of the motion-correlation test.
+    pub motion: MotionSettings,
 }
 
 impl Default for QcSettings {
@@ -88,6 +108,7 @@ impl Default for QcSettings {
             noise_band_hz: [1.0, 4.0],
             welch_segment_s: 10.0,
             spike_threshold: 6.0,
+            motion: MotionSettings::default(),
         }
     }
 }
@@ -125,6 +146,8 @@ pub struct LineInputs<'a> {
     pub clearance_m: Option<&'a [f64]>,
     pub planned_clearance_m: Option<&'a [f64]>,
     pub plan: Option<PlannedLine>,
+    /// The aircraft's motion (sensor axes), for the motion-correlation test.
+    pub motion: Option<MotionSeries<'a>>,
 }
 
 /// Noise and spike metrics of one component.
@@ -138,6 +161,9 @@ pub struct ComponentMetrics {
     /// White-noise RMS left after the along-track low-pass, E.
     pub noise_after_filter_e: Option<f64>,
     pub spikes: usize,
+    /// The motion-correlation test; `None` without motion series or when the line is too short
+    /// for it.
+    pub motion: Option<MotionFit>,
 }
 
 /// Every metric of one line.
@@ -203,6 +229,15 @@ fn check_settings(s: &QcSettings) -> Result<(), LinesError> {
     check_positive("qc.max_turbulence_m_s2", t.max_turbulence_m_s2)?;
     check_positive("qc.max_noise_e", t.max_noise_e)?;
     check_positive("qc.max_gap_s", t.max_gap_s)?;
+    check_positive("qc.max_motion_e", t.max_motion_e)?;
+    if !(t.motion_significance > 0.0 && t.motion_significance < 1.0) {
+        return Err(LinesError::Setting {
+            name: "motion_significance".into(),
+            value: t.motion_significance,
+            why: "must lie strictly between 0 and 1".into(),
+        });
+    }
+    motion::check_settings(&s.motion)?;
     check_positive("welch_segment_s", s.welch_segment_s)?;
     check_positive("spike_threshold", s.spike_threshold)?;
     let [lo, hi] = s.noise_band_hz;
@@ -251,6 +286,9 @@ pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics,
                 want: n,
             });
         }
+    }
+    if let Some(m) = &inp.motion {
+        motion::check_motion_lengths(m, n)?;
     }
     if n < 3 {
         return Err(LinesError::TooShort {
@@ -308,6 +346,20 @@ pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics,
     let band = [s.noise_band_hz[0], s.noise_band_hz[1].min(rate / 2.0)];
     let fc = median_speed / s.low_pass.cutoff_wavelength_m;
 
+    // Samples where the motion is known; the band-passed regressors are formed once per set of
+    // usable samples (components observed together share it).
+    let moving: Option<Vec<bool>> = inp.motion.as_ref().map(|m| {
+        let series = [
+            m.specific_force_m_s2,
+            m.angular_rate_rad_s,
+            m.angular_acceleration_rad_s2,
+        ];
+        (0..n)
+            .map(|i| located[i] && series.iter().flatten().all(|v| v[i].is_finite()))
+            .collect()
+    });
+    let mut design: Option<(Vec<bool>, Option<Design>)> = None;
+
     let mut components = Vec::with_capacity(inp.components.len());
     for c in &inp.components {
         let usable: Vec<bool> = (0..n)
@@ -331,6 +383,20 @@ pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics,
             None
         };
         let spikes = count_spikes(&residual, s.spike_threshold);
+        let motion = match (&inp.motion, &moving) {
+            (Some(m), Some(moving)) => {
+                let use_: Vec<bool> = (0..n).map(|i| moving[i] && usable[i]).collect();
+                if design.as_ref().is_none_or(|(u, _)| *u != use_) {
+                    let d = Design::build(inp.time_s, dt, &use_, m, &s.motion)?;
+                    design = Some((use_, d));
+                }
+                match &design {
+                    Some((_, Some(d))) => d.fit(c.values)?,
+                    _ => None,
+                }
+            }
+            _ => None,
+        };
         components.push(ComponentMetrics {
             name: c.name.to_string(),
             residual_rms_e: rms(residual.iter().copied()),
@@ -339,6 +405,7 @@ pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics,
                 .filter(|_| fc > 0.0)
                 .map(|rho| rho * s.low_pass.noise_bandwidth(fc).sqrt()),
             spikes,
+            motion,
         });
     }
 
@@ -478,6 +545,14 @@ pub fn verdict(m: &LineMetrics, t: &Tolerances) -> Verdict {
             )),
         }
     }
+    for c in &m.components {
+        if let Some(f) = &c.motion
+            && f.p_value < t.motion_significance
+            && f.motion_rms_e > t.max_motion_e
+        {
+            reasons.push(motion_reason(&c.name, f, t));
+        }
+    }
     if m.longest_gap_s > t.max_gap_s {
         reasons.push(format!(
             "longest gap {:.2} s exceeds {:.2} s",
@@ -488,6 +563,29 @@ pub fn verdict(m: &LineMetrics, t: &Tolerances) -> Verdict {
         pass: reasons.is_empty(),
         reasons,
     }
+}
+
+/// The reason a component fails the motion-correlation test, e.g. "motion correlation Gzz:
+/// 3.21 ± 0.35 E RMS fitted to the aircraft's motion in 0.1–1 Hz exceeds 0.50 E (F = 41.2 on 15 and
+/// 160.2 degrees of freedom, p = 2.1e-40 < 0.001); most from fz (|t| = 24.0)".
+pub fn motion_reason(component: &str, f: &MotionFit, t: &Tolerances) -> String {
+    let most = f
+        .strongest()
+        .map(|r| format!("; most from {} (|t| = {:.1})", r.name, r.t.abs()))
+        .unwrap_or_default();
+    format!(
+        "motion correlation {component}: {:.2} ± {:.2} E RMS fitted to the aircraft's motion in {}–{} Hz exceeds {:.2} E (F = {:.1} on {:.0} and {:.1} degrees of freedom, p = {:.1e} < {}){most}",
+        f.motion_rms_e,
+        f.motion_rms_se_e,
+        f.band_hz[0],
+        f.band_hz[1],
+        t.max_motion_e,
+        f.f_statistic,
+        f.dof[0],
+        f.dof[1],
+        f.p_value,
+        t.motion_significance
+    )
 }
 
 /// Metrics and verdict of one line.
