@@ -75,11 +75,14 @@ fn score(dir: &Path) -> serde_json::Value {
     v["lines"].clone()
 }
 
-/// Every component of every stage of a score: the error at ≥ 300 m at most 0.5 E above the floor.
+/// Every component of every stage of a score: the error at ≥ 300 m, each line's mean taken out, at
+/// most 0.5 E above the floor. A constant per line is levelling's to set: the calibration fits the
+/// tensor's drift only where crossings resolve it (a drift fitted against time would take a
+/// regional across the lines), and leaves the rest to levelling's per-line offsets.
 fn assert_within_half_an_eotvos_of_the_floor(s: &serde_json::Value, label: &str) {
     for stage in s.as_array().unwrap() {
         for c in stage["components"].as_array().unwrap() {
-            let err = c["filtered_rms_error_e"].as_f64().unwrap();
+            let err = c["filtered_line_rms_error_e"].as_f64().unwrap();
             let floor = c["filtered_noise_floor_e"].as_f64().unwrap();
             eprintln!(
                 "{label} {} {}: {err:.3} E at ≥300 m, floor {floor:.3} E",

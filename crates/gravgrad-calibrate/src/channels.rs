@@ -1,9 +1,12 @@
 //! Optional regressor channels (sensor temperature, the aircraft's attitude relative to the
 //! platform) screened before any fit: a channel that is constant over the lines carries no
 //! information (a thermostatted sensor logging its set-point), and a channel with empty or
-//! not-a-number cells would turn every coefficient, and so every tensor value, into NaN. Short runs
-//! of bad cells are bridged by linear interpolation between the good cells either side; a channel
-//! with longer runs, or too many bad cells, is dropped with its reason, and its term with it.
+//! not-a-number cells would turn every coefficient, and so every tensor value, into NaN. Where the
+//! limits allow, short runs of bad cells are bridged by linear interpolation between the good cells
+//! either side; a channel with longer runs, or too many bad cells, is dropped with its reason, and
+//! its term with it. The temperature is never bridged: its term is collinear with the drift's (both
+//! slow), so whether it is kept decides how the two share the instrument's slow error, and a log
+//! that lost cells is not trusted to decide that; the run is then the run without the column.
 //!
 //! Units are the channel's own (°C, rad); times in s.
 
@@ -32,12 +35,11 @@ pub struct ScreenLimits {
 }
 
 impl ScreenLimits {
-    /// For the sensor temperature, °C: runs up to 5 s bridged (the temperature moves over
-    /// minutes), at most 5 % of cells; constant below 1 mK (a logged set-point, or a sensor that
-    /// does not resolve the changes).
+    /// For the sensor temperature, °C: no cell bridged (one empty or NaN cell drops the term);
+    /// constant below 1 mK (a logged set-point, or a sensor that does not resolve the changes).
     pub const TEMPERATURE: Self = Self {
-        max_bridge_s: 5.0,
-        max_bad_fraction: 0.05,
+        max_bridge_s: 0.0,
+        max_bad_fraction: 0.0,
         min_std: 1e-3,
     };
     /// For relative attitude, rad: runs up to 0.5 s bridged (attitude moves within seconds),
@@ -73,6 +75,16 @@ pub fn screen<'a>(
     let longest_s = longest as f64 / rate_hz;
     if bad.len() == n {
         return Screened::Drop(format!("`{name}` has no finite value: its term is dropped"));
+    }
+    if !bad.is_empty() && limits.max_bridge_s <= 0.0 {
+        return Screened::Drop(format!(
+            "`{name}` has {} empty or not-a-number cells (first at row {}, longest run {:.1} s): \
+             its term is dropped and the flight is processed as without the column (fill the \
+             cells to use it)",
+            bad.len(),
+            bad[0],
+            longest_s
+        ));
     }
     if !bad.is_empty()
         && (longest_s > limits.max_bridge_s
@@ -187,7 +199,12 @@ mod tests {
         for v in &mut x[200..210] {
             *v = f64::NAN;
         }
-        match screen("temp", &x, None, 10.0, ScreenLimits::TEMPERATURE) {
+        let limits = ScreenLimits {
+            max_bridge_s: 5.0,
+            max_bad_fraction: 0.05,
+            min_std: 1e-3,
+        };
+        match screen("temp", &x, None, 10.0, limits) {
             Screened::Use(s, Some(note)) => {
                 assert!(note.contains("12 empty"), "{note}");
                 assert!((s[100] - 21.0).abs() < 1e-12);
@@ -206,7 +223,12 @@ mod tests {
             *v = f64::NAN;
         }
         // 100 samples at 10 Hz: a 10 s run, above the 5 s limit.
-        match screen("temp", &x, None, 10.0, ScreenLimits::TEMPERATURE) {
+        let limits = ScreenLimits {
+            max_bridge_s: 5.0,
+            max_bad_fraction: 0.05,
+            min_std: 1e-3,
+        };
+        match screen("temp", &x, None, 10.0, limits) {
             Screened::Drop(why) => assert!(why.contains("10.0 s"), "{why}"),
             other => panic!("{other:?}"),
         }
@@ -222,5 +244,15 @@ mod tests {
             screen("ac_roll", &x, Some(&usable), 10.0, ScreenLimits::ATTITUDE),
             Screened::Drop(_)
         ));
+    }
+
+    #[test]
+    fn one_hole_in_the_temperature_drops_its_term() {
+        let mut x: Vec<f64> = (0..500).map(|i| 20.0 + 0.01 * i as f64).collect();
+        x[321] = f64::NAN;
+        match screen("temp", &x, None, 10.0, ScreenLimits::TEMPERATURE) {
+            Screened::Drop(why) => assert!(why.contains("row 321"), "{why}"),
+            other => panic!("{other:?}"),
+        }
     }
 }

@@ -75,7 +75,7 @@ fn window_mean(x: &[f64], usable: Option<&[bool]>, b: usize, w: usize) -> Option
 /// differences at `crossings`. `rest[c]`: the block series of component c with everything else of
 /// the calibration (coupling, quadratic terms) taken off; `time`: block times; `half_window`:
 /// blocks either side averaged at each pass. Returns `None` when there are too few crossings to
-/// say anything (fewer than one more than the functions of time fitted per component).
+/// say anything (fewer than twice one more than the functions of time fitted per component).
 #[allow(clippy::too_many_arguments)]
 pub fn fit_drift(
     rest: &[&[f64]; 6],
@@ -110,8 +110,9 @@ pub fn fit_drift(
     }
     // Regressor functions of each pass: 1, t, …, t^order, (T − T̄).
     let n_fun = 1 + drift_order + usize::from(temperature.is_some());
-    // Six equations per crossing for 6·n_fun unknowns: one crossing more than that, at least.
-    if obs.len() < n_fun + 1 {
+    // Six equations per crossing for 6·n_fun unknowns: twice as many crossings as functions plus
+    // one, so that the residual can say how well they are determined.
+    if obs.len() < 2 * (n_fun + 1) {
         return None;
     }
     let fun = |tk: [f64; 2]| -> Vec<f64> {
@@ -197,12 +198,12 @@ mod tests {
     /// drift injected, not the regional (which a fit against time would take).
     #[test]
     fn crossings_give_the_drift_and_not_the_regional() {
-        let n = 2000;
+        let n = 4000;
         let time: Vec<f64> = (0..n).map(|i| i as f64).collect();
-        // Survey lines: blocks 0–399 (north 0), 400–799 (north 200 m), …; the tie from 1600 on,
+        // Eight survey lines: blocks 0–399 (north 0), 400–799 (north 200 m), …; the tie from 3200 on,
         // flown north; heading per block.
         let heading = |i: usize| -> f64 {
-            if i >= 1600 {
+            if i >= 3200 {
                 0.0
             } else if (i / 400).is_multiple_of(2) {
                 90.0
@@ -211,14 +212,14 @@ mod tests {
             }
         };
         let north = |i: usize| -> f64 {
-            if i >= 1600 {
-                (i - 1600) as f64 * 2.0
+            if i >= 3200 {
+                (i - 3200) as f64 * 2.0
             } else {
                 (i / 400) as f64 * 200.0
             }
         };
         let east = |i: usize| -> f64 {
-            if i >= 1600 {
+            if i >= 3200 {
                 500.0
             } else {
                 let p = (i % 400) as f64 * 2.5;
@@ -251,10 +252,10 @@ mod tests {
             .map(|k| series.iter().map(|v| v[k]).collect())
             .collect();
         // Crossings at east = 500 m: survey block with east 500, tie block with the same north.
-        let crossings: Vec<Crossing> = (0..4)
+        let crossings: Vec<Crossing> = (0..8)
             .map(|l| {
                 let b1 = l * 400 + 200;
-                let b2 = 1600 + (north(b1) / 2.0) as usize;
+                let b2 = 3200 + (north(b1) / 2.0) as usize;
                 Crossing {
                     blocks: (b1, b2),
                     c_sn: (c[b1], c[b2]),

@@ -234,6 +234,9 @@ pub struct Health {
     pub band_hz: [f64; 2],
     /// RMS of the band-limited residual of each unknown's fit, s⁻² (`Gxx` … in the solve's order).
     pub band_residual: Vec<(String, f64)>,
+    /// What the user should know of how the flight was calibrated (e.g. drift fitted against time
+    /// for want of crossings).
+    pub notes: Vec<String>,
 }
 
 /// Every pair's calibration from one flight, and what the flight could not determine.
@@ -515,157 +518,137 @@ pub fn estimate_from_blocks(
     // The tensor's drift and temperature terms from crossings, not from time (a regional across
     // the lines reads like a drift in time); the bias and self-gradient refitted after them.
     let mut fitted = fitted;
-    if let (Some(g), true) = (design.as_ref(), s.drift_order >= 1 || temp_b.is_some()) {
-        let xs = d.crossings.unwrap_or(&[]);
-        let known = d.samples.known.as_ref();
-        let crossings: Vec<Crossing> = match known {
-            Some(kf) => {
-                let [roll, pitch, heading] = kf.attitude_deg;
-                let c = |i: usize| c_sn_degrees(roll[i], pitch[i], heading[i]);
-                xs.iter()
-                    .filter(|(a, b)| *a < roll.len() && *b < roll.len())
-                    .map(|&(a, b)| Crossing {
-                        blocks: (a / block, b / block),
-                        c_sn: (c(a), c(b)),
-                    })
-                    .collect()
-            }
-            None => Vec::new(),
-        };
-        // Each tensor row with its coupling and quadratic parts taken off (with a file, they came
-        // off with the file's other fixed parts already).
-        let rest: Vec<Vec<f64>> = (0..6)
-            .map(|j| match &fitted[j] {
-                Some(_) if fixed.is_some() => targets[j].clone(),
-                Some((c, _)) => targets[j]
+    let mut crossing_note: Option<String> = None;
+    if let (Some(g), true) = (design.as_ref(), s.drift_order >= 1 || temp_b.is_some())
+        && !(fixed.is_some() && s.drift_order == 0)
+    {
+        'crossing: {
+            let xs = d.crossings.unwrap_or(&[]);
+            let known = d.samples.known.as_ref();
+            let crossings: Vec<Crossing> = match known {
+                Some(kf) => {
+                    let [roll, pitch, heading] = kf.attitude_deg;
+                    let c = |i: usize| c_sn_degrees(roll[i], pitch[i], heading[i]);
+                    xs.iter()
+                        .filter(|(a, b)| *a < roll.len() && *b < roll.len())
+                        .map(|&(a, b)| Crossing {
+                            blocks: (a / block, b / block),
+                            c_sn: (c(a), c(b)),
+                        })
+                        .collect()
+                }
+                None => Vec::new(),
+            };
+            // Each tensor row with its coupling and quadratic parts taken off (with a file, they came
+            // off with the file's other fixed parts already).
+            let rest: Vec<Vec<f64>> = (0..6)
+                .map(|j| match &fitted[j] {
+                    Some(_) if fixed.is_some() => targets[j].clone(),
+                    Some((c, _)) => targets[j]
+                        .iter()
+                        .enumerate()
+                        .map(|(i, y)| {
+                            let mut v =
+                                y - (0..3).map(|m| c.kappa[m].value * fb[m][i]).sum::<f64>();
+                            if let (Some(q), Some(p)) = (c.quadratic, products) {
+                                v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
+                            }
+                            v
+                        })
+                        .collect(),
+                    None => vec![0.0; n],
+                })
+                .collect();
+            let r6: [&[f64]; 6] = std::array::from_fn(|j| &rest[j][..]);
+            let t_mid = fitted[0].as_ref().map_or(0.0, |x| x.0.t_mid);
+            let temp_mean = fitted[0].as_ref().map_or(0.0, |x| x.0.temperature_mean);
+            let half_window = (0.5 * s.rate_hz).ceil() as usize;
+            // A file's temperature term is the calibration flight's: not refitted here.
+            let temp_fit = if fixed.is_some() {
+                None
+            } else {
+                temp_b.as_deref().map(|t| (t, temp_mean))
+            };
+            let cf = crate::crossings::fit_drift(
+                &r6,
+                &tb,
+                t_mid,
+                temp_fit,
+                usable_b.as_deref(),
+                s.drift_order,
+                &crossings,
+                half_window,
+                s.min_significance,
+            );
+            // Too few crossings: the time fit stands, and the log says what it cannot tell apart.
+            let Some(cf) = cf else {
+                crossing_note = Some(format!(
+                    "{} crossings of survey and tie lines in the flight ({} needed to fit the tensor's \
+                 drift{} from them): fitted against time instead, where a regional across lines \
+                 flown in order cannot be told from drift",
+                    crossings.len(),
+                    2 * (2 + s.drift_order + usize::from(temp_fit.is_some())),
+                    if temp_fit.is_some() {
+                        " and temperature term"
+                    } else {
+                        ""
+                    }
+                ));
+                break 'crossing;
+            };
+            let (components, mut held_x) = (cf.components.to_vec(), cf.held);
+            let rows = g.line_rows();
+            for (j, comp) in components.iter().enumerate() {
+                let Some((c, held)) = fitted[j].as_mut() else {
+                    continue;
+                };
+                // The time fit's drift, temperature, bias and self-gradient verdicts are replaced.
+                held.retain(|h| {
+                    !(h.term.starts_with("drift")
+                        || h.term == "temperature"
+                        || h.term.starts_with("self-gradient"))
+                });
+                let level: Vec<f64> = rows
                     .iter()
-                    .enumerate()
-                    .map(|(i, y)| {
-                        let mut v = y - (0..3).map(|m| c.kappa[m].value * fb[m][i]).sum::<f64>();
-                        if let (Some(q), Some(p)) = (c.quadratic, products) {
-                            v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
+                    .map(|&i| {
+                        let dt = tb[i] - t_mid;
+                        let mut v = rest[j][i]
+                            - comp
+                                .drift
+                                .iter()
+                                .enumerate()
+                                .map(|(q, co)| co.value * dt.powi(q as i32 + 1))
+                                .sum::<f64>();
+                        if let (Some(tc), Some(t)) = (comp.temperature, temp_b.as_ref()) {
+                            v -= tc.value * (t[i] - temp_mean);
                         }
                         v
                     })
-                    .collect(),
-                None => vec![0.0; n],
-            })
-            .collect();
-        let r6: [&[f64]; 6] = std::array::from_fn(|j| &rest[j][..]);
-        let t_mid = fitted[0].as_ref().map_or(0.0, |x| x.0.t_mid);
-        let temp_mean = fitted[0].as_ref().map_or(0.0, |x| x.0.temperature_mean);
-        let half_window = (0.5 * s.rate_hz).ceil() as usize;
-        // A file's temperature term is the calibration flight's: not refitted here.
-        let temp_fit = if fixed.is_some() {
-            None
-        } else {
-            temp_b.as_deref().map(|t| (t, temp_mean))
-        };
-        let cf = crate::crossings::fit_drift(
-            &r6,
-            &tb,
-            t_mid,
-            temp_fit,
-            usable_b.as_deref(),
-            s.drift_order,
-            &crossings,
-            half_window,
-            s.min_significance,
-        );
-        let (components, mut held_x): (
-            Vec<crate::crossings::ComponentDrift>,
-            Vec<(String, HeldTerm)>,
-        ) = match cf {
-            Some(cf) => (cf.components.to_vec(), cf.held),
-            None => {
-                let why = format!(
-                    "{} crossings of survey and tie lines in the flight ({} needed): left to levelling",
-                    crossings.len(),
-                    2 + s.drift_order + usize::from(temp_fit.is_some())
+                    .collect();
+                let (bias, sg, held_level) =
+                    g.refit_level(&level, fixed.is_none(), s.min_significance);
+                held.extend(held_level);
+                c.polynomial = std::iter::once(bias)
+                    .chain(comp.drift.iter().copied())
+                    .collect();
+                if fixed.is_none() {
+                    if c.temperature.is_some() {
+                        c.temperature = comp.temperature;
+                    }
+                    c.self_gradient = sg;
+                }
+                held.extend(
+                    held_x
+                        .iter()
+                        .filter(|(name, _)| name == UNKNOWNS[j])
+                        .map(|(_, h)| h.clone()),
                 );
-                let zero = Coefficient {
-                    value: 0.0,
-                    std_error: 0.0,
-                };
-                let comp = crate::crossings::ComponentDrift {
-                    drift: vec![zero; s.drift_order],
-                    temperature: temp_fit.map(|_| zero),
-                };
-                let mut held = Vec::new();
-                for name in &UNKNOWNS[..6] {
-                    if s.drift_order >= 1 {
-                        held.push((
-                            name.to_string(),
-                            HeldTerm {
-                                term: "drift".into(),
-                                estimate: None,
-                                reason: why.clone(),
-                            },
-                        ));
-                    }
-                    if temp_fit.is_some() {
-                        held.push((
-                            name.to_string(),
-                            HeldTerm {
-                                term: "temperature".into(),
-                                estimate: None,
-                                reason: why.clone(),
-                            },
-                        ));
-                    }
-                }
-                (vec![comp; 6], held)
             }
-        };
-        let rows = g.line_rows();
-        for (j, comp) in components.iter().enumerate() {
-            let Some((c, held)) = fitted[j].as_mut() else {
-                continue;
-            };
-            // The time fit's drift, temperature, bias and self-gradient verdicts are replaced.
-            held.retain(|h| {
-                !(h.term.starts_with("drift")
-                    || h.term == "temperature"
-                    || h.term.starts_with("self-gradient"))
-            });
-            let level: Vec<f64> = rows
-                .iter()
-                .map(|&i| {
-                    let dt = tb[i] - t_mid;
-                    let mut v = rest[j][i]
-                        - comp
-                            .drift
-                            .iter()
-                            .enumerate()
-                            .map(|(q, co)| co.value * dt.powi(q as i32 + 1))
-                            .sum::<f64>();
-                    if let (Some(tc), Some(t)) = (comp.temperature, temp_b.as_ref()) {
-                        v -= tc.value * (t[i] - temp_mean);
-                    }
-                    v
-                })
-                .collect();
-            let (bias, sg, held_level) = g.refit_level(&level, fixed.is_none(), s.min_significance);
-            held.extend(held_level);
-            c.polynomial = std::iter::once(bias)
-                .chain(comp.drift.iter().copied())
-                .collect();
-            if fixed.is_none() {
-                if c.temperature.is_some() {
-                    c.temperature = comp.temperature;
-                }
-                c.self_gradient = sg;
-            }
-            held.extend(
-                held_x
-                    .iter()
-                    .filter(|(name, _)| name == UNKNOWNS[j])
-                    .map(|(_, h)| h.clone()),
-            );
+            held_x.clear();
         }
-        held_x.clear();
     }
     let mut health = Health {
+        notes: crossing_note.into_iter().collect(),
         condition: design.as_ref().map_or([0.0; 2], Design::conditions),
         band_hz: s.band_hz,
         ..Health::default()

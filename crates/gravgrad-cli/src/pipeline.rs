@@ -405,6 +405,7 @@ pub fn process_flight(
             "zero"
         };
         // One line per fitted series for the log; one per term for the report.
+        notes.extend(fc.health.notes.iter().cloned());
         let mut summary: Vec<(String, Vec<String>)> = Vec::new();
         for (series, h) in &fc.health.held {
             held_lines.push(format!(
@@ -630,8 +631,8 @@ fn calibration_settings(
     });
     let wavelength = c
         .geology_wavelength_m
-        .or(clearance.map(|h| 2.5 * h))
-        .unwrap_or(250.0);
+        .or(clearance.map(|h| 4.0 * h))
+        .unwrap_or(400.0);
     let mut band = [lo, hi];
     if let Some(v) = speed {
         let edge = v / wavelength;

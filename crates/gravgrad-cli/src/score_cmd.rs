@@ -44,17 +44,18 @@ fn render(scores: &[StageScore]) -> String {
         );
         let _ = writeln!(
             s,
-            "  {:<4} {:>10} {:>10} {:>13} {:>13}",
-            "", "mean E", "RMS E", "filtered E", "noise floor E"
+            "  {:<4} {:>10} {:>10} {:>13} {:>16} {:>13}",
+            "", "mean E", "RMS E", "filtered E", "per line E", "noise floor E"
         );
         for c in &st.components {
             let _ = writeln!(
                 s,
-                "  {:<4} {:>10.3} {:>10.3} {:>13.3} {:>13.3}",
+                "  {:<4} {:>10.3} {:>10.3} {:>13.3} {:>16.3} {:>13.3}",
                 c.component,
                 c.mean_error_e,
                 c.rms_error_e,
                 c.filtered_rms_error_e,
+                c.filtered_line_rms_error_e,
                 c.filtered_noise_floor_e
             );
         }

@@ -125,8 +125,8 @@ pub struct Calibration {
     pub min_significance: f64,
     /// Shortest wavelength of the geology, m: the band's low edge is raised, flight by flight, to
     /// the median line speed over this wavelength, so that the fit does not take geology for
-    /// motion coupling. Absent: 2.5 × the median clearance over the lines when the log has a
-    /// `clearance` column, else 250 m.
+    /// motion coupling. Absent: 4 × the median clearance over the lines when the log has a
+    /// `clearance` column, else 400 m.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub geology_wavelength_m: Option<f64>,
 }

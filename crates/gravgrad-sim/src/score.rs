@@ -34,6 +34,9 @@ pub struct ComponentScore {
     pub rms_error_e: f64,
     /// RMS error about the mean after the along-track low-pass, E.
     pub filtered_rms_error_e: f64,
+    /// The same with each line's own mean error taken out first, E: what is left for levelling
+    /// (a constant per line) does not count.
+    pub filtered_line_rms_error_e: f64,
     /// White-noise floor of this component after the same low-pass, E.
     pub filtered_noise_floor_e: f64,
 }
@@ -139,15 +142,21 @@ pub fn score_stage(
             let mean = finite.iter().sum::<f64>() / nf;
             let rms = (finite.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / nf).sqrt();
             let mut filtered = Vec::new();
+            let mut per_line = Vec::new();
             for (r, d) in runs.iter().zip(&dists) {
                 let e: Vec<f64> = r
                     .clone()
                     .map(|i| s.run[c][i] - s.truth[c][i] - mean)
                     .collect();
                 if let Ok(f) = low_pass_along_track(d, &e, &lp) {
+                    let fin: Vec<f64> = f.iter().copied().filter(|v| v.is_finite()).collect();
+                    let m = fin.iter().sum::<f64>() / fin.len().max(1) as f64;
+                    per_line.extend(fin.iter().map(|v| v - m));
                     filtered.extend(f);
                 }
             }
+            let lrms =
+                (per_line.iter().map(|v| v * v).sum::<f64>() / per_line.len().max(1) as f64).sqrt();
             let nfl = filtered.len().max(1) as f64;
             let fmean = filtered.iter().sum::<f64>() / nfl;
             let frms = (filtered.iter().map(|v| (v - fmean).powi(2)).sum::<f64>() / nfl).sqrt();
@@ -156,6 +165,7 @@ pub fn score_stage(
                 mean_error_e: if finite.is_empty() { f64::NAN } else { mean },
                 rms_error_e: if finite.is_empty() { f64::NAN } else { rms },
                 filtered_rms_error_e: if filtered.is_empty() { f64::NAN } else { frms },
+                filtered_line_rms_error_e: if per_line.is_empty() { f64::NAN } else { lrms },
                 filtered_noise_floor_e: densities[c] * bandwidth.sqrt(),
             }
         })
