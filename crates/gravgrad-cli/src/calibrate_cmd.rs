@@ -6,7 +6,7 @@ use crate::run_cmd::{self, Processed};
 use crate::tables::write_atomic;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
-use gravgrad_calibrate::file::CalibrationFile;
+use gravgrad_calibrate::file::{CalibrationFile, PairEntry};
 use gravgrad_core::units::EOTVOS;
 use gravgrad_ingest::recipe::CalibrationMode;
 use std::fmt::Write as _;
@@ -25,6 +25,50 @@ pub struct CalibrateArgs {
     pub out: Option<PathBuf>,
 }
 
+/// A pair's calibration in the units a report shows: κ with standard errors, the first drift
+/// coefficient in E/h, the temperature term in E/°C and the band residual in E (each m/s² figure
+/// divided by the pair's baseline length, then by 1 E).
+#[derive(Clone, Debug, PartialEq)]
+pub struct PairFigures {
+    /// (value, standard error) of κx κy κz.
+    pub kappa: [(f64, f64); 3],
+    /// `None` when the drift polynomial has no term in t (`calibration.drift_order = 0`).
+    pub drift_e_h: Option<f64>,
+    /// `None` when the flight had no usable temperature log.
+    pub temperature_e_c: Option<f64>,
+    pub band_residual_e: f64,
+}
+
+/// The figures of one stored pair entry, its baseline `baseline_m` long.
+pub fn figures(p: &PairEntry, baseline_m: f64) -> PairFigures {
+    let to_e = |v: f64| v / baseline_m / EOTVOS;
+    PairFigures {
+        kappa: std::array::from_fn(|i| (p.kappa[i], p.kappa_se[i])),
+        drift_e_h: p.drift.first().map(|d| to_e(*d) * 3600.0),
+        temperature_e_c: p.temperature_m_s2_per_c.map(to_e),
+        band_residual_e: to_e(p.band_residual_m_s2),
+    }
+}
+
+/// The baseline length of every pair of the survey's instrument, m.
+pub fn baselines(p: &Processed) -> Vec<(String, f64)> {
+    p.survey
+        .instrument
+        .as_ref()
+        .map(|i| {
+            i.pairs
+                .iter()
+                .map(|g| (g.id.clone(), gravgrad_core::mat3::norm(&g.baseline)))
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
+/// The baseline of pair `id` in `baselines`, m (1 when the instrument lacks it).
+pub fn baseline_of(baselines: &[(String, f64)], id: &str) -> f64 {
+    baselines.iter().find(|(b, _)| b == id).map_or(1.0, |x| x.1)
+}
+
 /// The report: one row per pair with its coefficients and standard errors.
 pub fn report(name: &str, file: &CalibrationFile, baselines: &[(String, f64)]) -> String {
     let mut s = format!(
@@ -40,12 +84,8 @@ pub fn report(name: &str, file: &CalibrationFile, baselines: &[(String, f64)]) -
         "resid E"
     );
     for p in &file.pair {
-        let b = baselines
-            .iter()
-            .find(|(id, _)| *id == p.id)
-            .map_or(1.0, |x| x.1);
-        let to_e = |v: f64| v / b / EOTVOS;
-        let k = |i: usize| format!("{:+.3e} ± {:.1e}", p.kappa[i], p.kappa_se[i]);
+        let f = figures(p, baseline_of(baselines, &p.id));
+        let k = |i: usize| format!("{:+.3e} ± {:.1e}", f.kappa[i].0, f.kappa[i].1);
         let _ = writeln!(
             s,
             "{:<6} {:>24} {:>24} {:>24} {:>14} {:>12} {:>10.3}",
@@ -53,12 +93,9 @@ pub fn report(name: &str, file: &CalibrationFile, baselines: &[(String, f64)]) -
             k(0),
             k(1),
             k(2),
-            p.drift
-                .first()
-                .map_or("—".into(), |d| format!("{:+.3}", to_e(*d) * 3600.0)),
-            p.temperature_m_s2_per_c
-                .map_or("—".into(), |t| format!("{:+.3}", to_e(t))),
-            to_e(p.band_residual_m_s2)
+            f.drift_e_h.map_or("—".into(), |d| format!("{d:+.3}")),
+            f.temperature_e_c.map_or("—".into(), |t| format!("{t:+.3}")),
+            f.band_residual_e
         );
     }
     s
@@ -106,17 +143,7 @@ pub fn run(args: &CalibrateArgs, log: &Log) -> u8 {
         .recipe
         .as_ref()
         .map_or([0.05, 1.0], |r| r.calibration.band_hz);
-    let baselines: Vec<(String, f64)> = p
-        .survey
-        .instrument
-        .as_ref()
-        .map(|i| {
-            i.pairs
-                .iter()
-                .map(|g| (g.id.clone(), gravgrad_core::mat3::norm(&g.baseline)))
-                .collect()
-        })
-        .unwrap_or_default();
+    let baselines = baselines(&p);
     for ((name, r), path) in p.names.iter().zip(&p.results).zip(target_paths(&p, args)) {
         let file = CalibrationFile::new(name, band, &r.calibration);
         let mut text = report(name, &file, &baselines);

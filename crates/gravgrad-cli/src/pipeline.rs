@@ -146,6 +146,10 @@ pub enum CalibrationSource<'a> {
     None,
 }
 
+/// How the one note summing up the held calibration terms begins: "calibration terms held at
+/// <prior> (…): <series> [<term>, …]; …" (QC tells it from the other notes by this).
+pub const HELD_SUMMARY: &str = "calibration terms held at";
+
 /// The result of processing one flight.
 pub struct FlightResult {
     pub positions: Positions,
@@ -424,7 +428,7 @@ pub fn process_flight(
         }
         if !summary.is_empty() {
             notes.push(format!(
-                "calibration terms held at {prior} (not resolved, or below {} standard errors): {}",
+                "{HELD_SUMMARY} {prior} (not resolved, or below {} standard errors): {}",
                 settings.min_significance,
                 summary
                     .iter()
