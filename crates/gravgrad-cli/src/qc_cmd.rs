@@ -1,9 +1,10 @@
 //! `gravgrad qc RECIPE`: the survey processed as `gravgrad run` does it, then per line the QC metrics
 //! of `gravgrad_lines::qc` (the motion-correlation test among them, fed with the logged specific force
 //! and angular rate and the gyro angular acceleration) and a verdict against the recipe's `[qc]`
-//! tolerances. Writes `qc/lines.csv` and the self-contained `qc/report.html` (`report_html.rs`),
-//! prints a table (or JSON with `--json`). Exit 0 when it ran, whatever the verdicts (they are data);
-//! 2 on bad input.
+//! tolerances, and per flight the calibration's health (mode, terms held, warnings) from the notes
+//! the pipeline gives. Writes `qc/lines.csv` and the self-contained `qc/report.html`
+//! (`report_html.rs`), prints a table (or JSON with `--json`). Exit 0 when it ran, whatever the
+//! verdicts (they are data); 2 on bad input.
 
 use crate::EXIT_FAILURE;
 use crate::line_stages::{self, LineStages, Segment};
@@ -260,6 +261,110 @@ pub fn assess_all(
         .collect()
 }
 
+/// What one flight's calibration could not determine, as QC reports it: per line in
+/// `qc/lines.csv`, per flight in the table, the JSON and the report's Calibration section.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct CalibrationHealth {
+    /// The recipe's `calibration.mode`: `estimate`, `file` or `none`.
+    pub mode: &'static str,
+    /// The terms held at their prior, per fitted series (`Gxx` … `αz`, `pair xy`), in the
+    /// calibration's order: (series, terms).
+    pub held: Vec<(String, Vec<String>)>,
+    /// One line per held term with its reason and estimate (empty for a flight reused from the
+    /// flight store, which keeps only the summary).
+    pub held_reasons: Vec<String>,
+    /// Every other note: dropped or bridged channels, drift fitted against time, the band.
+    pub warnings: Vec<String>,
+}
+
+impl CalibrationHealth {
+    /// The number of terms held.
+    pub fn terms_held(&self) -> usize {
+        self.held.iter().map(|(_, t)| t.len()).sum()
+    }
+
+    /// The reasons of the terms of `series`, each without the series' name.
+    pub fn reasons_of<'a>(&'a self, series: &'a str) -> impl Iterator<Item = &'a str> + 'a {
+        self.held_reasons
+            .iter()
+            .filter_map(move |l| l.strip_prefix(series)?.strip_prefix(": "))
+    }
+}
+
+/// The series and terms of the calibration's summary note "calibration terms held at <prior>
+/// (…): Gxx [fz², drift]; pair xy [κx]"; `None` when `note` is not that summary.
+pub fn held_terms(note: &str) -> Option<Vec<(String, Vec<String>)>> {
+    let rest = note.strip_prefix(crate::pipeline::HELD_SUMMARY)?;
+    let (_, list) = rest.split_once("): ")?;
+    Some(
+        list.split("; ")
+            .filter_map(|group| {
+                let (series, terms) = group.split_once(" [")?;
+                let terms = terms.strip_suffix(']')?;
+                Some((
+                    series.to_string(),
+                    terms.split(", ").map(String::from).collect(),
+                ))
+            })
+            .collect(),
+    )
+}
+
+/// The calibration health of a flight processed with calibration mode `mode`.
+pub fn flight_health(
+    mode: gravgrad_ingest::recipe::CalibrationMode,
+    notes: &[String],
+    held_reasons: &[String],
+) -> CalibrationHealth {
+    use gravgrad_ingest::recipe::CalibrationMode;
+    let mut h = CalibrationHealth {
+        mode: match mode {
+            CalibrationMode::Estimate => "estimate",
+            CalibrationMode::File => "file",
+            CalibrationMode::None => "none",
+        },
+        held_reasons: held_reasons.to_vec(),
+        ..CalibrationHealth::default()
+    };
+    for n in notes {
+        match held_terms(n) {
+            Some(groups) => h.held.extend(groups),
+            None => h.warnings.push(n.clone()),
+        }
+    }
+    h
+}
+
+/// The calibration health of every flight of `p`, in the order of `p.results`.
+pub fn calibration_health(
+    p: &Processed,
+    recipe: &gravgrad_ingest::recipe::Recipe,
+) -> Vec<CalibrationHealth> {
+    p.results
+        .iter()
+        .map(|r| {
+            flight_health(
+                recipe.calibration.mode,
+                &r.calibration_notes,
+                &r.calibration_held,
+            )
+        })
+        .collect()
+}
+
+fn plural(n: usize, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
+/// "N terms held, M warnings".
+pub fn health_counts(h: &CalibrationHealth) -> String {
+    format!(
+        "{}, {}",
+        plural(h.terms_held(), "term held", "terms held"),
+        plural(h.warnings.len(), "warning", "warnings")
+    )
+}
+
 fn opt(v: Option<f64>, digits: usize) -> String {
     match v {
         Some(x) if x.is_finite() => format!("{x:.digits$}"),
@@ -299,8 +404,9 @@ fn csv_quote(s: &str) -> String {
     }
 }
 
-/// `qc/lines.csv` (layout `qc-lines/2`, docs/formats.md).
-pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
+/// `qc/lines.csv` (layout `qc-lines/3`, docs/formats.md). `health`: per flight, in the order of
+/// the processed flights.
+pub fn lines_csv(st: &LineStages, qcs: &[LineQc], health: &[CalibrationHealth]) -> String {
     let comps: Vec<usize> = (0..6).filter(|c| st.observed[*c]).collect();
     let mut head: Vec<String> = [
         "flight",
@@ -340,10 +446,17 @@ pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
         head.push(format!("level_offset_{n}_e"));
         head.push(format!("level_trend_{n}_e_s"));
     }
+    for h in [
+        "calibration_terms_held",
+        "calibration_warnings",
+        "calibration_mode",
+    ] {
+        head.push(h.into());
+    }
     head.push("verdict".into());
     head.push("reasons".into());
     let mut out = format!(
-        "# gravgrad qc-lines/2: one row per line; {} stage; E = 1e-9 s^-2\n{}\n",
+        "# gravgrad qc-lines/3: one row per line; {} stage; E = 1e-9 s^-2\n{}\n",
         st.reduced_stage,
         head.join(",")
     );
@@ -413,6 +526,14 @@ pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
                 None => row.extend([String::new(), String::new()]),
             }
         }
+        match health.get(s.flight) {
+            Some(h) => {
+                row.push(h.terms_held().to_string());
+                row.push(h.warnings.len().to_string());
+                row.push(h.mode.into());
+            }
+            None => row.extend(std::iter::repeat_n(String::new(), 3)),
+        }
         row.push(if q.verdict.pass { "pass" } else { "fail" }.into());
         row.push(csv_quote(&q.verdict.reasons.join("; ")));
         out.push_str(&row.join(","));
@@ -423,7 +544,14 @@ pub fn lines_csv(st: &LineStages, qcs: &[LineQc]) -> String {
 
 /// The terminal table. `motion E`: the largest motion part of a component whose fit is significant
 /// at `level` (0 when none is).
-fn table(st: &LineStages, qcs: &[LineQc], level: f64) -> String {
+/// Then one line per flight: its calibration mode, the terms held and the warnings.
+fn table(
+    st: &LineStages,
+    qcs: &[LineQc],
+    level: f64,
+    names: &[String],
+    health: &[CalibrationHealth],
+) -> String {
     let fw = qcs
         .iter()
         .map(|q| q.flight_name.chars().count())
@@ -473,10 +601,72 @@ fn table(st: &LineStages, qcs: &[LineQc], level: f64) -> String {
             ));
         }
     }
+    for (name, h) in names.iter().zip(health) {
+        out.push_str(&format!(
+            "calibration {name}: {}, {}\n",
+            h.mode,
+            health_counts(h)
+        ));
+    }
     out
 }
 
-fn json(survey: &str, st: &LineStages, qcs: &[LineQc]) -> serde_json::Value {
+/// Per flight: the calibration mode, the counts, the notes as logged, the held terms per series
+/// with their reasons, and every pair's coefficients in the report's units.
+fn flights_json(p: &Processed, health: &[CalibrationHealth]) -> Vec<serde_json::Value> {
+    use crate::calibrate_cmd::{baseline_of, baselines, figures};
+    use gravgrad_calibrate::file::PairEntry;
+    use serde_json::json;
+    let num = |v: Option<f64>| v.filter(|x| x.is_finite());
+    let baselines = baselines(p);
+    p.names
+        .iter()
+        .zip(&p.results)
+        .zip(health)
+        .map(|((name, r), h)| {
+            let pairs: Vec<serde_json::Value> = r
+                .calibration
+                .iter()
+                .map(|(id, c)| {
+                    let f = figures(
+                        &PairEntry::from_calibration(id, c),
+                        baseline_of(&baselines, id),
+                    );
+                    json!({
+                        "pair": id,
+                        "kappa": f.kappa.map(|k| num(Some(k.0))),
+                        "kappa_se": f.kappa.map(|k| num(Some(k.1))),
+                        "drift_e_h": num(f.drift_e_h),
+                        "temperature_e_c": num(f.temperature_e_c),
+                        "band_residual_e": num(Some(f.band_residual_e)),
+                    })
+                })
+                .collect();
+            json!({
+                "flight": name,
+                "calibration": {
+                    "mode": h.mode,
+                    "terms_held": h.terms_held(),
+                    "warnings": h.warnings.len(),
+                    "notes": r.calibration_notes,
+                    "held": h.held.iter().map(|(series, terms)| json!({
+                        "series": series,
+                        "terms": terms,
+                    })).collect::<Vec<_>>(),
+                    "held_reasons": h.held_reasons,
+                    "pairs": pairs,
+                },
+            })
+        })
+        .collect()
+}
+
+fn json(
+    survey: &str,
+    st: &LineStages,
+    qcs: &[LineQc],
+    flights: Vec<serde_json::Value>,
+) -> serde_json::Value {
     use serde_json::json;
     let num = |v: Option<f64>| v.filter(|x| x.is_finite());
     let lines: Vec<serde_json::Value> = qcs
@@ -563,6 +753,7 @@ fn json(survey: &str, st: &LineStages, qcs: &[LineQc]) -> serde_json::Value {
         "survey": survey,
         "reduced_stage": st.reduced_stage,
         "lines": lines,
+        "flights": flights,
         "crossovers": crossovers,
         "notes": st.notes,
     })
@@ -591,8 +782,9 @@ pub fn write_qc(
         None => None,
     };
     let qcs = assess_all(p, stages, &settings, plan.as_ref());
-    let csv = lines_csv(stages, &qcs);
-    let html = report_html::render(p, stages, &qcs, &settings);
+    let health = calibration_health(p, recipe);
+    let csv = lines_csv(stages, &qcs, &health);
+    let html = report_html::render(p, stages, &qcs, &settings, &health);
     for (name, text) in [("lines.csv", &csv), ("report.html", &html)] {
         if let Err(e) = write_text(&qc_dir.join(name), text) {
             eprintln!("error: {e}");
@@ -629,11 +821,13 @@ pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
         clock.elapsed().as_secs_f64()
     ));
     let survey = recipe.survey.name.as_str();
+    let health = calibration_health(&p, recipe);
     if json_out {
-        println!("{}", json(survey, &stages, &qcs));
+        let flights = flights_json(&p, &health);
+        println!("{}", json(survey, &stages, &qcs, flights));
     } else {
         let level = settings(recipe).tolerances.motion_significance;
-        print!("{}", table(&stages, &qcs, level));
+        print!("{}", table(&stages, &qcs, level, &p.names, &health));
     }
     let failed = qcs.iter().filter(|q| !q.verdict.pass).count();
     log.info(&format!(
@@ -644,4 +838,73 @@ pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
         dir.join("report.html").display()
     ));
     0
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use gravgrad_ingest::recipe::CalibrationMode;
+
+    /// The summary the demo's first flight logs (`gravgrad qc data/demo/recipe.toml`), whose
+    /// `gravgrad calibrate` report lists 74 held terms, one line each.
+    const DEMO_F01: &str = "calibration terms held at zero (not resolved, or below 4 standard errors): Gxx [fx², fx·fy, fy·fz, fy², fz², fx·fz, temperature, drift]; Gxy [fz², fx·fy, fy², fx·fz, fy·fz, fx², drift, temperature]; Gxz [fx·fz, fx², fz², fx·fy, fy·fz, fy², drift, temperature]; Gyy [fy², fx², fx·fz, fx·fy, fy·fz, fz², temperature]; Gyz [fy², fz², fy·fz, fx², fx·fz, fx·fy, temperature, drift]; Gzz [fz², fx·fz, fx², fy², fx·fy, fy·fz, drift, temperature]; αx [fz², fx·fy, fx·fz, fx², fy·fz, fy², drift, temperature]; αy [fx·fz, fx², fz², fx·fy, fy², fy·fz, κx, drift, temperature]; αz [fx·fy, fx·fz, fx², fz², fy·fz, fy², κy, κx, drift, temperature]";
+
+    #[test]
+    fn the_demo_summary_gives_its_series_and_74_terms() {
+        let h = flight_health(CalibrationMode::Estimate, &[DEMO_F01.to_string()], &[]);
+        let series: Vec<&str> = h.held.iter().map(|(s, _)| s.as_str()).collect();
+        assert_eq!(
+            series,
+            ["Gxx", "Gxy", "Gxz", "Gyy", "Gyz", "Gzz", "αx", "αy", "αz"]
+        );
+        let counts: Vec<usize> = h.held.iter().map(|(_, t)| t.len()).collect();
+        assert_eq!(counts, [8, 8, 8, 7, 8, 8, 8, 9, 10]);
+        assert_eq!(h.terms_held(), 74);
+        assert_eq!(h.held[8].1[6..8], ["κy", "κx"]);
+        assert!(h.warnings.is_empty());
+        assert_eq!(health_counts(&h), "74 terms held, 0 warnings");
+    }
+
+    #[test]
+    fn a_file_prior_and_pair_series_are_read_and_other_notes_are_warnings() {
+        let notes = [
+            "`temp` is constant over the lines (standard deviation 0.00e0, at least 1e-3 needed): its term is dropped".to_string(),
+            "calibration terms held at the file's value (not resolved, or below 3 standard errors): pair xy [drift (crossings)]; pair x [κz, drift t^2]".to_string(),
+        ];
+        let reasons = [
+            "pair xy: drift (crossings) held at the file's value — too few crossings".to_string(),
+            "pair x: κz held at the file's value — not significant".to_string(),
+            "pair x: drift t^2 held at the file's value — not significant".to_string(),
+        ];
+        let h = flight_health(CalibrationMode::File, &notes, &reasons);
+        assert_eq!(h.mode, "file");
+        assert_eq!(
+            h.held,
+            [
+                ("pair xy".to_string(), vec!["drift (crossings)".to_string()]),
+                (
+                    "pair x".to_string(),
+                    vec!["κz".to_string(), "drift t^2".to_string()]
+                ),
+            ]
+        );
+        assert_eq!(h.warnings, notes[..1]);
+        assert_eq!(health_counts(&h), "3 terms held, 1 warning");
+        // `pair x` does not take the reasons of `pair xy`.
+        assert_eq!(
+            h.reasons_of("pair x").collect::<Vec<_>>(),
+            [
+                "κz held at the file's value — not significant",
+                "drift t^2 held at the file's value — not significant"
+            ]
+        );
+        assert_eq!(h.reasons_of("pair xy").count(), 1);
+        assert!(held_terms(&notes[0]).is_none());
+    }
+
+    #[test]
+    fn no_calibration_is_mode_none_with_nothing_held() {
+        let h = flight_health(CalibrationMode::None, &[], &[]);
+        assert_eq!((h.mode, h.terms_held(), h.warnings.len()), ("none", 0, 0));
+    }
 }

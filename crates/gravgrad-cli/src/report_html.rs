@@ -1,12 +1,15 @@
 //! `qc/report.html`: one self-contained page (inline CSS and SVG drawn here; no script, no font, no
 //! image, nothing fetched) with the verdict of every line, the map of the lines coloured by verdict,
-//! the crossover statistics before and after levelling, the motion-correlation test per line and
+//! the crossover statistics before and after levelling, the calibration of every flight (mode,
+//! warnings, held terms, the pairs' coefficients), the motion-correlation test per line and
 //! component, the noise spectra and each line's Gzz profile at every stage. Same input, same bytes:
 //! no time stamp, no path, numbers formatted at fixed precision, everything in the order of the lines.
 
+use crate::calibrate_cmd::{baseline_of, baselines, figures};
 use crate::line_stages::{self, LineStages};
-use crate::qc_cmd::{LineQc, NAMES, worst_motion, worst_noise};
+use crate::qc_cmd::{CalibrationHealth, LineQc, NAMES, health_counts, worst_motion, worst_noise};
 use crate::run_cmd::Processed;
+use gravgrad_calibrate::file::PairEntry;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_lines::QcSettings;
 use gravgrad_lines::spectrum::welch;
@@ -451,6 +454,121 @@ fn motion(out: &mut String, st: &LineStages, qcs: &[LineQc], s: &QcSettings) {
     out.push_str("</tbody></table>\n");
 }
 
+/// Escaped text with each `name` in back-quotes set as code.
+fn inline(s: &str) -> String {
+    let parts: Vec<String> = s.split('`').map(esc).collect();
+    if parts.len().is_multiple_of(2) {
+        // An unpaired back-quote: shown as it is.
+        return esc(s);
+    }
+    let mut out = String::new();
+    for (k, part) in parts.iter().enumerate() {
+        if k % 2 == 1 {
+            let _ = write!(out, "<code>{part}</code>");
+        } else {
+            out.push_str(part);
+        }
+    }
+    out
+}
+
+/// One block per flight: the calibration mode, the notes, the held terms per fitted series (with
+/// their reasons when the flight was computed in this run) and every pair's coefficients.
+fn calibration(out: &mut String, p: &Processed, health: &[CalibrationHealth]) {
+    let baselines = baselines(p);
+    let recipe = p.survey.recipe.as_ref();
+    let file = recipe
+        .and_then(|r| r.calibration.file.as_deref())
+        .unwrap_or("calibration.toml");
+    out.push_str("<div id=\"calibration\">\n");
+    for ((name, r), h) in p.names.iter().zip(&p.results).zip(health) {
+        let _ = writeln!(
+            out,
+            "<h3>Flight {} — {}</h3>",
+            esc(name),
+            esc(&health_counts(h))
+        );
+        let _ = writeln!(
+            out,
+            "<p>Mode <strong>{}</strong>: {}</p>",
+            h.mode,
+            match h.mode {
+                "estimate" => "every coefficient estimated from this flight's own data; a term the flight does not resolve is held at zero.".to_string(),
+                "file" => format!(
+                    "κ, temperature and self-gradient from the calibration file <code>{}</code>; bias and drift refitted to this flight, a term it does not resolve keeping the file's value.",
+                    esc(file)
+                ),
+                _ => "no calibration: the pair outputs are used as logged.".to_string(),
+            }
+        );
+        if h.warnings.is_empty() {
+            out.push_str("<p class=\"note\">No warning.</p>\n");
+        } else {
+            out.push_str("<ul class=\"calibration-notes\">\n");
+            for w in &h.warnings {
+                let _ = writeln!(out, "<li>{}</li>", inline(w));
+            }
+            out.push_str("</ul>\n");
+        }
+        if !h.held.is_empty() {
+            out.push_str("<table class=\"held\"><thead><tr><th class=\"l\">fitted series</th><th>held</th><th class=\"l\">terms held</th></tr></thead><tbody>\n");
+            for (series, terms) in &h.held {
+                let _ = writeln!(
+                    out,
+                    "<tr><td class=\"l\">{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
+                    esc(series),
+                    terms.len(),
+                    esc(&terms.join(", "))
+                );
+            }
+            out.push_str("</tbody></table>\n");
+            if h.held_reasons.is_empty() {
+                out.push_str("<p class=\"note\">The flight was taken from the flight store, which keeps the held terms but not their reasons; run <code>gravgrad calibrate</code> or <code>gravgrad qc</code> for them.</p>\n");
+            } else {
+                let _ = writeln!(
+                    out,
+                    "<details><summary>Reason and estimate of each held term ({})</summary><ul class=\"note\">",
+                    h.held_reasons.len()
+                );
+                for (series, _) in &h.held {
+                    for reason in h.reasons_of(series) {
+                        let _ = writeln!(out, "<li>{}: {}</li>", esc(series), esc(reason));
+                    }
+                }
+                out.push_str("</ul></details>\n");
+            }
+        }
+        if r.calibration.is_empty() {
+            continue;
+        }
+        out.push_str("<table class=\"calibration-pairs\"><thead><tr><th class=\"l\">pair</th><th>κx ± SE</th><th>κy ± SE</th><th>κz ± SE</th><th>drift, E/h</th><th>temperature, E/°C</th><th>band residual, E</th></tr></thead><tbody>\n");
+        for (id, c) in &r.calibration {
+            let f = figures(
+                &PairEntry::from_calibration(id, c),
+                baseline_of(&baselines, id),
+            );
+            let k = |i: usize| format!("{:+.3e} ± {:.1e}", f.kappa[i].0, f.kappa[i].1);
+            let signed = |v: Option<f64>| match v {
+                Some(x) if x.is_finite() => format!("{x:+.3}"),
+                _ => "–".into(),
+            };
+            let _ = writeln!(
+                out,
+                "<tr><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+                esc(id),
+                k(0),
+                k(1),
+                k(2),
+                signed(f.drift_e_h),
+                signed(f.temperature_e_c),
+                fmt_opt(Some(f.band_residual_e), 3)
+            );
+        }
+        out.push_str("</tbody></table>\n");
+    }
+    out.push_str("</div>\n");
+}
+
 /// Stretches of finite values cut at gaps longer than 1.5 median intervals; and the sample rate.
 fn stretches(time: &[f64], v: &[f64]) -> (Vec<Vec<f64>>, f64) {
     let mut dts: Vec<f64> = time
@@ -738,7 +856,13 @@ fn profile(out: &mut String, p: &Processed, st: &LineStages, q: &LineQc) {
 }
 
 /// The whole page.
-pub fn render(p: &Processed, st: &LineStages, qcs: &[LineQc], s: &QcSettings) -> String {
+pub fn render(
+    p: &Processed,
+    st: &LineStages,
+    qcs: &[LineQc],
+    s: &QcSettings,
+    health: &[CalibrationHealth],
+) -> String {
     let name = p
         .survey
         .recipe
@@ -791,6 +915,8 @@ pub fn render(p: &Processed, st: &LineStages, qcs: &[LineQc], s: &QcSettings) ->
     map(&mut out, p, st, qcs);
     out.push_str("<h2>Crossovers before and after levelling</h2>\n");
     crossovers(&mut out, st);
+    out.push_str("<h2>Calibration</h2>\n<p class=\"note\">Per flight, what the calibration of the pairs could not determine. Warnings: a channel dropped or bridged (a constant or gappy <code>temp</code>, one of <code>ac_roll</code> <code>ac_pitch</code> without the other), the drift and temperature fitted against time for want of crossings, a calibration band narrowed by the geology. Held terms: coefficients the flight did not resolve, or resolved below the recipe's <code>calibration.min_significance</code> standard errors, left at their prior (zero, or the calibration file's value) instead of applied, grouped by the series they were fitted in (the tensor's unknowns <code>Gxx</code> … <code>αz</code>, or a pair's own residual). Held second-order terms (<code>fz²</code>, <code>fx·fy</code> …) are the rule over calm lines: the data did not ask for them. A held drift is left to levelling; a held κ leaves any coupling to the motion-correlation test below. Per pair: the coupling κ to the specific force with its standard error, then the drift in E/h, the temperature term in E/°C (– where the flight had no usable temperature log) and the RMS left in the fit's band in E, each divided by the pair's baseline.</p>\n");
+    calibration(&mut out, p, health);
     let _ = writeln!(
         out,
         "<h2>Motion correlation</h2>\n<p class=\"note\">Each component regressed, in {}–{} Hz, on the aircraft's specific force, the products of its deviations from the line mean, angular rate and angular acceleration (sensor axes). Motion part: the RMS the regression explains, less its expected noise share, ± its standard error; p: the F test with the residual's effective sample size. A line fails when p &lt; {} and the motion part exceeds {} E (bold).</p>",
