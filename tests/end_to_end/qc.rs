@@ -1,6 +1,7 @@
 //! `gravgrad qc` and the line stages of `gravgrad run` on simulated surveys (issue 7): injected
 //! per-line offsets against the levelling, the noise estimate against the injected density, a line
-//! flown badly on purpose against its verdict, and the HTML report's structure (and its rendering by
+//! flown badly on purpose against its verdict, the calibration health of each flight against the
+//! temperature log the simulator wrote, and the HTML report's structure (and its rendering by
 //! headless Chromium when it is installed).
 
 use crate::{copy_demo, gravgrad, ok, simulate_survey};
@@ -339,6 +340,7 @@ fn check_report(path: &Path, lines: usize) {
         "id=\"summary\"",
         "id=\"map\"",
         "id=\"crossovers\"",
+        "id=\"calibration\"",
         "id=\"spectra\"",
         "grid north",
         "not for navigation or flight safety",
@@ -516,4 +518,285 @@ fn a_line_off_its_planned_track_fails_for_its_deviation() {
         err.contains("plan.csv") && err.contains("row 2") && err.contains("start_easting"),
         "{err}"
     );
+}
+
+/// `qc/lines.csv` as rows of (column, cell), comment line skipped.
+fn qc_rows(path: &Path) -> Vec<std::collections::BTreeMap<String, String>> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let head: Vec<String> = lines.next().unwrap().split(',').map(String::from).collect();
+    lines
+        .map(|l| {
+            // The calibration cells lie before `reasons`, the only quoted cell.
+            let cells: Vec<&str> = l.split(',').collect();
+            head.iter()
+                .zip(cells.iter())
+                .map(|(h, c)| (h.clone(), c.to_string()))
+                .collect()
+        })
+        .collect()
+}
+
+/// The report's Calibration section: from its heading to the next.
+fn calibration_section(html: &str) -> &str {
+    let a = html
+        .find("<h2>Calibration</h2>")
+        .expect("the report has a Calibration section");
+    let b = html[a + 5..].find("<h2>").map_or(html.len(), |b| a + 5 + b);
+    &html[a..b]
+}
+
+/// The flights' calibration blocks of `--json` by name.
+fn flight_calibration<'a>(r: &'a serde_json::Value, name: &str) -> &'a serde_json::Value {
+    &r["flights"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|f| f["flight"] == name)
+        .unwrap_or_else(|| panic!("flight {name} missing from {}", r["flights"]))["calibration"]
+}
+
+/// A thermostatted sensor logging its set-point (`temperature_log = "constant"`, the demo's scenario
+/// otherwise, flights read from CSV) against the demo survey, whose `temp` is the sensor's: the
+/// constant survey's report and JSON name the dropped `temp` term for each flight, its pairs have no
+/// temperature term, and each line of `qc/lines.csv` counts exactly one warning more than the same
+/// line of the demo (same lines, same crossings: the dropped channel is the only difference); the
+/// demo has no warning about `temp` and a temperature term for every pair. Same bytes at 1 and 2
+/// threads; the printed table has the counts.
+#[test]
+fn a_constant_temperature_log_is_named_in_the_calibration_section_and_counted_per_line() {
+    let tmp = tempfile::tempdir().unwrap();
+    let scenario = std::fs::read_to_string(crate::root().join("data/demo/scenario.toml")).unwrap();
+    assert!(scenario.contains("\n[instrument]\n"));
+    let constant = tmp.path().join("constant");
+    std::fs::create_dir_all(&constant).unwrap();
+    simulate_survey(
+        &constant,
+        &scenario.replace(
+            "\n[instrument]\n",
+            "\n[instrument]\ntemperature_log = \"constant\"\n",
+        ),
+        "",
+    );
+    let recipe = constant.join("survey/recipe.toml");
+    let text = std::fs::read_to_string(&recipe).unwrap();
+    assert!(text.contains("flights/*.parquet"));
+    std::fs::write(&recipe, text.replace("flights/*.parquet", "flights/*.csv")).unwrap();
+    let csv = std::fs::read_to_string(constant.join("survey/flights/kestrand-flats-demo-f01.csv"))
+        .unwrap();
+    let mut rows = csv.lines().filter(|l| !l.starts_with('#'));
+    let k = rows
+        .next()
+        .unwrap()
+        .split(',')
+        .position(|c| c == "temp")
+        .expect("the flight CSV has a temp column");
+    assert!(
+        rows.all(|r| r.split(',').nth(k).and_then(|c| c.parse::<f64>().ok()) == Some(31.0)),
+        "the simulator's constant log holds its set-point on every row"
+    );
+    copy_demo(&tmp.path().join("demo"));
+
+    let c = qc(&constant, "out", &["--threads", "1"]);
+    let d = qc(&tmp.path().join("demo"), "out", &[]);
+    let flights = ["kestrand-flats-demo-f01", "kestrand-flats-demo-f02"];
+    for name in flights {
+        let cc = flight_calibration(&c, name);
+        let dc = flight_calibration(&d, name);
+        eprintln!(
+            "{name}: constant temp {} held, {} warnings; demo {} held, {} warnings",
+            cc["terms_held"], cc["warnings"], dc["terms_held"], dc["warnings"]
+        );
+        assert_eq!(cc["mode"], "estimate");
+        let notes: Vec<&str> = cc["notes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|n| n.as_str().unwrap())
+            .collect();
+        assert!(
+            notes
+                .iter()
+                .any(|n| n.starts_with("`temp` is constant over the lines")
+                    && n.ends_with("its term is dropped")),
+            "{name}: no note of the dropped temp term: {notes:?}"
+        );
+        let demo_notes = dc["notes"].as_array().unwrap();
+        assert!(
+            demo_notes
+                .iter()
+                .all(|n| !n.as_str().unwrap().contains("`temp`")),
+            "{name}: the demo has a note about temp: {demo_notes:?}"
+        );
+        assert_eq!(
+            cc["warnings"].as_u64().unwrap(),
+            dc["warnings"].as_u64().unwrap() + 1,
+            "{name}: the dropped channel is the one more warning"
+        );
+        // Dropped: no pair has a temperature term; the demo's every pair has one (held or not).
+        let pairs = cc["pairs"].as_array().unwrap();
+        assert_eq!(pairs.len(), 9);
+        assert!(
+            pairs.iter().all(|p| p["temperature_e_c"].is_null()),
+            "{pairs:?}"
+        );
+        let demo_pairs = dc["pairs"].as_array().unwrap();
+        assert_eq!(demo_pairs.len(), 9);
+        assert!(
+            demo_pairs.iter().all(|p| p["temperature_e_c"].is_f64()),
+            "{demo_pairs:?}"
+        );
+        // No series can hold a temperature term the model never had.
+        for g in cc["held"].as_array().unwrap() {
+            assert!(
+                !g["terms"]
+                    .as_array()
+                    .unwrap()
+                    .iter()
+                    .any(|t| t == "temperature"),
+                "{name}: {g}"
+            );
+        }
+    }
+    // Per line: the flight's counts, one warning more than the demo's same line, at least one.
+    let rows = qc_rows(&constant.join("out/qc/lines.csv"));
+    let demo_rows = qc_rows(&tmp.path().join("demo/out/qc/lines.csv"));
+    assert_eq!(rows.len(), 5);
+    assert_eq!(demo_rows.len(), 5);
+    for (row, demo_row) in rows.iter().zip(&demo_rows) {
+        assert_eq!(row["line"], demo_row["line"]);
+        let fc = flight_calibration(&c, &row["flight"]);
+        let warnings: u64 = row["calibration_warnings"].parse().unwrap();
+        let demo_warnings: u64 = demo_row["calibration_warnings"].parse().unwrap();
+        assert!(warnings >= 1, "{row:?}");
+        assert_eq!(warnings, demo_warnings + 1, "line {}", row["line"]);
+        assert_eq!(Some(warnings), fc["warnings"].as_u64());
+        assert_eq!(
+            row["calibration_terms_held"].parse::<u64>().ok(),
+            fc["terms_held"].as_u64()
+        );
+        assert_eq!(row["calibration_mode"], "estimate");
+        assert_eq!(demo_row["calibration_mode"], "estimate");
+    }
+    let head = std::fs::read_to_string(constant.join("out/qc/lines.csv")).unwrap();
+    assert!(head.starts_with("# gravgrad qc-lines/3:"), "{head}");
+
+    // The report: the note per flight, and `–` in every pair's temperature cell.
+    let html = std::fs::read_to_string(constant.join("out/qc/report.html")).unwrap();
+    let section = calibration_section(&html);
+    for name in flights {
+        assert!(section.contains(&format!("<h3>Flight {name} — ")), "{name}");
+    }
+    assert_eq!(
+        section
+            .matches("<li><code>temp</code> is constant over the lines")
+            .count(),
+        2,
+        "{section}"
+    );
+    assert_eq!(
+        section
+            .matches("<table class=\"calibration-pairs\">")
+            .count(),
+        2
+    );
+    let pair_rows: Vec<&str> = section
+        .lines()
+        .filter(|l| l.starts_with("<tr><td class=\"l\">") && l.matches("<td").count() == 7)
+        .collect();
+    assert_eq!(pair_rows.len(), 18, "{section}");
+    for r in &pair_rows {
+        let cells: Vec<&str> = r.split("<td").collect();
+        assert!(cells[6].contains(">–</td>"), "temperature cell of {r}");
+    }
+    let demo_html = std::fs::read_to_string(tmp.path().join("demo/out/qc/report.html")).unwrap();
+    let demo_section = calibration_section(&demo_html);
+    assert!(
+        !demo_section.contains("<li><code>temp</code>"),
+        "{demo_section}"
+    );
+    check_report(&constant.join("out/qc/report.html"), 5);
+
+    // Same bytes with two threads.
+    qc(&constant, "two", &["--threads", "2"]);
+    for f in ["qc/lines.csv", "qc/report.html"] {
+        let a = std::fs::read(constant.join("out").join(f)).unwrap();
+        let b = std::fs::read(constant.join("two").join(f)).unwrap();
+        assert!(a == b, "{f} differs between one and two threads");
+    }
+    // The printed table: one line per flight with the same counts.
+    let table = ok(&[
+        "--quiet",
+        "qc",
+        recipe.to_str().unwrap(),
+        "--out",
+        constant.join("three").to_str().unwrap(),
+    ]);
+    for name in flights {
+        let fc = flight_calibration(&c, name);
+        let want = format!(
+            "calibration {name}: estimate, {} terms held, {} warning{}",
+            fc["terms_held"],
+            fc["warnings"],
+            if fc["warnings"] == 1 { "" } else { "s" }
+        );
+        assert!(
+            table.lines().any(|l| l == want),
+            "`{want}` not in the table:\n{table}"
+        );
+    }
+}
+
+/// A flight reused from the flight store keeps only the summary of its held terms: `gravgrad run`
+/// after `run --flight` writes the same `qc/lines.csv` as `gravgrad qc` computing both flights, and
+/// the same held terms per series in the report (the summary read back against the per-term list),
+/// saying that the reasons are not kept.
+#[test]
+fn held_terms_read_from_a_stored_flight_match_a_computed_one() {
+    let tmp = tempfile::tempdir().unwrap();
+    let survey = copy_demo(tmp.path());
+    let recipe = survey.join("recipe.toml");
+    let run = tmp.path().join("run");
+    for extra in [&["--flight", "kestrand-flats-demo-f01"][..], &[]] {
+        let mut args = vec![
+            "--quiet",
+            "run",
+            recipe.to_str().unwrap(),
+            "--out",
+            run.to_str().unwrap(),
+        ];
+        args.extend_from_slice(extra);
+        ok(&args);
+    }
+    assert!(run.join("flights/kestrand-flats-demo-f01.h5").exists());
+    let q = qc(tmp.path(), "qc", &[]);
+    let stored = std::fs::read_to_string(run.join("qc/lines.csv")).unwrap();
+    let computed = std::fs::read_to_string(tmp.path().join("qc/qc/lines.csv")).unwrap();
+    assert_eq!(stored, computed);
+    let f01 = flight_calibration(&q, "kestrand-flats-demo-f01");
+    let held = f01["terms_held"].as_u64().unwrap();
+    assert!(held > 0, "the demo's first flight holds terms: {f01}");
+    assert_eq!(
+        f01["held_reasons"].as_array().unwrap().len() as u64,
+        held,
+        "one reason per held term"
+    );
+    let tables = |html: &str| -> Vec<String> {
+        calibration_section(html)
+            .split("<table class=\"held\">")
+            .skip(1)
+            .map(|t| t[..t.find("</table>").unwrap()].to_string())
+            .collect()
+    };
+    let a = std::fs::read_to_string(run.join("qc/report.html")).unwrap();
+    let b = std::fs::read_to_string(tmp.path().join("qc/qc/report.html")).unwrap();
+    assert_eq!(tables(&a).len(), 2);
+    assert_eq!(tables(&a), tables(&b));
+    assert_eq!(
+        calibration_section(&a)
+            .matches("taken from the flight store")
+            .count(),
+        1
+    );
+    assert!(!calibration_section(&b).contains("taken from the flight store"));
 }
