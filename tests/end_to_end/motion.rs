@@ -19,7 +19,7 @@ fn qc(recipe: &Path, out: &Path) -> serde_json::Value {
 }
 
 /// A copy of the calibration file `text` with each pair's κ passed through `change(id, κ)`.
-fn with_kappa(text: &str, change: impl Fn(&str, [f64; 3]) -> [f64; 3]) -> String {
+pub fn with_kappa(text: &str, change: impl Fn(&str, [f64; 3]) -> [f64; 3]) -> String {
     let mut id = String::new();
     text.lines()
         .map(|l| {
@@ -42,7 +42,7 @@ fn with_kappa(text: &str, change: impl Fn(&str, [f64; 3]) -> [f64; 3]) -> String
         .collect()
 }
 
-fn reasons(l: &serde_json::Value) -> Vec<String> {
+pub fn reasons(l: &serde_json::Value) -> Vec<String> {
     l["reasons"]
         .as_array()
         .unwrap()

@@ -239,13 +239,7 @@ pub(crate) struct Fit {
     pub held: Vec<HeldTerm>,
 }
 
-/// Least squares y ≈ X·β with standard errors inflated for autocorrelated residuals.
-fn regress(columns: &[Vec<f64>], y: &[f64]) -> Vec<Coefficient> {
-    let names: Vec<String> = (0..columns.len()).map(|i| format!("c{i}")).collect();
-    regress_with(&Normal::of(columns), columns, y, &names, &[], 0.0).coefs
-}
-
-/// [`regress`] with the columns' normal equations formed already, which estimates only what the
+/// Least squares y ≈ X·β, with the columns' normal equations formed already, which estimates only what the
 /// data resolve: a column collinear with the others, or constant, is held at zero (reported); then,
 /// one at a time, the coefficient of smallest |value/standard error| is held at zero and the rest
 /// refitted while that ratio is below `min_z`, for the columns not listed in `always` (e.g. the
@@ -773,26 +767,6 @@ pub(crate) fn polynomial_columns(time: &[f64], t_mid: f64, order: usize) -> Vec<
     (0..=order)
         .map(|p| time.iter().map(|t| (t - t_mid).powi(p as i32)).collect())
         .collect()
-}
-
-/// Bias and drift of a series `y` (m/s²) from which everything else is removed, fitted over the
-/// `usable` samples (all when `None`).
-pub(crate) fn fit_polynomial(
-    y: &[f64],
-    time: &[f64],
-    order: usize,
-    usable: Option<&[bool]>,
-) -> (Vec<Coefficient>, f64) {
-    let t_mid = 0.5 * (time[0] + time[time.len() - 1]);
-    let rows: Vec<usize> = (0..y.len())
-        .filter(|&i| usable.is_none_or(|u| u[i]))
-        .collect();
-    let pick = |v: &[f64]| -> Vec<f64> { rows.iter().map(|&i| v[i]).collect() };
-    let cols: Vec<Vec<f64>> = polynomial_columns(time, t_mid, order)
-        .iter()
-        .map(|c| pick(c))
-        .collect();
-    (regress(&cols, &pick(y)), t_mid)
 }
 
 #[cfg(test)]

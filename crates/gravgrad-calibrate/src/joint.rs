@@ -14,8 +14,7 @@
 
 use crate::crossings::Crossing;
 use crate::estimate::{
-    Coefficient, Design, HeldTerm, PRODUCTS, PairCalibration, PairData, Settings, fit_polynomial,
-    fit_with,
+    Coefficient, Design, HeldTerm, PRODUCTS, PairCalibration, PairData, Settings, fit_with,
 };
 use gravgrad_core::SymTensor;
 use gravgrad_core::attitude::{c_sn_degrees, c_sn_degrees_span};
@@ -321,10 +320,15 @@ pub fn estimate_from_blocks(
     let tb = mean(d.time);
     // The quadratic terms' regressors: block means of the products of the force's deviations from
     // its mean over the lines (products of block means would miss the power inside a block).
-    let f0 = crate::estimate::force_mean(d.f, d.usable);
+    // With a file whose quadratic terms are centred on its own force origin, the products are
+    // formed about that origin, so that the flight's refinement of them adds to the file's.
     let fixed_quadratic = fixed.is_some_and(|fx| fx.iter().any(|c| c.quadratic.is_some()));
-    let pb: Option<[Vec<f64>; 6]> = ((s.quadratic && fixed.is_none()) || fixed_quadratic)
-        .then(|| product_block_means(d.f, f0, block));
+    let f0 = match fixed.and_then(|fx| fx.iter().find(|c| c.quadratic.is_some())) {
+        Some(c) => c.force_mean,
+        None => crate::estimate::force_mean(d.f, d.usable),
+    };
+    let pb: Option<[Vec<f64>; 6]> =
+        (s.quadratic || fixed_quadratic).then(|| product_block_means(d.f, f0, block));
     let temp_b = d.temperature.map(mean);
     let rel_b: Option<Vec<Vec<f64>>> = d
         .relative_attitude
@@ -434,18 +438,14 @@ pub fn estimate_from_blocks(
     // prediction of its α content) and −r_p.
     let (design, targets) = rayon::join(
         || {
-            // With a file, the design serves the drift from crossings and the bias refit only.
-            let products = if s.quadratic && fixed.is_none() {
-                pb.as_ref()
-            } else {
-                None
-            };
-            Some(Design::new(
-                &block_series(&tb),
-                false,
-                products.map(|p| (p, f0)),
-                s,
-            ))
+            // With a file, the flight refines what its own data see: coupling, quadratic and
+            // temperature terms, bias and drift (the file's self-gradient is kept).
+            let products = if s.quadratic { pb.as_ref() } else { None };
+            let mut series = block_series(&tb);
+            if fixed.is_some() {
+                series.relative_attitude = None;
+            }
+            Some(Design::new(&series, false, products.map(|p| (p, f0)), s))
         },
         || {
             // û_j = Σ_p P_jp·z_p, whole series at a time (vectorised), terms added in pair order.
@@ -493,18 +493,13 @@ pub fn estimate_from_blocks(
             if y.is_empty() {
                 return None;
             }
-            let data = block_series(y);
-            match fixed {
-                None => design.as_ref().map(|g| fit_with(g, y, &data, products, s)),
-                Some(fx) => {
-                    let (poly, t_mid) = fit_polynomial(y, &tb, s.drift_order, data.usable);
-                    let mut c = fx[0].clone();
-                    c.polynomial = poly;
-                    c.t_mid = t_mid;
-                    c.band_residual_rms = 0.0;
-                    Some((c, Vec::new()))
-                }
+            let mut data = block_series(y);
+            if fixed.is_some() {
+                data.relative_attitude = None;
             }
+            // With a file in force the targets have the file's parts taken off already: what is
+            // fitted here is the flight's change to them, combined with the file below.
+            design.as_ref().map(|g| fit_with(g, y, &data, products, s))
         })
         .collect();
     // The series' names: the unknowns, then each pair's own residual.
@@ -543,7 +538,6 @@ pub fn estimate_from_blocks(
             // off with the file's other fixed parts already).
             let rest: Vec<Vec<f64>> = (0..6)
                 .map(|j| match &fitted[j] {
-                    Some(_) if fixed.is_some() => targets[j].clone(),
                     Some((c, _)) => targets[j]
                         .iter()
                         .enumerate()
@@ -689,7 +683,7 @@ pub fn estimate_from_blocks(
             };
             let first = parts.first().map(|x| x.1);
             let n_poly = first.map_or(0, |c| c.polynomial.len());
-            let polynomial = (0..n_poly)
+            let polynomial: Vec<Coefficient> = (0..n_poly)
                 .map(|q| pick(&|c| c.polynomial.get(q).copied()).unwrap_or(zero))
                 .collect();
             let band = parts
@@ -697,29 +691,32 @@ pub fn estimate_from_blocks(
                 .map(|(w, c)| (w * c.band_residual_rms).powi(2))
                 .sum::<f64>()
                 .sqrt();
-            let base = match fixed {
-                Some(fx) => fx[p].clone(),
-                None => PairCalibration {
-                    kappa: std::array::from_fn(|m| pick(&|c| Some(c.kappa[m])).unwrap_or(zero)),
-                    rotation: [zero; 3],
-                    polynomial: vec![],
-                    temperature: pick(&|c| c.temperature),
-                    quadratic: first.and_then(|c| c.quadratic).map(|_| {
-                        std::array::from_fn(|m| {
-                            pick(&|c| c.quadratic.map(|q| q[m])).unwrap_or(zero)
-                        })
-                    }),
-                    force_mean: f0,
-                    self_gradient: {
-                        let r = pick(&|c| c.self_gradient.map(|x| x[0]));
-                        let q = pick(&|c| c.self_gradient.map(|x| x[1]));
-                        r.zip(q).map(|(r, q)| [r, q])
-                    },
-                    t_mid: 0.0,
-                    temperature_mean: first.map_or(0.0, |c| c.temperature_mean),
-                    band_residual_rms: band,
+            let estimated = PairCalibration {
+                kappa: std::array::from_fn(|m| pick(&|c| Some(c.kappa[m])).unwrap_or(zero)),
+                rotation: [zero; 3],
+                polynomial: vec![],
+                temperature: pick(&|c| c.temperature),
+                quadratic: first.and_then(|c| c.quadratic).map(|_| {
+                    std::array::from_fn(|m| pick(&|c| c.quadratic.map(|q| q[m])).unwrap_or(zero))
+                }),
+                force_mean: f0,
+                self_gradient: {
+                    let r = pick(&|c| c.self_gradient.map(|x| x[0]));
+                    let q = pick(&|c| c.self_gradient.map(|x| x[1]));
+                    r.zip(q).map(|(r, q)| [r, q])
                 },
+                t_mid: 0.0,
+                temperature_mean: first.map_or(0.0, |c| c.temperature_mean),
+                band_residual_rms: band,
             };
+            let (base, bias_shift) = match fixed {
+                Some(fx) => refine(&fx[p], &estimated),
+                None => (estimated, 0.0),
+            };
+            let mut polynomial = polynomial;
+            if let Some(b) = polynomial.first_mut() {
+                b.value += bias_shift;
+            }
             // The rotation term is geometry: d carries (b × n)·α.
             let rotation = std::array::from_fn(|m| Coefficient {
                 value: -rows[p][6 + m],
@@ -737,6 +734,56 @@ pub fn estimate_from_blocks(
         pairs: pair_cals,
         health,
     }
+}
+
+/// A file's coefficient updated by a flight's estimate of its change (`delta`, zero where held):
+/// the file as prior N(value, σ_f²), the flight's change as a measurement with σ_s, so the
+/// posterior moves by delta·σ_f²/(σ_f² + σ_s²) with σ² = σ_f²σ_s²/(σ_f² + σ_s²). A file value
+/// without a usable standard error (zero or not finite) is kept as it is.
+fn posterior(file: Coefficient, delta: Coefficient) -> Coefficient {
+    let (sf, ss) = (file.std_error, delta.std_error);
+    if delta.value == 0.0 || !(sf.is_finite() && sf > 0.0) || !(ss.is_finite() && ss > 0.0) {
+        return file;
+    }
+    let w = sf * sf / (sf * sf + ss * ss);
+    Coefficient {
+        value: file.value + w * delta.value,
+        std_error: (sf * sf * ss * ss / (sf * sf + ss * ss)).sqrt(),
+    }
+}
+
+/// The file's calibration `file` refined by the flight's estimated changes `delta` to its coupling,
+/// quadratic (the products about the file's origin) and temperature terms; a term the file lacks
+/// comes from the flight alone; the self-gradient stays the file's. Returns the calibration and the
+/// shift of the bias (m/s²) that keeps the temperature term's constant part where the flight's bias
+/// fit put it, the term now being counted from the file's mean temperature.
+fn refine(file: &PairCalibration, delta: &PairCalibration) -> (PairCalibration, f64) {
+    let mut c = file.clone();
+    let mut bias_shift = 0.0;
+    c.temperature = match (file.temperature, delta.temperature) {
+        (Some(f), Some(d)) => {
+            let t = posterior(f, d);
+            // τ_f(T − m_f) + Δτ(T − m_s) = (τ_f + Δτ)(T − m_f) + Δτ(m_f − m_s).
+            bias_shift = (t.value - f.value) * (file.temperature_mean - delta.temperature_mean);
+            Some(t)
+        }
+        (None, Some(d)) => {
+            c.temperature_mean = delta.temperature_mean;
+            Some(d)
+        }
+        (f, None) => f,
+    };
+    c.kappa = std::array::from_fn(|m| posterior(file.kappa[m], delta.kappa[m]));
+    c.quadratic = match (file.quadratic, delta.quadratic) {
+        (Some(f), Some(d)) => Some(std::array::from_fn(|m| posterior(f[m], d[m]))),
+        (None, Some(d)) => {
+            c.force_mean = delta.force_mean;
+            Some(d)
+        }
+        (f, None) => f,
+    };
+    c.band_residual_rms = delta.band_residual_rms;
+    (c, bias_shift)
 }
 
 /// Means of consecutive blocks of `block` samples (the last block may be shorter), spans of blocks
