@@ -738,11 +738,21 @@ pub fn estimate_from_blocks(
 
 /// A file's coefficient updated by a flight's estimate of its change (`delta`, zero where held):
 /// the file as prior N(value, σ_f²), the flight's change as a measurement with σ_s, so the
-/// posterior moves by delta·σ_f²/(σ_f² + σ_s²) with σ² = σ_f²σ_s²/(σ_f² + σ_s²). A file value
-/// without a usable standard error (zero or not finite) is kept as it is.
+/// posterior moves by delta·σ_f²/(σ_f² + σ_s²) with σ² = σ_f²σ_s²/(σ_f² + σ_s²). A file value the
+/// calibration flight could not resolve (σ_f infinite) takes the flight's estimate; one without a
+/// usable standard error (zero or NaN) is kept as it is.
 fn posterior(file: Coefficient, delta: Coefficient) -> Coefficient {
     let (sf, ss) = (file.std_error, delta.std_error);
-    if delta.value == 0.0 || !(sf.is_finite() && sf > 0.0) || !(ss.is_finite() && ss > 0.0) {
+    if delta.value == 0.0 || !(ss.is_finite() && ss > 0.0) {
+        return file;
+    }
+    if sf == f64::INFINITY {
+        return Coefficient {
+            value: file.value + delta.value,
+            std_error: ss,
+        };
+    }
+    if !(sf.is_finite() && sf > 0.0) {
         return file;
     }
     let w = sf * sf / (sf * sf + ss * ss);
@@ -856,5 +866,19 @@ mod tests {
                     .all(|(a, b)| a.to_bits() == b.to_bits())
             );
         }
+    }
+
+    #[test]
+    fn the_posterior_weighs_the_file_and_the_flight_by_their_variances() {
+        let c = |value: f64, std_error: f64| Coefficient { value, std_error };
+        // Equal errors: halfway, error / √2 (inverse-variance weighting, textbook).
+        let p = posterior(c(1.0, 2.0), c(4.0, 2.0));
+        assert!((p.value - 3.0).abs() < 1e-15);
+        assert!((p.std_error - 2f64.sqrt()).abs() < 1e-15);
+        // A held change (zero) leaves the file as it is.
+        assert_eq!(posterior(c(1.0, 2.0), c(0.0, 1.0)), c(1.0, 2.0));
+        // A file term not resolved by its flight takes the flight's estimate.
+        let p = posterior(c(0.0, f64::INFINITY), c(3.0, 0.5));
+        assert_eq!(p, c(3.0, 0.5));
     }
 }
