@@ -384,7 +384,7 @@ pub fn process_flight(
     let alpha_source = alpha_source(recipe, &instrument.pairs);
     let f: [&[f64]; 3] = [&f_common[0], &f_common[1], &f_common[2]];
     let crossings = if fitted {
-        flight_crossings(flight, &pos, time, recipe.level.first_tie_line)
+        flight_crossings(flight, &pos, time, recipe.level.first_tie_line, rate)
     } else {
         Vec::new()
     };
@@ -549,36 +549,52 @@ pub fn process_flight(
 }
 
 /// Where the flight's survey lines cross its tie lines (line number at least `first_tie`): the
-/// nearest sample of each pass, survey first. Positions in the map frame, m.
+/// nearest sample of each pass, survey first. Positions in the map frame, m. The tracks are
+/// searched at about 2 samples per second (every `step`-th sample; lines are straight over half a
+/// second), and the crossing's fractional position is turned back into the full rate's sample.
 fn flight_crossings(
     flight: &LoadedFlight,
     pos: &Positions,
     time: &[f64],
     first_tie: i64,
+    rate_hz: f64,
 ) -> Vec<(usize, usize)> {
-    let zeros = vec![0.0; time.len()];
-    let track = |s: &gravgrad_ingest::segment::Segment| gravgrad_lines::crossover::Track {
-        time_s: &time[s.start..s.end],
-        x_m: &pos.easting_m[s.start..s.end],
-        y_m: &pos.northing_m[s.start..s.end],
-        value: &zeros[s.start..s.end],
+    let step = ((rate_hz / 2.0).floor() as usize).max(1);
+    let thin = |v: &[f64]| -> Vec<f64> { v.iter().step_by(step).copied().collect() };
+    let (tt, xt, yt) = (thin(time), thin(&pos.easting_m), thin(&pos.northing_m));
+    let zeros = vec![0.0; tt.len()];
+    // A segment's samples on the thinned time base: those with index ≡ 0 (mod step).
+    let range =
+        |s: &gravgrad_ingest::segment::Segment| s.start.div_ceil(step)..s.end.div_ceil(step);
+    let track = |s: &gravgrad_ingest::segment::Segment| {
+        let r = range(s);
+        gravgrad_lines::crossover::Track {
+            time_s: &tt[r.clone()],
+            x_m: &xt[r.clone()],
+            y_m: &yt[r.clone()],
+            value: &zeros[r],
+        }
     };
     let (survey, ties): (Vec<_>, Vec<_>) = flight
         .lines
         .iter()
-        .filter(|s| s.end <= time.len() && s.end > s.start + 1)
+        .filter(|s| s.end <= time.len() && range(s).len() > 1)
         .partition(|s| s.line < first_tie);
     let st: Vec<_> = survey.iter().map(|s| track(s)).collect();
     let tt: Vec<_> = ties.iter().map(|s| track(s)).collect();
     let Ok(found) = gravgrad_lines::crossover::find_crossovers(&st, &tt) else {
         return Vec::new();
     };
+    let sample = |s: &gravgrad_ingest::segment::Segment, position: f64| -> usize {
+        let i = range(s).start * step + (position * step as f64).round() as usize;
+        i.clamp(s.start, s.end - 1)
+    };
     found
         .iter()
         .map(|c| {
             (
-                survey[c.survey].start + c.survey_position.round() as usize,
-                ties[c.tie].start + c.tie_position.round() as usize,
+                sample(survey[c.survey], c.survey_position),
+                sample(ties[c.tie], c.tie_position),
             )
         })
         .collect()
@@ -613,10 +629,13 @@ fn calibration_settings(
         let mut v: Vec<f64> = v.into_iter().filter(|x| x.is_finite()).collect();
         gravgrad_core::stats::median(&mut v)
     };
-    // Ground speed from consecutive projected positions on the lines.
+    // Ground speed from consecutive projected positions on the lines, and the clearance, at about
+    // 50,000 samples of the flight (their medians do not need more).
     let time = flight.flight.table.get("time").unwrap_or(&[]);
+    let every = (line.len() / 50_000).max(1);
     let speed = median_of(
         (1..line.len().min(time.len()))
+            .step_by(every)
             .filter(|&i| on_line(i) && line[i - 1] == line[i] && time[i] > time[i - 1])
             .map(|i| {
                 (pos.easting_m[i] - pos.easting_m[i - 1])
@@ -628,6 +647,7 @@ fn calibration_settings(
     let clearance = flight.flight.table.get("clearance").and_then(|cl| {
         median_of(
             (0..line.len())
+                .step_by(every)
                 .filter(|&i| on_line(i))
                 .map(|i| cl[i])
                 .collect(),
