@@ -5,45 +5,14 @@
 use crate::{gravgrad, ok, simulate_survey};
 use std::path::Path;
 
-/// Ten 3 km lines and a tie over two bodies and a hill; 10 Hz. `[dynamics]` and `[instrument]` are
-/// appended by each test.
-const SURVEY: &str = r#"
-layout = "scenario/1"
-name = "calibration test"
-seed = 43
-
-[[geology.sphere]]
-north_m = 300.0
-east_m = 1500.0
-depth_m = 250.0
-radius_m = 150.0
-density_kg_m3 = 400.0
-
-[[geology.prism]]
-north_m = [100.0, 400.0]
-east_m = [600.0, 1000.0]
-depth_m = [100.0, 400.0]
-density_kg_m3 = 300.0
-
-[terrain]
-cell_m = 50.0
-margin_m = 1500.0
-rough_rms_m = 3.0
-
-[[terrain.hill]]
-north_m = 250.0
-east_m = 2200.0
-height_m = 60.0
-width_m = 400.0
-
-[plan]
-line_length_m = 3000.0
-line_spacing_m = 200.0
-lines = 10
-ties = 1
-sample_rate_hz = 10.0
-turn_rate_deg_s = 3.0
-"#;
+/// Ten 3 km lines and a tie over two bodies and a hill, 10 Hz: the run tests' base scenario with
+/// more lines and its own seed. `[dynamics]` and `[instrument]` are appended by each test.
+fn survey_scenario() -> String {
+    crate::run::BASE
+        .replace("name = \"run test\"", "name = \"calibration test\"")
+        .replace("seed = 41", "seed = 43")
+        .replace("lines = 4\n", "lines = 10\n")
+}
 
 /// No calibration error in the instrument (scale, misalignment, bias, drift, temperature all
 /// zero); the pairs' white noise and the navigation's errors stay.
@@ -56,33 +25,13 @@ drift_rms_m_s2_h = 0.0
 temperature_coefficient_rms_m_s2_c = 0.0
 "#;
 
-/// Every f64 column `name` of one of our Parquet tables.
-fn parquet_f64(path: &Path, name: &str) -> Vec<f64> {
-    use parquet::file::reader::{FileReader, SerializedFileReader};
-    use parquet::record::RowAccessor;
-    let r = SerializedFileReader::new(std::fs::File::open(path).unwrap()).unwrap();
-    let schema = r.metadata().file_metadata().schema_descr_ptr();
-    let k = (0..schema.num_columns())
-        .find(|&i| schema.column(i).name() == name)
-        .unwrap_or_else(|| panic!("no column {name}"));
-    r.get_row_iter(None)
-        .unwrap()
-        .map(|row| row.unwrap().get_double(k).unwrap())
-        .collect()
-}
+use crate::run::parquet_f64;
 
+/// Every int64 column `name` of one of our Parquet tables (the `line` column).
 fn parquet_i64(path: &Path, name: &str) -> Vec<i64> {
-    use parquet::file::reader::{FileReader, SerializedFileReader};
-    use parquet::record::RowAccessor;
-    let r = SerializedFileReader::new(std::fs::File::open(path).unwrap()).unwrap();
-    let schema = r.metadata().file_metadata().schema_descr_ptr();
-    let k = (0..schema.num_columns())
-        .find(|&i| schema.column(i).name() == name)
-        .unwrap_or_else(|| panic!("no column {name}"));
-    r.get_row_iter(None)
-        .unwrap()
-        .map(|row| row.unwrap().get_long(k).unwrap())
-        .collect()
+    crate::run::parquet_column(path, name, |row, k| {
+        parquet::record::RowAccessor::get_long(row, k).unwrap()
+    })
 }
 
 const COMPONENTS: [&str; 6] = ["gxx", "gxy", "gxz", "gyy", "gyz", "gzz"];
@@ -204,7 +153,10 @@ fn a_constant_or_holed_temperature_column_drops_its_term_and_says_why() {
     let tmp = tempfile::tempdir().unwrap();
     simulate_survey(
         tmp.path(),
-        &format!("{SURVEY}\n[instrument]\ntemperature_coefficient_rms_m_s2_c = 2e-9\n"),
+        &format!(
+            "{}\n[instrument]\ntemperature_coefficient_rms_m_s2_c = 2e-9\n",
+            survey_scenario()
+        ),
         "",
     );
     let survey = tmp.path().join("survey");
@@ -304,7 +256,8 @@ fn error_free_surveys_in_calm_and_turbulent_air_are_not_changed_by_calibration()
         simulate_survey(
             tmp.path(),
             &format!(
-                "{SURVEY}\n[dynamics]\nturbulence_m_s2 = {turbulence}\n{NO_CALIBRATION_ERROR}"
+                "{}\n[dynamics]\nturbulence_m_s2 = {turbulence}\n{NO_CALIBRATION_ERROR}",
+                survey_scenario()
             ),
             "",
         );
@@ -344,7 +297,7 @@ fn error_free_surveys_in_calm_and_turbulent_air_are_not_changed_by_calibration()
 fn scenario_with_calibration_flight() -> String {
     format!(
         "{}\n[instrument]\nquadratic_rms_per_m_s2 = 1e-8\ntemperature_ramp_c_h = 2.0\n\n[calibration_flight]\n",
-        SURVEY
+        survey_scenario()
             .replace("lines = 10", "lines = 4")
             .replace("line_length_m = 3000.0", "line_length_m = 6000.0")
             .replace("sample_rate_hz = 10.0", "sample_rate_hz = 20.0")
@@ -507,15 +460,7 @@ fn a_calibration_flight_brings_the_survey_to_the_noise_floor() {
 
 /// `gravgrad qc --json` of `recipe` into `out`: the survey lines' verdicts and reasons.
 fn survey_verdicts(recipe: &Path, out: &Path) -> Vec<(i64, String, Vec<String>)> {
-    let r: serde_json::Value = serde_json::from_str(&ok(&[
-        "--quiet",
-        "--json",
-        "qc",
-        recipe.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-    ]))
-    .unwrap();
+    let r = crate::motion::qc(recipe, out);
     r["lines"]
         .as_array()
         .unwrap()

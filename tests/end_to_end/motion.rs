@@ -6,7 +6,7 @@ use crate::{ok, simulate_survey};
 use std::path::Path;
 
 /// `gravgrad qc --json` of `recipe` into `out`.
-fn qc(recipe: &Path, out: &Path) -> serde_json::Value {
+pub fn qc(recipe: &Path, out: &Path) -> serde_json::Value {
     serde_json::from_str(&ok(&[
         "--quiet",
         "--json",

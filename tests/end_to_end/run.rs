@@ -5,7 +5,7 @@ use crate::{copy_demo, gravgrad, ok, run_to_end, simulate_survey};
 use std::path::Path;
 
 /// Base scenario: two geology bodies under rough terrain with a hill, four 3 km lines and a tie.
-const BASE: &str = r#"
+pub const BASE: &str = r#"
 layout = "scenario/1"
 name = "run test"
 seed = 41
@@ -346,10 +346,13 @@ fn terrain_command_fast_engine_agrees_with_the_exact_sum_and_locates_bad_points(
     assert!(err.contains("row 3") && err.contains("`height`"), "{err}");
 }
 
-/// Every f64 column named `name` of one of our Parquet tables.
-fn parquet_f64(path: &Path, name: &str) -> Vec<f64> {
+/// Every value of column `name` of one of our Parquet tables, read by `get` (row, column index).
+pub fn parquet_column<T>(
+    path: &Path,
+    name: &str,
+    get: impl Fn(&parquet::record::Row, usize) -> T,
+) -> Vec<T> {
     use parquet::file::reader::{FileReader, SerializedFileReader};
-    use parquet::record::RowAccessor;
     let r = SerializedFileReader::new(std::fs::File::open(path).unwrap()).unwrap();
     let schema = r.metadata().file_metadata().schema_descr_ptr();
     let k = (0..schema.num_columns())
@@ -357,8 +360,15 @@ fn parquet_f64(path: &Path, name: &str) -> Vec<f64> {
         .unwrap_or_else(|| panic!("no column {name}"));
     r.get_row_iter(None)
         .unwrap()
-        .map(|row| row.unwrap().get_double(k).unwrap())
+        .map(|row| get(&row.unwrap(), k))
         .collect()
+}
+
+/// Every f64 column named `name` of one of our Parquet tables.
+pub fn parquet_f64(path: &Path, name: &str) -> Vec<f64> {
+    parquet_column(path, name, |row, k| {
+        parquet::record::RowAccessor::get_double(row, k).unwrap()
+    })
 }
 
 #[test]

@@ -9,7 +9,9 @@
 //! the passes and D(t) the sensor-frame calibration error (bias + drift polynomial + temperature
 //! term, one per tensor component),
 //!
-//!     C₁·S₁·C₁ᵀ − C₂·S₂·C₂ᵀ = C₁·D(t₁)·C₁ᵀ − C₂·D(t₂)·C₂ᵀ + noise,
+//! ```text
+//! C₁·S₁·C₁ᵀ − C₂·S₂·C₂ᵀ = C₁·D(t₁)·C₁ᵀ − C₂·D(t₂)·C₂ᵀ + noise,
+//! ```
 //!
 //! six equations per crossing, linear in D's coefficients. A sensor-frame bias does not cancel
 //! where the headings differ (a bias in Gxx_s reads as Gyy in NED on a line flown at 90° to it), so

@@ -229,6 +229,10 @@ pub struct HeldTerm {
     pub term: String,
     /// What the data gave for it (value and standard error), when they gave anything.
     pub estimate: Option<Coefficient>,
+    /// What one standard error of it does to the fitted series over the flight: the standard
+    /// error times its regressor's RMS, in the series' unit (s⁻² for the tensor's unknowns, m/s²
+    /// for a pair's own residual), when an estimate was made.
+    pub effect_rms: Option<f64>,
     pub reason: String,
 }
 
@@ -273,6 +277,7 @@ pub(crate) fn regress_with(
         .map(|&c| HeldTerm {
             term: names[c].clone(),
             estimate: None,
+            effect_rms: None,
             reason: if scale[c] == 0.0 {
                 "its regressor is zero on the lines".into()
             } else {
@@ -332,6 +337,7 @@ pub(crate) fn regress_with(
             held.push(HeldTerm {
                 term: names[c].clone(),
                 estimate: None,
+                effect_rms: None,
                 reason: format!(
                     "too few samples to test it ({n} for {} terms)",
                     active.len()
@@ -357,6 +363,8 @@ pub(crate) fn regress_with(
                 value: beta[a] / scale[c],
                 std_error: se[a] / scale[c],
             }),
+            // The scaled standard error is already σ times the column's RMS.
+            effect_rms: Some(se[a]),
             reason: format!("not significant (|estimate| {z:.1} standard errors, {min_z} needed)"),
         });
         active.remove(a);

@@ -17,6 +17,7 @@ use gravgrad_core::ellipsoid::Ellipsoid;
 use gravgrad_core::mat3::Mat3;
 use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, observability};
 use gravgrad_core::projection::TransverseMercator;
+use gravgrad_core::units::EOTVOS;
 use gravgrad_core::{Location, Problem, SymTensor};
 use gravgrad_forward::normal::NormalField;
 use gravgrad_ingest::check::LoadedFlight;
@@ -412,14 +413,30 @@ pub fn process_flight(
         notes.extend(fc.health.notes.iter().cloned());
         let mut summary: Vec<(String, Vec<String>)> = Vec::new();
         for (series, h) in &fc.health.held {
+            // One standard error's effect over the flight, in E: the tensor's unknowns are in
+            // s⁻²; a pair's own residual in m/s², over its baseline.
+            let to_e = |v: f64| -> Option<f64> {
+                if UNKNOWNS[..6].contains(&series.as_str()) {
+                    Some(v / EOTVOS)
+                } else {
+                    let id = series.strip_prefix("pair ")?;
+                    let g = instrument.pairs.iter().find(|g| g.id == id)?;
+                    Some(v / gravgrad_core::mat3::norm(&g.baseline) / EOTVOS)
+                }
+            };
             held_lines.push(format!(
-                "{series}: {} held at {prior} — {}{}",
+                "{series}: {} held at {prior} — {}{}{}",
                 h.term,
                 h.reason,
                 h.estimate.map_or(String::new(), |e| format!(
                     " (estimate {:.3e} ± {:.1e})",
                     e.value, e.std_error
-                ))
+                )),
+                h.effect_rms
+                    .and_then(to_e)
+                    .map_or(String::new(), |e| format!(
+                        "; one standard error is {e:.3} E RMS over the flight"
+                    ))
             ));
             match summary.iter_mut().find(|(s, _)| s == series) {
                 Some((_, terms)) => terms.push(h.term.clone()),
