@@ -686,8 +686,12 @@ pub fn estimate_from_blocks(
             let polynomial: Vec<Coefficient> = (0..n_poly)
                 .map(|q| pick(&|c| c.polynomial.get(q).copied()).unwrap_or(zero))
                 .collect();
-            let band = parts
-                .iter()
+            // The band residual the pair's calibration leaves in the tensor: its tensor rows'
+            // (weighted by A_pj) and its own residual row. The α rows' residual is the gyros'
+            // differentiated noise, not a misfit of the pair, and stays out.
+            let band = (0..6)
+                .filter_map(|j| fits[j].as_ref().map(|c| (a[p][j], c)))
+                .chain(fits[k + p].as_ref().map(|c| (1.0, c)))
                 .map(|(w, c)| (w * c.band_residual_rms).powi(2))
                 .sum::<f64>()
                 .sqrt();
