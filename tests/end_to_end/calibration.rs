@@ -91,9 +91,12 @@ fn recipe_variant(survey: &Path, name: &str, folder: &str, mode: &str) -> std::p
     path
 }
 
+/// A cell's new text from its row index and old text.
+type CellRewrite<'a> = &'a dyn Fn(usize, &str) -> String;
+
 /// The survey's CSV flight with its `temp` column rewritten by `cell` (row index, value → the
-/// cell's text; `None` drops the column), into `survey/<folder>/`.
-fn flight_variant(survey: &Path, folder: &str, cell: &dyn Fn(usize, &str) -> Option<String>) {
+/// cell's text), or dropped when `cell` is `None`, into `survey/<folder>/`.
+fn flight_variant(survey: &Path, folder: &str, cell: Option<CellRewrite<'_>>) {
     std::fs::create_dir_all(survey.join(folder)).unwrap();
     for entry in std::fs::read_dir(survey.join("flights")).unwrap() {
         let p = entry.unwrap().path();
@@ -117,7 +120,7 @@ fn flight_variant(survey: &Path, folder: &str, cell: &dyn Fn(usize, &str) -> Opt
                     cells
                         .iter()
                         .enumerate()
-                        .filter(|(i, _)| Some(*i) != k || cell(0, "probe").is_some())
+                        .filter(|(i, _)| Some(*i) != k || cell.is_some())
                         .map(|(_, c)| c.to_string())
                         .collect()
                 }
@@ -127,12 +130,10 @@ fn flight_variant(survey: &Path, folder: &str, cell: &dyn Fn(usize, &str) -> Opt
                     cells
                         .iter()
                         .enumerate()
-                        .filter_map(|(i, c)| {
-                            if i == t {
-                                cell(r, c)
-                            } else {
-                                Some(c.to_string())
-                            }
+                        .filter_map(|(i, c)| match (i == t, cell) {
+                            (true, Some(f)) => Some(f(r, c)),
+                            (true, None) => None,
+                            (false, _) => Some(c.to_string()),
                         })
                         .collect()
                 }
@@ -160,16 +161,18 @@ fn a_constant_or_holed_temperature_column_drops_its_term_and_says_why() {
         "",
     );
     let survey = tmp.path().join("survey");
-    flight_variant(&survey, "absent", &|_, _| None);
-    flight_variant(&survey, "constant", &|_, _| Some("31.0".into()));
+    flight_variant(&survey, "absent", None);
+    flight_variant(&survey, "constant", Some(&|_, _| "31.0".into()));
     // Holes: empty cells and NaN text, short runs (at most 1 s at 10 Hz).
-    flight_variant(&survey, "holed", &|r, c| {
-        Some(match r % 997 {
+    flight_variant(
+        &survey,
+        "holed",
+        Some(&|r, c| match r % 997 {
             0..=4 => String::new(),
             500..=509 => "NaN".into(),
             _ => c.to_string(),
-        })
-    });
+        }),
+    );
     let mut runs = Vec::new();
     let mut logs = Vec::new();
     for v in ["absent", "constant", "holed"] {
@@ -262,7 +265,7 @@ fn error_free_surveys_in_calm_and_turbulent_air_are_not_changed_by_calibration()
             "",
         );
         let survey = tmp.path().join("survey");
-        flight_variant(&survey, "csv", &|_, c| Some(c.to_string()));
+        flight_variant(&survey, "csv", Some(&|_, c| c.to_string()));
         let none = tmp.path().join("none");
         let estimate = tmp.path().join("estimate");
         ok(&[

@@ -513,134 +513,30 @@ pub fn estimate_from_blocks(
     // The tensor's drift and temperature terms from crossings, not from time (a regional across
     // the lines reads like a drift in time); the bias and self-gradient refitted after them.
     let mut fitted = fitted;
-    let mut crossing_note: Option<String> = None;
-    if let (Some(g), true) = (design.as_ref(), s.drift_order >= 1 || temp_b.is_some())
-        && !(fixed.is_some() && s.drift_order == 0)
-    {
-        'crossing: {
-            let xs = d.crossings.unwrap_or(&[]);
-            let known = d.samples.known.as_ref();
-            let crossings: Vec<Crossing> = match known {
-                Some(kf) => {
-                    let [roll, pitch, heading] = kf.attitude_deg;
-                    let c = |i: usize| c_sn_degrees(roll[i], pitch[i], heading[i]);
-                    xs.iter()
-                        .filter(|(a, b)| *a < roll.len() && *b < roll.len())
-                        .map(|&(a, b)| Crossing {
-                            blocks: (a / block, b / block),
-                            c_sn: (c(a), c(b)),
-                        })
-                        .collect()
-                }
-                None => Vec::new(),
-            };
-            // Each tensor row with its coupling and quadratic parts taken off (with a file, they came
-            // off with the file's other fixed parts already).
-            let rest: Vec<Vec<f64>> = (0..6)
-                .map(|j| match &fitted[j] {
-                    Some((c, _)) => targets[j]
-                        .iter()
-                        .enumerate()
-                        .map(|(i, y)| {
-                            let mut v =
-                                y - (0..3).map(|m| c.kappa[m].value * fb[m][i]).sum::<f64>();
-                            if let (Some(q), Some(p)) = (c.quadratic, products) {
-                                v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
-                            }
-                            v
-                        })
-                        .collect(),
-                    None => vec![0.0; n],
-                })
-                .collect();
-            let r6: [&[f64]; 6] = std::array::from_fn(|j| &rest[j][..]);
-            let t_mid = fitted[0].as_ref().map_or(0.0, |x| x.0.t_mid);
-            let temp_mean = fitted[0].as_ref().map_or(0.0, |x| x.0.temperature_mean);
-            let half_window = (0.5 * s.rate_hz).ceil() as usize;
-            // A file's temperature term is the calibration flight's: not refitted here.
-            let temp_fit = if fixed.is_some() {
-                None
-            } else {
-                temp_b.as_deref().map(|t| (t, temp_mean))
-            };
-            let cf = crate::crossings::fit_drift(
-                &r6,
-                &tb,
-                t_mid,
-                temp_fit,
-                usable_b.as_deref(),
-                s.drift_order,
-                &crossings,
-                half_window,
-                s.min_significance,
-            );
-            // Too few crossings: the time fit stands, and the log says what it cannot tell apart.
-            let Some(cf) = cf else {
-                crossing_note = Some(format!(
-                    "{} crossings of survey and tie lines in the flight ({} needed to fit the tensor's \
-                 drift{} from them): fitted against time instead, where a regional across lines \
-                 flown in order cannot be told from drift",
-                    crossings.len(),
-                    2 * (2 + s.drift_order + usize::from(temp_fit.is_some())),
-                    if temp_fit.is_some() {
-                        " and temperature term"
-                    } else {
-                        ""
-                    }
-                ));
-                break 'crossing;
-            };
-            let (components, mut held_x) = (cf.components.to_vec(), cf.held);
-            let rows = g.line_rows();
-            for (j, comp) in components.iter().enumerate() {
-                let Some((c, held)) = fitted[j].as_mut() else {
-                    continue;
-                };
-                // The time fit's drift, temperature, bias and self-gradient verdicts are replaced.
-                held.retain(|h| {
-                    !(h.term.starts_with("drift")
-                        || h.term == "temperature"
-                        || h.term.starts_with("self-gradient"))
-                });
-                let level: Vec<f64> = rows
-                    .iter()
-                    .map(|&i| {
-                        let dt = tb[i] - t_mid;
-                        let mut v = rest[j][i]
-                            - comp
-                                .drift
-                                .iter()
-                                .enumerate()
-                                .map(|(q, co)| co.value * dt.powi(q as i32 + 1))
-                                .sum::<f64>();
-                        if let (Some(tc), Some(t)) = (comp.temperature, temp_b.as_ref()) {
-                            v -= tc.value * (t[i] - temp_mean);
-                        }
-                        v
-                    })
-                    .collect();
-                let (bias, sg, held_level) =
-                    g.refit_level(&level, fixed.is_none(), s.min_significance);
-                held.extend(held_level);
-                c.polynomial = std::iter::once(bias)
-                    .chain(comp.drift.iter().copied())
-                    .collect();
-                if fixed.is_none() {
-                    if c.temperature.is_some() {
-                        c.temperature = comp.temperature;
-                    }
-                    c.self_gradient = sg;
-                }
-                held.extend(
-                    held_x
-                        .iter()
-                        .filter(|(name, _)| name == UNKNOWNS[j])
-                        .map(|(_, h)| h.clone()),
-                );
-            }
-            held_x.clear();
+    let crossing_note = match design.as_ref() {
+        Some(g)
+            if (s.drift_order >= 1 || temp_b.is_some())
+                && !(fixed.is_some() && s.drift_order == 0) =>
+        {
+            drift_from_crossings(
+                &CrossingInputs {
+                    design: g,
+                    flight: d,
+                    block,
+                    targets: &targets,
+                    force: &fb,
+                    products,
+                    time: &tb,
+                    temperature: temp_b.as_deref(),
+                    usable: usable_b.as_deref(),
+                    with_file: fixed.is_some(),
+                },
+                s,
+                &mut fitted,
+            )
         }
-    }
+        _ => None,
+    };
     let mut health = Health {
         notes: crossing_note.into_iter().collect(),
         condition: design.as_ref().map_or([0.0; 2], Design::conditions),
@@ -738,6 +634,156 @@ pub fn estimate_from_blocks(
         pairs: pair_cals,
         health,
     }
+}
+
+/// What [`drift_from_crossings`] reads: the flight, its block series and the shared design.
+struct CrossingInputs<'a> {
+    design: &'a Design,
+    flight: &'a FlightData<'a>,
+    /// Samples per block.
+    block: usize,
+    /// The fitted series (the unknowns first), block means.
+    targets: &'a [Vec<f64>],
+    /// Force, sensor axes, m/s², block means.
+    force: &'a [Vec<f64>],
+    /// Products of the force's deviations, block means, when the quadratic terms are fitted.
+    products: Option<&'a [Vec<f64>; 6]>,
+    /// Time, s, block means.
+    time: &'a [f64],
+    /// Temperature, °C, block means, when used.
+    temperature: Option<&'a [f64]>,
+    usable: Option<&'a [bool]>,
+    /// True when a calibration file is in force (its temperature and self-gradient are kept).
+    with_file: bool,
+}
+
+/// The tensor's drift and temperature terms from the flight's crossings ([`crate::crossings`]),
+/// replacing the six tensor rows' fit against time in `fitted`, then their bias and self-gradient
+/// refitted on the line samples. Returns a note for the log when the flight has too few crossings
+/// (the time fit then stands).
+fn drift_from_crossings(
+    x: &CrossingInputs<'_>,
+    s: &Settings,
+    fitted: &mut [Option<(PairCalibration, Vec<HeldTerm>)>],
+) -> Option<String> {
+    let (g, block, tb) = (x.design, x.block, x.time);
+    let xs = x.flight.crossings.unwrap_or(&[]);
+    let crossings: Vec<Crossing> = match x.flight.samples.known.as_ref() {
+        Some(kf) => {
+            let [roll, pitch, heading] = kf.attitude_deg;
+            let c = |i: usize| c_sn_degrees(roll[i], pitch[i], heading[i]);
+            xs.iter()
+                .filter(|(a, b)| *a < roll.len() && *b < roll.len())
+                .map(|&(a, b)| Crossing {
+                    blocks: (a / block, b / block),
+                    c_sn: (c(a), c(b)),
+                })
+                .collect()
+        }
+        None => Vec::new(),
+    };
+    // Each tensor row with its coupling and quadratic parts taken off (with a file, the file's came
+    // off with its other fixed parts already; these are the flight's changes).
+    let rest: Vec<Vec<f64>> = (0..6)
+        .map(|j| match &fitted[j] {
+            Some((c, _)) => x.targets[j]
+                .iter()
+                .enumerate()
+                .map(|(i, y)| {
+                    let mut v = y
+                        - (0..3)
+                            .map(|m| c.kappa[m].value * x.force[m][i])
+                            .sum::<f64>();
+                    if let (Some(q), Some(p)) = (c.quadratic, x.products) {
+                        v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
+                    }
+                    v
+                })
+                .collect(),
+            None => vec![0.0; tb.len()],
+        })
+        .collect();
+    let r6: [&[f64]; 6] = std::array::from_fn(|j| &rest[j][..]);
+    let t_mid = fitted[0].as_ref().map_or(0.0, |c| c.0.t_mid);
+    let temp_mean = fitted[0].as_ref().map_or(0.0, |c| c.0.temperature_mean);
+    // A file's temperature term is the calibration flight's: not refitted here.
+    let temp_fit = if x.with_file {
+        None
+    } else {
+        x.temperature.map(|t| (t, temp_mean))
+    };
+    let Some(cf) = crate::crossings::fit_drift(
+        &r6,
+        tb,
+        t_mid,
+        temp_fit,
+        x.usable,
+        s.drift_order,
+        &crossings,
+        (0.5 * s.rate_hz).ceil() as usize,
+        s.min_significance,
+    ) else {
+        // Too few crossings: the time fit stands, and the log says what it cannot tell apart.
+        return Some(format!(
+            "{} crossings of survey and tie lines in the flight ({} needed to fit the tensor's \
+             drift{} from them): fitted against time instead, where a regional across lines \
+             flown in order cannot be told from drift",
+            crossings.len(),
+            2 * (2 + s.drift_order + usize::from(temp_fit.is_some())),
+            if temp_fit.is_some() {
+                " and temperature term"
+            } else {
+                ""
+            }
+        ));
+    };
+    for (j, comp) in cf.components.iter().enumerate() {
+        let Some((c, held)) = fitted[j].as_mut() else {
+            continue;
+        };
+        // The time fit's drift, temperature, bias and self-gradient verdicts are replaced.
+        held.retain(|h| {
+            !(h.term.starts_with("drift")
+                || h.term == "temperature"
+                || h.term.starts_with("self-gradient"))
+        });
+        let level: Vec<f64> = g
+            .line_rows()
+            .iter()
+            .map(|&i| {
+                let dt = tb[i] - t_mid;
+                let mut v = rest[j][i]
+                    - comp
+                        .drift
+                        .iter()
+                        .enumerate()
+                        .map(|(q, co)| co.value * dt.powi(q as i32 + 1))
+                        .sum::<f64>();
+                if let (Some(tc), Some(t)) = (comp.temperature, x.temperature) {
+                    v -= tc.value * (t[i] - temp_mean);
+                }
+                v
+            })
+            .collect();
+        let (bias, sg, held_level) = g.refit_level(&level, !x.with_file, s.min_significance);
+        held.extend(held_level);
+        c.polynomial = std::iter::once(bias)
+            .chain(comp.drift.iter().copied())
+            .collect();
+        if !x.with_file {
+            if c.temperature.is_some() {
+                c.temperature = comp.temperature;
+            }
+            c.self_gradient = sg;
+        }
+        held.extend(
+            cf.held
+                .iter()
+                .filter(|(name, _)| name == UNKNOWNS[j])
+                .map(|(_, h)| h.clone()),
+        );
+    }
+    None
 }
 
 /// A file's coefficient updated by a flight's estimate of its change (`delta`, zero where held):

@@ -631,15 +631,19 @@ fn calibration_settings(
     let c = &recipe.calibration;
     let [lo, hi] = c.band_hz;
     if hi >= 0.5 * rate {
+        // The recipe's file name is not kept with it: the flight it fails for is named, with the key.
         return Err(Problem::error(
-            Location::file(recipe.folder.join("recipe")).with_key("calibration.band_hz"),
+            flight.flight.source.clone().with_key("calibration.band_hz"),
             format!(
-                "the band's top {hi} Hz is not below the Nyquist frequency {} Hz of {} \
+                "the recipe's band top {hi} Hz is not below this flight's Nyquist frequency {} Hz \
                  (sampled at {rate} Hz)",
-                0.5 * rate,
-                flight.flight.source
+                0.5 * rate
             ),
-        ));
+        )
+        .with_hint(format!(
+            "set calibration.band_hz below {} Hz in the recipe",
+            0.5 * rate
+        )));
     }
     let on_line = |i: usize| line[i] > 0;
     let median_of = |v: Vec<f64>| -> Option<f64> {

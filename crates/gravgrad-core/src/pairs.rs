@@ -228,54 +228,6 @@ pub fn pseudo_inverse(rows: &[Vec<f64>], k: usize) -> Operator {
     Operator { p, observed }
 }
 
-/// Eigen-decomposition of a small symmetric matrix by cyclic Jacobi rotations (Golub & Van Loan,
-/// "Matrix Computations", §8.5). Returns eigenvalues and the matrix whose columns are eigenvectors.
-pub fn jacobi_eigen(mut a: Vec<Vec<f64>>) -> (Vec<f64>, Vec<Vec<f64>>) {
-    let n = a.len();
-    let mut v = vec![vec![0.0; n]; n];
-    for (i, row) in v.iter_mut().enumerate() {
-        row[i] = 1.0;
-    }
-    for _sweep in 0..100 {
-        let off: f64 = (0..n)
-            .flat_map(|i| (0..n).filter(move |&j| j != i).map(move |j| (i, j)))
-            .map(|(i, j)| a[i][j] * a[i][j])
-            .sum();
-        if off < 1e-30 {
-            break;
-        }
-        for p in 0..n {
-            for q in p + 1..n {
-                if a[p][q].abs() < 1e-300 {
-                    continue;
-                }
-                let theta = (a[q][q] - a[p][p]) / (2.0 * a[p][q]);
-                let t = theta.signum() / (theta.abs() + (theta * theta + 1.0).sqrt());
-                let t = if theta == 0.0 { 1.0 } else { t };
-                let c = 1.0 / (t * t + 1.0).sqrt();
-                let s = t * c;
-                for row in a.iter_mut() {
-                    let (akp, akq) = (row[p], row[q]);
-                    row[p] = c * akp - s * akq;
-                    row[q] = s * akp + c * akq;
-                }
-                let (rp, rq) = (a[p].clone(), a[q].clone());
-                for (k, (apk, aqk)) in rp.into_iter().zip(rq).enumerate() {
-                    a[p][k] = c * apk - s * aqk;
-                    a[q][k] = s * apk + c * aqk;
-                }
-                for row in v.iter_mut() {
-                    let vkp = row[p];
-                    let vkq = row[q];
-                    row[p] = c * vkp - s * vkq;
-                    row[q] = s * vkp + c * vkq;
-                }
-            }
-        }
-    }
-    ((0..n).map(|i| a[i][i]).collect(), v)
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
