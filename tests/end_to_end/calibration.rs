@@ -545,3 +545,54 @@ fn a_calibration_missing_a_term_or_wrong_tenfold_fails_qc_for_motion_correlation
         );
     }
 }
+
+/// `calibrate` compares what it estimated with the calibration file it replaces: the demo's
+/// calibration flight calibrated twice from the same data changes nothing; after one pair's κz in
+/// the file is moved by 100 standard errors, the report names that pair and term beyond the limit,
+/// and no other.
+#[test]
+fn calibrate_reports_each_coefficients_change_from_the_file_it_replaces() {
+    let tmp = tempfile::tempdir().unwrap();
+    let survey = crate::copy_demo(tmp.path());
+    let recipe = survey.join("recipe-calibration.toml");
+    ok(&["--quiet", "calibrate", recipe.to_str().unwrap()]);
+    // One flight and no earlier file: nothing to compare.
+    assert!(!survey.join("stability.txt").exists());
+    let cal = survey.join("calibration.toml");
+    ok(&["--quiet", "calibrate", recipe.to_str().unwrap()]);
+    let same = std::fs::read_to_string(survey.join("stability.txt")).unwrap();
+    assert!(same.contains("largest change 0.0 SE"), "{same}");
+    assert!(same.contains("none beyond 4 SE"), "{same}");
+
+    let text = std::fs::read_to_string(&cal).unwrap();
+    let file: toml::Value = toml::from_str(&text).unwrap();
+    let zz = file["pair"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["id"].as_str() == Some("zz"))
+        .unwrap();
+    let se = zz["kappa_se"][2].as_float().unwrap();
+    assert!(se > 0.0 && se.is_finite(), "{zz:?}");
+    std::fs::write(
+        &cal,
+        crate::motion::with_kappa(&text, |id, k| {
+            if id == "zz" {
+                [k[0], k[1], k[2] + 100.0 * se]
+            } else {
+                k
+            }
+        }),
+    )
+    .unwrap();
+    ok(&["--quiet", "calibrate", recipe.to_str().unwrap()]);
+    let moved = std::fs::read_to_string(survey.join("stability.txt")).unwrap();
+    eprintln!("{moved}");
+    assert!(moved.contains("1 beyond 4 SE"), "{moved}");
+    let flagged: Vec<&str> = moved.lines().filter(|l| l.contains(" SE)")).collect();
+    assert_eq!(flagged.len(), 1, "{moved}");
+    assert!(
+        flagged[0].contains("pair zz") && flagged[0].contains("kappa[2]"),
+        "{moved}"
+    );
+}

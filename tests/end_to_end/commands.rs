@@ -84,8 +84,31 @@ fn the_demo_runs_end_to_end_and_scores_itself() {
         serde_json::from_str(&std::fs::read_to_string(products.join("provenance.json")).unwrap())
             .unwrap();
     let inputs = prov["inputs"].as_array().unwrap();
-    // Recipe, instrument, DEM and the two flights.
-    assert_eq!(inputs.len(), 5, "{inputs:?}");
+    // Recipe, instrument, DEM, the calibration file the calibration flight gave, and the two
+    // survey flights.
+    assert_eq!(inputs.len(), 6, "{inputs:?}");
+    let calibration: Vec<&serde_json::Value> = inputs
+        .iter()
+        .filter(|i| {
+            i["path"]
+                .as_str()
+                .is_some_and(|p| p.ends_with("calibration.toml"))
+        })
+        .collect();
+    assert_eq!(calibration.len(), 1, "{inputs:?}");
+    // The calibration flight's file sits beside the products.
+    assert!(
+        calibration[0]["path"]
+            .as_str()
+            .unwrap()
+            .ends_with("demo-calibration-flight/calibration.toml"),
+        "{calibration:?}"
+    );
+    assert!(
+        tmp.path()
+            .join("demo-calibration-flight/calibration.toml")
+            .is_file()
+    );
     for i in inputs {
         let path = i["path"].as_str().unwrap();
         let o = std::process::Command::new("sha256sum")

@@ -73,7 +73,13 @@ pub fn copy_demo(dir: &std::path::Path) -> PathBuf {
     let demo = root().join("data/demo");
     let survey = dir.join("survey");
     std::fs::create_dir_all(survey.join("flights")).unwrap();
-    for f in ["instrument.toml", "recipe.toml", "dem.tif"] {
+    for f in [
+        "instrument.toml",
+        "recipe.toml",
+        "recipe-calibration.toml",
+        "recipe-with-calibration.toml",
+        "dem.tif",
+    ] {
         std::fs::copy(demo.join(f), survey.join(f)).unwrap();
     }
     for e in std::fs::read_dir(demo.join("flights")).unwrap() {

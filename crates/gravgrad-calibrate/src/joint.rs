@@ -236,6 +236,10 @@ pub struct Health {
     /// What the user should know of how the flight was calibrated (e.g. drift fitted against time
     /// for want of crossings).
     pub notes: Vec<String>,
+    /// With a calibration file: every coefficient the flight estimated a change of, as (pair index,
+    /// term as [`crate::stability`] names it, change in standard errors of the difference,
+    /// δ / √(σ_file² + σ_flight²)). Empty without a file.
+    pub file_change: Vec<(usize, String, f64)>,
 }
 
 /// Every pair's calibration from one flight, and what the flight could not determine.
@@ -609,9 +613,13 @@ pub fn estimate_from_blocks(
                 temperature_mean: first.map_or(0.0, |c| c.temperature_mean),
                 band_residual_rms: band,
             };
-            let (base, bias_shift) = match fixed {
-                Some(fx) => refine(&fx[p], &estimated),
-                None => (estimated, 0.0),
+            let (base, bias_shift, change) = match fixed {
+                Some(fx) => {
+                    let change = change_from_file(&fx[p], &estimated);
+                    let (base, shift) = refine(&fx[p], &estimated);
+                    (base, shift, change)
+                }
+                None => (estimated, 0.0, Vec::new()),
             };
             let mut polynomial = polynomial;
             if let Some(b) = polynomial.first_mut() {
@@ -622,18 +630,54 @@ pub fn estimate_from_blocks(
                 value: -rows[p][6 + m],
                 std_error: 0.0,
             });
-            PairCalibration {
+            let cal = PairCalibration {
                 rotation,
                 polynomial,
                 t_mid: first.map_or(0.0, |c| c.t_mid),
                 ..base
-            }
+            };
+            (cal, change)
         })
-        .collect();
-    FlightCalibration {
-        pairs: pair_cals,
-        health,
+        .collect::<Vec<_>>();
+    let mut pairs = Vec::with_capacity(pair_cals.len());
+    for (p, (cal, change)) in pair_cals.into_iter().enumerate() {
+        pairs.push(cal);
+        health
+            .file_change
+            .extend(change.into_iter().map(|(term, z)| (p, term, z)));
     }
+    FlightCalibration { pairs, health }
+}
+
+/// The flight's estimated change `delta` to each of the file's coefficients an instrument keeps (κ,
+/// temperature, quadratic), in standard errors of the difference, δ / √(σ_file² + σ_flight²): the
+/// flight's own estimate of the coefficient is file + δ, independent of the file. Held changes
+/// (zero) and coefficients without a finite, positive standard error on both sides are left out.
+fn change_from_file(file: &PairCalibration, delta: &PairCalibration) -> Vec<(String, f64)> {
+    let z = |f: Coefficient, d: Coefficient| -> Option<f64> {
+        let ok = |e: f64| e.is_finite() && e > 0.0;
+        (d.value != 0.0 && ok(d.std_error) && ok(f.std_error))
+            .then(|| d.value / f.std_error.hypot(d.std_error))
+    };
+    let mut out = Vec::new();
+    for m in 0..3 {
+        if let Some(v) = z(file.kappa[m], delta.kappa[m]) {
+            out.push((format!("kappa[{m}]"), v));
+        }
+    }
+    if let (Some(f), Some(d)) = (file.temperature, delta.temperature)
+        && let Some(v) = z(f, d)
+    {
+        out.push(("temperature_m_s2_per_c".into(), v));
+    }
+    if let (Some(f), Some(d)) = (file.quadratic, delta.quadratic) {
+        for m in 0..6 {
+            if let Some(v) = z(f[m], d[m]) {
+                out.push((format!("quadratic_per_m_s2[{m}]"), v));
+            }
+        }
+    }
+    out
 }
 
 /// What [`drift_from_crossings`] reads: the flight, its block series and the shared design.
@@ -916,6 +960,38 @@ mod tests {
                     .all(|(a, b)| a.to_bits() == b.to_bits())
             );
         }
+    }
+
+    #[test]
+    fn a_flights_change_from_its_file_is_in_standard_errors_of_the_difference() {
+        let c = |value: f64, std_error: f64| Coefficient { value, std_error };
+        let blank = PairCalibration {
+            kappa: [c(0.0, 0.0); 3],
+            rotation: [c(0.0, 0.0); 3],
+            polynomial: vec![],
+            temperature: None,
+            self_gradient: None,
+            quadratic: None,
+            force_mean: [0.0; 3],
+            t_mid: 0.0,
+            temperature_mean: 0.0,
+            band_residual_rms: 0.0,
+        };
+        let mut file = PairCalibration {
+            kappa: [c(1e-5, 3e-7), c(2e-5, 3e-7), c(3e-5, 0.0)],
+            ..blank.clone()
+        };
+        file.temperature = Some(c(1e-9, 1e-10));
+        let mut delta = PairCalibration {
+            // κx moved by 5e-7 (σ 4e-7: z = 1); κy held (zero change); κz's file error is zero.
+            kappa: [c(5e-7, 4e-7), c(0.0, 4e-7), c(1e-6, 1e-7)],
+            ..blank
+        };
+        delta.temperature = Some(c(-1e-9, f64::INFINITY));
+        let z = change_from_file(&file, &delta);
+        assert_eq!(z.len(), 1, "{z:?}");
+        assert_eq!(z[0].0, "kappa[0]");
+        assert!((z[0].1 - 1.0).abs() < 1e-12, "{z:?}");
     }
 
     #[test]

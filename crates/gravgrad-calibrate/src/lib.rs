@@ -20,3 +20,4 @@ pub mod crossings;
 pub mod estimate;
 pub mod file;
 pub mod joint;
+pub mod stability;

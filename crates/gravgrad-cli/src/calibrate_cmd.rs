@@ -7,8 +7,8 @@ use crate::tables::write_atomic;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
 use gravgrad_calibrate::file::{CalibrationFile, PairEntry};
+use gravgrad_calibrate::stability;
 use gravgrad_core::units::EOTVOS;
-use gravgrad_ingest::recipe::CalibrationMode;
 use std::fmt::Write as _;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -127,7 +127,7 @@ fn write_text(path: &Path, text: &str) -> Result<(), String> {
 }
 
 pub fn run(args: &CalibrateArgs, log: &Log) -> u8 {
-    let p = match run_cmd::process(&args.recipe, log, Some(CalibrationMode::Estimate)) {
+    let p = match run_cmd::process(&args.recipe, log, run_cmd::CalibrationChoice::Estimate) {
         Ok(p) => p,
         Err(code) => return code,
     };
@@ -144,8 +144,13 @@ pub fn run(args: &CalibrateArgs, log: &Log) -> u8 {
         .as_ref()
         .map_or([0.05, 1.0], |r| r.calibration.band_hz);
     let baselines = baselines(&p);
-    for ((name, r), path) in p.names.iter().zip(&p.results).zip(target_paths(&p, args)) {
+    let previous = previous_file(&p);
+    let mut made: Vec<(String, CalibrationFile)> = Vec::new();
+    let paths = target_paths(&p, args);
+    for ((name, r), path) in p.names.iter().zip(&p.results).zip(&paths) {
+        let path = path.clone();
         let file = CalibrationFile::new(name, band, &r.calibration);
+        made.push((name.clone(), file.clone()));
         let mut text = report(name, &file, &baselines);
         if !r.calibration_notes.is_empty() || !r.calibration_held.is_empty() {
             text.push_str(
@@ -167,5 +172,99 @@ pub fn run(args: &CalibrateArgs, log: &Log) -> u8 {
         }
         log.info(&format!("calibration written to {}", path.display()));
     }
+    let text = stability_report(&made, previous.as_ref());
+    if !text.is_empty() {
+        let path = paths[0].with_file_name("stability.txt");
+        if let Err(e) = write_text(&path, &text) {
+            eprintln!("error: {e}");
+            return EXIT_FAILURE;
+        }
+        if !log.quiet {
+            print!("\n{text}");
+        }
+        log.info(&format!("stability report written to {}", path.display()));
+    }
     0
+}
+
+/// Standard errors beyond which a coefficient's change between calibrations is flagged: the same
+/// limit as a flight's change from its calibration file in QC.
+pub const STABILITY_LIMIT: f64 = crate::pipeline::FILE_CHANGE_LIMIT;
+
+/// The calibration file the recipe names, as it was before this run writes over it (`None` when
+/// absent or unreadable).
+fn previous_file(p: &Processed) -> Option<(PathBuf, CalibrationFile)> {
+    let r = p.survey.recipe.as_ref()?;
+    let path = r.resolve(r.calibration.file.as_deref()?);
+    let file: CalibrationFile = gravgrad_ingest::tomlfile::read(&path).ok()?;
+    Some((path, file))
+}
+
+/// One comparison's lines: what was compared, the largest change, and every change beyond
+/// [`STABILITY_LIMIT`].
+fn stability_lines(what: &str, reference: &CalibrationFile, other: &CalibrationFile) -> String {
+    let changes = stability::compare(reference, other);
+    let s = stability::summarise(&changes, STABILITY_LIMIT);
+    let mut text = format!("  {what}: {} coefficients compared", s.compared);
+    match &s.largest {
+        Some(c) => {
+            let _ = write!(
+                text,
+                ", largest change {:.1} SE (pair {} {})",
+                c.z.abs(),
+                c.pair,
+                c.term
+            );
+        }
+        None => text.push_str(" (none with standard errors in both)"),
+    }
+    if s.beyond.is_empty() {
+        let _ = writeln!(text, "; none beyond {STABILITY_LIMIT} SE");
+    } else {
+        let _ = writeln!(text, "; {} beyond {STABILITY_LIMIT} SE:", s.beyond.len());
+        for c in &s.beyond {
+            let _ = writeln!(
+                text,
+                "    pair {:<6} {:<26} {:>12.4e} -> {:>12.4e}  ({:+.1} SE)",
+                c.pair, c.term, c.from, c.to, c.z
+            );
+        }
+    }
+    text
+}
+
+/// Stability of the instrument's coefficients (κ, angular-acceleration terms, temperature and
+/// quadratic coefficients; bias and drift left out): every flight against the first, and every
+/// flight against the calibration file the recipe names, when one was there before. Empty when
+/// there is nothing to compare.
+pub fn stability_report(
+    made: &[(String, CalibrationFile)],
+    previous: Option<&(PathBuf, CalibrationFile)>,
+) -> String {
+    let mut body = String::new();
+    if let Some((first, reference)) = made.first() {
+        for (name, file) in &made[1..] {
+            body.push_str(&stability_lines(
+                &format!("{name} against {first}"),
+                reference,
+                file,
+            ));
+        }
+    }
+    if let Some((path, old)) = previous {
+        for (name, file) in made {
+            body.push_str(&stability_lines(
+                &format!("{name} against the previous {}", path.display()),
+                old,
+                file,
+            ));
+        }
+    }
+    if body.is_empty() {
+        return body;
+    }
+    format!(
+        "stability of the instrument's coefficients (change in standard errors of the difference; \
+         bias and drift are expected to change and are not compared):\n{body}"
+    )
 }

@@ -1,12 +1,15 @@
-//! `gravgrad demo`: the bundled demo survey end to end, as far as gravgrad processes it today: the
-//! check of raw logs, instrument and recipe; the run (calibration, rotation removal, normal and
-//! terrain reduction) into an output folder; and the score of the result against the demo's truth.
+//! `gravgrad demo`: the bundled demo survey end to end: the check of raw logs, instrument and
+//! recipe; the calibration flight's calibration (`gravgrad calibrate`, into a temporary folder);
+//! the survey's run with that calibration file (rotation removal, normal and terrain reduction,
+//! levelling, grids, QC) into an output folder; and the score of the result against the demo's
+//! truth.
 
-use crate::EXIT_BAD_INPUT;
+use crate::calibrate_cmd::{self, CalibrateArgs};
 use crate::check_cmd::{self, CheckArgs};
 use crate::logging::Log;
 use crate::run_cmd::{self, RunArgs};
 use crate::score_cmd::{self, ScoreArgs};
+use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use std::path::PathBuf;
 
 /// The demo folder inside the source tree.
@@ -38,11 +41,38 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
         return code;
     }
     let out = out.unwrap_or_else(|| PathBuf::from("gravgrad-demo"));
+    // The calibration flight first: its calibration file, in a folder beside the products, is what
+    // the survey's run applies (and refines with what the survey's own data see).
+    let cal_recipe = dir.join("recipe-calibration.toml");
+    let cal_dir = calibration_folder(&out);
+    let calibration = if cal_recipe.is_file() {
+        log.info("the calibration flight: estimating every pair's calibration from its manoeuvres");
+        if let Err(e) = std::fs::create_dir_all(&cal_dir) {
+            eprintln!("error: {}: cannot make the folder: {e}", cal_dir.display());
+            return EXIT_FAILURE;
+        }
+        let file = cal_dir.join("calibration.toml");
+        let code = calibrate_cmd::run(
+            &CalibrateArgs {
+                recipe: cal_recipe,
+                out: Some(file.clone()),
+            },
+            log,
+        );
+        if code != 0 {
+            return code;
+        }
+        Some(file)
+    } else {
+        None
+    };
+    log.info("the survey flights, with the calibration flight's calibration");
     let code = run_cmd::run(
         &RunArgs {
             recipe,
             out: Some(out.clone()),
             flight: None,
+            calibration,
         },
         log,
     );
@@ -51,8 +81,10 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
     }
     log.info(&format!(
         "products in {}: lines.parquet, grids.nc, grids/*.tif, maps/*.png, qc/report.html, \
-         survey.h5, calibration/, provenance.json; the result against the demo's truth:",
-        out.display()
+         survey.h5, calibration/, provenance.json; the calibration flight's calibration in {}; the \
+         result against the demo's truth:",
+        out.display(),
+        cal_dir.display()
     ));
     score_cmd::run(
         &ScoreArgs {
@@ -63,4 +95,13 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
         log,
         json,
     )
+}
+
+/// The folder of the calibration flight's calibration: beside the products, named after them
+/// (`gravgrad-demo` → `gravgrad-demo-calibration-flight`).
+fn calibration_folder(out: &std::path::Path) -> PathBuf {
+    let name = out
+        .file_name()
+        .map_or("gravgrad-demo".into(), |n| n.to_string_lossy().into_owned());
+    out.with_file_name(format!("{name}-calibration-flight"))
 }

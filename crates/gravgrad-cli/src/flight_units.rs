@@ -127,7 +127,12 @@ impl Store {
 /// in the output folder. Exit 2 when NAME selects no flight of the recipe.
 pub fn run_one(recipe: &Path, out: Option<&Path>, name: &str, log: &Log) -> u8 {
     let units = Units::Only { out, name };
-    match crate::run_cmd::process_units(recipe, log, None, units) {
+    match crate::run_cmd::process_units(
+        recipe,
+        log,
+        crate::run_cmd::CalibrationChoice::Recipe,
+        units,
+    ) {
         Ok(p) if p.results.is_empty() => {
             let all = gravgrad_ingest::recipe::read_recipe(recipe)
                 .ok()

@@ -151,6 +151,43 @@ pub enum CalibrationSource<'a> {
 /// <prior> (…): <series> [<term>, …]; …" (QC tells it from the other notes by this).
 pub const HELD_SUMMARY: &str = "calibration terms held at";
 
+/// Standard errors of the difference beyond which a coefficient the instrument should keep (κ,
+/// temperature, quadratic) counts as changed from the calibration file. With about a hundred
+/// coefficients compared per flight, 3 would be passed by chance on about one flight in four.
+pub const FILE_CHANGE_LIMIT: f64 = 4.0;
+
+/// The note a flight calibrated against a file gets when its data put any of the instrument's
+/// coefficients beyond [`FILE_CHANGE_LIMIT`] standard errors from the file (`None` otherwise):
+/// pair, term and the change in standard errors, largest first.
+pub fn file_change_note(
+    change: &[(usize, String, f64)],
+    instrument: &Instrument,
+) -> Option<String> {
+    let mut beyond: Vec<&(usize, String, f64)> = change
+        .iter()
+        .filter(|(_, _, z)| z.abs() > FILE_CHANGE_LIMIT)
+        .collect();
+    if beyond.is_empty() {
+        return None;
+    }
+    beyond.sort_by(|a, b| b.2.abs().total_cmp(&a.2.abs()));
+    let list: Vec<String> = beyond
+        .iter()
+        .map(|(p, term, z)| {
+            let id = instrument.pairs.get(*p).map_or("?", |g| g.id.as_str());
+            format!("pair {id} {term} {z:+.1} SE")
+        })
+        .collect();
+    Some(format!(
+        "the instrument's coefficients moved from the calibration file beyond {FILE_CHANGE_LIMIT} \
+         standard errors ({} of {} compared): {}; the flight's estimate was combined with the \
+         file, but a change this large means the instrument or its set-up changed: calibrate again",
+        beyond.len(),
+        change.len(),
+        list.join(", ")
+    ))
+}
+
 /// The result of processing one flight.
 pub struct FlightResult {
     pub positions: Positions,
@@ -453,6 +490,9 @@ pub fn process_flight(
                     .collect::<Vec<_>>()
                     .join("; ")
             ));
+        }
+        if let Some(note) = file_change_note(&fc.health.file_change, instrument) {
+            notes.push(note);
         }
         fc.pairs
     });

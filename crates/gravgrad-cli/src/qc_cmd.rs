@@ -795,7 +795,7 @@ pub fn write_qc(
 }
 
 pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
-    let p = match run_cmd::process(&args.recipe, log, None) {
+    let p = match run_cmd::process(&args.recipe, log, run_cmd::CalibrationChoice::Recipe) {
         Ok(p) => p,
         Err(code) => return code,
     };

@@ -40,6 +40,23 @@ pub struct RunArgs {
     /// flight's name as the log shows it, or its file name without extension.
     #[arg(long, value_name = "NAME")]
     pub flight: Option<String>,
+    /// Apply this calibration file (layout `calibration/1`, e.g. what `gravgrad calibrate` made
+    /// from a calibration flight) instead of what the recipe's `[calibration]` says: as
+    /// `calibration.mode = "file"` with `calibration.file = FILE`, the recipe's other calibration
+    /// keys unchanged.
+    #[arg(long, value_name = "FILE")]
+    pub calibration: Option<PathBuf>,
+}
+
+/// Which calibration a run applies.
+#[derive(Clone, Copy, Debug)]
+pub enum CalibrationChoice<'a> {
+    /// What the recipe's `[calibration]` says.
+    Recipe,
+    /// Estimate from the flights, whatever the recipe says (`gravgrad calibrate`).
+    Estimate,
+    /// This calibration file, as `mode = "file"` would apply it.
+    File(&'a Path),
 }
 
 /// A processed survey: what every flight gave, and where.
@@ -94,21 +111,30 @@ fn flight_name(loc: &Location) -> String {
 pub fn process(
     recipe_path: &Path,
     log: &Log,
-    calibration_override: Option<CalibrationMode>,
+    calibration: CalibrationChoice<'_>,
 ) -> Result<Processed, u8> {
-    process_units(recipe_path, log, calibration_override, Units::Compute)
+    process_units(recipe_path, log, calibration, Units::Compute)
 }
 
 /// [`process`], taking stored flights or storing them as `units` says.
 pub fn process_units(
     recipe_path: &Path,
     log: &Log,
-    calibration_override: Option<CalibrationMode>,
+    calibration: CalibrationChoice<'_>,
     units: Units<'_>,
 ) -> Result<Processed, u8> {
     log.info(&format!("reading {}", recipe_path.display()));
     let clock = std::time::Instant::now();
-    let survey = load_recipe(recipe_path);
+    let mut survey = load_recipe(recipe_path);
+    if let (CalibrationChoice::File(path), Some(recipe)) = (calibration, survey.recipe.as_mut()) {
+        let path = std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf());
+        log.info(&format!(
+            "applying the calibration file {} (--calibration) instead of the recipe's [calibration]",
+            path.display()
+        ));
+        recipe.calibration.mode = CalibrationMode::File;
+        recipe.calibration.file = Some(path.to_string_lossy().into_owned());
+    }
     let (Some(recipe), Some(instrument)) = (&survey.recipe, &survey.instrument) else {
         return Err(input_errors(&survey));
     };
@@ -122,7 +148,10 @@ pub fn process_units(
     ));
     let frame =
         pipeline::map_frame(recipe, recipe_path, &survey.flights).map_err(|p| bad_input(&[p]))?;
-    let mode = calibration_override.unwrap_or(recipe.calibration.mode);
+    let mode = match calibration {
+        CalibrationChoice::Estimate => CalibrationMode::Estimate,
+        CalibrationChoice::Recipe | CalibrationChoice::File(_) => recipe.calibration.mode,
+    };
     let file: Option<CalibrationFile> = if mode == CalibrationMode::File {
         let rel = recipe
             .calibration
@@ -396,7 +425,11 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
     let reuse = Units::Reuse {
         out: args.out.as_deref(),
     };
-    let p = match process_units(&args.recipe, log, None, reuse) {
+    let choice = match &args.calibration {
+        Some(f) => CalibrationChoice::File(f),
+        None => CalibrationChoice::Recipe,
+    };
+    let p = match process_units(&args.recipe, log, choice, reuse) {
         Ok(p) => p,
         Err(code) => return code,
     };
