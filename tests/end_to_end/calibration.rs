@@ -596,3 +596,32 @@ fn calibrate_reports_each_coefficients_change_from_the_file_it_replaces() {
         "{moved}"
     );
 }
+
+/// A coupling band reaching the Nyquist frequency of a flight is refused before any work: exit 2,
+/// the key and the flight named, with the limit in the hint.
+#[test]
+fn a_calibration_band_above_nyquist_is_refused_with_its_key() {
+    let tmp = tempfile::tempdir().unwrap();
+    let survey = crate::copy_demo(tmp.path());
+    let recipe = survey.join("recipe.toml");
+    let text = std::fs::read_to_string(&recipe).unwrap();
+    // The demo flies at 10 Hz: Nyquist 5 Hz.
+    std::fs::write(
+        &recipe,
+        format!("{text}\n[calibration]\nband_hz = [0.05, 6.0]\n"),
+    )
+    .unwrap();
+    let out = gravgrad(&[
+        "--quiet",
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        tmp.path().join("out").to_str().unwrap(),
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(stderr.contains("calibration.band_hz"), "{stderr}");
+    assert!(stderr.contains("kestrand-flats-demo-f01"), "{stderr}");
+    assert!(stderr.contains("below 5 Hz"), "{stderr}");
+    assert!(!tmp.path().join("out/lines.parquet").exists());
+}
