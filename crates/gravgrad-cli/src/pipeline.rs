@@ -230,6 +230,32 @@ fn column<'a>(f: &'a LoadedFlight, name: &str) -> Result<&'a [f64], Problem> {
     })
 }
 
+/// With the angular acceleration from the gyros and any pair that sees it (b × n ≠ 0), the note
+/// that the gyro-to-sensor misalignment ε is not modelled: it leaves (b × n)·(ε × α) in those pairs
+/// (docs/methods/calibration.md). `None` with α from the pairs, where ε reaches the tensor only
+/// through ΩΩ (below 0.01 E at 1 mrad on a stabilised platform).
+pub fn gyro_alignment_note(source: AlphaSource, pairs: &[PairGeometry]) -> Option<String> {
+    if source != AlphaSource::Gyros {
+        return None;
+    }
+    let cross: Vec<&str> = pairs
+        .iter()
+        .filter(|g| {
+            let c = gravgrad_core::mat3::cross(&g.baseline, &g.axis);
+            gravgrad_core::mat3::norm(&c) > 1e-9 * gravgrad_core::mat3::norm(&g.baseline)
+        })
+        .map(|g| g.id.as_str())
+        .collect();
+    (!cross.is_empty()).then(|| {
+        format!(
+            "angular acceleration from the gyros: the gyros' misalignment against the sensor is not \
+             modelled, and pairs {} carry (b × n)·(ε × α) from it (about 100 E per mrad in \
+             turbulence); the tensor is only as good as the gyros' mounting",
+            cross.join(", ")
+        )
+    })
+}
+
 /// The angular-acceleration source: the recipe's, or for `auto` the pairs when they see α and every
 /// requested component, else the gyros.
 pub fn alpha_source(recipe: &Recipe, pairs: &[PairGeometry]) -> AlphaSource {
@@ -420,6 +446,9 @@ pub fn process_flight(
         _ => None,
     };
     let alpha_source = alpha_source(recipe, &instrument.pairs);
+    if let Some(note) = gyro_alignment_note(alpha_source, &instrument.pairs) {
+        notes.push(note);
+    }
     let f: [&[f64]; 3] = [&f_common[0], &f_common[1], &f_common[2]];
     let crossings = if fitted {
         flight_crossings(flight, &pos, time, recipe.level.first_tie_line, rate)
@@ -786,4 +815,24 @@ pub fn common_mode_force(
         });
         out
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn gyro_alpha_names_the_pairs_a_gyro_misalignment_reaches() {
+        let pairs: Vec<PairGeometry> = ["xx", "zz", "xy", "yz"]
+            .iter()
+            .filter_map(|id| gravgrad_sim::simulate::standard_pair(id, 0.2))
+            .collect();
+        assert_eq!(pairs.len(), 4);
+        assert_eq!(gyro_alignment_note(AlphaSource::Pairs, &pairs), None);
+        let note = gyro_alignment_note(AlphaSource::Gyros, &pairs).unwrap();
+        // In-line pairs (b ∥ n) do not see α; the cross pairs do.
+        assert!(note.contains("pairs xy, yz carry"), "{note}");
+        let inline: Vec<PairGeometry> = pairs[..2].to_vec();
+        assert_eq!(gyro_alignment_note(AlphaSource::Gyros, &inline), None);
+    }
 }
