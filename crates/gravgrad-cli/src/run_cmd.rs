@@ -560,6 +560,7 @@ fn write_products(
     };
     let clock = std::time::Instant::now();
     write_calibrations(p, dir).map_err(failure)?;
+    crate::staging::pause_at("built");
     let hashes = inputs.verify().map_err(|e| {
         eprintln!("error: {e}");
         EXIT_BAD_INPUT

@@ -16,10 +16,11 @@
 //! into it moves the previous generation back before anything else.
 //!
 //! A later run removes the siblings of processes that no longer exist. The test hook
-//! `GRAVGRAD_COMMIT_PAUSE=<step>` makes a run stop (sleep until killed) at a named step of the
-//! commit: `staged` (every product written beside the folder), `carried` (stored flights linked
-//! in), `aside` (two-rename fallback only: the previous folder moved aside) and `switched` (the
-//! new folder in place, the previous one not yet removed).
+//! `GRAVGRAD_COMMIT_PAUSE=<step>` makes a run stop at a named step — saying so on stderr — until a
+//! line arrives on its stdin (or it is killed): `built` (every product written beside the folder
+//! but the archive and provenance, inputs not yet hashed again), `staged` (every product
+//! written), `carried` (stored flights linked in), `aside` (two-rename fallback only: the previous
+//! folder moved aside) and `switched` (the new folder in place, the previous one not yet removed).
 
 use std::path::{Path, PathBuf};
 
@@ -90,14 +91,13 @@ fn is_gone(pid: u32) -> bool {
     !proc_root.is_dir() || !proc_root.join(pid.to_string()).exists()
 }
 
-/// Stops at commit step `step` when the test hook names it: says so on stderr and sleeps until the
-/// process is killed.
-fn pause_at(step: &str) {
+/// Stops at commit step `step` when the test hook names it: says so on stderr and waits for a
+/// line on stdin (or the end of stdin, or a kill) before it goes on.
+pub fn pause_at(step: &str) {
     if std::env::var(PAUSE_ENV).is_ok_and(|s| s == step) {
         eprintln!("gravgrad: paused at commit step `{step}`");
-        loop {
-            std::thread::sleep(std::time::Duration::from_secs(3600));
-        }
+        let mut line = String::new();
+        let _ = std::io::stdin().read_line(&mut line);
     }
 }
 
