@@ -120,14 +120,13 @@ fn parse_threads(s: &str) -> Result<usize, String> {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let log = logging::Log::new(cli.quiet, cli.json);
-    if let Some(n) = cli.threads {
-        if let Err(e) = rayon::ThreadPoolBuilder::new()
+    if let Some(n) = cli.threads
+        && let Err(e) = rayon::ThreadPoolBuilder::new()
             .num_threads(n)
             .build_global()
-        {
-            eprintln!("error: cannot start {n} threads: {e}");
-            return ExitCode::from(EXIT_FAILURE);
-        }
+    {
+        eprintln!("error: cannot start {n} threads: {e}");
+        return ExitCode::from(EXIT_FAILURE);
     }
     let code = match cli.command {
         Command::Check(args) => check_cmd::run(&args, &log, cli.json),

@@ -8,7 +8,9 @@ use crate::staging::{ENTRIES, LEGACY_PREFIX};
 use std::path::{Component, Path, PathBuf};
 
 /// Folders refused together with everything below them: system folders.
-const SYSTEM_TREES: [&str; 8] = ["/proc", "/sys", "/dev", "/boot", "/etc", "/bin", "/sbin", "/usr"];
+const SYSTEM_TREES: [&str; 8] = [
+    "/proc", "/sys", "/dev", "/boot", "/etc", "/bin", "/sbin", "/usr",
+];
 /// Folders refused themselves (a run inside them is fine).
 const SYSTEM_FOLDERS: [&str; 16] = [
     "/var", "/var/tmp", "/var/lib", "/var/log", "/tmp", "/home", "/root", "/opt", "/srv", "/mnt",
@@ -145,7 +147,8 @@ pub fn check(out: &Path, key: &str, inputs: &[PathBuf]) -> Result<PathBuf, Strin
             return Err(refuse("is a file; expected a folder".into()));
         }
         Ok(m) => {
-            let entries = std::fs::read_dir(&dir).map_err(|e| refuse(format!("cannot list: {e}")))?;
+            let entries =
+                std::fs::read_dir(&dir).map_err(|e| refuse(format!("cannot list: {e}")))?;
             let mut foreign: Vec<String> = entries
                 .flatten()
                 .map(|e| e.file_name().to_string_lossy().into_owned())
@@ -209,11 +212,25 @@ mod tests {
     #[test]
     fn system_home_and_root_folders_are_refused_and_folders_inside_some_are_not() {
         // Source: the folders of the Filesystem Hierarchy Standard 3.0.
-        for d in ["/", "/usr", "/usr/share/x", "/etc", "/proc/1", "/lib64", "/var", "/tmp"] {
+        for d in [
+            "/",
+            "/usr",
+            "/usr/share/x",
+            "/etc",
+            "/proc/1",
+            "/lib64",
+            "/var",
+            "/tmp",
+        ] {
             assert!(forbidden(Path::new(d)).is_some(), "{d} accepted");
         }
         assert_eq!(forbidden(Path::new("/home/someone")), Some("a home folder"));
-        for d in ["/tmp/run1", "/var/tmp/x", "/home/someone/survey/products", "/srv/data/out"] {
+        for d in [
+            "/tmp/run1",
+            "/var/tmp/x",
+            "/home/someone/survey/products",
+            "/srv/data/out",
+        ] {
             assert_eq!(forbidden(Path::new(d)), None, "{d} refused");
         }
     }

@@ -74,7 +74,8 @@ impl Inputs {
     /// each. `recipe_text`: the recipe's bytes as read. A flight list the recipe cannot expand
     /// gives no flights here (the run's check reports it).
     pub fn hash(recipe_path: &Path, recipe_text: String, recipe: &Recipe) -> Self {
-        let mut listed: Vec<(&'static str, PathBuf)> = vec![("instrument", recipe.resolve(&recipe.instrument.path))];
+        let mut listed: Vec<(&'static str, PathBuf)> =
+            vec![("instrument", recipe.resolve(&recipe.instrument.path))];
         if let Some(n) = &recipe.input.navigation {
             listed.push(("navigation", recipe.resolve(n)));
         }
@@ -100,7 +101,10 @@ impl Inputs {
             role: "recipe",
             path: recipe_path.to_path_buf(),
             recorded: relative_to(&base, recipe_path),
-            before: Some((recipe_text.len() as u64, hex(&Sha256::digest(recipe_text.as_bytes())))),
+            before: Some((
+                recipe_text.len() as u64,
+                hex(&Sha256::digest(recipe_text.as_bytes())),
+            )),
         }];
         files.extend(listed.into_iter().map(|(role, path)| InputFile {
             role,

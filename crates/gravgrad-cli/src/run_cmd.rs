@@ -9,9 +9,9 @@ use crate::grid_stage;
 use crate::line_stages;
 use crate::lines_out;
 use crate::logging::Log;
+use crate::output_folder;
 use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
 use crate::product_formats::ProductFormats;
-use crate::output_folder;
 use crate::provenance::{self, Inputs};
 use crate::qc_cmd;
 use crate::report;
@@ -104,7 +104,10 @@ fn unique_names(recipe_path: &Path, survey: &Survey) -> Result<(), Problem> {
         let name = flight_name(loc);
         if let Some((_, first)) = seen.iter().find(|(n, _)| *n == name) {
             let show = |l: &Location| {
-                let file = l.file.as_deref().map_or(String::new(), |p| p.display().to_string());
+                let file = l
+                    .file
+                    .as_deref()
+                    .map_or(String::new(), |p| p.display().to_string());
                 match &l.part {
                     Some(g) => format!("{file} (group {g})"),
                     None => file,
@@ -191,10 +194,12 @@ pub fn process_units(
     let store = match units {
         Units::Compute => None,
         Units::Reuse { out, known } | Units::Only { out, known, .. } => Some(
-            Store::new(recipe_path, recipe, &survey, frame.epsg, mode, out, known).map_err(|e| {
-                eprintln!("error: {e}");
-                EXIT_FAILURE
-            })?,
+            Store::new(recipe_path, recipe, &survey, frame.epsg, mode, out, known).map_err(
+                |e| {
+                    eprintln!("error: {e}");
+                    EXIT_FAILURE
+                },
+            )?,
         ),
     };
     let mut results = Vec::new();
@@ -435,7 +440,10 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         Ok(p) => p,
         Err(code) => return code,
     };
-    let out = pre.as_ref().map(|p| p.out.as_path()).or(args.out.as_deref());
+    let out = pre
+        .as_ref()
+        .map(|p| p.out.as_path())
+        .or(args.out.as_deref());
     let known = pre.as_ref().map(|p| &p.inputs);
     if let Some(name) = &args.flight {
         return flight_units::run_one(&args.recipe, out, name, known, log);

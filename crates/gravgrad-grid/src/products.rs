@@ -99,7 +99,10 @@ pub fn write_products(dir: &Path, products: &Products<'_>) -> Result<Written, Pr
         .into_iter()
         .partition(|f| f.extension().is_some_and(|e| e == "png"));
     Ok(Written {
-        netcdf: nc.into_iter().next().unwrap_or_else(|| dir.join("grids.nc")),
+        netcdf: nc
+            .into_iter()
+            .next()
+            .unwrap_or_else(|| dir.join("grids.nc")),
         geotiffs: tifs,
         maps,
     })
