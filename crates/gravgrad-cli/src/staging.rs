@@ -1,8 +1,8 @@
 //! The commit of a run's products: the output folder is always wholly one run.
 //!
-//! A run builds its whole output folder — every product, and the stored flights it reused — as a
-//! new folder beside the output folder, `<parent>/.<name>.gravgrad-next-<pid>`, and then switches
-//! the two in ONE rename: `renameat2(RENAME_EXCHANGE)` on Linux (`renamex_np(RENAME_SWAP)` on
+//! A run builds its whole output folder — every product, the stored flights it reused and the batch
+//! logs (`logs/`) — as a new folder beside the output folder, `<parent>/.<name>.gravgrad-next-<pid>`,
+//! and then switches the two in ONE rename: `renameat2(RENAME_EXCHANGE)` on Linux (`renamex_np(RENAME_SWAP)` on
 //! macOS) swaps the two folders atomically, after which the previous generation sits under the
 //! sibling's name and is removed. Into a folder that does not exist yet the switch is a plain
 //! rename. The output folder therefore holds, after a SIGKILL at any point, either every file of
@@ -29,9 +29,12 @@ pub const MARKER: &str = "provenance.json";
 /// The folder of stored per-flight results (`run --flight`), carried into the next generation for
 /// the flights the run reused.
 pub const STORE: &str = "flights";
-/// Every entry a run or `run --flight` writes into the output folder. An output folder holding
-/// anything else is refused before any work (a run replaces the folder whole).
-pub const ENTRIES: [&str; 10] = [
+/// The folder of `gravgrad batch`'s unit logs, carried whole into the next generation (the merge
+/// run's own log is still being written while the run commits).
+pub const LOGS: &str = "logs";
+/// Every entry a run, `run --flight` or `gravgrad batch` writes into the output folder. An output
+/// folder holding anything else is refused before any work (a run replaces the folder whole).
+pub const ENTRIES: [&str; 11] = [
     "lines.parquet",
     "lines.csv",
     "grids.nc",
@@ -42,6 +45,7 @@ pub const ENTRIES: [&str; 10] = [
     "survey.h5",
     MARKER,
     STORE,
+    LOGS,
 ];
 /// Prefix of the staging folders earlier versions kept inside the output folder (dropped with the
 /// generation that holds them).
@@ -184,21 +188,30 @@ impl Staging {
         &self.next
     }
 
-    /// Links the stored results of `flights` (`flights/<name>.h5`) from the current output folder
-    /// into the next generation (copies where a hard link cannot be made).
-    fn carry_store(&self, flights: &[String]) -> Result<(), String> {
-        for name in flights {
-            let rel = Path::new(STORE).join(format!("{name}.h5"));
-            let from = self.target.join(&rel);
-            if !from.is_file() {
-                continue;
-            }
-            let to = self.next.join(&rel);
+    /// Links the stored results of `flights` (`flights/<name>.h5`) and every batch log (`logs/`)
+    /// from the current output folder into the next generation: hard links, so that a log still
+    /// being written goes on in the new folder (copies where no link can be made).
+    fn carry(&self, flights: &[String]) -> Result<(), String> {
+        let mut files: Vec<PathBuf> = flights
+            .iter()
+            .map(|n| Path::new(STORE).join(format!("{n}.h5")))
+            .filter(|rel| self.target.join(rel).is_file())
+            .collect();
+        if let Ok(entries) = std::fs::read_dir(self.target.join(LOGS)) {
+            files.extend(
+                entries
+                    .flatten()
+                    .filter(|e| e.file_type().is_ok_and(|t| t.is_file()))
+                    .map(|e| Path::new(LOGS).join(e.file_name())),
+            );
+        }
+        for rel in files {
+            let (from, to) = (self.target.join(&rel), self.next.join(&rel));
             if let Some(dir) = to.parent() {
                 std::fs::create_dir_all(dir).map_err(|e| io_err(dir, "create", e))?;
             }
             if std::fs::hard_link(&from, &to).is_err() {
-                std::fs::copy(&from, &to).map_err(|e| io_err(&to, "copy a stored flight", e))?;
+                std::fs::copy(&from, &to).map_err(|e| io_err(&to, "copy", e))?;
             }
         }
         Ok(())
@@ -208,7 +221,7 @@ impl Staging {
     /// `stored`: the flights whose stored results (`flights/<name>.h5`) the run reused, kept.
     pub fn commit(mut self, stored: &[String]) -> Result<(), String> {
         pause_at("staged");
-        self.carry_store(stored)?;
+        self.carry(stored)?;
         pause_at("carried");
         let parent = self.target.parent().unwrap_or(Path::new("/")).to_path_buf();
         if std::fs::symlink_metadata(&self.target).is_err() {
