@@ -137,14 +137,12 @@ impl<'a> Store<'a> {
 
 /// `gravgrad run RECIPE --flight NAME`: the per-flight stages of the flights NAME selects, stored
 /// in the output folder. Exit 2 when NAME selects no flight of the recipe.
-pub fn run_one(
-    recipe: &Path,
-    out: Option<&Path>,
-    name: &str,
-    known: Option<&Inputs>,
-    log: &Log,
-) -> u8 {
-    let units = Units::Only { out, name, known };
+pub fn run_one(recipe: &Path, out: Option<&Path>, name: &str, log: &Log) -> u8 {
+    let units = Units::Only {
+        out,
+        name,
+        known: None,
+    };
     match crate::run_cmd::process_units(recipe, log, None, units) {
         Ok(p) if p.results.is_empty() => {
             let all = gravgrad_ingest::recipe::read_recipe(recipe)

@@ -98,9 +98,12 @@ fn forbidden(dir: &Path) -> Option<&'static str> {
     None
 }
 
+/// Prefix of the probe file (another unit of a batch may be probing the same folder).
+const PROBE_PREFIX: &str = ".gravgrad-probe-";
+
 /// Whether a file can be created in the folder `dir`: creates and removes a probe file.
 fn probe(dir: &Path) -> Result<(), std::io::Error> {
-    let p = dir.join(format!(".gravgrad-probe-{}", std::process::id()));
+    let p = dir.join(format!("{PROBE_PREFIX}{}", std::process::id()));
     std::fs::File::create(&p)?;
     std::fs::remove_file(&p)
 }
@@ -152,7 +155,11 @@ pub fn check(out: &Path, key: &str, inputs: &[PathBuf]) -> Result<PathBuf, Strin
             let mut foreign: Vec<String> = entries
                 .flatten()
                 .map(|e| e.file_name().to_string_lossy().into_owned())
-                .filter(|n| !ENTRIES.contains(&n.as_str()) && !n.starts_with(LEGACY_PREFIX))
+                .filter(|n| {
+                    !ENTRIES.contains(&n.as_str())
+                        && !n.starts_with(LEGACY_PREFIX)
+                        && !n.starts_with(PROBE_PREFIX)
+                })
                 .collect();
             foreign.sort();
             if let Some(first) = foreign.first() {

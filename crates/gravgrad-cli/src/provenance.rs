@@ -70,10 +70,10 @@ pub fn relative_to(base: &Path, path: &Path) -> PathBuf {
 
 impl Inputs {
     /// Lists the input files of `recipe` (read from `recipe_path`): the recipe, instrument,
-    /// navigation table, DEM, calibration file (mode `file`), plan of lines and flights; and hashes
-    /// each. `recipe_text`: the recipe's bytes as read. A flight list the recipe cannot expand
-    /// gives no flights here (the run's check reports it).
-    pub fn hash(recipe_path: &Path, recipe_text: String, recipe: &Recipe) -> Self {
+    /// navigation table, DEM, calibration file (mode `file`), plan of lines and flights; only the
+    /// recipe is hashed (`recipe_text`: its bytes as read), the others by [`Inputs::hash`]. A
+    /// flight list the recipe cannot expand gives no flights here (the run's check reports it).
+    pub fn list(recipe_path: &Path, recipe_text: String, recipe: &Recipe) -> Self {
         let mut listed: Vec<(&'static str, PathBuf)> =
             vec![("instrument", recipe.resolve(&recipe.instrument.path))];
         if let Some(n) = &recipe.input.navigation {
@@ -109,10 +109,17 @@ impl Inputs {
         files.extend(listed.into_iter().map(|(role, path)| InputFile {
             role,
             recorded: relative_to(&base, &path),
-            before: sha256(&path).ok(),
+            before: None,
             path,
         }));
         Self { recipe_text, files }
+    }
+
+    /// Hashes every input but the recipe (hashed from its text), before the run reads it.
+    pub fn hash(&mut self) {
+        for f in self.files.iter_mut().filter(|f| f.role != "recipe") {
+            f.before = sha256(&f.path).ok();
+        }
     }
 
     /// The SHA-256 taken before the run of the input at `path` (as the run opens it).

@@ -410,8 +410,8 @@ struct Preflight {
     out: PathBuf,
 }
 
-/// Reads the recipe, checks the output folder (`output_folder::check`) and hashes every input
-/// before any is read. `Ok(None)`: the recipe cannot be read; the run's own check reports why.
+/// Reads the recipe, checks the output folder (`output_folder::check`) and then hashes every input
+/// before any is read (not for `--flight`). `Ok(None)`: the recipe cannot be read; the run's own check reports why.
 fn preflight(args: &RunArgs) -> Result<Option<Preflight>, u8> {
     let Ok(text) = std::fs::read_to_string(&args.recipe) else {
         return Ok(None);
@@ -426,12 +426,17 @@ fn preflight(args: &RunArgs) -> Result<Option<Preflight>, u8> {
             format!("{}: output.folder", args.recipe.display()),
         ),
     };
-    let inputs = Inputs::hash(&args.recipe, text, &recipe);
+    let mut inputs = Inputs::list(&args.recipe, text, &recipe);
     let paths: Vec<PathBuf> = inputs.files.iter().map(|f| f.path.clone()).collect();
     let out = output_folder::check(&out, &key, &paths).map_err(|e| {
         eprintln!("error: {e}");
         EXIT_BAD_INPUT
     })?;
+    if args.flight.is_none() {
+        // A flight unit (`--flight`) writes no products: its stored result's key hashes the few
+        // inputs it reads.
+        inputs.hash();
+    }
     Ok(Some(Preflight { inputs, out }))
 }
 
@@ -444,9 +449,8 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         .as_ref()
         .map(|p| p.out.as_path())
         .or(args.out.as_deref());
-    let known = pre.as_ref().map(|p| &p.inputs);
     if let Some(name) = &args.flight {
-        return flight_units::run_one(&args.recipe, out, name, known, log);
+        return flight_units::run_one(&args.recipe, out, name, log);
     }
     let Some(pre) = &pre else {
         // The recipe cannot be read: the check says why.
