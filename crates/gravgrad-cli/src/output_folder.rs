@@ -118,9 +118,8 @@ pub fn check(out: &Path, key: &str, inputs: &[PathBuf]) -> Result<PathBuf, Strin
     if let Some(what) = forbidden(&dir) {
         return Err(refuse(format!(
             "`{}` is {what}; a run replaces its output folder whole: expected a folder of its own, \
-             e.g. `{}`",
+             e.g. `products` beside the recipe",
             dir.display(),
-            dir.join("products").display()
         )));
     }
     if std::env::current_dir()
