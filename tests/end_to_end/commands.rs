@@ -109,10 +109,14 @@ fn the_demo_runs_end_to_end_and_scores_itself() {
             .join("demo-calibration-flight/calibration.toml")
             .is_file()
     );
+    // Paths relative to the recipe's folder.
+    let folder = std::path::PathBuf::from(prov["recipe_folder"].as_str().unwrap());
+    assert_eq!(prov["recipe_path"], "recipe.toml");
     for i in inputs {
         let path = i["path"].as_str().unwrap();
+        assert!(std::path::Path::new(path).is_relative(), "{path}");
         let o = std::process::Command::new("sha256sum")
-            .arg(path)
+            .arg(folder.join(path))
             .output()
             .unwrap();
         let sum = String::from_utf8_lossy(&o.stdout);

@@ -6,6 +6,7 @@ mod commands;
 mod corpus;
 mod interrupt;
 mod motion;
+mod output_folder;
 mod qc;
 mod run;
 mod simulate;

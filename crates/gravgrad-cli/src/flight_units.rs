@@ -6,7 +6,7 @@
 use crate::flight_store::{self, Stored};
 use crate::logging::Log;
 use crate::pipeline::FlightResult;
-use crate::provenance;
+use crate::provenance::{self, Inputs};
 use gravgrad_core::Location;
 use gravgrad_ingest::check::Survey;
 use gravgrad_ingest::recipe::{CalibrationMode, Recipe};
@@ -18,12 +18,16 @@ pub enum Units<'a> {
     /// Compute every flight; store nothing (`qc`, `calibrate`).
     Compute,
     /// Take matching stored flights from the output folder (`--out` or the recipe's), compute the
-    /// others (`run`).
-    Reuse { out: Option<&'a Path> },
+    /// others (`run`). `known`: the inputs hashed before the run read them.
+    Reuse {
+        out: Option<&'a Path>,
+        known: Option<&'a Inputs>,
+    },
     /// Compute and store only the flights `NAME` selects (`run --flight NAME`).
     Only {
         out: Option<&'a Path>,
         name: &'a str,
+        known: Option<&'a Inputs>,
     },
 }
 
@@ -39,19 +43,25 @@ pub fn selects(name_arg: &str, name: &str, source: &Location) -> bool {
 }
 
 /// The stored flights of one survey: the output folder and the part of the key every flight shares.
-pub struct Store {
+pub struct Store<'a> {
     out: PathBuf,
     epsg: u32,
     /// `(role, SHA-256)` of the recipe, instrument, navigation, DEM and calibration files.
     shared: Vec<(&'static str, String)>,
+    /// The inputs hashed before the run read them (their hashes are taken from here).
+    known: Option<&'a Inputs>,
 }
 
-fn sha(path: &Path) -> Result<String, String> {
+/// The SHA-256 of `path`: as hashed before the run read it, else hashed now.
+fn sha(known: Option<&Inputs>, path: &Path) -> Result<String, String> {
+    if let Some(h) = known.and_then(|k| k.sha256_of(path)) {
+        return Ok(h.to_string());
+    }
     provenance::hashes(&[path.to_path_buf()])
         .map(|h| h.into_iter().map(|x| x.sha256).collect::<String>())
 }
 
-impl Store {
+impl<'a> Store<'a> {
     /// The store of `survey` processed with `recipe` (at `recipe_path`) in the map frame `epsg`;
     /// `out` overrides the recipe's output folder.
     pub fn new(
@@ -61,16 +71,17 @@ impl Store {
         epsg: u32,
         mode: CalibrationMode,
         out: Option<&Path>,
+        known: Option<&'a Inputs>,
     ) -> Result<Self, String> {
-        let mut shared = vec![("recipe", sha(recipe_path)?)];
+        let mut shared = vec![("recipe", sha(known, recipe_path)?)];
         if let Some(i) = &survey.instrument {
-            shared.push(("instrument", sha(&i.path)?));
+            shared.push(("instrument", sha(known, &i.path)?));
         }
         if let Some(n) = &recipe.input.navigation {
-            shared.push(("navigation", sha(&recipe.resolve(n))?));
+            shared.push(("navigation", sha(known, &recipe.resolve(n))?));
         }
         if let Some(t) = &recipe.terrain {
-            shared.push(("dem", sha(&recipe.resolve(&t.dem))?));
+            shared.push(("dem", sha(known, &recipe.resolve(&t.dem))?));
         }
         if mode == CalibrationMode::File {
             let f = recipe
@@ -78,12 +89,13 @@ impl Store {
                 .file
                 .as_deref()
                 .unwrap_or("calibration.toml");
-            shared.push(("calibration", sha(&recipe.resolve(f))?));
+            shared.push(("calibration", sha(known, &recipe.resolve(f))?));
         }
         Ok(Self {
             out: out.map_or_else(|| recipe.resolve(&recipe.output.folder), Path::to_path_buf),
             epsg,
             shared,
+            known,
         })
     }
 
@@ -91,7 +103,7 @@ impl Store {
     pub fn key(&self, name: &str, source: &Location) -> Result<String, String> {
         let mut inputs = self.shared.clone();
         if let Some(f) = &source.file {
-            inputs.push(("flight", sha(f)?));
+            inputs.push(("flight", sha(self.known, f)?));
         }
         Ok(flight_store::key(self.epsg, name, &inputs))
     }
@@ -126,7 +138,11 @@ impl Store {
 /// `gravgrad run RECIPE --flight NAME`: the per-flight stages of the flights NAME selects, stored
 /// in the output folder. Exit 2 when NAME selects no flight of the recipe.
 pub fn run_one(recipe: &Path, out: Option<&Path>, name: &str, log: &Log) -> u8 {
-    let units = Units::Only { out, name };
+    let units = Units::Only {
+        out,
+        name,
+        known: None,
+    };
     match crate::run_cmd::process_units(
         recipe,
         log,

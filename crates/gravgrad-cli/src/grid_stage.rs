@@ -3,7 +3,7 @@
 //! distance from the line spacing when the recipe sets none, `gravgrad_grid::spacing`; the
 //! components gridded in parallel, each on its own), the Laplace-consistent
 //! full tensor and gz derived from every measured component together, and the products written:
-//! `grids.nc`, `grids/<name>.tif`, `maps/<name>.png`.
+//! `grids.nc`, `grids/<name>.tif`, `maps/<name>.png`, as `output.formats` selects.
 //!
 //! Units: E for tensor grids, mGal for gz; map frame of the survey's UTM zone (x east, y north,
 //! tensors with x grid north, y grid east, z down).
@@ -13,8 +13,8 @@ use gravgrad_core::SymTensor;
 use gravgrad_core::raster::Raster;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_grid::{
-    GridSpec, GzReference, Product, Products, Ramp, TensorOptions, Written, blank,
-    default_blanking, default_cell, full_tensor, grid_points, line_spacing, write_products,
+    Formats, GridSpec, GzReference, Product, Products, Ramp, TensorOptions, blank,
+    default_blanking, default_cell, full_tensor, grid_points, line_spacing, write_formats,
 };
 use gravgrad_ingest::recipe::Recipe;
 use rayon::prelude::*;
@@ -185,13 +185,18 @@ impl Grids {
     }
 }
 
-/// Writes the grids: measured components as `measured_g??`, the full tensor as `g??`, and `gz`.
+/// Writes the grids in the files `formats` selects: measured components as `measured_g??`, the
+/// full tensor as `g??`, and `gz`. The paths written.
 pub fn write(
     dir: &Path,
     g: &Grids,
     results: &[FlightResult],
     title: &str,
-) -> Result<Written, String> {
+    formats: Formats,
+) -> Result<Vec<std::path::PathBuf>, String> {
+    if !(formats.netcdf || formats.geotiff || formats.png) {
+        return Ok(Vec::new());
+    }
     let long: Vec<String> = NAMES
         .iter()
         .map(|n| {
@@ -263,7 +268,7 @@ pub fn write(
         }
     }
     let source = format!("gravgrad {}", env!("CARGO_PKG_VERSION"));
-    write_products(
+    write_formats(
         dir,
         &Products {
             title,
@@ -271,6 +276,7 @@ pub fn write(
             grids,
             paths,
         },
+        formats,
     )
     .map_err(|e| e.to_string())
 }

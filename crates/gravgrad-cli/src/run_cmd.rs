@@ -9,8 +9,10 @@ use crate::grid_stage;
 use crate::line_stages;
 use crate::lines_out;
 use crate::logging::Log;
+use crate::output_folder;
 use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
-use crate::provenance;
+use crate::product_formats::ProductFormats;
+use crate::provenance::{self, Inputs};
 use crate::qc_cmd;
 use crate::report;
 use crate::staging::Staging;
@@ -65,6 +67,8 @@ pub struct Processed {
     pub frame: MapFrame,
     pub names: Vec<String>,
     pub results: Vec<FlightResult>,
+    /// The flights whose stored result (`flights/<name>.h5`) was reused.
+    pub reused: Vec<String>,
 }
 
 /// Prints problems and returns the exit code for bad input.
@@ -106,6 +110,48 @@ fn flight_name(loc: &Location) -> String {
     }
 }
 
+/// Every flight's name (file stem, plus the HDF5 group) names its calibration file, its stored
+/// result and its attribute in `survey.h5`: two flights of one name are an error naming both.
+/// (Files of one stem are refused by the recipe's check; this catches a group's name meeting
+/// another file's, `a.h5` group `b` beside `a-b.csv`.)
+fn unique_names(recipe_path: &Path, survey: &Survey) -> Result<(), Problem> {
+    let mut seen: Vec<(String, &Location)> = Vec::new();
+    for f in &survey.flights {
+        let loc = &f.flight.source;
+        let name = flight_name(loc);
+        if let Some((_, first)) = seen.iter().find(|(n, _)| *n == name) {
+            let show = |l: &Location| {
+                let file = l
+                    .file
+                    .as_deref()
+                    .map_or(String::new(), |p| p.display().to_string());
+                match &l.part {
+                    Some(g) => format!("{file} (group {g})"),
+                    None => file,
+                }
+            };
+            return Err(Problem::error(
+                Location::file(recipe_path).with_key("input.flights"),
+                format!(
+                    "`{}` and `{}` would both be the flight `{name}`; rename one",
+                    show(first),
+                    show(loc)
+                ),
+            ));
+        }
+        seen.push((name, loc));
+    }
+    Ok(())
+}
+
+/// The recipe as `--calibration FILE` makes it: `calibration.mode = "file"` with the file's
+/// absolute path, the other calibration keys unchanged.
+fn use_calibration_file(recipe: &mut gravgrad_ingest::recipe::Recipe, path: &Path) {
+    let path = std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf());
+    recipe.calibration.mode = CalibrationMode::File;
+    recipe.calibration.file = Some(path.to_string_lossy().into_owned());
+}
+
 /// Reads the recipe and everything it names, and processes every flight through the pipeline.
 /// `Err(code)` after printing what was wrong.
 pub fn process(
@@ -127,13 +173,11 @@ pub fn process_units(
     let clock = std::time::Instant::now();
     let mut survey = load_recipe(recipe_path);
     if let (CalibrationChoice::File(path), Some(recipe)) = (calibration, survey.recipe.as_mut()) {
-        let path = std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf());
         log.info(&format!(
             "applying the calibration file {} (--calibration) instead of the recipe's [calibration]",
             path.display()
         ));
-        recipe.calibration.mode = CalibrationMode::File;
-        recipe.calibration.file = Some(path.to_string_lossy().into_owned());
+        use_calibration_file(recipe, path);
     }
     let (Some(recipe), Some(instrument)) = (&survey.recipe, &survey.instrument) else {
         return Err(input_errors(&survey));
@@ -146,6 +190,7 @@ pub fn process_units(
         survey.flights.len(),
         clock.elapsed().as_secs_f64()
     ));
+    unique_names(recipe_path, &survey).map_err(|p| bad_input(&[p]))?;
     let frame =
         pipeline::map_frame(recipe, recipe_path, &survey.flights).map_err(|p| bad_input(&[p]))?;
     let mode = match calibration {
@@ -183,15 +228,18 @@ pub fn process_units(
     };
     let store = match units {
         Units::Compute => None,
-        Units::Reuse { out } | Units::Only { out, .. } => Some(
-            Store::new(recipe_path, recipe, &survey, frame.epsg, mode, out).map_err(|e| {
-                eprintln!("error: {e}");
-                EXIT_FAILURE
-            })?,
+        Units::Reuse { out, known } | Units::Only { out, known, .. } => Some(
+            Store::new(recipe_path, recipe, &survey, frame.epsg, mode, out, known).map_err(
+                |e| {
+                    eprintln!("error: {e}");
+                    EXIT_FAILURE
+                },
+            )?,
         ),
     };
     let mut results = Vec::new();
     let mut names = Vec::new();
+    let mut reused = Vec::new();
     let total = survey.flights.len();
     for (k, flight) in survey.flights.iter().enumerate() {
         let name = flight_name(&flight.flight.source);
@@ -211,6 +259,7 @@ pub fn process_units(
             && let Some(r) = s.reuse(&name, key, log)
         {
             results.push(r);
+            reused.push(name.clone());
             names.push(name);
             continue;
         }
@@ -275,6 +324,7 @@ pub fn process_units(
         frame,
         names,
         results,
+        reused,
     })
 }
 
@@ -315,36 +365,6 @@ pub fn write_calibrations(p: &Processed, dir: &Path) -> Result<Vec<PathBuf>, Str
     Ok(written)
 }
 
-/// Every input file of a processed survey: instrument, navigation, DEM, calibration file, flights.
-fn input_files(p: &Processed) -> Vec<PathBuf> {
-    let mut out = Vec::new();
-    if let Some(i) = &p.survey.instrument {
-        out.push(i.path.clone());
-    }
-    if let Some(r) = &p.survey.recipe {
-        if let Some(n) = &r.input.navigation {
-            out.push(r.resolve(n));
-        }
-        if let Some(t) = &r.terrain {
-            out.push(r.resolve(&t.dem));
-        }
-        if r.calibration.mode == CalibrationMode::File
-            && let Some(f) = &r.calibration.file
-        {
-            out.push(r.resolve(f));
-        }
-    }
-    let mut flights: Vec<PathBuf> = p
-        .survey
-        .flights
-        .iter()
-        .filter_map(|f| f.flight.source.file.clone())
-        .collect();
-    flights.dedup();
-    out.extend(flights);
-    out
-}
-
 /// Writes `survey.h5`.
 fn write_archive(
     dir: &Path,
@@ -352,7 +372,7 @@ fn write_archive(
     table: &lines_out::LinesTable,
     grids: Option<&grid_stage::Grids>,
     title: &str,
-    recipe_path: &Path,
+    recipe_text: &str,
     hashes: &[provenance::Hashed],
 ) -> Result<(), String> {
     let band = p
@@ -408,8 +428,7 @@ fn write_archive(
                 )
             })
             .collect(),
-        recipe_text: std::fs::read_to_string(recipe_path)
-            .map_err(|e| format!("{}: {e}", recipe_path.display()))?,
+        recipe_text: recipe_text.to_string(),
         sha256: hashes
             .iter()
             .map(|h| format!("{}  {}\n", h.sha256, h.path.display()))
@@ -418,12 +437,77 @@ fn write_archive(
     archive::write(&dir.join("survey.h5"), &a)
 }
 
-pub fn run(args: &RunArgs, log: &Log) -> u8 {
-    if let Some(name) = &args.flight {
-        return flight_units::run_one(&args.recipe, args.out.as_deref(), name, log);
+/// What a run knows before any work: the recipe's inputs hashed before they are read, and the
+/// output folder checked.
+struct Preflight {
+    inputs: Inputs,
+    /// The output folder to replace: absolute, links resolved.
+    out: PathBuf,
+}
+
+/// Reads the recipe, checks the output folder (`output_folder::check`) and then hashes every input
+/// before any is read (not for `--flight`). `Ok(None)`: the recipe cannot be read; the run's own check reports why.
+fn preflight(args: &RunArgs) -> Result<Option<Preflight>, u8> {
+    let Ok(text) = std::fs::read_to_string(&args.recipe) else {
+        return Ok(None);
+    };
+    let Ok(mut recipe) = gravgrad_ingest::recipe::read_recipe(&args.recipe) else {
+        return Ok(None);
+    };
+    if let Some(f) = &args.calibration {
+        use_calibration_file(&mut recipe, f);
     }
+    let (out, key) = match &args.out {
+        Some(o) => (o.clone(), "--out".to_string()),
+        None => (
+            recipe.resolve(&recipe.output.folder),
+            format!("{}: output.folder", args.recipe.display()),
+        ),
+    };
+    let mut inputs = Inputs::list(&args.recipe, text, &recipe);
+    let paths: Vec<PathBuf> = inputs.files.iter().map(|f| f.path.clone()).collect();
+    let out = output_folder::check(&out, &key, &paths).map_err(|e| {
+        eprintln!("error: {e}");
+        EXIT_BAD_INPUT
+    })?;
+    if args.flight.is_none() {
+        // A flight unit (`--flight`) writes no products: its stored result's key hashes the few
+        // inputs it reads.
+        inputs.hash();
+    }
+    Ok(Some(Preflight { inputs, out }))
+}
+
+pub fn run(args: &RunArgs, log: &Log) -> u8 {
+    let pre = match preflight(args) {
+        Ok(p) => p,
+        Err(code) => return code,
+    };
+    let out = pre
+        .as_ref()
+        .map(|p| p.out.as_path())
+        .or(args.out.as_deref());
+    if let Some(name) = &args.flight {
+        return flight_units::run_one(&args.recipe, out, name, log);
+    }
+    let Some(pre) = &pre else {
+        // The recipe cannot be read: the check says why.
+        return match process_units(&args.recipe, log, CalibrationChoice::Recipe, Units::Compute) {
+            Ok(_) => failure("the recipe could not be read before the run"),
+            Err(code) => code,
+        };
+    };
+    // Opened before any work: a folder beside the output folder that cannot be made is found now.
+    let staging = match Staging::begin(&pre.out) {
+        Ok(s) => s,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return EXIT_BAD_INPUT;
+        }
+    };
     let reuse = Units::Reuse {
-        out: args.out.as_deref(),
+        out: Some(&pre.out),
+        known: Some(&pre.inputs),
     };
     let choice = match &args.calibration {
         Some(f) => CalibrationChoice::File(f),
@@ -433,19 +517,11 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
         Ok(p) => p,
         Err(code) => return code,
     };
-    let out = output_folder(&p, args.out.as_deref());
-    let staging = match Staging::begin(&out) {
-        Ok(s) => s,
-        Err(e) => {
-            eprintln!("error: {e}");
-            return EXIT_FAILURE;
-        }
-    };
     let clock = std::time::Instant::now();
-    if let Err(code) = write_products(args, log, &p, staging.dir()) {
+    if let Err(code) = write_products(args, log, &p, staging.dir(), &pre.inputs) {
         return code;
     }
-    if let Err(e) = staging.commit() {
+    if let Err(e) = staging.commit(&p.reused) {
         eprintln!("error: {e}");
         return EXIT_FAILURE;
     }
@@ -457,7 +533,7 @@ pub fn run(args: &RunArgs, log: &Log) -> u8 {
     log.info(&format!(
         "{} flights, {samples} samples; products in {}",
         p.results.len(),
-        out.display()
+        pre.out.display()
     ));
     0
 }
@@ -468,12 +544,25 @@ fn failure(e: impl std::fmt::Display) -> u8 {
     EXIT_FAILURE
 }
 
-/// Every product of the run into `dir` (the staging folder): lines, QC, grids and maps, calibration
-/// files, the archive, provenance.
-fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Result<(), u8> {
+/// Every product of the run into `dir` (the next generation of the output folder), as
+/// `output.formats` selects: lines, QC, grids and maps, calibration files, the archive, provenance.
+/// Before the archive and provenance record the inputs, every input is hashed again; one that
+/// changed since the run read it is an error (exit 2) and nothing is committed.
+fn write_products(
+    args: &RunArgs,
+    log: &Log,
+    p: &Processed,
+    dir: &Path,
+    inputs: &Inputs,
+) -> Result<(), u8> {
+    let recipe = p.survey.recipe.as_ref();
+    let formats = recipe.map_or(
+        ProductFormats::of(&gravgrad_ingest::recipe::Output::default()),
+        |r| ProductFormats::of(&r.output),
+    );
     let mut table = lines_out::build(&p.results);
     let mut levelled = None;
-    if let Some(recipe) = p.survey.recipe.as_ref() {
+    if let Some(recipe) = recipe {
         let clock = std::time::Instant::now();
         let stages =
             line_stages::compute(&p.results, recipe, &args.recipe).map_err(|e| bad_input(&[e]))?;
@@ -492,24 +581,27 @@ fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Resul
         levelled = Some(stages.levelled);
     }
     let clock = std::time::Instant::now();
-    table
-        .write_parquet(&dir.join("lines.parquet"), &p.names, p.frame.epsg)
-        .map_err(failure)?;
-    let recipe = p.survey.recipe.as_ref();
-    if recipe.is_some_and(|r| r.output.lines_csv) {
+    if formats.parquet {
+        table
+            .write_parquet(&dir.join("lines.parquet"), &p.names, p.frame.epsg)
+            .map_err(failure)?;
+    }
+    if formats.csv {
         table.write_csv(&dir.join("lines.csv")).map_err(failure)?;
     }
-    log.info(&format!(
-        "line table written in {:.2} s",
-        clock.elapsed().as_secs_f64()
-    ));
+    if formats.parquet || formats.csv {
+        log.info(&format!(
+            "line table written in {:.2} s",
+            clock.elapsed().as_secs_f64()
+        ));
+    }
     let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
     let grids = match recipe {
-        Some(r) => {
+        Some(r) if formats.needs_grids() => {
             let clock = std::time::Instant::now();
             let g = grid_stage::grid_survey(r, &p.results, levelled.as_deref(), p.frame.epsg)
                 .map_err(failure)?;
-            grid_stage::write(dir, &g, &p.results, &title).map_err(failure)?;
+            grid_stage::write(dir, &g, &p.results, &title, formats.grids).map_err(failure)?;
             log.info(&format!(
                 "grids of the {} tensor built and written in {:.2} s: {}",
                 g.stage,
@@ -518,30 +610,31 @@ fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Resul
             ));
             Some(g)
         }
-        None => None,
+        _ => None,
     };
     let clock = std::time::Instant::now();
     write_calibrations(p, dir).map_err(failure)?;
-    let inputs = input_files(p);
-    let hashes = provenance::hashes(
-        &std::iter::once(args.recipe.clone())
-            .chain(inputs.iter().cloned())
-            .collect::<Vec<_>>(),
-    )
-    .map_err(failure)?;
-    write_archive(
-        dir,
-        p,
-        &table,
-        grids.as_ref(),
-        &title,
-        &args.recipe,
-        &hashes,
-    )
-    .map_err(failure)?;
+    crate::staging::pause_at("built");
+    let hashes = inputs.verify().map_err(|e| {
+        eprintln!("error: {e}");
+        EXIT_BAD_INPUT
+    })?;
+    if formats.hdf5 {
+        write_archive(
+            dir,
+            p,
+            &table,
+            grids.as_ref(),
+            &title,
+            &inputs.recipe_text,
+            &hashes,
+        )
+        .map_err(failure)?;
+    }
     provenance::write(
         dir,
         &args.recipe,
+        &inputs.recipe_text,
         &hashes,
         &p.names,
         &p.results,
@@ -549,7 +642,7 @@ fn write_products(args: &RunArgs, log: &Log, p: &Processed, dir: &Path) -> Resul
     )
     .map_err(failure)?;
     log.info(&format!(
-        "calibration files, survey.h5 and provenance.json written in {:.2} s",
+        "calibration files, archive and provenance.json written in {:.2} s",
         clock.elapsed().as_secs_f64()
     ));
     Ok(())

@@ -1,23 +1,63 @@
-//! A run's products are written into a staging folder inside the output folder and moved into place
-//! only when every one of them is complete, `provenance.json` last. A run stopped at any point, even
-//! by SIGKILL, therefore leaves no half-written product in the output folder; and `provenance.json`
-//! present means every product beside it comes from one complete run (what `gravgrad batch` relies
-//! on to skip finished runs).
+//! The commit of a run's products: the output folder is always wholly one run.
 //!
-//! The staging folder is `<out>/.gravgrad-staging-<pid>`. A later run into the same folder removes
-//! the staging folders of processes that no longer exist.
+//! A run builds its whole output folder — every product, the stored flights it reused and the batch
+//! logs (`logs/`) — as a new folder beside the output folder, `<parent>/.<name>.gravgrad-next-<pid>`,
+//! and then switches the two in ONE rename: `renameat2(RENAME_EXCHANGE)` on Linux (`renamex_np(RENAME_SWAP)` on
+//! macOS) swaps the two folders atomically, after which the previous generation sits under the
+//! sibling's name and is removed. Into a folder that does not exist yet the switch is a plain
+//! rename. The output folder therefore holds, after a SIGKILL at any point, either every file of
+//! the previous run and nothing else, or every file of the new run and nothing else; no product of
+//! an earlier run survives beside a new `provenance.json`, and `provenance.json` present still
+//! means the folder is one complete run (what `gravgrad batch` relies on).
+//!
+//! Where the file system cannot exchange two folders (some network file systems), the switch falls
+//! back to two renames — the previous folder aside to `.<name>.gravgrad-old-<pid>`, the new one into
+//! place. A kill between the two leaves the output folder missing for that moment; the next run
+//! into it moves the previous generation back before anything else.
+//!
+//! A later run removes the siblings of processes that no longer exist. The test hook
+//! `GRAVGRAD_COMMIT_PAUSE=<step>` makes a run stop at a named step — saying so on stderr — until a
+//! line arrives on its stdin (or it is killed): `built` (every product written beside the folder
+//! but the archive and provenance, inputs not yet hashed again), `staged` (every product
+//! written), `carried` (stored flights linked in), `aside` (two-rename fallback only: the previous
+//! folder moved aside) and `switched` (the new folder in place, the previous one not yet removed).
 
 use std::path::{Path, PathBuf};
 
-/// Prefix of a staging folder's name inside the output folder.
-pub const PREFIX: &str = ".gravgrad-staging-";
-/// The file moved into place last: its presence marks a complete run.
+/// The file written last into a generation: its presence marks a complete run.
 pub const MARKER: &str = "provenance.json";
+/// The folder of stored per-flight results (`run --flight`), carried into the next generation for
+/// the flights the run reused.
+pub const STORE: &str = "flights";
+/// The folder of `gravgrad batch`'s unit logs, carried whole into the next generation (the merge
+/// run's own log is still being written while the run commits).
+pub const LOGS: &str = "logs";
+/// Every entry a run, `run --flight` or `gravgrad batch` writes into the output folder. An output
+/// folder holding anything else is refused before any work (a run replaces the folder whole).
+pub const ENTRIES: [&str; 11] = [
+    "lines.parquet",
+    "lines.csv",
+    "grids.nc",
+    "grids",
+    "maps",
+    "qc",
+    "calibration",
+    "survey.h5",
+    MARKER,
+    STORE,
+    LOGS,
+];
+/// Prefix of the staging folders earlier versions kept inside the output folder (dropped with the
+/// generation that holds them).
+pub const LEGACY_PREFIX: &str = ".gravgrad-staging-";
 
-/// The staging folder of one run.
+/// Environment variable of the test hook that pauses a run at a named commit step.
+pub const PAUSE_ENV: &str = "GRAVGRAD_COMMIT_PAUSE";
+
+/// The next generation of one output folder.
 pub struct Staging {
-    out: PathBuf,
-    dir: PathBuf,
+    target: PathBuf,
+    next: PathBuf,
     committed: bool,
 }
 
@@ -25,15 +65,29 @@ fn io_err(path: &Path, what: &str, e: std::io::Error) -> String {
     format!("{}: cannot {what}: {e}", path.display())
 }
 
-/// Whether the process that made a staging folder is gone. On systems without `/proc` every other
-/// process's folder counts as stale.
-fn is_stale(name: &str) -> bool {
-    let Some(pid) = name
-        .strip_prefix(PREFIX)
-        .and_then(|p| p.parse::<u32>().ok())
-    else {
-        return false;
-    };
+/// The sibling of `target` of kind `kind` (`next`, `old`) for process `pid`.
+fn sibling(target: &Path, kind: &str, pid: u32) -> PathBuf {
+    let name = target
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    target
+        .parent()
+        .unwrap_or(Path::new("/"))
+        .join(format!(".{name}.gravgrad-{kind}-{pid}"))
+}
+
+/// The pid of a sibling of `target` of kind `kind`, when `entry` is one.
+fn sibling_pid(target: &Path, kind: &str, entry: &str) -> Option<u32> {
+    let name = target.file_name()?.to_string_lossy().into_owned();
+    entry
+        .strip_prefix(&format!(".{name}.gravgrad-{kind}-"))?
+        .parse()
+        .ok()
+}
+
+/// Whether process `pid` is gone. On systems without `/proc` every other process counts as gone.
+fn is_gone(pid: u32) -> bool {
     if pid == std::process::id() {
         return false;
     }
@@ -41,84 +95,167 @@ fn is_stale(name: &str) -> bool {
     !proc_root.is_dir() || !proc_root.join(pid.to_string()).exists()
 }
 
-/// Every file under `dir`, as paths relative to it, sorted.
-fn files_under(dir: &Path) -> Result<Vec<PathBuf>, String> {
-    let mut out = Vec::new();
-    let mut stack = vec![PathBuf::new()];
-    while let Some(rel) = stack.pop() {
-        let here = dir.join(&rel);
-        let entries = std::fs::read_dir(&here).map_err(|e| io_err(&here, "list", e))?;
-        for entry in entries {
-            let entry = entry.map_err(|e| io_err(&here, "list", e))?;
-            let kind = entry
-                .file_type()
-                .map_err(|e| io_err(&entry.path(), "inspect", e))?;
-            let rel = rel.join(entry.file_name());
-            if kind.is_dir() {
-                stack.push(rel);
-            } else {
-                out.push(rel);
-            }
-        }
+/// Stops at commit step `step` when the test hook names it: says so on stderr and waits for a
+/// line on stdin (or the end of stdin, or a kill) before it goes on.
+pub fn pause_at(step: &str) {
+    if std::env::var(PAUSE_ENV).is_ok_and(|s| s == step) {
+        eprintln!("gravgrad: paused at commit step `{step}`");
+        let mut line = String::new();
+        let _ = std::io::stdin().read_line(&mut line);
     }
-    out.sort();
-    Ok(out)
+}
+
+/// Makes the renames in `dir` durable (best effort: not every file system syncs a folder).
+fn sync_dir(dir: &Path) {
+    if let Ok(f) = std::fs::File::open(dir) {
+        let _ = f.sync_all();
+    }
+}
+
+/// Swaps the folders `a` and `b` in one step. `Ok(false)`: the file system cannot.
+#[cfg(any(target_os = "linux", target_os = "macos"))]
+fn exchange(a: &Path, b: &Path) -> Result<bool, std::io::Error> {
+    use rustix::fs::{CWD, RenameFlags, renameat_with};
+    use rustix::io::Errno;
+    match renameat_with(CWD, a, CWD, b, RenameFlags::EXCHANGE) {
+        Ok(()) => Ok(true),
+        Err(e) if e == Errno::INVAL || e == Errno::NOSYS || e == Errno::NOTSUP => Ok(false),
+        Err(e) => Err(e.into()),
+    }
+}
+
+#[cfg(not(any(target_os = "linux", target_os = "macos")))]
+fn exchange(_a: &Path, _b: &Path) -> Result<bool, std::io::Error> {
+    Ok(false)
 }
 
 impl Staging {
-    /// Creates `out` if needed, removes stale staging folders in it, and opens this run's.
-    pub fn begin(out: &Path) -> Result<Self, String> {
-        std::fs::create_dir_all(out).map_err(|e| io_err(out, "create the output folder", e))?;
-        let entries = std::fs::read_dir(out).map_err(|e| io_err(out, "list", e))?;
-        for entry in entries.flatten() {
-            let name = entry.file_name().to_string_lossy().into_owned();
-            if is_stale(&name) {
-                let p = entry.path();
-                std::fs::remove_dir_all(&p)
-                    .map_err(|e| io_err(&p, "remove a stale staging folder", e))?;
+    /// Opens the next generation of the output folder `target` (an absolute path whose last part
+    /// is not a symbolic link): creates its parent if needed, puts back a previous generation a
+    /// killed two-rename switch left aside, removes the siblings of processes that are gone, and
+    /// creates this run's.
+    pub fn begin(target: &Path) -> Result<Self, String> {
+        let parent = target
+            .parent()
+            .ok_or_else(|| format!("{}: the output folder has no parent", target.display()))?;
+        std::fs::create_dir_all(parent)
+            .map_err(|e| io_err(parent, "create the output folder's parent", e))?;
+        let entries = std::fs::read_dir(parent).map_err(|e| io_err(parent, "list", e))?;
+        let mut names: Vec<String> = entries
+            .flatten()
+            .map(|e| e.file_name().to_string_lossy().into_owned())
+            .collect();
+        names.sort();
+        for name in &names {
+            let Some(pid) = sibling_pid(target, "old", name) else {
+                continue;
+            };
+            if !is_gone(pid) {
+                continue;
+            }
+            let old = parent.join(name);
+            if std::fs::symlink_metadata(target).is_err() {
+                std::fs::rename(&old, target)
+                    .map_err(|e| io_err(target, "put back the previous run's products", e))?;
+            } else {
+                std::fs::remove_dir_all(&old)
+                    .map_err(|e| io_err(&old, "remove a killed run's folder", e))?;
             }
         }
-        let dir = out.join(format!("{PREFIX}{}", std::process::id()));
-        if dir.exists() {
-            std::fs::remove_dir_all(&dir).map_err(|e| io_err(&dir, "clear", e))?;
+        for name in &names {
+            if let Some(pid) = sibling_pid(target, "next", name)
+                && is_gone(pid)
+            {
+                let p = parent.join(name);
+                std::fs::remove_dir_all(&p)
+                    .map_err(|e| io_err(&p, "remove a killed run's folder", e))?;
+            }
         }
-        std::fs::create_dir_all(&dir).map_err(|e| io_err(&dir, "create", e))?;
+        let next = sibling(target, "next", std::process::id());
+        if next.exists() {
+            std::fs::remove_dir_all(&next).map_err(|e| io_err(&next, "clear", e))?;
+        }
+        std::fs::create_dir(&next).map_err(|e| io_err(&next, "create", e))?;
         Ok(Self {
-            out: out.to_path_buf(),
-            dir,
+            target: target.to_path_buf(),
+            next,
             committed: false,
         })
     }
 
     /// Where the products are written until the commit.
     pub fn dir(&self) -> &Path {
-        &self.dir
+        &self.next
     }
 
-    /// Moves every staged file into the output folder (same relative path), the marker last after
-    /// removing the previous one first, and removes the staging folder. Returns the final paths.
-    pub fn commit(mut self) -> Result<Vec<PathBuf>, String> {
-        let old_marker = self.out.join(MARKER);
-        if old_marker.exists() {
-            std::fs::remove_file(&old_marker)
-                .map_err(|e| io_err(&old_marker, "remove the previous run's marker", e))?;
+    /// Links the stored results of `flights` (`flights/<name>.h5`) and every batch log (`logs/`)
+    /// from the current output folder into the next generation: hard links, so that a log still
+    /// being written goes on in the new folder (copies where no link can be made).
+    fn carry(&self, flights: &[String]) -> Result<(), String> {
+        let mut files: Vec<PathBuf> = flights
+            .iter()
+            .map(|n| Path::new(STORE).join(format!("{n}.h5")))
+            .filter(|rel| self.target.join(rel).is_file())
+            .collect();
+        if let Ok(entries) = std::fs::read_dir(self.target.join(LOGS)) {
+            files.extend(
+                entries
+                    .flatten()
+                    .filter(|e| e.file_type().is_ok_and(|t| t.is_file()))
+                    .map(|e| Path::new(LOGS).join(e.file_name())),
+            );
         }
-        let mut files = files_under(&self.dir)?;
-        // The marker last: sort puts it wherever its name falls.
-        files.sort_by_key(|f| f == Path::new(MARKER));
-        let mut moved = Vec::with_capacity(files.len());
         for rel in files {
-            let from = self.dir.join(&rel);
-            let to = self.out.join(&rel);
-            if let Some(parent) = to.parent() {
-                std::fs::create_dir_all(parent).map_err(|e| io_err(parent, "create", e))?;
+            let (from, to) = (self.target.join(&rel), self.next.join(&rel));
+            if let Some(dir) = to.parent() {
+                std::fs::create_dir_all(dir).map_err(|e| io_err(dir, "create", e))?;
             }
-            std::fs::rename(&from, &to).map_err(|e| io_err(&to, "move into place", e))?;
-            moved.push(to);
+            if std::fs::hard_link(&from, &to).is_err() {
+                std::fs::copy(&from, &to).map_err(|e| io_err(&to, "copy", e))?;
+            }
         }
-        std::fs::remove_dir_all(&self.dir).map_err(|e| io_err(&self.dir, "remove", e))?;
+        Ok(())
+    }
+
+    /// Makes the next generation the output folder in one rename and removes the previous one.
+    /// `stored`: the flights whose stored results (`flights/<name>.h5`) the run reused, kept.
+    pub fn commit(mut self, stored: &[String]) -> Result<(), String> {
+        pause_at("staged");
+        self.carry(stored)?;
+        pause_at("carried");
+        let parent = self.target.parent().unwrap_or(Path::new("/")).to_path_buf();
+        if std::fs::symlink_metadata(&self.target).is_err() {
+            std::fs::rename(&self.next, &self.target)
+                .map_err(|e| io_err(&self.target, "move the products into place", e))?;
+            self.committed = true;
+            sync_dir(&parent);
+            pause_at("switched");
+            return Ok(());
+        }
+        let swapped = exchange(&self.next, &self.target)
+            .map_err(|e| io_err(&self.target, "switch to the new products", e))?;
+        if !swapped {
+            let old = sibling(&self.target, "old", std::process::id());
+            std::fs::rename(&self.target, &old)
+                .map_err(|e| io_err(&self.target, "move the previous products aside", e))?;
+            pause_at("aside");
+            if let Err(e) = std::fs::rename(&self.next, &self.target) {
+                let _ = std::fs::rename(&old, &self.target);
+                return Err(io_err(&self.target, "move the products into place", e));
+            }
+            self.committed = true;
+            sync_dir(&parent);
+            pause_at("switched");
+            let _ = std::fs::remove_dir_all(&old);
+            return Ok(());
+        }
+        // The previous generation now sits under the sibling's name.
         self.committed = true;
-        Ok(moved)
+        sync_dir(&parent);
+        pause_at("switched");
+        std::fs::remove_dir_all(&self.next)
+            .map_err(|e| io_err(&self.next, "remove the previous run's products", e))?;
+        Ok(())
     }
 }
 
@@ -126,7 +263,7 @@ impl Drop for Staging {
     /// A run that returns early (an error) leaves nothing behind; a killed one is cleaned by the next.
     fn drop(&mut self) {
         if !self.committed {
-            let _ = std::fs::remove_dir_all(&self.dir);
+            let _ = std::fs::remove_dir_all(&self.next);
         }
     }
 }
@@ -139,54 +276,94 @@ mod tests {
         let d =
             std::env::temp_dir().join(format!("gravgrad-staging-{name}-{}", std::process::id()));
         let _ = std::fs::remove_dir_all(&d);
+        std::fs::create_dir_all(&d).unwrap();
         d
     }
 
+    fn names(dir: &Path) -> Vec<String> {
+        let mut v: Vec<String> = std::fs::read_dir(dir)
+            .unwrap()
+            .flatten()
+            .map(|e| e.file_name().to_string_lossy().into_owned())
+            .collect();
+        v.sort();
+        v
+    }
+
     #[test]
-    fn commit_moves_everything_marker_last_and_cleans_up() {
-        let out = temp("commit");
-        std::fs::create_dir_all(&out).unwrap();
+    fn commit_replaces_the_whole_folder_and_keeps_only_the_reused_stored_flights() {
+        let root = temp("commit");
+        let out = root.join("out");
+        std::fs::create_dir_all(out.join("calibration")).unwrap();
+        std::fs::create_dir_all(out.join(STORE)).unwrap();
         std::fs::write(out.join(MARKER), "old").unwrap();
-        std::fs::write(out.join("kept.txt"), "user file").unwrap();
+        std::fs::write(out.join("lines.csv"), "stale").unwrap();
+        std::fs::write(out.join("calibration/gone.toml"), "stale").unwrap();
+        std::fs::write(out.join("flights/a.h5"), "stored a").unwrap();
+        std::fs::write(out.join("flights/gone.h5"), "stored gone").unwrap();
         let s = Staging::begin(&out).unwrap();
         std::fs::create_dir_all(s.dir().join("maps")).unwrap();
         std::fs::write(s.dir().join("maps/gzz.png"), "png").unwrap();
         std::fs::write(s.dir().join(MARKER), "new").unwrap();
-        std::fs::write(s.dir().join("a.parquet"), "lines").unwrap();
-        let moved = s.commit().unwrap();
-        assert_eq!(moved.last().unwrap(), &out.join(MARKER));
-        assert_eq!(moved.len(), 3);
+        s.commit(&["a".to_string()]).unwrap();
+        assert_eq!(names(&out), ["flights", "maps", MARKER]);
+        assert_eq!(names(&out.join(STORE)), ["a.h5"]);
+        assert_eq!(
+            std::fs::read_to_string(out.join("flights/a.h5")).unwrap(),
+            "stored a"
+        );
         assert_eq!(std::fs::read_to_string(out.join(MARKER)).unwrap(), "new");
-        assert_eq!(
-            std::fs::read_to_string(out.join("maps/gzz.png")).unwrap(),
-            "png"
-        );
-        assert_eq!(
-            std::fs::read_to_string(out.join("kept.txt")).unwrap(),
-            "user file"
-        );
-        let left: Vec<_> = std::fs::read_dir(&out)
-            .unwrap()
-            .flatten()
-            .filter(|e| e.file_name().to_string_lossy().starts_with(PREFIX))
-            .collect();
-        assert!(left.is_empty());
-        std::fs::remove_dir_all(&out).unwrap();
+        // Nothing left beside the folder.
+        assert_eq!(names(&root), ["out"]);
+        std::fs::remove_dir_all(&root).unwrap();
     }
 
     #[test]
-    fn dropped_staging_leaves_the_folder_as_it_was_and_stale_ones_are_removed() {
-        let out = temp("drop");
-        // A staging folder of a process that cannot exist (pid above the kernel's maximum).
-        let stale = out.join(format!("{PREFIX}4294967295"));
+    fn commit_into_a_missing_folder_renames_it_into_place() {
+        let root = temp("fresh");
+        let out = root.join("sub/out");
+        let s = Staging::begin(&out).unwrap();
+        std::fs::write(s.dir().join(MARKER), "new").unwrap();
+        s.commit(&[]).unwrap();
+        assert_eq!(names(&out), [MARKER]);
+        assert_eq!(names(&root.join("sub")), ["out"]);
+        std::fs::remove_dir_all(&root).unwrap();
+    }
+
+    #[test]
+    fn dropped_staging_leaves_the_folder_as_it_was_and_killed_runs_are_cleaned() {
+        let root = temp("drop");
+        let out = root.join("out");
+        std::fs::create_dir_all(&out).unwrap();
+        std::fs::write(out.join(MARKER), "old").unwrap();
+        // A sibling of a process that cannot exist (pid above the kernel's maximum).
+        let stale = sibling(&out, "next", u32::MAX);
         std::fs::create_dir_all(&stale).unwrap();
         std::fs::write(stale.join("lines.parquet"), "half").unwrap();
         {
             let s = Staging::begin(&out).unwrap();
-            assert!(!stale.exists(), "stale staging folder kept");
+            assert!(!stale.exists(), "a killed run's folder kept");
             std::fs::write(s.dir().join("lines.parquet"), "x").unwrap();
         }
-        assert_eq!(std::fs::read_dir(&out).unwrap().count(), 0);
-        std::fs::remove_dir_all(&out).unwrap();
+        assert_eq!(names(&root), ["out"]);
+        assert_eq!(names(&out), [MARKER]);
+        std::fs::remove_dir_all(&root).unwrap();
+    }
+
+    #[test]
+    fn a_generation_left_aside_by_a_killed_two_rename_switch_is_put_back() {
+        let root = temp("aside");
+        let out = root.join("out");
+        let old = sibling(&out, "old", u32::MAX);
+        std::fs::create_dir_all(&old).unwrap();
+        std::fs::write(old.join(MARKER), "previous").unwrap();
+        let s = Staging::begin(&out).unwrap();
+        assert_eq!(
+            std::fs::read_to_string(out.join(MARKER)).unwrap(),
+            "previous"
+        );
+        drop(s);
+        assert_eq!(names(&root), ["out"]);
+        std::fs::remove_dir_all(&root).unwrap();
     }
 }

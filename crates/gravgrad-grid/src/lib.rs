@@ -13,6 +13,6 @@ pub mod tensor_grid;
 
 pub use mincurv::{GridSpec, Gridded, blank, block_means, grid_points};
 pub use png_map::{MapOptions, Ramp, render_map, write_map};
-pub use products::{Product, Products, Written, write_products};
+pub use products::{Formats, Product, Products, Written, write_formats, write_products};
 pub use spacing::{default_blanking, default_cell, line_spacing};
 pub use tensor_grid::{GzReference, TensorGrids, TensorOptions, full_tensor};

@@ -69,8 +69,52 @@ pub enum ProductError {
     Map { path: PathBuf, source: MapError },
 }
 
+/// Which of the product files to write.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Formats {
+    /// `grids.nc`.
+    pub netcdf: bool,
+    /// `grids/<name>.tif`.
+    pub geotiff: bool,
+    /// `maps/<name>.png`.
+    pub png: bool,
+}
+
+impl Formats {
+    /// Every file.
+    pub const ALL: Self = Self {
+        netcdf: true,
+        geotiff: true,
+        png: true,
+    };
+}
+
 /// Writes `dir/grids.nc`, `dir/grids/<name>.tif` and `dir/maps/<name>.png` for every product.
 pub fn write_products(dir: &Path, products: &Products<'_>) -> Result<Written, ProductError> {
+    let files = write_formats(dir, products, Formats::ALL)?;
+    let (tifs, rest): (Vec<PathBuf>, Vec<PathBuf>) = files
+        .into_iter()
+        .partition(|f| f.extension().is_some_and(|e| e == "tif"));
+    let (maps, nc): (Vec<PathBuf>, Vec<PathBuf>) = rest
+        .into_iter()
+        .partition(|f| f.extension().is_some_and(|e| e == "png"));
+    Ok(Written {
+        netcdf: nc
+            .into_iter()
+            .next()
+            .unwrap_or_else(|| dir.join("grids.nc")),
+        geotiffs: tifs,
+        maps,
+    })
+}
+
+/// Writes the files `formats` selects, as [`write_products`] does (a folder only when a file goes
+/// into it); the paths written, `grids.nc` first, then per product its GeoTIFF and its map.
+pub fn write_formats(
+    dir: &Path,
+    products: &Products<'_>,
+    formats: Formats,
+) -> Result<Vec<PathBuf>, ProductError> {
     if products.grids.is_empty() {
         return Err(ProductError::Empty);
     }
@@ -102,38 +146,47 @@ pub fn write_products(dir: &Path, products: &Products<'_>) -> Result<Written, Pr
             r
         })
         .collect();
-    let mut file = GridFile::new(products.title, products.source);
-    for (p, r) in products.grids.iter().zip(&rasters) {
-        file = file.with_variable(p.name, p.long_name, p.units, r);
+    let mut written = Vec::new();
+    if formats.netcdf {
+        let mut file = GridFile::new(products.title, products.source);
+        for (p, r) in products.grids.iter().zip(&rasters) {
+            file = file.with_variable(p.name, p.long_name, p.units, r);
+        }
+        let netcdf = dir.join("grids.nc");
+        write_grids(&netcdf, &file)?;
+        written.push(netcdf);
     }
-    let netcdf = dir.join("grids.nc");
-    write_grids(&netcdf, &file)?;
-
-    let tif_dir = folder(dir.join("grids"))?;
-    let map_dir = folder(dir.join("maps"))?;
-    let mut geotiffs = Vec::new();
-    let mut maps = Vec::new();
+    let tif_dir = if formats.geotiff {
+        Some(folder(dir.join("grids"))?)
+    } else {
+        None
+    };
+    let map_dir = if formats.png {
+        Some(folder(dir.join("maps"))?)
+    } else {
+        None
+    };
     for (p, r) in products.grids.iter().zip(&rasters) {
-        let tif = tif_dir.join(format!("{}.tif", p.name));
-        write_geotiff(r, &tif, &WriteOptions::default())?;
-        geotiffs.push(tif);
-        let png = map_dir.join(format!("{}.png", p.name));
-        let opts = MapOptions {
-            title: p.name.to_string(),
-            units: p.units.to_string(),
-            ramp: p.ramp,
-            paths: products.paths.clone(),
-            ..MapOptions::default()
-        };
-        write_map(&png, r, &opts).map_err(|source| ProductError::Map {
-            path: png.clone(),
-            source,
-        })?;
-        maps.push(png);
+        if let Some(tif_dir) = &tif_dir {
+            let tif = tif_dir.join(format!("{}.tif", p.name));
+            write_geotiff(r, &tif, &WriteOptions::default())?;
+            written.push(tif);
+        }
+        if let Some(map_dir) = &map_dir {
+            let png = map_dir.join(format!("{}.png", p.name));
+            let opts = MapOptions {
+                title: p.name.to_string(),
+                units: p.units.to_string(),
+                ramp: p.ramp,
+                paths: products.paths.clone(),
+                ..MapOptions::default()
+            };
+            write_map(&png, r, &opts).map_err(|source| ProductError::Map {
+                path: png.clone(),
+                source,
+            })?;
+            written.push(png);
+        }
     }
-    Ok(Written {
-        netcdf,
-        geotiffs,
-        maps,
-    })
+    Ok(written)
 }

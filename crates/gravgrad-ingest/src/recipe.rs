@@ -534,8 +534,12 @@ impl Recipe {
     }
 
     /// The flight files, globs expanded, in sorted order; a pattern that matches nothing is an error.
+    /// A flight is named by its file's stem, so two files with one stem are an error naming both
+    /// and their keys: the same file listed twice, the same log in two formats (`x.csv` beside
+    /// `x.parquet`), or two logs of one name in two folders.
     pub fn flight_files(&self, recipe_path: &Path) -> Result<Vec<PathBuf>, Vec<Problem>> {
         let mut out = Vec::new();
+        let mut keys = Vec::new();
         let mut problems = Vec::new();
         for (i, pat) in self.input.flights.iter().enumerate() {
             let full = self.resolve(pat);
@@ -560,6 +564,7 @@ impl Recipe {
                             .with_hint("paths are relative to the recipe's folder"),
                         );
                     }
+                    keys.extend(std::iter::repeat_n(i, found.len()));
                     out.extend(found);
                 }
                 Err(e) => problems.push(Problem::error(
@@ -568,10 +573,55 @@ impl Recipe {
                 )),
             }
         }
+        problems.extend(same_names(recipe_path, &out, &keys));
         if problems.is_empty() {
             Ok(out)
         } else {
             Err(problems)
         }
     }
+}
+
+/// The errors of flight files that share a name (file stem): `files[k]` came from
+/// `input.flights[keys[k]]`.
+fn same_names(recipe_path: &Path, files: &[PathBuf], keys: &[usize]) -> Vec<Problem> {
+    let stem = |p: &Path| p.file_stem().map(|s| s.to_string_lossy().into_owned());
+    let canon = |p: &Path| p.canonicalize().unwrap_or_else(|_| p.to_path_buf());
+    let mut seen: Vec<(String, usize)> = Vec::new();
+    let mut problems = Vec::new();
+    for (k, f) in files.iter().enumerate() {
+        let Some(name) = stem(f) else { continue };
+        let Some(&(_, first)) = seen.iter().find(|(n, _)| *n == name) else {
+            seen.push((name, k));
+            continue;
+        };
+        let (a, b) = (&files[first], f);
+        let what = if canon(a) == canon(b) {
+            format!("`{}` is listed twice", b.display())
+        } else if canon(a).parent() == canon(b).parent() {
+            format!(
+                "`{}` and `{}` are the same log in two formats; list one",
+                a.display(),
+                b.display()
+            )
+        } else {
+            format!(
+                "`{}` and `{}` would both be the flight `{name}` (one calibration file, one \
+                 stored result); rename one",
+                a.display(),
+                b.display()
+            )
+        };
+        problems.push(
+            Problem::error(
+                Location::file(recipe_path).with_key(format!("input.flights[{}]", keys[k])),
+                format!(
+                    "{what} (input.flights[{}] and input.flights[{}])",
+                    keys[first], keys[k]
+                ),
+            )
+            .with_hint("a flight is named by its file name without extension"),
+        );
+    }
+    problems
 }
