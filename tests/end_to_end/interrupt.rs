@@ -185,13 +185,17 @@ fn killed_run_leaves_no_partial_product_and_the_rerun_completes() {
 fn two_runs(dir: &Path) -> (PathBuf, PathBuf) {
     let survey = copy_demo(dir);
     let base = std::fs::read_to_string(survey.join("recipe.toml")).unwrap();
+    assert!(
+        base.contains("flights/kestrand-flats-demo-f*.parquet"),
+        "{base}"
+    );
     let a = survey.join("recipe_a.toml");
     let b = survey.join("recipe_b.toml");
     std::fs::write(&a, format!("{base}\n[output]\nlines_csv = true\n")).unwrap();
     std::fs::write(
         &b,
         base.replace(
-            "flights/*.parquet",
+            "flights/kestrand-flats-demo-f*.parquet",
             "flights/kestrand-flats-demo-f01.parquet",
         ),
     )

@@ -179,6 +179,10 @@ fn flights_of_one_name_are_refused_naming_both_files_and_the_key() {
     )
     .unwrap();
     let base = std::fs::read_to_string(survey.join("recipe.toml")).unwrap();
+    assert!(
+        base.contains(r#"["flights/kestrand-flats-demo-f*.parquet"]"#),
+        "{base}"
+    );
     for (flights, says) in [
         (
             r#"["A/x.parquet", "B/x.parquet"]"#,
@@ -191,7 +195,11 @@ fn flights_of_one_name_are_refused_naming_both_files_and_the_key() {
         (r#"["flights/*"]"#, "the same log in two formats"),
     ] {
         let recipe = survey.join("dup.toml");
-        std::fs::write(&recipe, base.replace(r#"["flights/*.parquet"]"#, flights)).unwrap();
+        std::fs::write(
+            &recipe,
+            base.replace(r#"["flights/kestrand-flats-demo-f*.parquet"]"#, flights),
+        )
+        .unwrap();
         let out = tmp.path().join("out");
         for args in [vec!["check"], vec!["run"]] {
             let o = Command::new(env!("CARGO_BIN_EXE_gravgrad"))
@@ -223,7 +231,7 @@ fn flights_of_one_name_are_refused_naming_both_files_and_the_key() {
     std::fs::write(
         &recipe,
         base.replace(
-            r#"["flights/*.parquet"]"#,
+            r#"["flights/kestrand-flats-demo-f*.parquet"]"#,
             r#"["A/x.parquet", "B/x.parquet"]"#,
         ),
     )
