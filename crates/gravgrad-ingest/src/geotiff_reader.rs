@@ -12,8 +12,9 @@
 //! pixel scale and tie point, no transformation matrix); a rotated or sheared grid; a south-up or
 //! otherwise flipped grid; a CRS not given by an EPSG code; units other than metres or degrees.
 
+use crate::input_file::open_regular;
+use gravgrad_core::limits::MAX_GRID_CELLS;
 use gravgrad_core::{Location, Problem, Raster};
-use std::fs::File;
 use std::io::BufReader;
 use std::path::Path;
 use tiff::decoder::{Decoder, DecodingResult, Limits};
@@ -21,18 +22,37 @@ use tiff::tags::Tag;
 
 use gravgrad_core::raster::geokey as key;
 
-/// Largest decoded image accepted, in bytes (a 16 000 × 16 000 float32 terrain model).
-const MAX_IMAGE_BYTES: usize = 1 << 30;
+/// Largest decoded image buffer, in bytes: [`MAX_GRID_CELLS`] samples of 8 bytes.
+const MAX_IMAGE_BYTES: u64 = MAX_GRID_CELLS * 8;
+
+/// Largest buffer for one compressed strip or tile, in bytes.
+const MAX_SEGMENT_BYTES: usize = 64 << 20;
+
+/// The largest factor by which a TIFF compression scheme can expand its stored bytes, by the
+/// Compression tag (259): none 1; PackBits 64 (2 bytes give at most 128); deflate 1032 (its
+/// maximum ratio, RFC 1951: a 258-byte match in about 2 bits); LZW 2731 (a 12-bit code gives at
+/// most 4096 bytes, TIFF 6.0 section 13); any other scheme 4096.
+fn max_expansion(compression: u16) -> u64 {
+    match compression {
+        1 => 1,
+        32773 => 64,
+        8 | 32946 => 1032,
+        5 => 2731,
+        _ => 4096,
+    }
+}
 
 /// Reads a single-band GeoTIFF into a north-up raster (frame and units in the module
 /// documentation). Every problem carries the file's location and names the tag at fault.
 pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
     let loc = Location::file(path);
     let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
-    let file = File::open(path).map_err(|e| fail(format!("cannot open: {e}")))?;
+    let input = open_regular(path).map_err(|p| vec![p])?;
+    let file_len = input.len;
     let mut limits = Limits::default();
-    limits.decoding_buffer_size = MAX_IMAGE_BYTES;
-    let mut dec = Decoder::new(BufReader::new(file))
+    limits.decoding_buffer_size = MAX_IMAGE_BYTES as usize;
+    limits.intermediate_buffer_size = MAX_SEGMENT_BYTES;
+    let mut dec = Decoder::new(BufReader::new(input.file))
         .map_err(|e| fail(format!("not a readable TIFF file: {e}")))?
         .with_limits(limits);
 
@@ -55,6 +75,7 @@ pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
         ))
     })?;
     let (nx, ny) = (width as usize, height as usize);
+    check_declared_size(&mut dec, (width, height), file_len, &loc)?;
 
     let geometry = read_geometry(&mut dec, &loc)?;
     let epsg = read_crs(&mut dec, &loc)?;
@@ -98,6 +119,48 @@ pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
     raster.epsg = epsg;
     raster.nodata = nodata;
     Ok(raster)
+}
+
+/// Refuses an image whose declared cells exceed [`MAX_GRID_CELLS`], or whose decoded bytes exceed
+/// what the file's size can hold at its compression's largest expansion ([`max_expansion`]).
+fn check_declared_size<R: std::io::Read + std::io::Seek>(
+    dec: &mut Decoder<R>,
+    (width, height): (u32, u32),
+    file_len: u64,
+    loc: &Location,
+) -> Result<(), Vec<Problem>> {
+    let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
+    let bits: u16 = dec
+        .find_tag_unsigned(Tag::BitsPerSample)
+        .map_err(|e| fail(format!("unreadable BitsPerSample tag (258): {e}")))?
+        .unwrap_or(1);
+    let compression: u16 = dec
+        .find_tag_unsigned(Tag::Compression)
+        .map_err(|e| fail(format!("unreadable Compression tag (259): {e}")))?
+        .unwrap_or(1);
+    let cells = u64::from(width) * u64::from(height);
+    let bytes = cells.saturating_mul(u64::from(bits).div_ceil(8));
+    if cells > MAX_GRID_CELLS {
+        return Err(vec![
+            Problem::error(
+                loc.clone(),
+                format!(
+                    "ImageWidth × ImageLength (tags 256, 257) declare {width} × {height} = {cells} \
+                     cells; a raster read here has at most {MAX_GRID_CELLS}"
+                ),
+            )
+            .with_hint("cut the raster to the survey area plus its margin"),
+        ]);
+    }
+    let ratio = max_expansion(compression);
+    if bytes > ratio.saturating_mul(file_len) {
+        return Err(fail(format!(
+            "ImageWidth × ImageLength (tags 256, 257) declare {width} × {height} cells of {bits} \
+             bits ({bytes} bytes), more than a file of {file_len} bytes can hold with \
+             Compression (tag 259) {compression} (at most {ratio} times its size)"
+        )));
+    }
+    Ok(())
 }
 
 /// GDAL_NODATA text to a number: decimal, or `nan`/`inf` in any case, surrounded by spaces.

@@ -17,6 +17,7 @@ pub mod csv;
 pub mod dem;
 pub mod geotiff_reader;
 pub mod hdf5_reader;
+pub mod input_file;
 pub mod instrument;
 pub mod layout;
 pub mod navmerge;
