@@ -34,6 +34,10 @@ pub const SMALL_FILE_ALLOWANCE: u64 = 4 << 20;
 /// 1 GiB.
 pub const MAX_WHOLE_FILE_BYTES: u64 = 1 << 30;
 
+/// Largest Parquet footer (the file's metadata) decoded: 64 MiB. A footer takes a few times its
+/// stored size once decoded; 20,000 row groups of 18 columns written by pyarrow have a 39 MB footer.
+pub const MAX_PARQUET_FOOTER_BYTES: u64 = 64 << 20;
+
 /// Largest TOML file read (recipes, instrument files, calibration files): 16 MiB.
 pub const MAX_TEXT_FILE_BYTES: u64 = 16 << 20;
 

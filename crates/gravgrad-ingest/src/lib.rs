@@ -20,6 +20,7 @@ pub mod hdf5_reader;
 pub mod input_file;
 pub mod instrument;
 pub mod layout;
+pub mod mutate;
 pub mod navmerge;
 pub mod parquet_reader;
 pub mod plan;
