@@ -169,6 +169,9 @@ enum Task {
         /// Folder that receives the files of failing cases.
         #[arg(long, default_value = "mutate-failures")]
         keep: PathBuf,
+        /// Also keep the files of cases slower than this, ms.
+        #[arg(long, default_value_t = 1000)]
+        keep_slower_ms: u64,
     },
     /// One batch of `mutate`, run in the child process (not for direct use).
     #[command(hide = true)]
@@ -220,6 +223,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             timeout,
             batch,
             keep,
+            keep_slower_ms,
         } => {
             let formats = if format == "all" {
                 BinaryFormat::ALL.to_vec()
@@ -235,6 +239,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
                 timeout_s: timeout,
                 batch: batch.max(1),
                 keep,
+                keep_slower_ms,
             })?
         }
         Task::MutateChild { format, files } => mutate::child(parse_format(&format)?, &files)?,

@@ -33,6 +33,8 @@ pub struct Options {
     pub batch: usize,
     /// Folder that receives the failing cases' files.
     pub keep: PathBuf,
+    /// Cases slower than this, ms, are kept too (not failures).
+    pub keep_slower_ms: u64,
 }
 
 #[derive(Default)]
@@ -287,6 +289,9 @@ fn record(o: &Options, case: &(PathBuf, u64, Damage), r: &CaseReport, t: &mut Ta
     if r.micros > t.worst_us {
         t.worst_us = r.micros;
         t.worst_us_case = name.clone();
+    }
+    if r.micros / 1000 > o.keep_slower_ms {
+        let _ = std::fs::copy(&case.0, o.keep.join(case.0.file_name().unwrap_or_default()));
     }
     if r.contained {
         t.contained += 1;

@@ -8,6 +8,10 @@
 //! uncompressed, deflate, LZW or PackBits, as the `tiff` crate decodes them. Only the first image of
 //! the file is read; further images (overviews, masks) are ignored.
 //!
+//! Before the image is decoded, its declared cells (ImageWidth × ImageLength) are checked against
+//! [`MAX_GRID_CELLS`] and, times the bytes per sample, against the file's size at the largest
+//! expansion of its Compression tag ([`max_expansion`]; `docs/reliability.md`).
+//!
 //! Refused, each with the file and the tag at fault: more than one band; no georeferencing (no
 //! pixel scale and tie point, no transformation matrix); a rotated or sheared grid; a south-up or
 //! otherwise flipped grid; a CRS not given by an EPSG code; units other than metres or degrees.
