@@ -5,7 +5,8 @@
 //! limit (`prlimit --as`), so that an allocation sized from a declared count aborts the child
 //! instead of passing unseen. Before each case the child resets its peak resident size
 //! (`/proc/self/clear_refs`, value 5) and after it reports the peak (`VmHWM` of
-//! `/proc/self/status`) and the time taken. The parent counts, per format: cases read, cases
+//! `/proc/self/status`) above the resident size at the case's start, plus the child's resident
+//! size before its first case (the baseline), and the time taken. The parent counts, per format: cases read, cases
 //! refused with problems, problems not located at the file, panics (and panics of a third-party
 //! decoder the reader contained and reported as a problem), aborts or kills, cases over
 //! the time limit, and cases whose peak resident size exceeds twice the file plus the fixed
@@ -361,15 +362,19 @@ pub fn child(format: BinaryFormat, files: &[PathBuf]) -> Result<(), Box<dyn std:
     }
     let stdout = std::io::stdout();
     let mut out = stdout.lock();
-    writeln!(out, "baseline {}", status_kb("VmRSS:"))?;
+    let baseline_kb = status_kb("VmRSS:");
+    writeln!(out, "baseline {baseline_kb}")?;
     for (k, path) in files.iter().enumerate() {
         writeln!(out, "begin {k}")?;
         out.flush()?;
         std::fs::write("/proc/self/clear_refs", "5")?;
+        // Memory an earlier case left resident (allocators keep freed pages a while) is not this
+        // case's: the case's peak is counted from the resident size at its start.
+        let start_kb = status_kb("VmRSS:");
         let t0 = Instant::now();
         let r = std::panic::catch_unwind(|| read_as(format, path));
         let micros = t0.elapsed().as_micros() as u64;
-        let hwm = status_kb("VmHWM:");
+        let hwm = status_kb("VmHWM:").saturating_sub(start_kb) + baseline_kb;
         let (items, errors, unlocated, contained, panicked) = match &r {
             Ok(r) => (
                 r.items,

@@ -8,7 +8,8 @@
 //! uncompressed, deflate, LZW or PackBits, as the `tiff` crate decodes them. Only the first image of
 //! the file is read; further images (overviews, masks) are ignored.
 //!
-//! Before the image is decoded, its declared cells (ImageWidth × ImageLength) are checked against
+//! Before the `tiff` crate reads the file, every entry of the first image directory is checked
+//! against the file's size ([`check_tag_sizes`]). Before the image is decoded, its declared cells (ImageWidth × ImageLength) are checked against
 //! [`MAX_GRID_CELLS`] and, times the bytes per sample, against the file's size at the largest
 //! expansion of its Compression tag ([`max_expansion`]; `docs/reliability.md`).
 //!
@@ -53,9 +54,11 @@ pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
     let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
     let input = open_regular(path).map_err(|p| vec![p])?;
     let file_len = input.len;
+    check_tag_sizes(&input.file, file_len).map_err(|m| vec![Problem::error(loc.clone(), m)])?;
     let mut limits = Limits::default();
     limits.decoding_buffer_size = MAX_IMAGE_BYTES as usize;
-    limits.intermediate_buffer_size = MAX_SEGMENT_BYTES;
+    // A compressed strip or tile lies inside the file: its declared byte count cannot exceed it.
+    limits.intermediate_buffer_size = MAX_SEGMENT_BYTES.min(usize::try_from(file_len).unwrap_or(0));
     let mut dec = Decoder::new(BufReader::new(input.file))
         .map_err(|e| fail(format!("not a readable TIFF file: {e}")))?
         .with_limits(limits);
@@ -123,6 +126,85 @@ pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
     raster.epsg = epsg;
     raster.nodata = nodata;
     Ok(raster)
+}
+
+/// Bytes of one value of a TIFF field type (TIFF 6.0 section 2, BigTIFF): BYTE, ASCII, SBYTE,
+/// UNDEFINED 1; SHORT, SSHORT 2; LONG, SLONG, FLOAT, IFD 4; RATIONAL, SRATIONAL, DOUBLE, LONG8,
+/// SLONG8, IFD8 and unknown types 8.
+fn type_size(t: u16) -> u64 {
+    match t {
+        1 | 2 | 6 | 7 => 1,
+        3 | 8 => 2,
+        4 | 9 | 11 | 13 => 4,
+        _ => 8,
+    }
+}
+
+/// Refuses a first image directory whose entries declare more bytes than the file holds, before
+/// the `tiff` crate reads them: it reserves a tag's declared count × size before reading it
+/// (a GDAL_NODATA tag declaring 64 MiB of text in a 1 KB file). The error names the tag.
+fn check_tag_sizes(file: &std::fs::File, file_len: u64) -> Result<(), String> {
+    use std::os::unix::fs::FileExt;
+    let read = |at: u64, n: usize| -> Option<Vec<u8>> {
+        let mut b = vec![0u8; n];
+        file.read_exact_at(&mut b, at).ok().map(|_| b)
+    };
+    // Too short or not a TIFF: the tiff crate says what is wrong.
+    let Some(head) = read(0, 16.min(file_len as usize)) else {
+        return Ok(());
+    };
+    if head.len() < 8 {
+        return Ok(());
+    }
+    let big_endian = match &head[..2] {
+        b"II" => false,
+        b"MM" => true,
+        _ => return Ok(()),
+    };
+    let uint = |b: &[u8]| -> u64 {
+        let it = b.iter().map(|&x| u64::from(x));
+        if big_endian {
+            it.fold(0, |a, x| (a << 8) | x)
+        } else {
+            it.rev().fold(0, |a, x| (a << 8) | x)
+        }
+    };
+    let (bigtiff, ifd) = match uint(&head[2..4]) {
+        42 => (false, uint(&head[4..8])),
+        43 if head.len() >= 16 => (true, uint(&head[8..16])),
+        _ => return Ok(()),
+    };
+    let (count_len, entry_len, inline) = if bigtiff { (8, 20, 8) } else { (2, 12, 4) };
+    let Some(n) = read(ifd, count_len).map(|b| uint(&b)) else {
+        return Ok(());
+    };
+    let entries_bytes = n.saturating_mul(entry_len);
+    if entries_bytes > file_len {
+        return Err(format!(
+            "the image directory at byte {ifd} declares {n} entries ({entries_bytes} bytes), the \
+             file holds {file_len}"
+        ));
+    }
+    let Some(entries) = read(ifd + count_len as u64, entries_bytes as usize) else {
+        return Ok(());
+    };
+    for e in entries.chunks_exact(entry_len as usize) {
+        let tag = uint(&e[0..2]);
+        let t = uint(&e[2..4]) as u16;
+        let count = if bigtiff {
+            uint(&e[4..12])
+        } else {
+            uint(&e[4..8])
+        };
+        let bytes = count.saturating_mul(type_size(t));
+        if bytes > inline && bytes > file_len {
+            return Err(format!(
+                "tag {tag} declares {count} values of type {t} ({bytes} bytes), the file holds \
+                 {file_len}"
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// Refuses an image whose declared cells exceed [`MAX_GRID_CELLS`], or whose decoded bytes exceed

@@ -22,6 +22,7 @@ pub mod instrument;
 pub mod layout;
 pub mod mutate;
 pub mod navmerge;
+mod parquet_footer;
 pub mod parquet_reader;
 pub mod plan;
 pub mod read;

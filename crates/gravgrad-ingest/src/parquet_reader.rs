@@ -185,7 +185,8 @@ pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns
 }
 
 /// Refuses a footer (the file's metadata) longer than [`MAX_PARQUET_FOOTER_BYTES`] before it is
-/// decoded: its decoded form takes a few times its stored size.
+/// decoded (its decoded form takes a few times its stored size), or one whose declared counts the
+/// footer cannot hold ([`crate::parquet_footer`]).
 fn check_footer_length(file: &File, size: u64, loc: &Location) -> Result<(), Problem> {
     let mut tail = [0u8; 8];
     if size < 8 || file.read_exact_at(&mut tail, size - 8).is_err() {
@@ -202,7 +203,17 @@ fn check_footer_length(file: &File, size: u64, loc: &Location) -> Result<(), Pro
         )
         .with_hint("write the log with fewer, larger row groups"));
     }
-    Ok(())
+    if footer + 8 > size {
+        return Ok(()); // the parquet crate says the file is too short for its footer
+    }
+    let mut bytes = vec![0u8; footer as usize];
+    if file.read_exact_at(&mut bytes, size - 8 - footer).is_err() {
+        return Ok(());
+    }
+    crate::parquet_footer::check(&bytes).map_err(|e| {
+        Problem::error(loc.clone(), format!("not a readable Parquet file: {e}"))
+            .with_hint("check that the file is complete")
+    })
 }
 
 /// The number of rows the footer declares, once it agrees with every row group and column chunk

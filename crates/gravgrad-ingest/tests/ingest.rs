@@ -360,6 +360,19 @@ mod declared_sizes {
     }
 
     #[test]
+    fn parquet_schema_declaring_100_million_children_is_refused_before_decoding() {
+        // The root schema element's num_children (18 columns) is the footer's first 18: the
+        // parquet crate would reserve 800 MB for the children before finding them missing.
+        let bytes = std::fs::read(good("pyarrow.parquet")).unwrap();
+        let patched = patch_parquet_footer_count(&bytes, 18, 100_000_000, 0).unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("f.parquet");
+        std::fs::write(&path, &patched).unwrap();
+        let out = read_flight_file(&path, &Expectation::default());
+        one_error_at(&out.problems, &path, &["100000000 children", "footer"]);
+    }
+
+    #[test]
     fn parquet_of_20000_row_groups_is_read_whole() {
         use parquet::data_type::DoubleType;
         use parquet::file::properties::WriterProperties;
@@ -549,6 +562,25 @@ mod declared_sizes {
             let problems = read_geotiff(&path).unwrap_err();
             one_error_at(&problems, &path, &[&format!("{n} × {n}"), words]);
         }
+    }
+
+    #[test]
+    fn geotiff_tag_declaring_more_bytes_than_the_file_is_refused_before_reading() {
+        // The StripOffsets entry (tag 273) declaring a billion offsets: the tiff crate would
+        // reserve 4 GB for them.
+        let mut bytes = small_tiff(8, tiff::encoder::Compression::Uncompressed);
+        let ifd = u32::from_le_bytes(bytes[4..8].try_into().unwrap()) as usize;
+        let n = u16::from_le_bytes(bytes[ifd..ifd + 2].try_into().unwrap()) as usize;
+        let at = (0..n)
+            .map(|e| ifd + 2 + 12 * e)
+            .find(|&at| bytes[at..at + 2] == 273u16.to_le_bytes())
+            .unwrap();
+        bytes[at + 4..at + 8].copy_from_slice(&1_000_000_000u32.to_le_bytes());
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dem.tif");
+        std::fs::write(&path, &bytes).unwrap();
+        let problems = read_geotiff(&path).unwrap_err();
+        one_error_at(&problems, &path, &["tag 273 declares 1000000000 values"]);
     }
 }
 
