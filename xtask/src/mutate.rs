@@ -314,7 +314,7 @@ fn record(o: &Options, case: &(PathBuf, u64, Damage), r: &CaseReport, t: &mut Ta
         t.unlocated += 1;
         fail(o, case, "a problem not located at the file", t);
     }
-    let bound_kb = (2 * case.1 >> 10) + (o.allowance_mb << 10);
+    let bound_kb = ((2 * case.1) >> 10) + (o.allowance_mb << 10);
     if r.hwm_kb > bound_kb {
         t.over_memory += 1;
         fail(

@@ -189,8 +189,8 @@ pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns
 /// footer cannot hold ([`crate::parquet_footer`]).
 fn check_footer_length(file: &File, size: u64, loc: &Location) -> Result<(), Problem> {
     let mut tail = [0u8; 8];
-    if size < 8 || file.read_exact_at(&mut tail, size - 8).is_err() {
-        return Ok(()); // too short: the parquet crate says what is missing
+    if size < 8 || file.read_exact_at(&mut tail, size - 8).is_err() || &tail[4..] != b"PAR1" {
+        return Ok(()); // too short or no Parquet magic: the parquet crate says what is wrong
     }
     let footer = u64::from(u32::from_le_bytes([tail[0], tail[1], tail[2], tail[3]]));
     if footer > MAX_PARQUET_FOOTER_BYTES {

@@ -643,7 +643,7 @@ mod declared_sizes {
     fn patch_classic_dim(bytes: &[u8], name: &str, len: u32) -> Vec<u8> {
         let mut entry = (name.len() as u32).to_be_bytes().to_vec();
         entry.extend(name.as_bytes());
-        while entry.len() % 4 != 0 {
+        while !entry.len().is_multiple_of(4) {
             entry.push(0);
         }
         let at = bytes
