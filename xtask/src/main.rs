@@ -6,16 +6,19 @@
 //! - `bench-terrain`: the terrain engine's benchmark data and timings (driven by bench/terrain.py).
 //! - `bench-grid`: minimum-curvature gridding of a CSV of points (driven by bench/grid.py).
 //! - `bench-reduce`: calibration, solve and rotation of a recipe's flights, timed in process.
+//! - `mutate`: the readers' long mutation test (docs/reliability.md).
 
 mod accuracy;
 mod benchgrid;
 mod benchprisms;
 mod benchreduce;
 mod benchterrain;
+mod mutate;
 mod synthlog;
 mod writers;
 
 use clap::{Parser, Subcommand};
+use gravgrad_ingest::mutate::BinaryFormat;
 use std::path::{Path, PathBuf};
 use synthlog::{LogSpec, generate, pair_geometry, pair_ids};
 
@@ -139,6 +142,44 @@ enum Task {
         #[arg(long)]
         out: PathBuf,
     },
+    /// The readers' long mutation test: mutated copies of valid Parquet, HDF5, GeoTIFF and NetCDF
+    /// files, each read in a child process under an address-space limit; prints counts, the worst
+    /// peak resident size and the worst time per format (docs/reliability.md).
+    Mutate {
+        /// parquet, hdf5, geotiff, netcdf or all.
+        #[arg(long, default_value = "all")]
+        format: String,
+        /// Cases per format.
+        #[arg(long, default_value_t = 10_000)]
+        cases: usize,
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Resident memory allowed over twice the file's size, MiB.
+        #[arg(long, default_value_t = 64)]
+        allowance_mb: u64,
+        /// Address-space limit of the reading process, MiB.
+        #[arg(long, default_value_t = 1024)]
+        address_space_mb: u64,
+        /// Time limit per case, s.
+        #[arg(long, default_value_t = 5.0)]
+        timeout: f64,
+        /// Cases per child process.
+        #[arg(long, default_value_t = 500)]
+        batch: usize,
+        /// Folder that receives the files of failing cases.
+        #[arg(long, default_value = "mutate-failures")]
+        keep: PathBuf,
+        /// Also keep the files of cases slower than this, ms.
+        #[arg(long, default_value_t = 1000)]
+        keep_slower_ms: u64,
+    },
+    /// One batch of `mutate`, run in the child process (not for direct use).
+    #[command(hide = true)]
+    MutateChild {
+        #[arg(long)]
+        format: String,
+        files: Vec<PathBuf>,
+    },
 }
 
 /// The allocator of the `gravgrad` command, so that timings of its pipeline match.
@@ -173,6 +214,35 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
                 std::fs::write(p, instrument_toml("sample triad", rate, &ids))?;
             }
         }
+        Task::Mutate {
+            format,
+            cases,
+            seed,
+            allowance_mb,
+            address_space_mb,
+            timeout,
+            batch,
+            keep,
+            keep_slower_ms,
+        } => {
+            let formats = if format == "all" {
+                BinaryFormat::ALL.to_vec()
+            } else {
+                vec![parse_format(&format)?]
+            };
+            mutate::run(&mutate::Options {
+                formats,
+                cases,
+                seed,
+                allowance_mb,
+                address_space_mb,
+                timeout_s: timeout,
+                batch: batch.max(1),
+                keep,
+                keep_slower_ms,
+            })?
+        }
+        Task::MutateChild { format, files } => mutate::child(parse_format(&format)?, &files)?,
         Task::PrismAccuracy => accuracy::run(),
         Task::BenchReduce {
             recipe,
@@ -242,6 +312,11 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         })?,
     }
     Ok(())
+}
+
+fn parse_format(name: &str) -> Result<BinaryFormat, String> {
+    BinaryFormat::from_name(name)
+        .ok_or_else(|| format!("--format {name}: expected parquet, hdf5, geotiff, netcdf or all"))
 }
 
 fn write_log(log: &synthlog::SampleLog, out: &Path) -> Result<(), Box<dyn std::error::Error>> {

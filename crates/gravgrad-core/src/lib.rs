@@ -13,6 +13,7 @@
 pub mod attitude;
 pub mod ellipsoid;
 pub mod error;
+pub mod limits;
 pub mod lstsq;
 pub mod mat3;
 pub mod pairs;

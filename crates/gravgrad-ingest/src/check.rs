@@ -580,14 +580,12 @@ pub fn check_path(path: &Path, settings: &CheckSettings, nav: Option<&Flight>) -
     if !is_toml {
         return vec![check_flight_file(path, settings, nav)];
     }
-    let text = match std::fs::read_to_string(path) {
+    let text = match crate::input_file::read_text(path, gravgrad_core::limits::MAX_TEXT_FILE_BYTES)
+    {
         Ok(t) => t,
-        Err(e) => {
+        Err(p) => {
             let mut r = FileReport::new(path, FileKind::Recipe);
-            r.problems.push(Problem::error(
-                Location::file(path),
-                format!("cannot read: {e}"),
-            ));
+            r.problems.push(p);
             return vec![r];
         }
     };

@@ -10,6 +10,7 @@
 
 use crate::columns::{self, Expectation, ReadPlan};
 use crate::sink::Sink;
+use gravgrad_core::limits::{MAX_FLIGHT_ROWS, MAX_FLIGHT_VALUES};
 use gravgrad_core::{Location, Problem};
 use rayon::prelude::*;
 use std::io::Read;
@@ -39,12 +40,14 @@ impl RawColumns {
 /// all reported, the cell becomes NaN); a file that cannot be read at all returns only errors.
 pub fn read_csv(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns>, Vec<Problem>) {
     let loc = Location::file(path);
-    let file = match std::fs::File::open(path) {
+    let input = match crate::input_file::open_regular(path) {
         Ok(f) => f,
-        Err(e) => return (None, vec![Problem::error(loc, format!("cannot open: {e}"))]),
+        Err(p) => return (None, vec![p]),
     };
-    let size = file.metadata().map(|m| m.len()).unwrap_or(0);
-    read_csv_from(file, size, &loc, expect)
+    // Read no further than the size taken before reading: a file that grows meanwhile is read as
+    // it was when opened.
+    let size = input.len;
+    read_csv_from(input.file.take(size), size, &loc, expect)
 }
 
 /// Reads CSV from any byte source (`size_hint` helps reserve memory; 0 if unknown).
@@ -179,8 +182,11 @@ pub fn read_csv_from(
         if !reserved && !block.is_empty() {
             let lines = memchr::memchr_iter(b'\n', block).count().max(1) as u64;
             let est = (size_hint as f64 / (block.len() as f64 / lines as f64) * 1.02) as usize + 16;
+            // A row holds at least one byte per field (its separators and line end), whatever the
+            // first block's lines suggest.
+            let most = (size_hint / n_fields.max(1) as u64).min(MAX_FLIGHT_ROWS) as usize + 16;
             for v in values.iter_mut() {
-                v.reserve(est.min(1 << 31));
+                v.reserve(est.min(most));
             }
             reserved = true;
         }
@@ -193,6 +199,23 @@ pub fn read_csv_from(
             blank_rows.extend(out.blank.iter().map(|r| r + rows_done));
             sink.merge_shifted(out.sink, rows_done);
             rows_done += out.rows;
+        }
+        let n_values = rows_done.saturating_mul(plan.slots.len() as u64);
+        if rows_done > MAX_FLIGHT_ROWS || n_values > MAX_FLIGHT_VALUES {
+            return (
+                None,
+                vec![
+                    Problem::error(
+                        loc.clone().with_row(rows_done + 1),
+                        format!(
+                            "more than {MAX_FLIGHT_ROWS} rows or {MAX_FLIGHT_VALUES} values \
+                             ({} columns read): the limit of one flight log",
+                            plan.slots.len()
+                        ),
+                    )
+                    .with_hint("split the flight into several logs"),
+                ],
+            );
         }
         buf.drain(..cut);
         if eof {

@@ -8,12 +8,18 @@
 //! uncompressed, deflate, LZW or PackBits, as the `tiff` crate decodes them. Only the first image of
 //! the file is read; further images (overviews, masks) are ignored.
 //!
+//! Before the `tiff` crate reads the file, every entry of the first image directory is checked
+//! against the file's size ([`check_tag_sizes`]). Before the image is decoded, its declared cells (ImageWidth × ImageLength) are checked against
+//! [`MAX_GRID_CELLS`] and, times the bytes per sample, against the file's size at the largest
+//! expansion of its Compression tag ([`max_expansion`]; `docs/reliability.md`).
+//!
 //! Refused, each with the file and the tag at fault: more than one band; no georeferencing (no
 //! pixel scale and tie point, no transformation matrix); a rotated or sheared grid; a south-up or
 //! otherwise flipped grid; a CRS not given by an EPSG code; units other than metres or degrees.
 
+use crate::input_file::open_regular;
+use gravgrad_core::limits::MAX_GRID_CELLS;
 use gravgrad_core::{Location, Problem, Raster};
-use std::fs::File;
 use std::io::BufReader;
 use std::path::Path;
 use tiff::decoder::{Decoder, DecodingResult, Limits};
@@ -21,18 +27,39 @@ use tiff::tags::Tag;
 
 use gravgrad_core::raster::geokey as key;
 
-/// Largest decoded image accepted, in bytes (a 16 000 × 16 000 float32 terrain model).
-const MAX_IMAGE_BYTES: usize = 1 << 30;
+/// Largest decoded image buffer, in bytes: [`MAX_GRID_CELLS`] samples of 8 bytes.
+const MAX_IMAGE_BYTES: u64 = MAX_GRID_CELLS * 8;
+
+/// Largest buffer for one compressed strip or tile, in bytes.
+const MAX_SEGMENT_BYTES: usize = 64 << 20;
+
+/// The largest factor by which a TIFF compression scheme can expand its stored bytes, by the
+/// Compression tag (259): none 1; PackBits 64 (2 bytes give at most 128); deflate 1032 (its
+/// maximum ratio, RFC 1951: a 258-byte match in about 2 bits); LZW 2731 (a 12-bit code gives at
+/// most 4096 bytes, TIFF 6.0 section 13); any other scheme 4096.
+fn max_expansion(compression: u16) -> u64 {
+    match compression {
+        1 => 1,
+        32773 => 64,
+        8 | 32946 => 1032,
+        5 => 2731,
+        _ => 4096,
+    }
+}
 
 /// Reads a single-band GeoTIFF into a north-up raster (frame and units in the module
 /// documentation). Every problem carries the file's location and names the tag at fault.
 pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
     let loc = Location::file(path);
     let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
-    let file = File::open(path).map_err(|e| fail(format!("cannot open: {e}")))?;
+    let input = open_regular(path).map_err(|p| vec![p])?;
+    let file_len = input.len;
+    check_tag_sizes(&input.file, file_len).map_err(|m| vec![Problem::error(loc.clone(), m)])?;
     let mut limits = Limits::default();
-    limits.decoding_buffer_size = MAX_IMAGE_BYTES;
-    let mut dec = Decoder::new(BufReader::new(file))
+    limits.decoding_buffer_size = MAX_IMAGE_BYTES as usize;
+    // A compressed strip or tile lies inside the file: its declared byte count cannot exceed it.
+    limits.intermediate_buffer_size = MAX_SEGMENT_BYTES.min(usize::try_from(file_len).unwrap_or(0));
+    let mut dec = Decoder::new(BufReader::new(input.file))
         .map_err(|e| fail(format!("not a readable TIFF file: {e}")))?
         .with_limits(limits);
 
@@ -55,6 +82,7 @@ pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
         ))
     })?;
     let (nx, ny) = (width as usize, height as usize);
+    check_declared_size(&mut dec, (width, height), file_len, &loc)?;
 
     let geometry = read_geometry(&mut dec, &loc)?;
     let epsg = read_crs(&mut dec, &loc)?;
@@ -98,6 +126,127 @@ pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
     raster.epsg = epsg;
     raster.nodata = nodata;
     Ok(raster)
+}
+
+/// Bytes of one value of a TIFF field type (TIFF 6.0 section 2, BigTIFF): BYTE, ASCII, SBYTE,
+/// UNDEFINED 1; SHORT, SSHORT 2; LONG, SLONG, FLOAT, IFD 4; RATIONAL, SRATIONAL, DOUBLE, LONG8,
+/// SLONG8, IFD8 and unknown types 8.
+fn type_size(t: u16) -> u64 {
+    match t {
+        1 | 2 | 6 | 7 => 1,
+        3 | 8 => 2,
+        4 | 9 | 11 | 13 => 4,
+        _ => 8,
+    }
+}
+
+/// Refuses a first image directory whose entries declare more bytes than the file holds, before
+/// the `tiff` crate reads them: it reserves a tag's declared count × size before reading it
+/// (a GDAL_NODATA tag declaring 64 MiB of text in a 1 KB file). The error names the tag.
+fn check_tag_sizes(file: &std::fs::File, file_len: u64) -> Result<(), String> {
+    use std::os::unix::fs::FileExt;
+    let read = |at: u64, n: usize| -> Option<Vec<u8>> {
+        let mut b = vec![0u8; n];
+        file.read_exact_at(&mut b, at).ok().map(|_| b)
+    };
+    // Too short or not a TIFF: the tiff crate says what is wrong.
+    let Some(head) = read(0, 16.min(file_len as usize)) else {
+        return Ok(());
+    };
+    if head.len() < 8 {
+        return Ok(());
+    }
+    let big_endian = match &head[..2] {
+        b"II" => false,
+        b"MM" => true,
+        _ => return Ok(()),
+    };
+    let uint = |b: &[u8]| -> u64 {
+        let it = b.iter().map(|&x| u64::from(x));
+        if big_endian {
+            it.fold(0, |a, x| (a << 8) | x)
+        } else {
+            it.rev().fold(0, |a, x| (a << 8) | x)
+        }
+    };
+    let (bigtiff, ifd) = match uint(&head[2..4]) {
+        42 => (false, uint(&head[4..8])),
+        43 if head.len() >= 16 => (true, uint(&head[8..16])),
+        _ => return Ok(()),
+    };
+    let (count_len, entry_len, inline) = if bigtiff { (8, 20, 8) } else { (2, 12, 4) };
+    let Some(n) = read(ifd, count_len).map(|b| uint(&b)) else {
+        return Ok(());
+    };
+    let entries_bytes = n.saturating_mul(entry_len);
+    if entries_bytes > file_len {
+        return Err(format!(
+            "the image directory at byte {ifd} declares {n} entries ({entries_bytes} bytes), the \
+             file holds {file_len}"
+        ));
+    }
+    let Some(entries) = read(ifd + count_len as u64, entries_bytes as usize) else {
+        return Ok(());
+    };
+    for e in entries.chunks_exact(entry_len as usize) {
+        let tag = uint(&e[0..2]);
+        let t = uint(&e[2..4]) as u16;
+        let count = if bigtiff {
+            uint(&e[4..12])
+        } else {
+            uint(&e[4..8])
+        };
+        let bytes = count.saturating_mul(type_size(t));
+        if bytes > inline && bytes > file_len {
+            return Err(format!(
+                "tag {tag} declares {count} values of type {t} ({bytes} bytes), the file holds \
+                 {file_len}"
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Refuses an image whose declared cells exceed [`MAX_GRID_CELLS`], or whose decoded bytes exceed
+/// what the file's size can hold at its compression's largest expansion ([`max_expansion`]).
+fn check_declared_size<R: std::io::Read + std::io::Seek>(
+    dec: &mut Decoder<R>,
+    (width, height): (u32, u32),
+    file_len: u64,
+    loc: &Location,
+) -> Result<(), Vec<Problem>> {
+    let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
+    let bits: u16 = dec
+        .find_tag_unsigned(Tag::BitsPerSample)
+        .map_err(|e| fail(format!("unreadable BitsPerSample tag (258): {e}")))?
+        .unwrap_or(1);
+    let compression: u16 = dec
+        .find_tag_unsigned(Tag::Compression)
+        .map_err(|e| fail(format!("unreadable Compression tag (259): {e}")))?
+        .unwrap_or(1);
+    let cells = u64::from(width) * u64::from(height);
+    let bytes = cells.saturating_mul(u64::from(bits).div_ceil(8));
+    if cells > MAX_GRID_CELLS {
+        return Err(vec![
+            Problem::error(
+                loc.clone(),
+                format!(
+                    "ImageWidth × ImageLength (tags 256, 257) declare {width} × {height} = {cells} \
+                     cells; a raster read here has at most {MAX_GRID_CELLS}"
+                ),
+            )
+            .with_hint("cut the raster to the survey area plus its margin"),
+        ]);
+    }
+    let ratio = max_expansion(compression);
+    if bytes > ratio.saturating_mul(file_len) {
+        return Err(fail(format!(
+            "ImageWidth × ImageLength (tags 256, 257) declare {width} × {height} cells of {bits} \
+             bits ({bytes} bytes), more than a file of {file_len} bytes can hold with \
+             Compression (tag 259) {compression} (at most {ratio} times its size)"
+        )));
+    }
+    Ok(())
 }
 
 /// GDAL_NODATA text to a number: decimal, or `nan`/`inf` in any case, surrounded by spaces.

@@ -5,14 +5,21 @@
 //! first record is row 1. Columns are decoded in parallel, each by its own reader, with positional
 //! reads so that the readers never share a file cursor.
 
-use crate::columns::{self, Expectation};
+use crate::columns::{self, Expectation, ReadPlan};
 use crate::csv::RawColumns;
+use crate::input_file::open_regular;
 use bytes::Bytes;
+use gravgrad_core::limits::{
+    MAX_FLIGHT_ROWS, MAX_FLIGHT_VALUES, MAX_LOG_EXPANSION, MAX_PARQUET_FOOTER_BYTES,
+    SMALL_FILE_ALLOWANCE, decoded_bound, decoded_fits,
+};
 use gravgrad_core::{Location, Problem};
 use parquet::basic::Type as PhysicalType;
 use parquet::column::reader::{ColumnReader, ColumnReaderImpl};
 use parquet::data_type::DataType;
+use parquet::file::metadata::ParquetStatisticsPolicy;
 use parquet::file::reader::{ChunkReader, FileReader, Length, SerializedFileReader};
+use parquet::file::serialized_reader::ReadOptionsBuilder;
 use rayon::prelude::*;
 use std::fs::File;
 use std::io::Read;
@@ -57,6 +64,16 @@ impl ChunkReader for PositionalFile {
     }
 
     fn get_bytes(&self, start: u64, length: usize) -> parquet::errors::Result<Bytes> {
+        // The range comes from the file's own metadata: check it lies inside the file before
+        // reserving memory for it.
+        let end = start.checked_add(length as u64);
+        if end.is_none_or(|e| e > self.1) {
+            return Err(parquet::errors::ParquetError::General(format!(
+                "the file's metadata points at {length} bytes from byte {start}, past its end at \
+                 byte {}",
+                self.1
+            )));
+        }
         let mut buf = vec![0u8; length];
         self.0
             .read_exact_at(&mut buf, start)
@@ -68,12 +85,26 @@ impl ChunkReader for PositionalFile {
 /// Reads a Parquet flight log into raw columns (file units, first record = row 1).
 pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns>, Vec<Problem>) {
     let loc = Location::file(path);
-    let file = match File::open(path) {
+    let input = match open_regular(path) {
         Ok(f) => f,
-        Err(e) => return (None, vec![Problem::error(loc, format!("cannot open: {e}"))]),
+        Err(p) => return (None, vec![p]),
     };
-    let size = file.metadata().map(|m| m.len()).unwrap_or(0);
-    let reader = match SerializedFileReader::new(PositionalFile(Arc::new(file), size)) {
+    let size = input.len;
+    if let Err(p) = check_footer_length(&input.file, size, &loc) {
+        return (None, vec![p]);
+    }
+    // Statistics are not used: skipping them keeps the footer's decoded size near its stored
+    // size (a file of 20,000 row groups: docs/reliability.md).
+    let options = ReadOptionsBuilder::new()
+        .with_column_stats_policy(ParquetStatisticsPolicy::SkipAll)
+        .with_size_stats_policy(ParquetStatisticsPolicy::SkipAll)
+        .with_encoding_stats_policy(ParquetStatisticsPolicy::SkipAll)
+        .with_encoding_stats_as_mask(true)
+        .build();
+    let reader = match SerializedFileReader::new_with_options(
+        PositionalFile(Arc::new(input.file), size),
+        options,
+    ) {
         Ok(r) => r,
         Err(e) => {
             return (
@@ -93,7 +124,10 @@ pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns
         Ok(p) => p,
         Err(problems) => return (None, problems),
     };
-    let n_rows = reader.metadata().file_metadata().num_rows().max(0) as usize;
+    let n_rows = match declared_rows(&reader, &plan, size, &loc) {
+        Ok(n) => n,
+        Err(p) => return (None, vec![p]),
+    };
     if n_rows == 0 {
         return (
             None,
@@ -113,8 +147,20 @@ pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns
                         .with_hint("write the channel as a floating-point column"));
                 }
             }
-            read_column(&reader, slot.index, col.max_def_level(), n_rows)
-                .map_err(|e| Problem::error(cloc, format!("cannot decode: {e}")))
+            // The `parquet` crate's decoders index some damaged pages out of bounds (seen with a
+            // page whose encoding byte was flipped to BYTE_STREAM_SPLIT, docs/reliability.md):
+            // such a panic is contained here and reported as this column's error.
+            let decoded = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                read_column(&reader, slot.index, col.max_def_level(), n_rows)
+            }));
+            match decoded {
+                Ok(r) => r.map_err(|e| Problem::error(cloc, format!("cannot decode: {e}"))),
+                Err(_) => Err(Problem::error(
+                    cloc,
+                    "cannot decode: the Parquet decoder panicked on this column's damaged data",
+                )
+                .with_hint("the file is damaged; write it again")),
+            }
         })
         .collect();
     let mut values = Vec::with_capacity(results.len());
@@ -136,6 +182,124 @@ pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns
         }),
         problems,
     )
+}
+
+/// Refuses a footer (the file's metadata) longer than [`MAX_PARQUET_FOOTER_BYTES`] before it is
+/// decoded (its decoded form takes a few times its stored size), or one whose declared counts the
+/// footer cannot hold ([`crate::parquet_footer`]).
+fn check_footer_length(file: &File, size: u64, loc: &Location) -> Result<(), Problem> {
+    let mut tail = [0u8; 8];
+    if size < 8 || file.read_exact_at(&mut tail, size - 8).is_err() || &tail[4..] != b"PAR1" {
+        return Ok(()); // too short or no Parquet magic: the parquet crate says what is wrong
+    }
+    let footer = u64::from(u32::from_le_bytes([tail[0], tail[1], tail[2], tail[3]]));
+    if footer > MAX_PARQUET_FOOTER_BYTES {
+        return Err(Problem::error(
+            loc.clone(),
+            format!(
+                "the footer (the file's metadata) declares {footer} bytes; at most \
+                 {MAX_PARQUET_FOOTER_BYTES} are read"
+            ),
+        )
+        .with_hint("write the log with fewer, larger row groups"));
+    }
+    if footer + 8 > size {
+        return Ok(()); // the parquet crate says the file is too short for its footer
+    }
+    let mut bytes = vec![0u8; footer as usize];
+    if file.read_exact_at(&mut bytes, size - 8 - footer).is_err() {
+        return Ok(());
+    }
+    crate::parquet_footer::check(&bytes).map_err(|e| {
+        Problem::error(loc.clone(), format!("not a readable Parquet file: {e}"))
+            .with_hint("check that the file is complete")
+    })
+}
+
+/// The number of rows the footer declares, once it agrees with every row group and column chunk
+/// read, every chunk lies inside the file, and the table fits the stated limits
+/// ([`gravgrad_core::limits`]): rows, values, and decoded bytes against the file's size.
+fn declared_rows(
+    reader: &SerializedFileReader<PositionalFile>,
+    plan: &ReadPlan,
+    file_len: u64,
+    loc: &Location,
+) -> Result<usize, Problem> {
+    let refuse = |msg: String| {
+        Problem::error(loc.clone(), msg).with_hint("the file is damaged or was not fully written")
+    };
+    let meta = reader.metadata();
+    let footer_rows = meta.file_metadata().num_rows();
+    let footer_rows = u64::try_from(footer_rows)
+        .map_err(|_| refuse(format!("the footer declares {footer_rows} rows")))?;
+    let mut sum: u64 = 0;
+    for (g, rg) in meta.row_groups().iter().enumerate() {
+        let rows = rg.num_rows();
+        let rows = u64::try_from(rows)
+            .map_err(|_| refuse(format!("row group {g} declares {rows} rows")))?;
+        sum = sum.saturating_add(rows);
+        for slot in &plan.slots {
+            let Some(cc) = rg.columns().get(slot.index) else {
+                return Err(refuse(format!(
+                    "row group {g} has {} column chunks, the schema {} columns",
+                    rg.num_columns(),
+                    meta.file_metadata().schema_descr().num_columns()
+                )));
+            };
+            let values = cc.num_values();
+            if u64::try_from(values).ok() != Some(rows) {
+                return Err(refuse(format!(
+                    "column `{}`: its chunk in row group {g} declares {values} values, the row \
+                     group {rows} rows",
+                    slot.source
+                )));
+            }
+            // Not `byte_range()`: it asserts (panics) on negative values, which a damaged footer
+            // may hold.
+            let start = cc.dictionary_page_offset().unwrap_or(cc.data_page_offset());
+            let len = cc.compressed_size();
+            let end = u64::try_from(start)
+                .ok()
+                .zip(u64::try_from(len).ok())
+                .and_then(|(s, l)| s.checked_add(l));
+            if end.is_none_or(|end| end > file_len) {
+                return Err(refuse(format!(
+                    "column `{}`: its chunk in row group {g} declares {len} bytes from byte \
+                     {start}, the file holds {file_len}",
+                    slot.source,
+                )));
+            }
+        }
+    }
+    if sum != footer_rows {
+        return Err(refuse(format!(
+            "the footer declares {footer_rows} rows, its {} row groups hold {sum}",
+            meta.num_row_groups()
+        )));
+    }
+    let n_values = footer_rows.saturating_mul(plan.slots.len() as u64);
+    if footer_rows > MAX_FLIGHT_ROWS || n_values > MAX_FLIGHT_VALUES {
+        return Err(Problem::error(
+            loc.clone(),
+            format!(
+                "the file declares {footer_rows} rows × {} columns read; one flight log holds at \
+                 most {MAX_FLIGHT_ROWS} rows and {MAX_FLIGHT_VALUES} values",
+                plan.slots.len()
+            ),
+        )
+        .with_hint("split the flight into several logs"));
+    }
+    let decoded = n_values.saturating_mul(8);
+    if !decoded_fits(decoded, file_len, MAX_LOG_EXPANSION) {
+        return Err(refuse(format!(
+            "the file declares {footer_rows} rows × {} columns ({decoded} bytes as f64), more \
+             than a file of {file_len} bytes can hold (at most {} bytes, {MAX_LOG_EXPANSION} \
+             times its size plus {SMALL_FILE_ALLOWANCE})",
+            plan.slots.len(),
+            decoded_bound(file_len, MAX_LOG_EXPANSION)
+        )));
+    }
+    usize::try_from(footer_rows).map_err(|_| refuse(format!("{footer_rows} rows")))
 }
 
 fn read_column(

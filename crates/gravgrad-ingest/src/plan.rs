@@ -20,8 +20,8 @@ const COLUMNS: [&str; 5] = [
 /// Reads a plan; every problem names the file, row (header = row 1) and column.
 pub fn read_plan(path: &Path) -> Result<Plan, Vec<Problem>> {
     let loc = || Location::file(path);
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| vec![Problem::error(loc(), format!("cannot read: {e}"))])?;
+    let text = crate::input_file::read_text(path, gravgrad_core::limits::MAX_TEXT_FILE_BYTES)
+        .map_err(|p| vec![p])?;
     let mut rows = text
         .lines()
         .filter(|l| !l.starts_with('#') && !l.trim().is_empty());

@@ -1,5 +1,7 @@
 //! Reading our TOML files (instrument, recipe) with errors that name the key path and line.
 
+use crate::input_file::read_text;
+use gravgrad_core::limits::MAX_TEXT_FILE_BYTES;
 use gravgrad_core::{Location, Problem};
 use serde::de::DeserializeOwned;
 use std::path::Path;
@@ -47,8 +49,7 @@ fn with_span(mut p: Problem, text: &str, span: Option<std::ops::Range<usize>>) -
 
 /// Reads and parses a TOML file.
 pub fn read<T: DeserializeOwned>(path: &Path) -> Result<T, Problem> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| Problem::error(Location::file(path), format!("cannot read: {e}")))?;
+    let text = read_text(path, MAX_TEXT_FILE_BYTES)?;
     parse(path, &text)
 }
 

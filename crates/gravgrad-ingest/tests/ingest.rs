@@ -282,3 +282,380 @@ mod geotiff {
         assert!(p[0].message.contains("cannot open"), "{}", p[0].message);
     }
 }
+
+/// Declared sizes are never trusted (issue 16): each test names the defect it guards.
+mod declared_sizes {
+    use gravgrad_core::Problem;
+    use gravgrad_ingest::columns::Expectation;
+    use gravgrad_ingest::geotiff_reader::read_geotiff;
+    use gravgrad_ingest::mutate::{find_all, patch_parquet_footer_count};
+    use gravgrad_ingest::read::read_flight_file;
+    use parquet::file::reader::{FileReader, SerializedFileReader};
+    use std::path::{Path, PathBuf};
+
+    fn good(name: &str) -> PathBuf {
+        PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+            .join("../../tests/corpus/good")
+            .join(name)
+    }
+
+    /// Exactly one error, located at `path`, whose message holds every one of `words`.
+    fn one_error_at(problems: &[Problem], path: &Path, words: &[&str]) {
+        let errors: Vec<&Problem> = problems.iter().filter(|p| p.is_error()).collect();
+        assert_eq!(errors.len(), 1, "{problems:?}");
+        assert_eq!(errors[0].location.file.as_deref(), Some(path));
+        for w in words {
+            assert!(
+                errors[0].message.contains(w),
+                "{w:?} not in {}",
+                errors[0].message
+            );
+        }
+    }
+
+    #[test]
+    fn parquet_footer_claiming_5e9_rows_is_refused_before_allocating() {
+        let bytes = std::fs::read(good("pyarrow.parquet")).unwrap();
+        // The footer's first count of 40 is FileMetaData.num_rows (field 3, before the row groups).
+        let patched = patch_parquet_footer_count(&bytes, 40, 5_000_000_000, 0).unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("f.parquet");
+        std::fs::write(&path, &patched).unwrap();
+        let r = SerializedFileReader::new(std::fs::File::open(&path).unwrap()).unwrap();
+        assert_eq!(r.metadata().file_metadata().num_rows(), 5_000_000_000);
+        let out = read_flight_file(&path, &Expectation::default());
+        assert!(out.flights.is_empty());
+        one_error_at(&out.problems, &path, &["5000000000", "footer"]);
+    }
+
+    #[test]
+    fn parquet_row_group_and_column_chunk_counts_patched_are_refused() {
+        let bytes = std::fs::read(good("pyarrow.parquet")).unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("f.parquet");
+        // Every other count of 40 in the footer that the parquet crate then reads as a row
+        // group's num_rows or a column chunk's num_values.
+        let mut counts_patched = 0;
+        for k in 1.. {
+            let Some(patched) = patch_parquet_footer_count(&bytes, 40, 5_000_000_000, k) else {
+                break;
+            };
+            std::fs::write(&path, &patched).unwrap();
+            let Ok(r) = SerializedFileReader::new(std::fs::File::open(&path).unwrap()) else {
+                continue;
+            };
+            let rg = r.metadata().row_group(0);
+            let hit = rg.num_rows() == 5_000_000_000
+                || rg.columns().iter().any(|c| c.num_values() == 5_000_000_000);
+            if !hit {
+                continue;
+            }
+            let out = read_flight_file(&path, &Expectation::default());
+            assert!(out.flights.is_empty(), "count {k}");
+            one_error_at(&out.problems, &path, &["5000000000"]);
+            counts_patched += 1;
+        }
+        // 18 column chunks and the row group.
+        assert_eq!(counts_patched, 19);
+    }
+
+    #[test]
+    fn parquet_schema_declaring_100_million_children_is_refused_before_decoding() {
+        // The root schema element's num_children (18 columns) is the footer's first 18: the
+        // parquet crate would reserve 800 MB for the children before finding them missing.
+        let bytes = std::fs::read(good("pyarrow.parquet")).unwrap();
+        let patched = patch_parquet_footer_count(&bytes, 18, 100_000_000, 0).unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("f.parquet");
+        std::fs::write(&path, &patched).unwrap();
+        let out = read_flight_file(&path, &Expectation::default());
+        one_error_at(&out.problems, &path, &["100000000 children", "footer"]);
+    }
+
+    #[test]
+    fn parquet_of_20000_row_groups_is_read_whole() {
+        use parquet::data_type::DoubleType;
+        use parquet::file::properties::WriterProperties;
+        use parquet::file::writer::SerializedFileWriter;
+        use parquet::schema::parser::parse_message_type;
+        use std::sync::Arc;
+        let schema = Arc::new(
+            parse_message_type(
+                "message f { required double time; required double fx; required double fy; \
+                 required double fz; required double zz_a; required double zz_b; }",
+            )
+            .unwrap(),
+        );
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("groups.parquet");
+        let props = Arc::new(WriterProperties::builder().build());
+        let mut w = SerializedFileWriter::new(std::fs::File::create(&path).unwrap(), schema, props)
+            .unwrap();
+        for g in 0..20_000 {
+            let mut rg = w.next_row_group().unwrap();
+            let mut c = 0;
+            while let Some(mut col) = rg.next_column().unwrap() {
+                let v = if c == 0 { g as f64 * 0.1 } else { 1.0 };
+                col.typed::<DoubleType>()
+                    .write_batch(&[v], None, None)
+                    .unwrap();
+                col.close().unwrap();
+                c += 1;
+            }
+            rg.close().unwrap();
+        }
+        w.close().unwrap();
+        let only = ["time", "fx", "fy", "fz"];
+        let expect = Expectation {
+            only: Some(&only),
+            ..Expectation::default()
+        };
+        let out = read_flight_file(&path, &expect);
+        assert!(
+            out.problems.iter().all(|p| !p.is_error()),
+            "{:?}",
+            out.problems
+        );
+        let t = &out.flights[0].table;
+        assert_eq!(t.n_rows(), 20_000);
+        assert_eq!(t.get("time").unwrap()[19_999], 19_999.0 * 0.1);
+    }
+
+    #[test]
+    fn hdf5_declaring_2e8_rows_is_refused_before_reading() {
+        let bytes = std::fs::read(good("h5py.h5")).unwrap();
+        // Every dataset has 40 rows: its dataspace message (version 1: 1, rank 1, flags, 5 zero
+        // bytes; version 2: 2, rank 1, flags, type) holds 40 as a little-endian u64.
+        let mut patched = bytes.clone();
+        let hits: Vec<usize> = find_all(&bytes, &40u64.to_le_bytes())
+            .into_iter()
+            .filter(|&at| {
+                at >= 8
+                    && ((bytes[at - 8] == 1 && bytes[at - 7] == 1 && bytes[at - 4..at] == [0; 4])
+                        || (bytes[at - 4] == 2 && bytes[at - 3] == 1))
+            })
+            .collect();
+        assert!(!hits.is_empty());
+        for at in hits {
+            patched[at..at + 8].copy_from_slice(&200_000_000u64.to_le_bytes());
+        }
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("f.h5");
+        std::fs::write(&path, &patched).unwrap();
+        let f = hdf5_pure::File::from_bytes(patched).unwrap();
+        let g = f.group("flight_a").unwrap();
+        assert_eq!(g.dataset("fx").unwrap().shape().unwrap(), vec![200_000_000]);
+        let out = read_flight_file(&path, &Expectation::default());
+        assert!(out.flights.is_empty());
+        assert!(!out.problems.is_empty());
+        for p in &out.problems {
+            assert!(p.is_error());
+            assert_eq!(p.location.file.as_deref(), Some(path.as_path()));
+            assert!(p.message.contains("200000000"), "{}", p.message);
+        }
+    }
+
+    #[test]
+    fn inputs_symlinked_to_dev_zero_are_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        for name in ["f.csv", "f.parquet", "f.h5"] {
+            let path = dir.path().join(name);
+            std::os::unix::fs::symlink("/dev/zero", &path).unwrap();
+            let out = read_flight_file(&path, &Expectation::default());
+            one_error_at(&out.problems, &path, &["a device", "regular file"]);
+        }
+        for name in ["dem.tif", "dem.nc"] {
+            let path = dir.path().join(name);
+            std::os::unix::fs::symlink("/dev/zero", &path).unwrap();
+            let problems = gravgrad_ingest::dem::read_dem(&path, None).unwrap_err();
+            one_error_at(&problems, &path, &["regular file"]);
+        }
+        let path = dir.path().join("recipe.toml");
+        std::os::unix::fs::symlink("/dev/zero", &path).unwrap();
+        let p = gravgrad_ingest::tomlfile::read::<toml::Table>(&path).unwrap_err();
+        one_error_at(&[p], &path, &["a device"]);
+        let folder = dir.path().join("folder.csv");
+        std::fs::create_dir(&folder).unwrap();
+        let out = read_flight_file(&folder, &Expectation::default());
+        one_error_at(&out.problems, &folder, &["a folder"]);
+    }
+
+    /// A little-endian TIFF of `n` × `n` float32 cells of 100.0 in one strip.
+    fn small_tiff(n: u32, compression: tiff::encoder::Compression) -> Vec<u8> {
+        let mut out = std::io::Cursor::new(Vec::new());
+        let mut enc = tiff::encoder::TiffEncoder::new(&mut out)
+            .unwrap()
+            .with_compression(compression);
+        let mut img = enc
+            .new_image::<tiff::encoder::colortype::Gray32Float>(n, n)
+            .unwrap();
+        img.rows_per_strip(n).unwrap();
+        img.write_data(&vec![100.0f32; (n * n) as usize]).unwrap();
+        out.into_inner()
+    }
+
+    /// The ImageWidth, ImageLength and RowsPerStrip entries of a little-endian classic TIFF set
+    /// to `width`, `height` and `height`: one strip still holds the whole (declared) image.
+    fn patch_tiff_size(bytes: &[u8], width: u32, height: u32) -> Vec<u8> {
+        let mut out = bytes.to_vec();
+        assert_eq!(&bytes[..2], b"II");
+        let ifd = u32::from_le_bytes(bytes[4..8].try_into().unwrap()) as usize;
+        let n = u16::from_le_bytes(bytes[ifd..ifd + 2].try_into().unwrap()) as usize;
+        let mut patched = 0;
+        for e in 0..n {
+            let at = ifd + 2 + 12 * e;
+            let tag = u16::from_le_bytes(bytes[at..at + 2].try_into().unwrap());
+            let kind = u16::from_le_bytes(bytes[at + 2..at + 4].try_into().unwrap());
+            let v = match tag {
+                256 => width,
+                257 | 278 => height,
+                _ => continue,
+            };
+            out[at + 8..at + 12].fill(0);
+            if kind == 3 {
+                out[at + 8..at + 10].copy_from_slice(&(v as u16).to_le_bytes());
+            } else {
+                out[at + 8..at + 12].copy_from_slice(&v.to_le_bytes());
+            }
+            patched += 1;
+        }
+        assert_eq!(patched, 3);
+        out
+    }
+
+    #[test]
+    fn geotiff_declaring_16000_by_16000_cells_is_refused_before_decoding() {
+        let bytes = small_tiff(8, tiff::encoder::Compression::Uncompressed);
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dem.tif");
+        std::fs::write(&path, patch_tiff_size(&bytes, 16_000, 16_000)).unwrap();
+        let problems = read_geotiff(&path).unwrap_err();
+        one_error_at(
+            &problems,
+            &path,
+            &["16000 × 16000", "256, 257", "at most 67108864"],
+        );
+    }
+
+    #[test]
+    fn geotiff_declaring_more_than_its_compression_can_hold_is_refused() {
+        // Deflate expands at most 1032 times: a file of a few hundred bytes cannot hold
+        // 2000 × 2000 float32 cells (16 MB); uncompressed, it cannot hold 100 × 100 (40 kB).
+        let cases = [
+            (
+                tiff::encoder::Compression::Deflate(tiff::encoder::DeflateLevel::Fast),
+                2000,
+                "Compression (tag 259) 8",
+            ),
+            (
+                tiff::encoder::Compression::Uncompressed,
+                100,
+                "Compression (tag 259) 1",
+            ),
+        ];
+        for (compression, n, words) in cases {
+            let bytes = small_tiff(64, compression);
+            assert!(bytes.len() < 4096 + 16384, "{} bytes", bytes.len());
+            let dir = tempfile::tempdir().unwrap();
+            let path = dir.path().join("dem.tif");
+            std::fs::write(&path, patch_tiff_size(&bytes, n, n)).unwrap();
+            let problems = read_geotiff(&path).unwrap_err();
+            one_error_at(&problems, &path, &[&format!("{n} × {n}"), words]);
+        }
+    }
+
+    #[test]
+    fn geotiff_tag_declaring_more_bytes_than_the_file_is_refused_before_reading() {
+        // The StripOffsets entry (tag 273) declaring a billion offsets: the tiff crate would
+        // reserve 4 GB for them.
+        let mut bytes = small_tiff(8, tiff::encoder::Compression::Uncompressed);
+        let ifd = u32::from_le_bytes(bytes[4..8].try_into().unwrap()) as usize;
+        let n = u16::from_le_bytes(bytes[ifd..ifd + 2].try_into().unwrap()) as usize;
+        let at = (0..n)
+            .map(|e| ifd + 2 + 12 * e)
+            .find(|&at| bytes[at..at + 2] == 273u16.to_le_bytes())
+            .unwrap();
+        bytes[at + 4..at + 8].copy_from_slice(&1_000_000_000u32.to_le_bytes());
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dem.tif");
+        std::fs::write(&path, &bytes).unwrap();
+        let problems = read_geotiff(&path).unwrap_err();
+        one_error_at(&problems, &path, &["tag 273 declares 1000000000 values"]);
+    }
+}
+
+/// The fixed-seed share of the mutation tests (the long run: `xtask mutate`,
+/// docs/reliability.md): mutated copies of valid Parquet, HDF5, GeoTIFF and NetCDF files are read
+/// in process; none may panic, and every problem must be located at the file.
+mod mutation {
+    use gravgrad_ingest::mutate::{BinaryFormat, Rng, mutate, read_as};
+    use std::path::PathBuf;
+
+    const CASES: usize = 250;
+
+    fn run(format: BinaryFormat, seed: u64) {
+        let root = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../..");
+        let seeds: Vec<Vec<u8>> = format
+            .seed_files()
+            .iter()
+            .map(|p| std::fs::read(root.join(p)).unwrap())
+            .collect();
+        let dir = tempfile::tempdir().unwrap();
+        let mut rng = Rng::new(seed);
+        let (mut read, mut refused) = (0, 0);
+        for i in 0..CASES {
+            let (bytes, damage) = mutate(format, &seeds[rng.below(seeds.len())], &mut rng);
+            let path = dir.path().join(format!("case{i}.{}", format.extension()));
+            std::fs::write(&path, &bytes).unwrap();
+            let r = std::panic::catch_unwind(|| read_as(format, &path));
+            let Ok(r) = r else {
+                let keep = std::env::temp_dir().join(format!("mutant-{}-{i}", format.name()));
+                std::fs::write(&keep, &bytes).unwrap();
+                panic!(
+                    "{} case {i} ({damage:?}) panicked; kept at {}",
+                    format.name(),
+                    keep.display()
+                );
+            };
+            for p in &r.problems {
+                assert_eq!(
+                    p.location.file.as_deref(),
+                    Some(path.as_path()),
+                    "case {i}: {p}"
+                );
+                assert!(
+                    !p.message.contains("panicked"),
+                    "case {i} ({damage:?}): a contained panic: {p}"
+                );
+            }
+            if r.problems.iter().any(|p| p.is_error()) {
+                refused += 1;
+            } else {
+                assert!(r.items > 0, "case {i}: neither data nor an error");
+                read += 1;
+            }
+        }
+        // The share exercises both outcomes.
+        assert!(
+            read > 0 && refused > CASES / 2,
+            "read {read}, refused {refused}"
+        );
+    }
+
+    #[test]
+    fn mutated_parquet_files() {
+        run(BinaryFormat::Parquet, 11);
+    }
+    #[test]
+    fn mutated_hdf5_files() {
+        run(BinaryFormat::Hdf5, 12);
+    }
+    #[test]
+    fn mutated_geotiff_files() {
+        run(BinaryFormat::GeoTiff, 13);
+    }
+    #[test]
+    fn mutated_netcdf_files() {
+        run(BinaryFormat::NetCdf, 14);
+    }
+}

@@ -12,6 +12,7 @@
 //! `_Netcdf4*`, `_NCProperties`) are not reported as attributes.
 
 use crate::model::{AttrValue, Attribute, Dimension, NcType, Variable};
+use gravgrad_core::limits::MAX_WHOLE_FILE_BYTES;
 use hdf5_pure::{AttrValue as H, DType, File};
 use std::collections::HashMap;
 
@@ -104,10 +105,32 @@ struct RawVar {
     attrs: HashMap<String, H>,
 }
 
-/// Opens `path` as a NetCDF-4 file and describes its root group. Errors are messages without
-/// the file name.
-pub(crate) fn open(path: &std::path::Path) -> Result<Nc4, String> {
-    let file = File::open(path).map_err(|e| format!("not a readable NetCDF-4/HDF5 file: {e}"))?;
+/// Reads the open NetCDF-4 file `f` of `file_len` bytes whole (at most [`MAX_WHOLE_FILE_BYTES`])
+/// and describes its root group. Errors are messages without the file name.
+pub(crate) fn open(mut f: std::fs::File, file_len: u64) -> Result<Nc4, String> {
+    use std::io::{Read, Seek, SeekFrom};
+    if file_len > MAX_WHOLE_FILE_BYTES {
+        return Err(format!(
+            "the file is {file_len} bytes long; a NetCDF-4 file is read whole and may be at most \
+             {MAX_WHOLE_FILE_BYTES} bytes"
+        ));
+    }
+    let len = file_len as usize;
+    let mut bytes = Vec::new();
+    bytes
+        .try_reserve_exact(len)
+        .map_err(|_| format!("no memory to read {len} bytes"))?;
+    f.seek(SeekFrom::Start(0))
+        .and_then(|_| f.take(file_len).read_to_end(&mut bytes))
+        .map_err(|e| format!("cannot read: {e}"))?;
+    if bytes.len() != len {
+        return Err(format!(
+            "the file changed while being read: {} bytes read of {len}",
+            bytes.len()
+        ));
+    }
+    let file =
+        File::from_bytes(bytes).map_err(|e| format!("not a readable NetCDF-4/HDF5 file: {e}"))?;
     let root = file.root();
     let global = root
         .attrs()

@@ -8,6 +8,7 @@
 use crate::classic::{self, Header, HeaderError, VarPlace};
 use crate::model::{Attribute, Dimension, Format, Variable, find_attr};
 use crate::nc4::{self, Nc4};
+use gravgrad_core::limits::{MAX_GRID_CELLS, SMALL_FILE_ALLOWANCE, decoded_bound, decoded_fits};
 use std::fs::File;
 use std::io::{Read, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
@@ -16,8 +17,13 @@ use thiserror::Error;
 /// The HDF5 format signature, at the start of a NetCDF-4 file.
 const HDF5_SIGNATURE: [u8; 8] = [0x89, b'H', b'D', b'F', b'\r', b'\n', 0x1a, b'\n'];
 
-/// Largest number of values read from one variable (2 GiB as f64; a 16 000 × 16 000 grid fits).
-pub const MAX_VALUES: u64 = 1 << 28;
+/// Largest number of values read from one variable: [`MAX_GRID_CELLS`] (512 MiB as f64).
+pub const MAX_VALUES: u64 = MAX_GRID_CELLS;
+
+/// Decoded bytes a NetCDF-4 variable may give per byte of the file: deflate's largest ratio
+/// (about 1032, RFC 1951: a 258-byte match in about 2 bits), the only compression NetCDF-4
+/// writers use by default. A classic file stores its values uncompressed: they must lie inside it.
+pub const MAX_NC4_EXPANSION: u64 = 1032;
 
 /// Why a NetCDF file or one of its variables could not be read: the file and what was expected.
 #[derive(Clone, Debug, PartialEq, Eq, Error)]
@@ -35,7 +41,8 @@ enum Backend {
         numrecs: u64,
         file_len: u64,
     },
-    Nc4(Box<hdf5_pure::File>),
+    /// The open file and its length in bytes.
+    Nc4(Box<hdf5_pure::File>, u64),
 }
 
 /// An open NetCDF file: its dimensions, global attributes and variables, and the means to read
@@ -69,10 +76,17 @@ impl NcFile {
             message,
         };
         let mut f = File::open(path).map_err(|e| err(format!("cannot open: {e}")))?;
-        let file_len = f
+        let meta = f
             .metadata()
-            .map_err(|e| err(format!("cannot read the file's size: {e}")))?
-            .len();
+            .map_err(|e| err(format!("cannot read the file's size: {e}")))?;
+        if !meta.is_file() {
+            return Err(err(
+                "not a regular file (a device, pipe or folder), expected a regular file whose \
+                 size is known before it is read"
+                    .into(),
+            ));
+        }
+        let file_len = meta.len();
         let mut magic = Vec::with_capacity(8);
         (&mut f)
             .take(8)
@@ -84,14 +98,14 @@ impl NcFile {
                 dims,
                 attributes,
                 variables,
-            } = nc4::open(path).map_err(err)?;
+            } = nc4::open(f, file_len).map_err(err)?;
             return Ok(Self {
                 path: path.to_path_buf(),
                 format: Format::Netcdf4,
                 dims,
                 attributes,
                 variables,
-                backend: Backend::Nc4(Box::new(file)),
+                backend: Backend::Nc4(Box::new(file), file_len),
             });
         }
         if magic.len() < 4 {
@@ -201,10 +215,29 @@ impl NcFile {
                 (*recsize, *numrecs, *file_len),
                 count as usize,
             ),
-            Backend::Nc4(file) => {
+            Backend::Nc4(file, file_len) => {
                 let ds = file
                     .dataset(name)
                     .map_err(|e| self.err(format!("cannot open variable `{name}`: {e}")))?;
+                let stored = count.saturating_mul(var.nc_type.size());
+                if !decoded_fits(stored, *file_len, MAX_NC4_EXPANSION) {
+                    return Err(self.err(format!(
+                        "variable `{name}` declares {count} values ({stored} bytes), more than a \
+                         file of {file_len} bytes can hold (at most {} bytes, {MAX_NC4_EXPANSION} \
+                         times its size plus {SMALL_FILE_ALLOWANCE})",
+                        decoded_bound(*file_len, MAX_NC4_EXPANSION)
+                    )));
+                }
+                if let Ok(Some(chunk)) = ds.chunk_shape() {
+                    let cells = chunk.iter().fold(1u64, |a, &n| a.saturating_mul(n));
+                    let bytes = cells.saturating_mul(var.nc_type.size());
+                    if cells > MAX_VALUES || !decoded_fits(bytes, *file_len, MAX_NC4_EXPANSION) {
+                        return Err(self.err(format!(
+                            "variable `{name}` declares chunks of {cells} values, more than a \
+                             file of {file_len} bytes can hold (limit {MAX_VALUES} values)"
+                        )));
+                    }
+                }
                 let v = ds
                     .read_f64()
                     .map_err(|e| self.err(format!("cannot read variable `{name}`: {e}")))?;

@@ -617,3 +617,109 @@ fn general_writer_round_trip() {
         Some(&AttrValue::Byte(vec![-127]))
     );
 }
+
+/// Declared sizes are never trusted (issue 16): a dimension declaring more values than the file
+/// holds, or than the stated limit, is refused before anything is allocated for it.
+mod declared_sizes {
+    use super::good;
+    use gravgrad_netcdf::{NcFile, read_dem};
+    use std::path::Path;
+
+    fn one_error_at(path: &Path, words: &[&str]) {
+        let problems = read_dem(path, None).unwrap_err();
+        assert_eq!(problems.len(), 1, "{problems:?}");
+        assert_eq!(problems[0].location.file.as_deref(), Some(path));
+        for w in words {
+            assert!(
+                problems[0].message.contains(w),
+                "{w:?} not in {}",
+                problems[0].message
+            );
+        }
+    }
+
+    /// The classic header's entry for dimension `name` (length, name, padding, then its length
+    /// as a big-endian u32) with the length set to `len`.
+    fn patch_classic_dim(bytes: &[u8], name: &str, len: u32) -> Vec<u8> {
+        let mut entry = (name.len() as u32).to_be_bytes().to_vec();
+        entry.extend(name.as_bytes());
+        while !entry.len().is_multiple_of(4) {
+            entry.push(0);
+        }
+        let at = bytes
+            .windows(entry.len())
+            .position(|w| w == entry.as_slice())
+            .expect("the dimension's entry")
+            + entry.len();
+        let mut out = bytes.to_vec();
+        out[at..at + 4].copy_from_slice(&len.to_be_bytes());
+        out
+    }
+
+    #[test]
+    fn classic_dimension_declaring_more_than_the_file_is_refused() {
+        let src = good("dem_classic_ydesc.nc");
+        let bytes = std::fs::read(&src).unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dem.nc");
+        // Within the limit but past the file: the variable's bytes are not there.
+        std::fs::write(&path, patch_classic_dim(&bytes, "x", 1_000_000)).unwrap();
+        let f = NcFile::open(&path).unwrap();
+        assert!(f.dimensions().iter().any(|d| d.len == 1_000_000));
+        one_error_at(&path, &["truncated", "the file has 1380"]);
+        // Past the limit: refused by its count.
+        std::fs::write(&path, patch_classic_dim(&bytes, "x", 200_000_000)).unwrap();
+        one_error_at(&path, &["200000000 values", "67108864"]);
+    }
+
+    /// Every HDF5 dataspace message (version 1: 1, rank, flags, 5 zero bytes; version 2: 2, rank,
+    /// flags, type 1) of rank 1 or 2 with a dimension of `old` gets `new` instead.
+    fn patch_hdf5_dims(bytes: &[u8], old: u64, new: u64) -> (Vec<u8>, usize) {
+        let mut out = bytes.to_vec();
+        let mut n = 0;
+        for p in 0..bytes.len().saturating_sub(24) {
+            let (rank, dims_at) = match (bytes[p], bytes[p + 1]) {
+                (1, r @ 1..=2) if bytes[p + 3..p + 8] == [0; 5] => (r as usize, p + 8),
+                (2, r @ 1..=2) if bytes[p + 3] == 1 => (r as usize, p + 4),
+                _ => continue,
+            };
+            for k in 0..rank {
+                let at = dims_at + 8 * k;
+                if bytes.len() >= at + 8 && bytes[at..at + 8] == old.to_le_bytes() {
+                    out[at..at + 8].copy_from_slice(&new.to_le_bytes());
+                    n += 1;
+                }
+            }
+        }
+        (out, n)
+    }
+
+    #[test]
+    fn netcdf4_dimension_declaring_more_than_the_file_is_refused() {
+        let src = good("dem_netcdf4.nc");
+        let bytes = std::fs::read(&src).unwrap();
+        // x has 8 cells: its coordinate variable and both 2-D variables declare 10 million.
+        let (patched, n) = patch_hdf5_dims(&bytes, 8, 10_000_000);
+        assert!(n >= 3, "{n} dimensions patched");
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dem.nc");
+        std::fs::write(&path, patched).unwrap();
+        let f = NcFile::open(&path).unwrap();
+        assert!(f.dimensions().iter().any(|d| d.len == 10_000_000));
+        one_error_at(
+            &path,
+            &[
+                "declares 10000000 values",
+                "more than a file of 16794 bytes can hold",
+            ],
+        );
+    }
+
+    #[test]
+    fn netcdf_symlinked_to_dev_zero_is_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dem.nc");
+        std::os::unix::fs::symlink("/dev/zero", &path).unwrap();
+        one_error_at(&path, &["not a regular file"]);
+    }
+}
