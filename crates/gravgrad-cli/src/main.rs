@@ -13,6 +13,7 @@ mod grid_stage;
 mod line_stages;
 mod lines_out;
 mod logging;
+mod preflight;
 mod provenance;
 mod qc_cmd;
 mod report;

@@ -10,6 +10,7 @@ use crate::line_stages;
 use crate::lines_out;
 use crate::logging::Log;
 use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
+use crate::preflight::{Preflight, preflight};
 use crate::provenance;
 use crate::qc_cmd;
 use crate::report;
@@ -21,7 +22,7 @@ use clap::Args;
 use gravgrad_calibrate::file::CalibrationFile;
 use gravgrad_core::pairs::AlphaSource;
 use gravgrad_core::{Location, Problem};
-use gravgrad_ingest::check::{Survey, load_recipe};
+use gravgrad_ingest::check::Survey;
 use gravgrad_ingest::recipe::CalibrationMode;
 use gravgrad_ingest::tomlfile;
 use std::io::Write;
@@ -108,20 +109,33 @@ pub fn process_units(
 ) -> Result<Processed, u8> {
     log.info(&format!("reading {}", recipe_path.display()));
     let clock = std::time::Instant::now();
-    let survey = load_recipe(recipe_path);
-    let (Some(recipe), Some(instrument)) = (&survey.recipe, &survey.instrument) else {
+    // The same reading, checks and sizes as `gravgrad check RECIPE`; nothing is processed before
+    // they pass.
+    let pre = preflight(recipe_path);
+    if pre.has_errors() {
+        return Err(input_errors(&pre.survey));
+    }
+    let sizes = pre.sizes();
+    let Preflight {
+        survey, frame, dem, ..
+    } = pre;
+    let (Some(recipe), Some(instrument), Some(frame)) = (&survey.recipe, &survey.instrument, frame)
+    else {
         return Err(input_errors(&survey));
     };
-    if survey.has_errors() {
-        return Err(input_errors(&survey));
+    for w in survey
+        .reports
+        .first()
+        .iter()
+        .flat_map(|r| r.problems.iter())
+    {
+        eprintln!("{w}");
     }
     log.info(&format!(
-        "recipe, instrument and {} flights read and checked in {:.2} s",
+        "recipe, instrument and {} flights read and checked in {:.2} s; {sizes}",
         survey.flights.len(),
         clock.elapsed().as_secs_f64()
     ));
-    let frame =
-        pipeline::map_frame(recipe, recipe_path, &survey.flights).map_err(|p| bad_input(&[p]))?;
     let mode = calibration_override.unwrap_or(recipe.calibration.mode);
     let file: Option<CalibrationFile> = if mode == CalibrationMode::File {
         let rel = recipe
@@ -145,13 +159,17 @@ pub fn process_units(
     } else {
         None
     };
-    let terrain = match &recipe.terrain {
-        Some(t) => {
-            log.info(&format!("reading the terrain model {}", t.dem));
-            Some(TerrainStage::new(recipe, recipe_path, t, &frame).map_err(|p| bad_input(&p))?)
+    let terrain = match (&recipe.terrain, &dem) {
+        (Some(t), Some(window)) => {
+            log.info(&format!("building the terrain model of {}", t.dem));
+            Some(
+                TerrainStage::new(recipe, recipe_path, t, &window.raster)
+                    .map_err(|p| bad_input(&p))?,
+            )
         }
-        None => None,
+        _ => None,
     };
+    drop(dem);
     let store = match units {
         Units::Compute => None,
         Units::Reuse { out } | Units::Only { out, .. } => Some(

@@ -871,3 +871,35 @@ fn bad_calibration_flight_keys_are_refused_by_name() {
     let e = simulate(&s).unwrap_err().to_string();
     assert!(e.contains("instrument.quadratic_rms_per_m_s2"), "{e}");
 }
+
+/// The simulator knows its sizes before it starts and refuses a scenario past its limits, naming
+/// the key most to blame and the size it would need.
+#[test]
+fn scenarios_past_their_size_limits_are_refused_naming_the_key() {
+    let base = "layout = \"scenario/1\"\n";
+    let ok = scenario(base);
+    let sizes = ok.check_sizes().expect("the default scenario fits");
+    assert!(
+        sizes.samples > 1000.0 && sizes.dem_cells > 100.0,
+        "{sizes:?}"
+    );
+    for (extra, key, what) in [
+        ("[terrain]\ncell_m = 0.001", "terrain.cell_m", "cells"),
+        ("[plan]\nlines = 1000000000", "plan.lines", "samples"),
+        (
+            "[plan]\nsample_rate_hz = 1e7",
+            "plan.sample_rate_hz",
+            "at most 1000 Hz",
+        ),
+        (
+            "[plan]\nsample_rate_hz = 100.0\nline_length_m = 200000.0",
+            "plan.line_length_m",
+            "samples",
+        ),
+    ] {
+        let s = scenario(&format!("{base}{extra}"));
+        let e = simulate(&s).err().expect("refused");
+        let text = e.to_string();
+        assert!(text.contains(key) && text.contains(what), "{extra}: {text}");
+    }
+}
