@@ -601,8 +601,8 @@ fn bad_inputs_are_refused_or_marked_without_panics() {
     assert!(out.iter().all(|t| t.xx.is_nan() && t.zz.is_nan()));
 }
 
-/// Holes under the survey: the demo DEM with a block of 6 × 6 cells removed under every tenth
-/// demo point's track (NaN). Left as holes they carry no mass and change the terrain effect by
+/// Holes under the survey: the demo DEM with a block of 2 × 2 cells removed under every fourth
+/// of the points (NaN). Left as holes they carry no mass and change the terrain effect by
 /// tens of E; filled by the run's preflight (`gravgrad_ingest::dem::prepare_window`: eight-
 /// direction inverse-distance fill) the effect is back within a few E of the intact DEM's, and a
 /// warning names the cells.
@@ -615,8 +615,8 @@ fn holes_in_the_dem_under_the_survey_are_filled_not_left_massless() {
     for p in pts.iter().step_by(4) {
         let col = ((p[0] - dem.x_min) / dem.dx) as usize;
         let row = ((dem.y_max - p[1]) / dem.dy) as usize;
-        for r in row.saturating_sub(3)..(row + 3).min(dem.ny) {
-            for c in col.saturating_sub(3)..(col + 3).min(dem.nx) {
+        for r in row.saturating_sub(1)..(row + 1).min(dem.ny) {
+            for c in col.saturating_sub(1)..(col + 1).min(dem.nx) {
                 let v = &mut holed.values[r * dem.nx + c];
                 if !v.is_nan() {
                     *v = f64::NAN;
@@ -625,7 +625,7 @@ fn holes_in_the_dem_under_the_survey_are_filled_not_left_massless() {
             }
         }
     }
-    assert!(removed > 100, "{removed} cells removed");
+    assert!(removed > 50, "{removed} cells removed");
     let whole = [
         dem.x_min,
         dem.x_min + dem.nx as f64 * dem.dx,
