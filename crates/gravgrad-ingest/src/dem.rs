@@ -31,8 +31,8 @@ pub fn read_dem(path: &Path, variable: Option<&str>) -> Result<Raster, Vec<Probl
 /// [`DEM_BYTES_PER_CELL`] bytes a cell, so the limit holds the terrain stage near 1 GB.
 pub const MAX_DEM_WINDOW_CELLS: usize = 10_000_000;
 /// Memory of the terrain stage per DEM window cell, bytes: the window's elevations (8), the
-/// engine's grid copy (8) and its pyramid of blocks (about 1/3 block a cell at about 150 bytes a
-/// block, measured from `size_of::<Block>()`), rounded up.
+/// engine's grid copy (8) and its pyramid of blocks (1/4 + 1/16 + … = 1/3 block a cell at 144
+/// bytes a block, the size of `gravgrad_reduce::terrain::pyramid::Block`): 64, rounded up.
 pub const DEM_BYTES_PER_CELL: usize = 80;
 /// Largest share of the window's cells that may be holes (no data) and still be filled.
 pub const MAX_HOLE_FRACTION: f64 = 0.05;
@@ -279,8 +279,10 @@ pub fn prepare_window(
 
 /// Fills the cells `holes` (indices into `r.values`, which hold NaN or no-data there) from the
 /// nearest valid cell in each of the eight directions (N, NE, E, …), weighted by 1/d² with d the
-/// distance between cell centres in the raster's units. Valid cells are never changed, and every
-/// fill reads only the original valid cells, so the result does not depend on the order.
+/// distance between cell centres in the raster's units; a hole from which no direction reaches a
+/// valid cell takes the mean of the valid cells (NaN when there is none). Valid cells are never
+/// changed, and every fill reads only the original valid cells, so the result does not depend on
+/// the order.
 pub fn fill_holes(r: &mut Raster, holes: &[usize]) {
     let (nx, ny) = (r.nx as i64, r.ny as i64);
     let mut is_hole = vec![false; r.values.len()];
@@ -297,6 +299,18 @@ pub fn fill_holes(r: &mut Raster, holes: &[usize]) {
         (-1, 0),
         (-1, -1),
     ];
+    // A hole no direction reaches a valid cell from (only in a window of holes) takes the mean.
+    let (total, count) = r
+        .values
+        .iter()
+        .zip(&is_hole)
+        .filter(|(_, h)| !**h)
+        .fold((0.0, 0usize), |(s, n), (v, _)| (s + v, n + 1));
+    let mean = if count > 0 {
+        total / count as f64
+    } else {
+        f64::NAN
+    };
     let filled: Vec<f64> = holes
         .iter()
         .map(|&k| {
@@ -319,7 +333,7 @@ pub fn fill_holes(r: &mut Raster, holes: &[usize]) {
                     steps += 1.0;
                 }
             }
-            if wsum > 0.0 { sum / wsum } else { f64::NAN }
+            if wsum > 0.0 { sum / wsum } else { mean }
         })
         .collect();
     for (&k, v) in holes.iter().zip(filled) {

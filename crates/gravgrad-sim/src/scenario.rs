@@ -461,7 +461,7 @@ pub const SIM_BYTES_PER_SAMPLE: f64 = 700.0;
 pub const MAX_SIM_DEM_CELLS: f64 = 4.0e6;
 /// Most prism evaluations of the terrain truth (every DEM cell at every sample, exact): at about
 /// 1e8 evaluations a second on two cores, about 30 s.
-pub const MAX_SIM_PRISM_EVALUATIONS: f64 = 3.0e9;
+pub const MAX_SIM_PRISM_EVALUATIONS: f64 = 2.0e10;
 /// Highest sample rate a scenario may ask for, Hz.
 pub const MAX_SAMPLE_RATE_HZ: f64 = 1000.0;
 
@@ -502,8 +502,16 @@ impl Scenario {
         let samples = seconds * p.sample_rate_hz;
         // The path spans the lines (plus the turns beyond their ends) and the ties.
         let t = &self.terrain;
-        let north = p.line_length_m + 4.0 * radius + 2.0 * p.line_spacing_m + 2.0 * t.margin_m;
-        let east = across + 4.0 * radius + 2.0 * p.line_spacing_m + 2.0 * t.margin_m;
+        let mut north = p.line_length_m + 4.0 * radius + 2.0 * p.line_spacing_m;
+        let mut east = across + 4.0 * radius + 2.0 * p.line_spacing_m;
+        if let Some(cf) = &self.calibration_flight {
+            // Legs up to v·leg_s + radius from the survey's centre, with their turns.
+            let reach = 2.0 * (v * cf.leg_s + 2.0 * radius);
+            north = north.max(reach);
+            east = east.max(reach);
+        }
+        north += 2.0 * t.margin_m;
+        east += 2.0 * t.margin_m;
         ScenarioSizes {
             samples,
             dem_cells: (north / t.cell_m).ceil() * (east / t.cell_m).ceil(),

@@ -535,11 +535,22 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
         hold_off_plan(&mut track, b.line, b.clearance_offset_m, rate);
     }
 
-    // DEM over the path plus the margin, and its mass relative to its mean elevation.
+    // DEM over the path plus the margin (the calibration flight's path too: a run refuses a DEM
+    // that does not cover every flight plus its margin), and its mass relative to its mean
+    // elevation.
     let (nmin, nmax) = minmax(&track.north);
     let (emin, emax) = minmax(&track.east);
+    let [mut dn, mut de] = [[nmin, nmax], [emin, emax]];
+    if let Some(cf) = &s.calibration_flight {
+        let centre = [0.5 * (nmin + nmax), 0.5 * (emin + emax)];
+        let height = s.area.ground_height_m + cf.altitude_m;
+        let t = calflight::fly(cf, &s.plan, centre, height, 0.0);
+        let ((a, b), (c, d)) = (minmax(&t.north), minmax(&t.east));
+        dn = [dn[0].min(a), dn[1].max(b)];
+        de = [de[0].min(c), de[1].max(d)];
+    }
     let m = s.terrain.margin_m;
-    let dem = surface.dem([nmin - m, nmax + m], [emin - m, emax + m]);
+    let dem = surface.dem([dn[0] - m, dn[1] + m], [de[0] - m, de[1] + m]);
     let reference = dem.mean();
     let prisms = terrain::terrain_prisms(&dem, reference, s.terrain.density_kg_m3);
 
