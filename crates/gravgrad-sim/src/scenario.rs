@@ -465,6 +465,11 @@ pub const MAX_SIM_PRISM_EVALUATIONS: f64 = 2.0e10;
 /// Highest sample rate a scenario may ask for, Hz.
 pub const MAX_SAMPLE_RATE_HZ: f64 = 1000.0;
 
+/// Whether `v` is a number no larger than `limit` (NaN is not).
+fn within(v: f64, limit: f64) -> bool {
+    v.is_finite() && v <= limit
+}
+
 /// What a scenario will need, known before anything is simulated.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ScenarioSizes {
@@ -523,7 +528,7 @@ impl Scenario {
     /// Call after the values are known to be positive and finite.
     pub fn check_sizes(&self) -> Result<ScenarioSizes, TooLarge> {
         let p = &self.plan;
-        if !(p.sample_rate_hz <= MAX_SAMPLE_RATE_HZ) {
+        if !within(p.sample_rate_hz, MAX_SAMPLE_RATE_HZ) {
             return Err(TooLarge {
                 key: "plan.sample_rate_hz",
                 message: format!(
@@ -546,7 +551,7 @@ impl Scenario {
         .into_iter()
         .max_by(|a, b| a.1.total_cmp(&b.1))
         .map_or("plan.lines", |k| k.0);
-        if !(s.samples <= MAX_SIM_SAMPLES) {
+        if !within(s.samples, MAX_SIM_SAMPLES) {
             return Err(TooLarge {
                 key: sample_key,
                 message: format!(
@@ -562,7 +567,7 @@ impl Scenario {
         } else {
             "terrain.cell_m"
         };
-        if !(s.dem_cells <= MAX_SIM_DEM_CELLS) {
+        if !within(s.dem_cells, MAX_SIM_DEM_CELLS) {
             return Err(TooLarge {
                 key: cell_key,
                 message: format!(
@@ -574,7 +579,7 @@ impl Scenario {
             });
         }
         let work = s.dem_cells * s.samples;
-        if !(work <= MAX_SIM_PRISM_EVALUATIONS) {
+        if !within(work, MAX_SIM_PRISM_EVALUATIONS) {
             return Err(TooLarge {
                 key: cell_key,
                 message: format!(

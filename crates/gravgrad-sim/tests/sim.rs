@@ -898,7 +898,9 @@ fn scenarios_past_their_size_limits_are_refused_naming_the_key() {
         ),
     ] {
         let s = scenario(&format!("{base}{extra}"));
-        let e = simulate(&s).err().expect("refused");
+        let Err(e) = simulate(&s) else {
+            panic!("{extra}: not refused")
+        };
         let text = e.to_string();
         assert!(text.contains(key) && text.contains(what), "{extra}: {text}");
     }
