@@ -66,7 +66,7 @@ fn recipe_values_and_sizes_past_their_limits_are_refused_before_any_work() {
             "fine.toml",
             "cell_m = 50.0",
             "cell_m = 1.0",
-            &["grid.cell_m", "nodes", "the limit is 1500000"][..],
+            &["grid.cell_m", "nodes", "the limit is 500000"][..],
         ),
         (
             "finer.toml",
@@ -386,4 +386,43 @@ fn the_simulator_refuses_scenarios_past_its_limits() {
         assert!(stderr.contains(key), "{extra}: {stderr}");
         assert!(clock.elapsed() < Duration::from_secs(5), "{extra}");
     }
+}
+
+/// A temperature log with empty cells: `check` of the recipe says what the run's calibration will
+/// do with the channel, from the same screen the run uses, and the run says the same.
+#[test]
+fn check_says_what_the_run_does_with_a_holed_temperature_log() {
+    let dir = tempfile::tempdir().unwrap();
+    let recipe = survey(
+        dir.path(),
+        &format!("{SMALL}\n[instrument]\ntemperature_log = \"gaps\"\n"),
+    );
+    let (code, report, _) = check_json(&[recipe.to_str().unwrap()]);
+    let text = serde_json::to_string(&problems(&report)).unwrap();
+    assert_eq!(code, 0, "{text}");
+    let said: Vec<String> = problems(&report)
+        .iter()
+        .filter(|p| p["location"]["column"] == "temp")
+        .map(|p| p["message"].as_str().unwrap().to_string())
+        .collect();
+    assert!(
+        !said.is_empty()
+            && said
+                .iter()
+                .all(|m| m.starts_with("the run will do this: `temp`")),
+        "{text}"
+    );
+    let out = dir.path().join("products");
+    let o = gravgrad(&[
+        "run",
+        recipe.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(0), "{stderr}");
+    // The run's own note (the calibration's) says the same of the channel as the check did.
+    let note = said[0].trim_start_matches("the run will do this: ");
+    let head = &note[..note.find(':').unwrap_or(note.len())];
+    assert!(stderr.contains(head), "run does not say `{head}`: {stderr}");
 }

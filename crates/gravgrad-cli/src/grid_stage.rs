@@ -166,10 +166,13 @@ pub fn grid_survey(
     })
 }
 
-/// Most nodes of a grid lattice a run makes. Minimum curvature's time grows with the nodes (and
-/// with the empty cells between lines): measured on two cores, a lattice of 1.5 million nodes of
-/// the six components takes about 20 s and 0.4 GB (docs/recipe.md, "Limits").
-pub const MAX_GRID_NODES: usize = 1_500_000;
+/// Most nodes of a grid lattice a run makes. Minimum curvature's time grows faster than the nodes
+/// where cells are fine against the line spacing (long empty stretches between lines converge
+/// slowly): measured on two shared cores (release build), four 3 km lines 200 m apart gridded at
+/// 5 m (210,000 nodes) took 14 s and 0.25 GB, at 3 m (584,000) 59 s and 0.51 GB, at 2 m
+/// (1.31 million) 211 s and 1.15 GB (docs/recipe.md, "Limits"). The limit keeps that worst case
+/// under about 50 s.
+pub const MAX_GRID_NODES: usize = 500_000;
 
 /// The recipe's cell and blanking distance, or their defaults from the line spacing, m.
 pub fn cell_and_blanking(recipe: &Recipe, spacing: Option<f64>) -> (f64, f64) {
