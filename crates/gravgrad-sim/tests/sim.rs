@@ -816,18 +816,33 @@ fn leg_of(
 }
 
 #[test]
-fn a_calibration_flight_with_linear_errors_per_flight_leaves_the_survey_as_it_was() {
+fn a_calibration_flight_with_linear_errors_per_flight_leaves_the_survey_path_and_errors_as_they_were()
+ {
     use gravgrad_sim::scenario::LinearErrors;
     let plain = simulate(&scenario(SMALL)).unwrap();
     let mut s = with_calibration_flight();
     s.instrument.linear_errors = Some(LinearErrors::PerFlight);
     let sim = simulate(&s).unwrap();
+    // The DEM grows to cover the calibration flight too (a run refuses a DEM short of any flight
+    // plus its margin), so the terrain, and with it the pairs' outputs, differ; the path, the
+    // navigation and every error drawn for the survey do not.
     for ((na, va), (nb, vb)) in plain.flights[0].columns.iter().zip(&sim.flights[0].columns) {
         assert_eq!(na, nb);
+        if na.ends_with("_a") || na.ends_with("_b") {
+            continue;
+        }
         assert!(
             va.iter().zip(vb).all(|(x, y)| x.to_bits() == y.to_bits()),
             "{na} differs"
         );
+    }
+    for (a, b) in plain.flights[0]
+        .pair_errors
+        .iter()
+        .zip(&sim.flights[0].pair_errors)
+    {
+        assert_eq!(a.kappa, b.kappa);
+        assert_eq!(a.bias, b.bias);
     }
     // Per flight, the calibration flight is a take-off of its own: other κ.
     let cal = &sim.calibration.as_ref().unwrap().log;
