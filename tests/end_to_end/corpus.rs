@@ -196,7 +196,11 @@ const CASES: &[Case] = &[
         "baseline is zero",
     ),
     keyed("blind_to_gzz.toml", "pair", "cannot observe Gzz"),
-    keyed("recipe_bad_tension.toml", "grid.tension", "outside 0 to 1"),
+    keyed(
+        "recipe_bad_tension.toml",
+        "grid.tension",
+        "expected from 0 to 1",
+    ),
     keyed(
         "recipe_no_flights_match.toml",
         "input.flights[1]",

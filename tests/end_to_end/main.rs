@@ -4,6 +4,7 @@ mod batch;
 mod calibration;
 mod commands;
 mod corpus;
+mod inputs;
 mod interrupt;
 mod motion;
 mod output_folder;

@@ -143,19 +143,21 @@ fn the_recipe_check_reads_the_terrain_model_and_its_coverage() {
         "{:?}",
         dem_problems(&report)
     );
-    // A margin wider than the DEM: a warning naming the key, not an error.
+    // A margin wider than the DEM: an error naming the key, the DEM's extent and the one needed
+    // (issue 16: a DEM that does not cover the survey plus the margin is refused, not warned of).
     std::fs::write(
         &recipe,
         text.replace("margin_m = 600.0", "margin_m = 50000.0"),
     )
     .unwrap();
     let (code, report, _) = check_json(&[recipe.to_str().unwrap()]);
-    assert_eq!(code, 0);
+    assert_eq!(code, 2);
     let w = dem_problems(&report);
     assert!(
         w.len() == 1
-            && w[0]["severity"] == "warning"
-            && w[0]["message"].as_str().unwrap().contains("does not cover"),
+            && w[0]["severity"] == "error"
+            && w[0]["message"].as_str().unwrap().contains("spans x")
+            && w[0]["message"].as_str().unwrap().contains("needs x"),
         "{w:?}"
     );
     // No DEM at the path: an error naming the key, exit 2.

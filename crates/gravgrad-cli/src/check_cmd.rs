@@ -1,13 +1,15 @@
 //! `gravgrad check`: validate flight logs, instrument files and recipes.
 
 use crate::logging::Log;
+use crate::preflight::preflight;
 use crate::report;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
 use gravgrad_ingest::check::{
     CheckSettings, FileReport, check_instrument_file, check_path, read_navigation,
 };
-use std::path::PathBuf;
+use gravgrad_ingest::{recipe, tomlfile};
+use std::path::{Path, PathBuf};
 
 #[derive(Args, Debug)]
 pub struct CheckArgs {
@@ -73,11 +75,27 @@ pub fn run(args: &CheckArgs, log: &Log, json: bool) -> u8 {
     let total = args.files.len();
     for (i, f) in args.files.iter().enumerate() {
         log.progress(i, total, &format!("checking {}", f.display()));
-        reports.extend(check_path(f, &settings, nav.as_ref()));
+        if is_recipe(f) {
+            // The same reading, checks and sizes `gravgrad run` makes before its work.
+            reports.extend(preflight(f).survey.reports);
+        } else {
+            reports.extend(check_path(f, &settings, nav.as_ref()));
+        }
     }
     log.progress(total, total, "done");
     log.clear_progress();
     finish(&reports, log, json)
+}
+
+/// Whether `path` is a recipe: a TOML file whose `layout` is the recipe's.
+fn is_recipe(path: &Path) -> bool {
+    let toml = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .is_some_and(|e| e.eq_ignore_ascii_case("toml"));
+    toml && std::fs::read_to_string(path).is_ok_and(|text| {
+        tomlfile::layout_of(path, &text).is_ok_and(|l| l.as_deref() == Some(recipe::LAYOUT))
+    })
 }
 
 fn finish(reports: &[FileReport], log: &Log, json: bool) -> u8 {

@@ -114,11 +114,7 @@ pub fn grid_survey(
         }
     }
     let spacing = line_spacing(&tracks);
-    let cell = recipe.grid.cell_m.unwrap_or_else(|| default_cell(spacing));
-    let blanking = recipe
-        .grid
-        .blanking_m
-        .unwrap_or_else(|| default_blanking(spacing));
+    let (cell, blanking) = cell_and_blanking(recipe, spacing);
     let any = pts
         .iter()
         .find(|p| !p.is_empty())
@@ -167,6 +163,76 @@ pub fn grid_survey(
         cell_m: cell,
         blanking_m: blanking,
         cells: (spec.nx, spec.ny),
+    })
+}
+
+/// Most nodes of a grid lattice a run makes. Minimum curvature's time grows faster than the nodes
+/// where cells are fine against the line spacing (long empty stretches between lines converge
+/// slowly): measured on two shared cores (release build), four 3 km lines 200 m apart gridded at
+/// 5 m (210,000 nodes) took 14 s and 0.25 GB, at 3 m (584,000) 59 s and 0.51 GB, at 2 m
+/// (1.31 million) 211 s and 1.15 GB (docs/recipe.md, "Limits"). The limit keeps that worst case
+/// under about 50 s.
+pub const MAX_GRID_NODES: usize = 500_000;
+
+/// The recipe's cell and blanking distance, or their defaults from the line spacing, m.
+pub fn cell_and_blanking(recipe: &Recipe, spacing: Option<f64>) -> (f64, f64) {
+    (
+        recipe.grid.cell_m.unwrap_or_else(|| default_cell(spacing)),
+        recipe
+            .grid
+            .blanking_m
+            .unwrap_or_else(|| default_blanking(spacing)),
+    )
+}
+
+/// The lattice a run will grid, known before any processing.
+#[derive(Clone, Copy, Debug)]
+pub struct GridPlan {
+    /// Median line spacing, m (None: not found).
+    pub spacing_m: Option<f64>,
+    pub cell_m: f64,
+    pub blanking_m: f64,
+    /// Nodes eastwards and northwards.
+    pub nx: usize,
+    pub ny: usize,
+    /// Nodes of the lattice over the lines alone, without the blanking distance around them.
+    pub line_nodes: usize,
+}
+
+impl GridPlan {
+    pub fn nodes(&self) -> usize {
+        self.nx.saturating_mul(self.ny)
+    }
+}
+
+/// The lattice of the survey whose lines run along `tracks` (each line's positions, easting and
+/// northing, m): the same cell, blanking and extent [`grid_survey`] takes, from the line positions
+/// alone (the gridded samples are a subset: the lattice is at most this large). `None` without a
+/// finite position.
+pub fn plan_grid(recipe: &Recipe, tracks: &[Vec<(f64, f64)>]) -> Option<GridPlan> {
+    let spacing = line_spacing(tracks);
+    let (cell, blanking) = cell_and_blanking(recipe, spacing);
+    let mut b = [
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+    ];
+    for &(x, y) in tracks.iter().flatten() {
+        if x.is_finite() && y.is_finite() {
+            b = [b[0].min(x), b[1].max(x), b[2].min(y), b[3].max(y)];
+        }
+    }
+    let corners = [(b[0], b[2], 0.0), (b[1], b[3], 0.0)];
+    let spec = GridSpec::covering(&corners, cell, blanking)?;
+    let bare = GridSpec::covering(&corners, cell, 0.0)?;
+    Some(GridPlan {
+        spacing_m: spacing,
+        cell_m: cell,
+        blanking_m: blanking,
+        nx: spec.nx,
+        ny: spec.ny,
+        line_nodes: bare.nx.saturating_mul(bare.ny),
     })
 }
 

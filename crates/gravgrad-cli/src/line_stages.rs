@@ -1,6 +1,6 @@
 //! The line stages of `gravgrad run` and `gravgrad qc`: each line's reduced tensor (terrain removed
 //! when the recipe has a DEM, else normal removed) is low-passed along track with the recipe's
-//! `[filter] cutoff_wavelength_m`, then levelled from the crossovers of survey lines with tie lines
+//! `[filter] cutoff_wavelength_m`, each piece between gaps on its own (a gap splits the line), then levelled from the crossovers of survey lines with tie lines
 //! (`[level]`), component by component. The stages are `gravgrad-lines`'; this module cuts the
 //! flights into lines, feeds them and collects the results. It prints nothing.
 //!
@@ -13,8 +13,9 @@ use gravgrad_core::units::EOTVOS;
 use gravgrad_core::{Location, Problem};
 use gravgrad_ingest::recipe::{Recipe, TieHandling};
 use gravgrad_lines::crossover::Crossover;
+use gravgrad_lines::filter::low_pass_line;
 use gravgrad_lines::level::{LevelMode, LevelSettings, Levelling};
-use gravgrad_lines::{LinesError, LowPass, Track, find_crossovers, level, low_pass_along_track};
+use gravgrad_lines::{LinesError, LowPass, Track, find_crossovers, level};
 use rayon::prelude::*;
 use std::path::Path;
 
@@ -111,33 +112,6 @@ pub fn reduced(r: &FlightResult, c: usize, i: usize) -> f64 {
     g.to_array()[c] / EOTVOS
 }
 
-/// Low-passes `v` along the track (x, y), run by run of finite samples; runs the filter cannot take
-/// (fewer than 3 samples, no length) stay NaN. A cutoff too short for the sampling is an error.
-fn filter_line(x: &[f64], y: &[f64], v: &[f64], lp: &LowPass) -> Result<Vec<f64>, LinesError> {
-    let n = v.len();
-    let mut out = vec![f64::NAN; n];
-    let ok = |i: usize| v[i].is_finite() && x[i].is_finite() && y[i].is_finite();
-    let mut i = 0;
-    while i < n {
-        if !ok(i) {
-            i += 1;
-            continue;
-        }
-        let mut j = i + 1;
-        while j < n && ok(j) {
-            j += 1;
-        }
-        let d = gravgrad_lines::filter::along_track_distance(&x[i..j], &y[i..j]);
-        match low_pass_along_track(&d, &v[i..j], lp) {
-            Ok(f) => out[i..j].copy_from_slice(&f),
-            Err(e @ LinesError::CutoffTooShort { .. }) => return Err(e),
-            Err(_) => {}
-        }
-        i = j;
-    }
-    Ok(out)
-}
-
 /// Filters and levels every line of the run.
 ///
 /// Errors: a cutoff wavelength too short for the sampling (named by its recipe key).
@@ -169,12 +143,14 @@ pub fn compute(
             let s = &segs[k];
             let r = &results[s.flight];
             let v: Vec<f64> = s.range().map(|i| reduced(r, c, i)).collect();
-            filter_line(
+            low_pass_line(
+                &r.time[s.range()],
                 &r.positions.easting_m[s.range()],
                 &r.positions.northing_m[s.range()],
                 &v,
                 &lp,
             )
+            .map(|(f, _)| f)
         })
         .collect();
     let mut filtered: Vec<[Vec<f64>; 6]> = results

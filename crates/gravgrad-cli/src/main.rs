@@ -14,6 +14,7 @@ mod line_stages;
 mod lines_out;
 mod logging;
 mod output_folder;
+mod preflight;
 mod product_formats;
 mod provenance;
 mod qc_cmd;

@@ -16,7 +16,7 @@ use gravgrad_calibrate::joint::{
 use gravgrad_core::ellipsoid::Ellipsoid;
 use gravgrad_core::mat3::Mat3;
 use gravgrad_core::pairs::{AlphaSource, PairGeometry, UNKNOWNS, observability};
-use gravgrad_core::projection::TransverseMercator;
+use gravgrad_core::projection::{TransverseMercator, UTM_LATITUDES_DEG, utm_defined_at};
 use gravgrad_core::units::EOTVOS;
 use gravgrad_core::{Location, Problem, SymTensor};
 use gravgrad_forward::normal::NormalField;
@@ -36,6 +36,7 @@ pub struct MapFrame {
 
 /// The projection the recipe asks for: `"utm"` picks the zone of the survey's mean longitude (and
 /// the southern variant when the mean latitude is south), `"EPSG:326zz"`/`"EPSG:327zz"` a given zone.
+/// A sample outside UTM's latitudes (80°S–84°N) is an error at its row.
 pub fn map_frame(
     recipe: &Recipe,
     recipe_path: &std::path::Path,
@@ -82,6 +83,26 @@ pub fn map_frame(
             }
         }
     };
+    // UTM is defined from 80°S to 84°N only: a sample beyond is refused at its row.
+    for f in flights {
+        let Some(lat) = f.flight.table.get("lat") else {
+            continue;
+        };
+        if let Some(i) = lat
+            .iter()
+            .position(|la| la.is_finite() && !utm_defined_at(*la))
+        {
+            let [lo, hi] = UTM_LATITUDES_DEG;
+            return Err(Problem::error(
+                f.flight.row_location(i).with_column("lat"),
+                format!(
+                    "latitude {}° is outside the {}°S to {hi}°N where UTM (recipe                      `survey.projection` = \"{p}\") is defined; gravgrad has no polar projection",
+                    lat[i], -lo
+                ),
+            )
+            .with_hint("process polar surveys in a polar stereographic frame outside gravgrad"));
+        }
+    }
     let projection = TransverseMercator::utm(ell, zone, south)
         .map_err(|e| Problem::error(key(), e.to_string()))?;
     Ok(MapFrame {

@@ -57,10 +57,22 @@ fn ticks(lo: f64, hi: f64, n: usize) -> Vec<f64> {
         .map(|m| m * mag)
         .find(|s| *s >= raw)
         .unwrap_or(10.0 * mag);
-    let first = (lo / step).ceil() as i64;
-    let last = (hi / step).floor() as i64;
-    (first..=last).map(|k| k as f64 * step).collect()
+    let (first, last) = ((lo / step).ceil(), (hi / step).floor());
+    // A range far from zero against its width (values near 1e300 differing in their last digits)
+    // leaves tick numbers beyond what an integer counts exactly: the ends alone then.
+    if !(first.abs() < MAX_TICK_INDEX
+        && last.abs() < MAX_TICK_INDEX
+        && last - first <= 4.0 * n.max(1) as f64)
+    {
+        return vec![lo, hi];
+    }
+    (first as i64..=last as i64)
+        .map(|k| k as f64 * step)
+        .collect()
 }
+
+/// Largest tick number `ticks` counts (well inside the integers an f64 holds exactly).
+const MAX_TICK_INDEX: f64 = 1e15;
 
 fn tick_label(v: f64, step: f64) -> String {
     let digits = if step >= 1.0 {
@@ -940,4 +952,23 @@ pub fn render(
     }
     out.push_str("<footer>Made by gravgrad qc. These products are for geological interpretation only; they are not for navigation or flight safety, terrain clearance included.</footer>\n</body>\n</html>\n");
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Round ticks for an ordinary range (1, 2, 2.5, 5 × 10ⁿ steps: common practice), and a bounded
+    /// answer for ranges whose tick numbers an integer cannot count: near 1e300 with a width in the
+    /// last digits (the profile of a line reduced with a density of 1e300 kg/m³ looped here until
+    /// memory ran out), and across the whole f64 range.
+    #[test]
+    fn ticks_end_for_every_range() {
+        assert_eq!(ticks(0.0, 10.0, 5), vec![0.0, 2.0, 4.0, 6.0, 8.0, 10.0]);
+        let far = ticks(1e300, 1e300 * (1.0 + 4e-16), 3);
+        assert_eq!(far.len(), 2, "{far:?}");
+        let wide = ticks(-1.7e308, 1.7e308, 8);
+        assert!(wide.len() <= 32, "{wide:?}");
+        assert_eq!(ticks(f64::NAN, 1.0, 3).len(), 1);
+    }
 }

@@ -11,6 +11,7 @@ use crate::lines_out;
 use crate::logging::Log;
 use crate::output_folder;
 use crate::pipeline::{self, CalibrationSource, FlightResult, MapFrame};
+use crate::preflight::{Preflight, preflight};
 use crate::product_formats::ProductFormats;
 use crate::provenance::{self, Inputs};
 use crate::qc_cmd;
@@ -23,7 +24,7 @@ use clap::Args;
 use gravgrad_calibrate::file::CalibrationFile;
 use gravgrad_core::pairs::AlphaSource;
 use gravgrad_core::{Location, Problem};
-use gravgrad_ingest::check::{Survey, load_recipe};
+use gravgrad_ingest::check::Survey;
 use gravgrad_ingest::recipe::CalibrationMode;
 use gravgrad_ingest::tomlfile;
 use std::io::Write;
@@ -171,7 +172,19 @@ pub fn process_units(
 ) -> Result<Processed, u8> {
     log.info(&format!("reading {}", recipe_path.display()));
     let clock = std::time::Instant::now();
-    let mut survey = load_recipe(recipe_path);
+    // The same reading, checks and sizes as `gravgrad check RECIPE`; nothing is processed before
+    // they pass.
+    let pre = preflight(recipe_path);
+    if pre.has_errors() {
+        return Err(input_errors(&pre.survey));
+    }
+    let sizes = pre.sizes();
+    let Preflight {
+        mut survey,
+        frame,
+        dem,
+        ..
+    } = pre;
     if let (CalibrationChoice::File(path), Some(recipe)) = (calibration, survey.recipe.as_mut()) {
         log.info(&format!(
             "applying the calibration file {} (--calibration) instead of the recipe's [calibration]",
@@ -179,20 +192,24 @@ pub fn process_units(
         ));
         use_calibration_file(recipe, path);
     }
-    let (Some(recipe), Some(instrument)) = (&survey.recipe, &survey.instrument) else {
+    let (Some(recipe), Some(instrument), Some(frame)) = (&survey.recipe, &survey.instrument, frame)
+    else {
         return Err(input_errors(&survey));
     };
-    if survey.has_errors() {
-        return Err(input_errors(&survey));
+    for w in survey
+        .reports
+        .first()
+        .iter()
+        .flat_map(|r| r.problems.iter())
+    {
+        eprintln!("{w}");
     }
     log.info(&format!(
-        "recipe, instrument and {} flights read and checked in {:.2} s",
+        "recipe, instrument and {} flights read and checked in {:.2} s; {sizes}",
         survey.flights.len(),
         clock.elapsed().as_secs_f64()
     ));
     unique_names(recipe_path, &survey).map_err(|p| bad_input(&[p]))?;
-    let frame =
-        pipeline::map_frame(recipe, recipe_path, &survey.flights).map_err(|p| bad_input(&[p]))?;
     let mode = match calibration {
         CalibrationChoice::Estimate => CalibrationMode::Estimate,
         CalibrationChoice::Recipe | CalibrationChoice::File(_) => recipe.calibration.mode,
@@ -219,13 +236,17 @@ pub fn process_units(
     } else {
         None
     };
-    let terrain = match &recipe.terrain {
-        Some(t) => {
-            log.info(&format!("reading the terrain model {}", t.dem));
-            Some(TerrainStage::new(recipe, recipe_path, t, &frame).map_err(|p| bad_input(&p))?)
+    let terrain = match (&recipe.terrain, &dem) {
+        (Some(t), Some(window)) => {
+            log.info(&format!("building the terrain model of {}", t.dem));
+            Some(
+                TerrainStage::new(recipe, recipe_path, t, &window.raster)
+                    .map_err(|p| bad_input(&p))?,
+            )
         }
-        None => None,
+        _ => None,
     };
+    drop(dem);
     let store = match units {
         Units::Compute => None,
         Units::Reuse { out, known } | Units::Only { out, known, .. } => Some(
@@ -439,7 +460,7 @@ fn write_archive(
 
 /// What a run knows before any work: the recipe's inputs hashed before they are read, and the
 /// output folder checked.
-struct Preflight {
+struct OutputPlan {
     inputs: Inputs,
     /// The output folder to replace: absolute, links resolved.
     out: PathBuf,
@@ -447,7 +468,7 @@ struct Preflight {
 
 /// Reads the recipe, checks the output folder (`output_folder::check`) and then hashes every input
 /// before any is read (not for `--flight`). `Ok(None)`: the recipe cannot be read; the run's own check reports why.
-fn preflight(args: &RunArgs) -> Result<Option<Preflight>, u8> {
+fn plan_output(args: &RunArgs) -> Result<Option<OutputPlan>, u8> {
     let Ok(text) = std::fs::read_to_string(&args.recipe) else {
         return Ok(None);
     };
@@ -475,11 +496,11 @@ fn preflight(args: &RunArgs) -> Result<Option<Preflight>, u8> {
         // inputs it reads.
         inputs.hash();
     }
-    Ok(Some(Preflight { inputs, out }))
+    Ok(Some(OutputPlan { inputs, out }))
 }
 
 pub fn run(args: &RunArgs, log: &Log) -> u8 {
-    let pre = match preflight(args) {
+    let pre = match plan_output(args) {
         Ok(p) => p,
         Err(code) => return code,
     };

@@ -1,8 +1,10 @@
-//! The terrain stage of a run: the recipe's DEM (GeoTIFF, or NetCDF-CF by its `.nc` extension) read
-//! once, checked against the survey's map frame, and the terrain tensor at every sample from the
-//! fast engine (`gravgrad-reduce`), turned from grid north to true north.
+//! The terrain stage of a run: the window of the recipe's DEM (GeoTIFF, or NetCDF-CF by its `.nc`
+//! extension) over the survey plus `terrain.margin_m`, as the preflight cut and checked it
+//! (`crate::preflight`), and the terrain tensor at every sample from the fast engine
+//! (`gravgrad-reduce`), turned from grid north to true north.
 
-use crate::pipeline::{MapFrame, Positions, rz};
+use crate::pipeline::{Positions, rz};
+use gravgrad_core::raster::Raster;
 use gravgrad_core::{Location, Problem, SymTensor};
 pub use gravgrad_ingest::dem::read_dem;
 use gravgrad_ingest::recipe::{Recipe, Terrain};
@@ -17,39 +19,26 @@ pub struct TerrainStage {
 }
 
 impl TerrainStage {
-    /// Reads the DEM the recipe names and builds its mass model: each cell a prism between the
-    /// reference level (recipe `terrain.reference_m`, else the DEM's mean) and its elevation, with
-    /// +density above the level and −density below (docs/methods/terrain.md).
+    /// Builds the mass model of the DEM window `window` (cut, checked and filled by the preflight,
+    /// `crate::preflight`; in the survey's frame): each cell a prism between the reference level
+    /// (recipe `terrain.reference_m`, else the window's mean) and its elevation, with +density above
+    /// the level and −density below (docs/methods/terrain.md). The pyramid of the fast engine
+    /// covers the window only.
     pub fn new(
         recipe: &Recipe,
         recipe_path: &Path,
         t: &Terrain,
-        frame: &MapFrame,
+        window: &Raster,
     ) -> Result<Self, Vec<Problem>> {
         let path = recipe.resolve(&t.dem);
-        let raster = read_dem(&path, None)?;
         let key = || Location::file(recipe_path).with_key("terrain.dem");
-        match raster.epsg {
-            Some(code) if code == frame.epsg => {}
-            other => {
-                return Err(vec![Problem::error(
-                    key(),
-                    format!(
-                        "{}: the DEM's frame is {}, the survey's EPSG:{}; reproject the DEM to the survey's projection",
-                        path.display(),
-                        other.map_or("not stated".to_string(), |c| format!("EPSG:{c}")),
-                        frame.epsg
-                    ),
-                )]);
-            }
-        }
         let settings = TerrainSettings {
             density_kg_m3: t.density_kg_m3,
             water_density_kg_m3: t.water_density_kg_m3,
             reference_m: t.reference_m,
             accuracy_e: t.accuracy_e,
         };
-        let model = TerrainModel::new(&raster, &settings)
+        let model = TerrainModel::new(window, &settings)
             .map_err(|e| vec![Problem::error(key(), format!("{}: {e}", path.display()))])?;
         Ok(Self {
             model,

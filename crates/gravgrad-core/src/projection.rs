@@ -25,6 +25,17 @@ pub struct TransverseMercator {
     beta: [f64; 6],
 }
 
+/// Latitudes the UTM system is defined for, degrees: 80°S to 84°N (the polar caps beyond use the
+/// polar stereographic UPS; NGA, "The Universal Grids and the Transverse Mercator and Polar
+/// Stereographic Map Projections", NGA.SIG.0012, 2014, from memory). gravgrad offers no polar
+/// projection: a survey reaching past these latitudes is refused.
+pub const UTM_LATITUDES_DEG: [f64; 2] = [-80.0, 84.0];
+
+/// Whether UTM is defined at latitude `lat_deg` (degrees; see [`UTM_LATITUDES_DEG`]).
+pub fn utm_defined_at(lat_deg: f64) -> bool {
+    (UTM_LATITUDES_DEG[0]..=UTM_LATITUDES_DEG[1]).contains(&lat_deg)
+}
+
 /// A UTM zone was asked for that does not exist.
 #[derive(Debug, thiserror::Error, PartialEq)]
 #[error("UTM zone {0}: expected 1 to 60")]

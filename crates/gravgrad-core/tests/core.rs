@@ -53,3 +53,11 @@ fn zones_follow_longitude() {
     assert_eq!(TransverseMercator::utm_zone_of(179.99), 60);
     assert!(TransverseMercator::utm(&WGS84, 61, false).is_err());
 }
+
+/// UTM is defined from 80°S to 84°N only; the survey frame refuses samples beyond.
+#[test]
+fn utm_is_defined_from_80_south_to_84_north() {
+    use gravgrad_core::projection::utm_defined_at;
+    assert!(utm_defined_at(84.0) && utm_defined_at(-80.0) && utm_defined_at(0.0));
+    assert!(!utm_defined_at(89.95) && !utm_defined_at(-80.01) && !utm_defined_at(f64::NAN));
+}

@@ -237,6 +237,49 @@ pub fn load_flight_file(
     (report, loaded)
 }
 
+/// Fewest samples a survey line must have for a run to process it: the along-track filter needs
+/// at least 3, and a line of fewer than 16 samples gives no noise, motion or crossover estimate.
+pub const MIN_LINE_SAMPLES: usize = 16;
+
+/// What a run needs of a flight beyond valid values: a usable time base and at least one survey
+/// line of [`MIN_LINE_SAMPLES`] samples. A recipe's check and its run both apply it (through
+/// [`load_recipe`]), so that a flight `check` passes does not fail `run` late.
+pub fn processable(f: &FlightReport, numbered: bool, rules: &LineRules) -> Vec<Problem> {
+    if f.problems.iter().any(Problem::is_error) {
+        return vec![]; // already refused, with its place
+    }
+    if f.time_base.is_none() {
+        return vec![Problem::error(
+            f.source.clone().with_column("time"),
+            format!(
+                "{} rows: too few to find a sample rate and survey lines",
+                f.rows
+            ),
+        )];
+    }
+    let longest = f.lines.iter().map(|s| s.end - s.start).max().unwrap_or(0);
+    if longest >= MIN_LINE_SAMPLES {
+        return vec![];
+    }
+    let how = if numbered {
+        "the `line` column numbers no line (all ≤ 0)".to_string()
+    } else {
+        format!(
+            "no straight stretch of at least {} s turning under {} °/s was found              ([input.line_finder])",
+            rules.min_duration_s, rules.max_turn_rate_deg_s
+        )
+    };
+    let msg = if f.lines.is_empty() {
+        format!("{} rows and no survey line: {how}", f.rows)
+    } else {
+        format!(
+            "{} rows; its longest survey line has {longest} samples, fewer than the {MIN_LINE_SAMPLES} a line needs to be filtered and judged",
+            f.rows
+        )
+    };
+    vec![Problem::error(f.source.clone(), msg)]
+}
+
 /// Drops errors located at a cell (or in a row) that an earlier error already covers: a cell the
 /// reader could not parse is not reported again as a missing value, and a short row is reported
 /// once, not once per missing cell.
@@ -308,100 +351,6 @@ fn track(f: &Flight) -> Vec<[f64; 2]> {
     out.retain(|p| {
         p[0].is_finite() && p[1].is_finite() && p[0].abs() <= 90.0 && p[1].abs() <= 180.0
     });
-    out
-}
-
-/// Checks the recipe's terrain model: readable, and covering every flight plus the margin.
-fn check_dem(r: &Recipe, recipe_path: &Path, flights: &[FileReport]) -> Vec<Problem> {
-    let Some(t) = &r.terrain else { return vec![] };
-    let dem_path = r.resolve(&t.dem);
-    let key = Location::file(recipe_path).with_key("terrain.dem");
-    let dem = match crate::dem::read_dem(&dem_path, None) {
-        Ok(d) => d,
-        Err(p) => {
-            let mut out = vec![Problem::error(
-                key,
-                format!("the terrain model {} cannot be used", dem_path.display()),
-            )];
-            out.extend(p);
-            return out;
-        }
-    };
-    let (x_max, y_min) = (
-        dem.x_min + dem.nx as f64 * dem.dx,
-        dem.y_max - dem.ny as f64 * dem.dy,
-    );
-    let code = dem.epsg.unwrap_or(0);
-    let utm = match code {
-        32601..=32660 => Some((code - 32600, false)),
-        32701..=32760 => Some((code - 32700, true)),
-        _ => None,
-    };
-    let geographic = matches!(
-        gravgrad_core::raster::frame_kind_of_epsg(code),
-        gravgrad_core::raster::FrameKind::Geographic
-    );
-    let mut out = Vec::new();
-    for rep in flights {
-        for f in &rep.flights {
-            let Some([la0, la1, _, _]) = f.extent_deg else {
-                continue;
-            };
-            let corners: Vec<(f64, f64)> = f.track_deg.iter().map(|p| (p[0], p[1])).collect();
-            let (mut ex, mut ny) = (
-                [f64::INFINITY, f64::NEG_INFINITY],
-                [f64::INFINITY, f64::NEG_INFINITY],
-            );
-            let margin;
-            if let Some((zone, south)) = utm {
-                let Ok(tm) = gravgrad_core::projection::TransverseMercator::utm(
-                    &gravgrad_core::ellipsoid::WGS84,
-                    zone,
-                    south,
-                ) else {
-                    continue;
-                };
-                for (la, lo) in corners {
-                    let (e, n, _, _) = tm.forward(la.to_radians(), lo.to_radians());
-                    ex = [ex[0].min(e), ex[1].max(e)];
-                    ny = [ny[0].min(n), ny[1].max(n)];
-                }
-                margin = (t.margin_m, t.margin_m);
-            } else if geographic {
-                for (la, lo) in corners {
-                    ex = [ex[0].min(lo), ex[1].max(lo)];
-                    ny = [ny[0].min(la), ny[1].max(la)];
-                }
-                // Metres to degrees on the mean Earth radius (IUGG R1), for a warning only.
-                let deg = t.margin_m / (6_371_008.8 * std::f64::consts::PI / 180.0);
-                margin = (
-                    deg / la0.abs().max(la1.abs()).to_radians().cos().max(0.01),
-                    deg,
-                );
-            } else {
-                out.push(Problem::warning(key.clone(), format!("the terrain model's CRS (EPSG:{code}) is not a UTM zone or a geographic frame; its coverage is not checked")));
-                return out;
-            }
-            // Within one cell: the positions are samples of the path, and a DEM is cut at whole cells.
-            let (tx, ty) = (dem.dx, dem.dy);
-            let covered = dem.x_min <= ex[0] - margin.0 + tx
-                && x_max >= ex[1] + margin.0 - tx
-                && y_min <= ny[0] - margin.1 + ty
-                && dem.y_max >= ny[1] + margin.1 - ty;
-            if !covered {
-                out.push(
-                    Problem::warning(
-                        key.clone(),
-                        format!(
-                            "the terrain model does not cover {} plus the {} m margin: it spans x {:.0} to {:.0}, y {:.0} to {:.0}; the flight with its margin needs x {:.0} to {:.0}, y {:.0} to {:.0}",
-                            f.source, t.margin_m, dem.x_min, x_max, y_min, dem.y_max, ex[0] - margin.0, ex[1] + margin.0, ny[0] - margin.1, ny[1] + margin.1
-                        ),
-                    )
-                    .with_hint("extend the terrain model, or lower `terrain.margin_m` knowing the terrain effect near the edges is then incomplete"),
-                );
-            }
-        }
-    }
     out
 }
 
@@ -556,11 +505,15 @@ pub fn load_recipe(path: &Path) -> Survey {
         }
     }
     for f in files {
-        let (rep, fl) = load_flight_file(&f, &settings, nav.as_ref());
+        let (mut rep, fl) = load_flight_file(&f, &settings, nav.as_ref());
+        for (fr, lf) in rep.flights.iter_mut().zip(&fl) {
+            let numbered = lf.flight.table.line.is_some();
+            let p = processable(fr, numbered, &r.input.line_finder);
+            fr.problems.extend(p);
+        }
         reports.push(rep);
         flights.extend(fl);
     }
-    report.problems.extend(check_dem(&r, path, &reports));
     reports.insert(0, report);
     Survey {
         reports,

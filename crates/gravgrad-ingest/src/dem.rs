@@ -1,10 +1,12 @@
 //! Terrain models (DEMs) by file type: NetCDF-CF (`.nc`, `.nc4`, `.cdf`, `.netcdf`) through
 //! `gravgrad-netcdf`, anything else as GeoTIFF. Both give the same north-up [`Raster`] of heights in
-//! metres (docs/formats.md, section 4).
+//! metres (docs/formats.md, section 4). [`prepare_window`] cuts the window a run needs (survey plus
+//! `terrain.margin_m`), refuses implausible elevations and fills holes (docs/recipe.md, "Limits").
 
 use crate::geotiff_reader::read_geotiff;
-use gravgrad_core::Problem;
+use crate::recipe::{MAX_ELEVATION_M, MIN_ELEVATION_M};
 use gravgrad_core::raster::Raster;
+use gravgrad_core::{Location, Problem};
 use std::path::Path;
 
 /// Whether `path` names a NetCDF file by its extension.
@@ -21,5 +23,320 @@ pub fn read_dem(path: &Path, variable: Option<&str>) -> Result<Raster, Vec<Probl
         gravgrad_netcdf::read_dem(path, variable)
     } else {
         read_geotiff(path)
+    }
+}
+
+/// Most cells of the DEM window a run builds its terrain model over (survey extent plus
+/// `terrain.margin_m`): the window's elevations and the engine's block pyramid take about
+/// [`DEM_BYTES_PER_CELL`] bytes a cell, so the limit holds the terrain stage near 1 GB.
+pub const MAX_DEM_WINDOW_CELLS: usize = 10_000_000;
+/// Memory of the terrain stage per DEM window cell, bytes: the window's elevations (8), the
+/// engine's grid copy (8) and its pyramid of blocks (1/4 + 1/16 + … = 1/3 block a cell at 144
+/// bytes a block, the size of `gravgrad_reduce::terrain::pyramid::Block`): 64, rounded up.
+pub const DEM_BYTES_PER_CELL: usize = 80;
+/// Largest share of the window's cells that may be holes (no data) and still be filled.
+pub const MAX_HOLE_FRACTION: f64 = 0.05;
+/// Values that mark a missing cell in common elevation products even when the file does not
+/// declare them as its no-data value.
+pub const NODATA_SENTINELS: [f64; 2] = [-9999.0, -32768.0];
+/// How many cells a warning or error names before it only counts the rest.
+const NAMED_CELLS: usize = 5;
+
+/// A rectangle of the survey's map frame: west, east, south, north edges, m.
+pub type Extent = [f64; 4];
+
+/// The DEM window a run's terrain model is built from: holes filled, every value a plausible
+/// elevation (m above the ellipsoid), no no-data value left.
+#[derive(Clone, Debug)]
+pub struct DemWindow {
+    pub raster: Raster,
+    /// Cells of the window that were holes and were filled.
+    pub filled: usize,
+    /// What was done to the DEM (holes filled, sentinels taken as holes), for the user.
+    pub warnings: Vec<Problem>,
+}
+
+/// A cell of the DEM file: (column eastwards, row southwards), counted from 0 at the north-west.
+fn cell_name(dem: &Raster, col: usize, row: usize) -> String {
+    let (x, y) = dem.cell_centre(col, row);
+    format!("row {row}, column {col} (centre {x:.1}, {y:.1})")
+}
+
+fn name_cells(dem: &Raster, cells: &[(usize, usize)], total: usize) -> String {
+    let mut s: Vec<String> = cells
+        .iter()
+        .take(NAMED_CELLS)
+        .map(|&(c, r)| cell_name(dem, c, r))
+        .collect();
+    if total > NAMED_CELLS {
+        s.push(format!("and {} more", total - NAMED_CELLS));
+    }
+    s.join("; ")
+}
+
+/// Cuts the window `need` (the survey's extent widened by the margin; the DEM's frame, m) out of
+/// `dem` and makes it fit to use:
+///
+/// - `dem` must cover `need` to within one cell on every side, else an error naming the DEM's
+///   extent and the one needed;
+/// - the window (the cells `need` touches, plus one cell on every side where the DEM has it) may
+///   hold at most [`MAX_DEM_WINDOW_CELLS`] cells, else an error naming `terrain.margin_m` and the
+///   size needed;
+/// - an elevation outside [`MIN_ELEVATION_M`] to [`MAX_ELEVATION_M`] (or infinite) is an error
+///   naming its cells;
+/// - holes — the file's no-data value, NaN, or an undeclared [`NODATA_SENTINELS`] value — are
+///   filled by inverse-distance weighting of the nearest valid cell in each of the eight
+///   directions (weights 1/d²) with a warning naming them, or refused when they are more than
+///   [`MAX_HOLE_FRACTION`] of the window.
+///
+/// `path` names the DEM file and `key` the recipe key in messages.
+pub fn prepare_window(
+    dem: &Raster,
+    need: Extent,
+    path: &Path,
+    key: &Location,
+) -> Result<DemWindow, Vec<Problem>> {
+    let at = |msg: String| Problem::error(key.clone(), msg);
+    let have = [
+        dem.x_min,
+        dem.x_min + dem.nx as f64 * dem.dx,
+        dem.y_max - dem.ny as f64 * dem.dy,
+        dem.y_max,
+    ];
+    let short = [
+        have[0] - need[0],
+        need[1] - have[1],
+        have[2] - need[2],
+        need[3] - have[3],
+    ];
+    let tol = [dem.dx, dem.dx, dem.dy, dem.dy];
+    if !need.iter().all(|v| v.is_finite()) {
+        return Err(vec![at(
+            "the survey has no finite position to cut the terrain model for".into(),
+        )]);
+    }
+    if short.iter().zip(tol).any(|(s, t)| *s > t) {
+        let sides: Vec<String> = ["west", "east", "south", "north"]
+            .iter()
+            .zip(short)
+            .filter(|(_, s)| *s > 0.0)
+            .map(|(n, s)| format!("{s:.0} m {n}"))
+            .collect();
+        return Err(vec![
+            at(format!(
+                "the terrain model {} spans x {:.0} to {:.0}, y {:.0} to {:.0} m, but the survey plus \
+                 the margin needs x {:.0} to {:.0}, y {:.0} to {:.0} m: short by {}",
+                path.display(),
+                have[0],
+                have[1],
+                have[2],
+                have[3],
+                need[0],
+                need[1],
+                need[2],
+                need[3],
+                sides.join(", ")
+            ))
+            .with_hint(
+                "give a terrain model that covers the survey plus `terrain.margin_m`, or lower the \
+                 margin knowing the terrain effect near the edges is then incomplete",
+            ),
+        ]);
+    }
+    // Cells the window touches, one more on each side, clipped to the DEM.
+    let col = |x: f64| ((x - dem.x_min) / dem.dx).clamp(0.0, dem.nx as f64);
+    let row = |y: f64| ((dem.y_max - y) / dem.dy).clamp(0.0, dem.ny as f64);
+    let c0 = (col(need[0]).floor() as usize).saturating_sub(1);
+    let c1 = (col(need[1]).ceil() as usize + 1).min(dem.nx);
+    let r0 = (row(need[3]).floor() as usize).saturating_sub(1);
+    let r1 = (row(need[2]).ceil() as usize + 1).min(dem.ny);
+    let (nx, ny) = (c1.saturating_sub(c0).max(1), r1.saturating_sub(r0).max(1));
+    let cells = nx.saturating_mul(ny);
+    if cells > MAX_DEM_WINDOW_CELLS {
+        return Err(vec![
+            Problem::error(
+                key.clone().with_key("terrain.margin_m"),
+                format!(
+                    "the terrain model's window over the survey plus the margin is {nx} × {ny} = \
+                     {cells} cells of {} × {} m (about {:.1} GB for the terrain stage); the limit \
+                     is {MAX_DEM_WINDOW_CELLS} cells",
+                    dem.dx,
+                    dem.dy,
+                    (cells as f64 * DEM_BYTES_PER_CELL as f64) / 1e9
+                ),
+            )
+            .with_hint("resample the terrain model to coarser cells, or lower `terrain.margin_m`"),
+        ]);
+    }
+    let mut values = Vec::with_capacity(cells);
+    for r in r0..r0 + ny {
+        values.extend_from_slice(&dem.values[r * dem.nx + c0..r * dem.nx + c0 + nx]);
+    }
+    let window = Raster {
+        nx,
+        ny,
+        x_min: dem.x_min + c0 as f64 * dem.dx,
+        y_max: dem.y_max - r0 as f64 * dem.dy,
+        dx: dem.dx,
+        dy: dem.dy,
+        epsg: dem.epsg,
+        nodata: None,
+        values,
+    };
+    // Holes and implausible cells, named by their place in the DEM file.
+    let mut holes = Vec::new();
+    let mut sentinels = Vec::new();
+    let mut wrong = Vec::new();
+    let mut wrong_first = None;
+    for (k, v) in window.values.iter().enumerate() {
+        let (c, r) = (k % nx, k / nx);
+        if dem.is_missing(*v) || v.is_nan() {
+            holes.push(k);
+        } else if NODATA_SENTINELS.contains(v) {
+            holes.push(k);
+            sentinels.push((c + c0, r + r0));
+        } else if !(MIN_ELEVATION_M..=MAX_ELEVATION_M).contains(v) {
+            wrong_first.get_or_insert(*v);
+            wrong.push((c + c0, r + r0));
+        }
+    }
+    if !wrong.is_empty() {
+        return Err(vec![
+            Problem::error(
+                Location::file(path),
+                format!(
+                    "{} cells hold elevations outside the plausible {MIN_ELEVATION_M} to \
+                     {MAX_ELEVATION_M} m (the first {:e} m): {}",
+                    wrong.len(),
+                    wrong_first.unwrap_or(f64::NAN),
+                    name_cells(dem, &wrong, wrong.len())
+                ),
+            )
+            .with_hint(
+                "the terrain model must hold heights in metres; mark missing cells as no data",
+            ),
+        ]);
+    }
+    let mut warnings = Vec::new();
+    if !sentinels.is_empty() {
+        warnings.push(Problem::warning(
+            Location::file(path),
+            format!(
+                "{} cells hold {} without the file declaring it as its no-data value; they are taken \
+                 as holes: {}",
+                sentinels.len(),
+                NODATA_SENTINELS
+                    .iter()
+                    .map(|v| v.to_string())
+                    .collect::<Vec<_>>()
+                    .join(" or "),
+                name_cells(dem, &sentinels, sentinels.len())
+            ),
+        ));
+    }
+    let mut window = window;
+    if !holes.is_empty() {
+        let share = holes.len() as f64 / cells as f64;
+        let named: Vec<(usize, usize)> = holes
+            .iter()
+            .take(NAMED_CELLS)
+            .map(|k| (k % nx + c0, k / nx + r0))
+            .collect();
+        if share > MAX_HOLE_FRACTION {
+            return Err(vec![
+                Problem::error(
+                    Location::file(path),
+                    format!(
+                        "{} of the {cells} cells under the survey plus the margin ({:.1} %) have no \
+                         elevation; at most {:.0} % are filled: {}",
+                        holes.len(),
+                        100.0 * share,
+                        100.0 * MAX_HOLE_FRACTION,
+                        name_cells(dem, &named, holes.len())
+                    ),
+                )
+                .with_hint("fill the terrain model's holes, or give one without them"),
+            ]);
+        }
+        fill_holes(&mut window, &holes);
+        warnings.push(Problem::warning(
+            Location::file(path),
+            format!(
+                "{} cells under the survey plus the margin have no elevation and were filled by \
+                 inverse-distance weighting (1/d²) of the nearest valid cell in each of eight \
+                 directions: {}",
+                holes.len(),
+                name_cells(dem, &named, holes.len())
+            ),
+        ));
+    }
+    Ok(DemWindow {
+        raster: window,
+        filled: holes.len(),
+        warnings,
+    })
+}
+
+/// Fills the cells `holes` (indices into `r.values`, which hold NaN or no-data there) from the
+/// nearest valid cell in each of the eight directions (N, NE, E, …), weighted by 1/d² with d the
+/// distance between cell centres in the raster's units; a hole from which no direction reaches a
+/// valid cell takes the mean of the valid cells (NaN when there is none). Valid cells are never
+/// changed, and every fill reads only the original valid cells, so the result does not depend on
+/// the order.
+pub fn fill_holes(r: &mut Raster, holes: &[usize]) {
+    let (nx, ny) = (r.nx as i64, r.ny as i64);
+    let mut is_hole = vec![false; r.values.len()];
+    for &k in holes {
+        is_hole[k] = true;
+    }
+    const DIRS: [(i64, i64); 8] = [
+        (0, -1),
+        (1, -1),
+        (1, 0),
+        (1, 1),
+        (0, 1),
+        (-1, 1),
+        (-1, 0),
+        (-1, -1),
+    ];
+    // A hole no direction reaches a valid cell from (only in a window of holes) takes the mean.
+    let (total, count) = r
+        .values
+        .iter()
+        .zip(&is_hole)
+        .filter(|(_, h)| !**h)
+        .fold((0.0, 0usize), |(s, n), (v, _)| (s + v, n + 1));
+    let mean = if count > 0 {
+        total / count as f64
+    } else {
+        f64::NAN
+    };
+    let filled: Vec<f64> = holes
+        .iter()
+        .map(|&k| {
+            let (c, row) = ((k as i64) % nx, (k as i64) / nx);
+            let (mut sum, mut wsum) = (0.0, 0.0);
+            for (dc, dr) in DIRS {
+                let (mut cc, mut rr, mut steps) = (c + dc, row + dr, 1.0);
+                while cc >= 0 && cc < nx && rr >= 0 && rr < ny {
+                    let j = (rr * nx + cc) as usize;
+                    if !is_hole[j] {
+                        let d2 = steps
+                            * steps
+                            * ((dc as f64 * r.dx).powi(2) + (dr as f64 * r.dy).powi(2));
+                        sum += r.values[j] / d2;
+                        wsum += 1.0 / d2;
+                        break;
+                    }
+                    cc += dc;
+                    rr += dr;
+                    steps += 1.0;
+                }
+            }
+            if wsum > 0.0 { sum / wsum } else { mean }
+        })
+        .collect();
+    for (&k, v) in holes.iter().zip(filled) {
+        r.values[k] = v;
     }
 }

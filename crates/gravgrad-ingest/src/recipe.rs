@@ -369,82 +369,28 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
     r.folder = path.parent().map(Path::to_path_buf).unwrap_or_default();
     let loc = |key: &str| Location::file(path).with_key(key);
     let mut p = Vec::new();
-    let mut positive = |key: &str, v: f64| {
-        if !(v.is_finite() && v > 0.0) {
+    for (key, v, range) in numeric_keys(&r) {
+        if !range.contains(v) {
             p.push(Problem::error(
                 loc(key),
-                format!("{v} is not a positive number"),
+                format!("{}: expected {}", show(v), range.describe()),
             ));
         }
-    };
-    positive("input.navigation_max_gap_s", r.input.navigation_max_gap_s);
-    positive("input.jitter_tolerance", r.input.jitter_tolerance);
-    positive(
-        "input.line_finder.min_duration_s",
-        r.input.line_finder.min_duration_s,
-    );
-    positive(
-        "input.line_finder.max_turn_rate_deg_s",
-        r.input.line_finder.max_turn_rate_deg_s,
-    );
-    positive("input.line_finder.window_s", r.input.line_finder.window_s);
-    positive(
-        "input.line_finder.max_deviation_m",
-        r.input.line_finder.max_deviation_m,
-    );
-    positive("rotation.gyro_lowpass_hz", r.rotation.gyro_lowpass_hz);
-    positive("filter.cutoff_wavelength_m", r.filter.cutoff_wavelength_m);
-    if let Some(c) = r.grid.cell_m {
-        positive("grid.cell_m", c);
     }
-    if let Some(b) = r.grid.blanking_m {
-        positive("grid.blanking_m", b);
-    }
-    positive("qc.max_line_deviation_m", r.qc.max_line_deviation_m);
-    positive("qc.clearance_tolerance_m", r.qc.clearance_tolerance_m);
-    positive("qc.max_turbulence_m_s2", r.qc.max_turbulence_m_s2);
-    positive("qc.max_noise_e", r.qc.max_noise_e);
-    positive("qc.max_gap_s", r.qc.max_gap_s);
-    positive("qc.max_motion_e", r.qc.max_motion_e);
-    if let Some(c) = r.qc.planned_clearance_m {
-        positive("qc.planned_clearance_m", c);
-    }
-    if let Some(t) = &r.terrain {
-        positive("terrain.density_kg_m3", t.density_kg_m3);
-        positive("terrain.margin_m", t.margin_m);
-        positive("terrain.accuracy_e", t.accuracy_e);
-        if let Some(w) = t.water_density_kg_m3 {
-            positive("terrain.water_density_kg_m3", w);
+    for (key, [lo, hi]) in [
+        ("qc.motion_band_hz", r.qc.motion_band_hz),
+        ("calibration.band_hz", r.calibration.band_hz),
+    ] {
+        if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo && hi <= MAX_BAND_HZ) {
+            p.push(Problem::error(
+                loc(key),
+                format!(
+                    "[{}, {}] is not a band: expected 0 < low < high ≤ {MAX_BAND_HZ} (Hz)",
+                    show(lo),
+                    show(hi)
+                ),
+            ));
         }
-    }
-    let [lo, hi] = r.qc.motion_band_hz;
-    if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo) {
-        p.push(Problem::error(
-            loc("qc.motion_band_hz"),
-            format!("[{lo}, {hi}] is not a band: expected 0 < low < high (Hz)"),
-        ));
-    }
-    let [lo, hi] = r.calibration.band_hz;
-    if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo) {
-        p.push(Problem::error(
-            loc("calibration.band_hz"),
-            format!("[{lo}, {hi}] is not a band: expected 0 < low < high (Hz)"),
-        ));
-    }
-    let z = r.calibration.min_significance;
-    if !(z.is_finite() && (1.0..=100.0).contains(&z)) {
-        p.push(Problem::error(
-            loc("calibration.min_significance"),
-            format!("{z} standard errors: expected a number from 1 to 100"),
-        ));
-    }
-    if let Some(w) = r.calibration.geology_wavelength_m
-        && !(w.is_finite() && (1.0..=1e5).contains(&w))
-    {
-        p.push(Problem::error(
-            loc("calibration.geology_wavelength_m"),
-            format!("{w} m: expected a wavelength from 1 m to 100 km"),
-        ));
     }
     if r.calibration.drift_order > 5 {
         p.push(Problem::error(
@@ -452,12 +398,13 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
             "drift polynomials above order 5 fit geology, not drift",
         ));
     }
-    if !(r.grid.upward_continuation_m.is_finite() && r.grid.upward_continuation_m >= 0.0) {
+    let up = r.grid.upward_continuation_m;
+    if !(up.is_finite() && (0.0..=MAX_CONTINUATION_M).contains(&up)) {
         p.push(Problem::error(
             loc("grid.upward_continuation_m"),
             format!(
-                "{}: expected a distance of 0 m or more (continuation downwards is not offered)",
-                r.grid.upward_continuation_m
+                "{}: expected a distance from 0 to {MAX_CONTINUATION_M} m (continuation downwards is not offered)",
+                show(up)
             ),
         ));
     }
@@ -465,12 +412,6 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
         p.push(Problem::error(
             loc("calibration.file"),
             "mode = \"file\" needs `file = \"…\"`",
-        ));
-    }
-    if !(0.0..=1.0).contains(&r.grid.tension) {
-        p.push(Problem::error(
-            loc("grid.tension"),
-            format!("{} is outside 0 to 1", r.grid.tension),
         ));
     }
     if r.layout != LAYOUT {
@@ -521,6 +462,232 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
     }
     if p.is_empty() { Ok(r) } else { Err(p) }
 }
+
+/// The farthest upward continuation a recipe may ask for, m.
+pub const MAX_CONTINUATION_M: f64 = 10_000.0;
+
+/// The highest band edge a recipe may name, Hz: above every gradiometer's sampling.
+pub const MAX_BAND_HZ: f64 = 1000.0;
+
+/// The range a numeric recipe key must lie in (both ends finite; `open_low`: the low end itself is
+/// excluded, as for a size that must be positive).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Range {
+    pub low: f64,
+    pub high: f64,
+    pub open_low: bool,
+    /// Unit as printed after the numbers ("m", "kg/m³", "" for plain numbers).
+    pub unit: &'static str,
+}
+
+impl Range {
+    const fn above(low: f64, high: f64, unit: &'static str) -> Self {
+        Self {
+            low,
+            high,
+            open_low: true,
+            unit,
+        }
+    }
+    const fn from(low: f64, high: f64, unit: &'static str) -> Self {
+        Self {
+            low,
+            high,
+            open_low: false,
+            unit,
+        }
+    }
+
+    /// Whether `v` is finite and inside the range.
+    pub fn contains(&self, v: f64) -> bool {
+        v.is_finite()
+            && v <= self.high
+            && if self.open_low {
+                v > self.low
+            } else {
+                v >= self.low
+            }
+    }
+
+    /// "more than 0 and at most 100000 m", "from 1 to 100".
+    pub fn describe(&self) -> String {
+        let u = if self.unit.is_empty() {
+            String::new()
+        } else {
+            format!(" {}", self.unit)
+        };
+        if self.open_low {
+            format!(
+                "more than {} and at most {}{u}",
+                show(self.low),
+                show(self.high)
+            )
+        } else {
+            format!("from {} to {}{u}", show(self.low), show(self.high))
+        }
+    }
+}
+
+/// A number as a user writes it: plain for ordinary magnitudes, exponent form otherwise.
+fn show(v: f64) -> String {
+    if v != 0.0 && v.is_finite() && !(1e-3..1e7).contains(&v.abs()) {
+        format!("{v:e}")
+    } else {
+        format!("{v}")
+    }
+}
+
+/// Every numeric key the recipe sets (or defaults), with its value and the physically sensible
+/// range it must lie in (`docs/recipe.md`, "Limits"). Optional keys appear only when set.
+pub fn numeric_keys(r: &Recipe) -> Vec<(&'static str, f64, Range)> {
+    let lf = &r.input.line_finder;
+    let mut v = vec![
+        (
+            "input.navigation_max_gap_s",
+            r.input.navigation_max_gap_s,
+            Range::above(0.0, 3600.0, "s"),
+        ),
+        (
+            "input.jitter_tolerance",
+            r.input.jitter_tolerance,
+            Range::above(0.0, 0.5, "of the sample interval"),
+        ),
+        (
+            "input.line_finder.min_duration_s",
+            lf.min_duration_s,
+            Range::above(0.0, 86_400.0, "s"),
+        ),
+        (
+            "input.line_finder.max_turn_rate_deg_s",
+            lf.max_turn_rate_deg_s,
+            Range::above(0.0, 30.0, "°/s"),
+        ),
+        (
+            "input.line_finder.window_s",
+            lf.window_s,
+            Range::above(0.0, 600.0, "s"),
+        ),
+        (
+            "input.line_finder.max_deviation_m",
+            lf.max_deviation_m,
+            Range::above(0.0, 100_000.0, "m"),
+        ),
+        (
+            "calibration.min_significance",
+            r.calibration.min_significance,
+            Range::from(1.0, 100.0, "standard errors"),
+        ),
+        (
+            "rotation.gyro_lowpass_hz",
+            r.rotation.gyro_lowpass_hz,
+            Range::above(0.0, MAX_BAND_HZ, "Hz"),
+        ),
+        (
+            "filter.cutoff_wavelength_m",
+            r.filter.cutoff_wavelength_m,
+            Range::from(10.0, 100_000.0, "m"),
+        ),
+        (
+            "level.first_tie_line",
+            r.level.first_tie_line as f64,
+            Range::from(1.0, 1e9, ""),
+        ),
+        ("grid.tension", r.grid.tension, Range::from(0.0, 1.0, "")),
+        (
+            "qc.max_line_deviation_m",
+            r.qc.max_line_deviation_m,
+            Range::above(0.0, 10_000.0, "m"),
+        ),
+        (
+            "qc.clearance_tolerance_m",
+            r.qc.clearance_tolerance_m,
+            Range::above(0.0, 10_000.0, "m"),
+        ),
+        (
+            "qc.max_turbulence_m_s2",
+            r.qc.max_turbulence_m_s2,
+            Range::above(0.0, 100.0, "m/s²"),
+        ),
+        (
+            "qc.max_noise_e",
+            r.qc.max_noise_e,
+            Range::above(0.0, 10_000.0, "E"),
+        ),
+        (
+            "qc.max_gap_s",
+            r.qc.max_gap_s,
+            Range::above(0.0, 3600.0, "s"),
+        ),
+        (
+            "qc.max_motion_e",
+            r.qc.max_motion_e,
+            Range::above(0.0, 10_000.0, "E"),
+        ),
+    ];
+    let mut opt = |key: &'static str, value: Option<f64>, range: Range| {
+        if let Some(x) = value {
+            v.push((key, x, range));
+        }
+    };
+    opt(
+        "calibration.geology_wavelength_m",
+        r.calibration.geology_wavelength_m,
+        Range::from(1.0, 100_000.0, "m"),
+    );
+    opt(
+        "grid.cell_m",
+        r.grid.cell_m,
+        Range::from(1.0, 10_000.0, "m"),
+    );
+    opt(
+        "grid.blanking_m",
+        r.grid.blanking_m,
+        Range::above(0.0, 100_000.0, "m"),
+    );
+    opt(
+        "qc.planned_clearance_m",
+        r.qc.planned_clearance_m,
+        Range::above(0.0, 10_000.0, "m"),
+    );
+    if let Some(t) = &r.terrain {
+        v.push((
+            "terrain.density_kg_m3",
+            t.density_kg_m3,
+            Range::from(500.0, 5000.0, "kg/m³"),
+        ));
+        v.push((
+            "terrain.margin_m",
+            t.margin_m,
+            Range::from(0.0, 200_000.0, "m"),
+        ));
+        v.push((
+            "terrain.accuracy_e",
+            t.accuracy_e,
+            Range::from(0.001, 100.0, "E"),
+        ));
+        if let Some(w) = t.water_density_kg_m3 {
+            v.push((
+                "terrain.water_density_kg_m3",
+                w,
+                Range::from(900.0, 1100.0, "kg/m³"),
+            ));
+        }
+        if let Some(h) = t.reference_m {
+            v.push((
+                "terrain.reference_m",
+                h,
+                Range::from(MIN_ELEVATION_M, MAX_ELEVATION_M, "m"),
+            ));
+        }
+    }
+    v
+}
+
+/// Plausible elevations of the Earth's surface, m above the ellipsoid: below the deepest ocean
+/// trench (about −11,000 m) and above the highest summit (about 8,850 m) with room for the geoid.
+pub const MIN_ELEVATION_M: f64 = -11_000.0;
+/// See [`MIN_ELEVATION_M`].
+pub const MAX_ELEVATION_M: f64 = 9_000.0;
 
 impl Recipe {
     /// A path from the recipe, resolved against the recipe's folder.

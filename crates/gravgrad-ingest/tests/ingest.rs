@@ -658,4 +658,202 @@ mod mutation {
     fn mutated_netcdf_files() {
         run(BinaryFormat::NetCdf, 14);
     }
+/// The DEM window a run uses (`dem::prepare_window`): coverage, size, holes and implausible cells.
+mod dem_window {
+    use gravgrad_core::Location;
+    use gravgrad_core::raster::Raster;
+    use gravgrad_ingest::dem::{MAX_DEM_WINDOW_CELLS, prepare_window};
+    use std::path::Path;
+
+    /// A 40 × 30 plane z = 200 + 0.01·x − 0.02·y (m) of 100 m cells from (0, 3000).
+    fn plane() -> Raster {
+        let (nx, ny) = (40, 30);
+        let mut r = Raster::new(nx, ny, (0.0, 3000.0), (100.0, 100.0), vec![0.0; nx * ny])
+            .unwrap()
+            .with_epsg(32653);
+        for row in 0..ny {
+            for col in 0..nx {
+                let (x, y) = r.cell_centre(col, row);
+                r.values[row * nx + col] = 200.0 + 0.01 * x - 0.02 * y;
+            }
+        }
+        r
+    }
+
+    fn key() -> Location {
+        Location::file("recipe.toml").with_key("terrain.dem")
+    }
+
+    const ALL: [f64; 4] = [0.0, 4000.0, 0.0, 3000.0];
+
+    #[test]
+    fn holes_under_the_survey_are_filled_and_named() {
+        let mut r = plane();
+        let truth = r.values[12 * 40 + 7];
+        r.values[12 * 40 + 7] = f64::NAN;
+        r.values[20 * 40 + 30] = -5.0;
+        r = r.with_nodata(-5.0);
+        let w = prepare_window(&r, ALL, Path::new("dem.tif"), &key()).unwrap();
+        assert_eq!(w.filled, 2);
+        // On a plane, opposite neighbours at equal distances average to the plane itself.
+        assert!((w.raster.values[12 * 40 + 7] - truth).abs() < 1e-9);
+        assert_eq!(w.raster.nodata, None);
+        let text = w.warnings[0].to_string();
+        assert!(text.contains("2 cells"), "{text}");
+        assert!(
+            text.contains("row 12, column 7 (centre 750.0, 1750.0)"),
+            "{text}"
+        );
+        assert!(text.contains("row 20, column 30"), "{text}");
+    }
+
+    #[test]
+    fn undeclared_sentinels_are_holes_with_a_warning() {
+        let mut r = plane();
+        r.values[5 * 40 + 5] = -9999.0;
+        r.values[6 * 40 + 9] = -32768.0;
+        let w = prepare_window(&r, ALL, Path::new("dem.tif"), &key()).unwrap();
+        assert_eq!(w.filled, 2);
+        let all: Vec<String> = w.warnings.iter().map(|p| p.to_string()).collect();
+        assert!(
+            all.iter()
+                .any(|t| t.contains("-9999 or -32768") && t.contains("row 5, column 5")),
+            "{all:?}"
+        );
+        assert!(w.raster.values.iter().all(|v| (100.0..300.0).contains(v)));
+    }
+
+    #[test]
+    fn an_implausible_elevation_is_refused_with_its_cell() {
+        let mut r = plane();
+        r.values[3 * 40 + 4] = 1e30;
+        let e = prepare_window(&r, ALL, Path::new("dem.tif"), &key()).unwrap_err();
+        let text = e[0].to_string();
+        assert!(
+            text.contains("dem.tif") && text.contains("1e30") && text.contains("row 3, column 4"),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn a_dem_that_misses_the_survey_is_refused_naming_both_extents() {
+        // The survey 100 km east of the DEM.
+        let need = [100_000.0, 104_000.0, 0.0, 3000.0];
+        let e = prepare_window(&plane(), need, Path::new("far.tif"), &key()).unwrap_err();
+        let text = e[0].to_string();
+        assert!(
+            text.contains("far.tif") && text.contains("terrain.dem"),
+            "{text}"
+        );
+        assert!(text.contains("spans x 0 to 4000, y 0 to 3000"), "{text}");
+        assert!(text.contains("needs x 100000 to 104000"), "{text}");
+    }
+
+    #[test]
+    fn the_window_is_the_survey_plus_margin_not_the_whole_dem() {
+        let w = prepare_window(
+            &plane(),
+            [1000.0, 2000.0, 1000.0, 1500.0],
+            Path::new("dem.tif"),
+            &key(),
+        )
+        .unwrap();
+        // Cells 10..20 × rows 15..20, one more on each side.
+        assert_eq!((w.raster.nx, w.raster.ny), (12, 7));
+        assert_eq!((w.raster.x_min, w.raster.y_max), (900.0, 1600.0));
+        assert_eq!(w.raster.values[0], plane().values[14 * 40 + 9]);
+    }
+
+    #[test]
+    fn too_many_holes_are_refused() {
+        let mut r = plane();
+        for v in r.values.iter_mut().step_by(10) {
+            *v = f64::NAN;
+        }
+        let e = prepare_window(&r, ALL, Path::new("dem.tif"), &key()).unwrap_err();
+        let text = e[0].to_string();
+        assert!(
+            text.contains("120 of the 1200 cells") && text.contains("at most 5 %"),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn a_window_past_its_limit_names_the_margin_and_the_size() {
+        let n = 3200;
+        assert!(n * n > MAX_DEM_WINDOW_CELLS);
+        let r = Raster::new(n, n, (0.0, 32_000.0), (10.0, 10.0), vec![100.0; n * n]).unwrap();
+        let e = prepare_window(
+            &r,
+            [0.0, 32_000.0, 0.0, 32_000.0],
+            Path::new("dem.tif"),
+            &key(),
+        )
+        .unwrap_err();
+        let text = e[0].to_string();
+        assert!(
+            text.contains("terrain.margin_m") && text.contains("3200 × 3200 = 10240000 cells"),
+            "{text}"
+        );
+    }
+}
+
+/// Every numeric recipe key is range-checked when the recipe is read, naming the key and range.
+mod recipe_ranges {
+    use gravgrad_ingest::recipe::read_recipe;
+
+    fn errors_of(extra: &str) -> Vec<String> {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("recipe.toml");
+        let text = format!(
+            "layout = \"recipe/1\"\n[input]\nflights = [\"f.csv\"]\n[instrument]\npath = \"i.toml\"\n{extra}"
+        );
+        std::fs::write(&path, text).unwrap();
+        match read_recipe(&path) {
+            Ok(_) => vec![],
+            Err(p) => p.iter().map(|p| p.to_string()).collect(),
+        }
+    }
+
+    #[test]
+    fn values_that_would_blow_up_late_are_refused_at_load_naming_the_key() {
+        assert!(errors_of("").is_empty(), "{:?}", errors_of(""));
+        for (extra, key, range) in [
+            ("[grid]\ncell_m = 0.1", "grid.cell_m", "from 1 to 10000 m"),
+            (
+                "[grid]\nblanking_m = 1e300",
+                "grid.blanking_m",
+                "at most 100000 m",
+            ),
+            (
+                "[filter]\ncutoff_wavelength_m = 1e12",
+                "filter.cutoff_wavelength_m",
+                "from 10 to 100000 m",
+            ),
+            (
+                "[terrain]\ndem = \"d.tif\"\ndensity_kg_m3 = 1e300",
+                "terrain.density_kg_m3",
+                "from 500 to 5000 kg/m³",
+            ),
+            (
+                "[terrain]\ndem = \"d.tif\"\nmargin_m = inf",
+                "terrain.margin_m",
+                "from 0 to 200000 m",
+            ),
+            ("[qc]\nmax_gap_s = nan", "qc.max_gap_s", "at most 3600 s"),
+            (
+                "[calibration]\nband_hz = [0.05, 1e9]",
+                "calibration.band_hz",
+                "≤ 1000 (Hz)",
+            ),
+        ] {
+            let e = errors_of(extra);
+            assert_eq!(e.len(), 1, "{extra}: {e:?}");
+            assert!(
+                e[0].contains(key) && e[0].contains(range),
+                "{extra}: {}",
+                e[0]
+            );
+        }
+    }
 }

@@ -293,6 +293,51 @@ pub fn grid_spacing(distance_m: &[f64]) -> Option<f64> {
     Some(p10.max(floor))
 }
 
+/// Low-passes one line's `values` along its track (`x_m`, `y_m`: projected positions, m; `time_s`,
+/// s) piece by piece: a piece is a run of consecutive samples whose value and position are finite,
+/// cut wherever the interval exceeds 1.5 times the line's median interval — a gap, as the ingest
+/// stage marks them (`docs/formats.md`: a gap splits the line). Each piece is filtered on its own
+/// by [`low_pass_along_track`], so the filter never bridges a gap. Pieces the filter cannot take
+/// (fewer than 3 samples, no length) stay NaN. Returns one value per sample, in the unit of
+/// `values`, and the number of pieces filtered.
+///
+/// Errors: lengths differ, or the cutoff is too short for a piece's sampling.
+pub fn low_pass_line(
+    time_s: &[f64],
+    x_m: &[f64],
+    y_m: &[f64],
+    values: &[f64],
+    lp: &LowPass,
+) -> Result<(Vec<f64>, usize), LinesError> {
+    let n = values.len();
+    check_len("time", time_s, n)?;
+    check_len("x", x_m, n)?;
+    check_len("y", y_m, n)?;
+    let mut intervals: Vec<f64> = time_s
+        .windows(2)
+        .map(|w| w[1] - w[0])
+        .filter(|d| *d > 0.0 && d.is_finite())
+        .collect();
+    let dt = gravgrad_core::stats::median(&mut intervals).unwrap_or(f64::INFINITY);
+    let usable: Vec<bool> = (0..n)
+        .map(|i| values[i].is_finite() && x_m[i].is_finite() && y_m[i].is_finite())
+        .collect();
+    let mut out = vec![f64::NAN; n];
+    let mut pieces = 0;
+    for r in crate::qc::runs(&usable, time_s, dt) {
+        let d = along_track_distance(&x_m[r.clone()], &y_m[r.clone()]);
+        match low_pass_along_track(&d, &values[r.clone()], lp) {
+            Ok(f) => {
+                out[r].copy_from_slice(&f);
+                pieces += 1;
+            }
+            Err(e @ LinesError::CutoffTooShort { .. }) => return Err(e),
+            Err(_) => {}
+        }
+    }
+    Ok((out, pieces))
+}
+
 /// Low-passes `values` sampled at along-track distances `distance_m` (m, non-decreasing, e.g. from
 /// [`along_track_distance`]) with cutoff wavelength `lp.cutoff_wavelength_m`. Returns one filtered
 /// value per sample, in the unit of `values`.

@@ -197,7 +197,7 @@ fn rms(v: impl Iterator<Item = f64>) -> Option<f64> {
 }
 
 /// Runs of consecutive usable samples, as index ranges, cut where the interval exceeds 1.5·`dt`.
-fn runs(usable: &[bool], time_s: &[f64], dt: f64) -> Vec<std::ops::Range<usize>> {
+pub(crate) fn runs(usable: &[bool], time_s: &[f64], dt: f64) -> Vec<std::ops::Range<usize>> {
     let mut out = Vec::new();
     let mut start: Option<usize> = None;
     for i in 0..usable.len() {

@@ -905,3 +905,31 @@ fn degenerate_input_gives_errors_not_panics() {
     };
     assert!(level(&[c], 1, 1, &LevelSettings::default()).is_err());
 }
+
+/// A 20 s gap in a line at 10 Hz and 60 m/s: the values are 0 E before it and 10 E after. The
+/// filter runs on each piece on its own (a gap splits the line), so both pieces come out exactly
+/// constant up to the gap; bridging it would smear the step over about a cutoff wavelength.
+#[test]
+fn a_gap_splits_the_line_for_the_along_track_filter() {
+    let mut t = Vec::new();
+    let mut v = Vec::new();
+    for i in 0..1200 {
+        let s = i as f64 * 0.1 + if i >= 600 { 20.0 } else { 0.0 };
+        t.push(1.4e9 + s);
+        v.push(if i >= 600 { 10.0 } else { 0.0 });
+    }
+    let x: Vec<f64> = t.iter().map(|s| 60.0 * (s - 1.4e9)).collect();
+    let y = vec![5.0e6; t.len()];
+    let lp = LowPass::default();
+    let (f, pieces) = gravgrad_lines::filter::low_pass_line(&t, &x, &y, &v, &lp).unwrap();
+    assert_eq!(pieces, 2);
+    for (i, (a, b)) in f.iter().zip(&v).enumerate() {
+        assert!((a - b).abs() < 1e-9, "sample {i}: {a} against {b}");
+    }
+    // Without the gap in time (the same samples, evenly spaced), the step is smoothed.
+    let even: Vec<f64> = (0..1200).map(|i| 1.4e9 + i as f64 * 0.1).collect();
+    let xe: Vec<f64> = even.iter().map(|s| 60.0 * (s - 1.4e9)).collect();
+    let (g, one) = gravgrad_lines::filter::low_pass_line(&even, &xe, &y, &v, &lp).unwrap();
+    assert_eq!(one, 1);
+    assert!((g[599] - 0.0).abs() > 1.0, "bridged: {}", g[599]);
+}

@@ -600,3 +600,77 @@ fn bad_inputs_are_refused_or_marked_without_panics() {
     let out = model.tensor(&[[f64::NAN, 50.0, 100.0], [50.0, 50.0, f64::INFINITY]]);
     assert!(out.iter().all(|t| t.xx.is_nan() && t.zz.is_nan()));
 }
+
+/// Holes under the survey: the demo DEM with a block of 2 × 2 cells removed under every fourth
+/// of the points (NaN). Left as holes they carry no mass and change the terrain effect by
+/// tens of E; filled by the run's preflight (`gravgrad_ingest::dem::prepare_window`: eight-
+/// direction inverse-distance fill) the effect is back within a few E of the intact DEM's, and a
+/// warning names the cells.
+#[test]
+fn holes_in_the_dem_under_the_survey_are_filled_not_left_massless() {
+    let dem = demo_dem();
+    let (pts, _) = demo_truth(50);
+    let mut holed = dem.clone();
+    let mut removed = 0;
+    for p in pts.iter().step_by(4) {
+        let col = ((p[0] - dem.x_min) / dem.dx) as usize;
+        let row = ((dem.y_max - p[1]) / dem.dy) as usize;
+        for r in row.saturating_sub(1)..(row + 1).min(dem.ny) {
+            for c in col.saturating_sub(1)..(col + 1).min(dem.nx) {
+                let v = &mut holed.values[r * dem.nx + c];
+                if !v.is_nan() {
+                    *v = f64::NAN;
+                    removed += 1;
+                }
+            }
+        }
+    }
+    assert!(removed > 50, "{removed} cells removed");
+    let whole = [
+        dem.x_min,
+        dem.x_min + dem.nx as f64 * dem.dx,
+        dem.y_max - dem.ny as f64 * dem.dy,
+        dem.y_max,
+    ];
+    let key = gravgrad_core::Location::file("recipe.toml").with_key("terrain.dem");
+    let w = gravgrad_ingest::dem::prepare_window(&holed, whole, Path::new("dem.tif"), &key)
+        .expect("a few holes are filled");
+    assert_eq!(w.filled, removed);
+    let text = w.warnings[0].to_string();
+    assert!(
+        text.contains(&format!("{removed} cells")) && text.contains("inverse-distance"),
+        "{text}"
+    );
+    // The same reference level for all three, so that only the holes differ.
+    let settings = TerrainSettings {
+        reference_m: Some(100.0),
+        ..TerrainSettings::default()
+    };
+    let intact = TerrainModel::new(&dem, &settings).unwrap().tensor(&pts);
+    let massless = TerrainModel::new(&holed, &settings).unwrap().tensor(&pts);
+    let filled = TerrainModel::new(&w.raster, &settings)
+        .unwrap()
+        .tensor(&pts);
+    let (max_holes, rms_holes) = error_stats(&massless, &intact);
+    let (max_filled, rms_filled) = error_stats(&filled, &intact);
+    eprintln!(
+        "{} points, {removed} cells removed: massless holes max {} rms {} E; filled max {} rms {} E",
+        pts.len(),
+        show(&max_holes),
+        show(&rms_holes),
+        show(&max_filled),
+        show(&rms_filled)
+    );
+    // Gzz (component 5): the holes matter, the fill restores it to a tenth of their effect.
+    assert!(
+        rms_holes[5] > 1.0,
+        "holes change Gzz by {} E RMS",
+        rms_holes[5]
+    );
+    assert!(
+        rms_filled[5] < 0.1 * rms_holes[5],
+        "filled: {} E RMS against {} E with massless holes",
+        rms_filled[5],
+        rms_holes[5]
+    );
+}

@@ -449,3 +449,148 @@ impl InstrumentErrors {
         }
     }
 }
+
+/// Most samples a simulation logs over all its flights: every sample carries about
+/// [`SIM_BYTES_PER_SAMPLE`] bytes of path, fields and log columns, so the limit holds a simulation
+/// near 1.5 GB.
+pub const MAX_SIM_SAMPLES: f64 = 1.0e6;
+/// Memory of the simulation per sample, bytes. Measured: the run-test scenario of the end-to-end
+/// tests at 200 Hz (85,281 samples) peaked at 127 MB resident against 20 MB at 10 Hz (4,265
+/// samples): about 1,250 bytes a sample; rounded up.
+pub const SIM_BYTES_PER_SAMPLE: f64 = 1500.0;
+/// Most cells of the simulated DEM (each a prism of about 60 bytes, plus its elevation).
+pub const MAX_SIM_DEM_CELLS: f64 = 4.0e6;
+/// Most prism evaluations of the terrain truth (every DEM cell at every sample, exact). A stop for
+/// runaway scenarios, not a time bound: the 200 Hz scenario above (1.5e9 evaluations) took 95 s
+/// in all on two shared cores (release build), and the calibration-flight scenario of the
+/// end-to-end tests needs about 1e10.
+pub const MAX_SIM_PRISM_EVALUATIONS: f64 = 2.0e10;
+/// Highest sample rate a scenario may ask for, Hz.
+pub const MAX_SAMPLE_RATE_HZ: f64 = 1000.0;
+
+/// Whether `v` is a number no larger than `limit` (NaN is not).
+fn within(v: f64, limit: f64) -> bool {
+    v.is_finite() && v <= limit
+}
+
+/// What a scenario will need, known before anything is simulated.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ScenarioSizes {
+    /// Samples over all flights (survey and calibration flight), an upper estimate.
+    pub samples: f64,
+    /// Cells of the DEM over the path plus `terrain.margin_m`, an upper estimate.
+    pub dem_cells: f64,
+}
+
+/// A scenario that would need more than a stated limit: the key most to blame, the size asked for
+/// and the limit.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TooLarge {
+    pub key: &'static str,
+    pub message: String,
+}
+
+impl Scenario {
+    /// The sizes the scenario will need (upper estimates from the plan: every line, tie and turn
+    /// flown at `plan.speed_m_s`).
+    pub fn sizes(&self) -> ScenarioSizes {
+        let p = &self.plan;
+        let v = p.speed_m_s;
+        let radius = v / p.turn_rate_deg_s.to_radians();
+        let across = (p.lines.max(1) - 1) as f64 * p.line_spacing_m;
+        let legs = (p.lines + p.ties) as f64;
+        let distance = p.lines as f64 * p.line_length_m
+            + p.ties as f64 * (across + 2.0 * p.line_spacing_m)
+            + legs * (std::f64::consts::PI * radius + 2.0 * p.line_spacing_m + p.line_length_m);
+        let mut seconds = distance / v;
+        if let Some(cf) = &self.calibration_flight {
+            let legs = (cf.manoeuvres.len() * cf.headings_deg.len()) as f64;
+            seconds += legs * (cf.leg_s + 2.0 * std::f64::consts::PI * radius / v);
+        }
+        let samples = seconds * p.sample_rate_hz;
+        // The path spans the lines (plus the turns beyond their ends) and the ties.
+        let t = &self.terrain;
+        let mut north = p.line_length_m + 4.0 * radius + 2.0 * p.line_spacing_m;
+        let mut east = across + 4.0 * radius + 2.0 * p.line_spacing_m;
+        if let Some(cf) = &self.calibration_flight {
+            // Legs up to v·leg_s + radius from the survey's centre, with their turns.
+            let reach = 2.0 * (v * cf.leg_s + 2.0 * radius);
+            north = north.max(reach);
+            east = east.max(reach);
+        }
+        north += 2.0 * t.margin_m;
+        east += 2.0 * t.margin_m;
+        ScenarioSizes {
+            samples,
+            dem_cells: (north / t.cell_m).ceil() * (east / t.cell_m).ceil(),
+        }
+    }
+
+    /// Refuses a scenario past [`MAX_SIM_SAMPLES`], [`MAX_SIM_DEM_CELLS`] or
+    /// [`MAX_SIM_PRISM_EVALUATIONS`], naming the key most to blame and the size it would need.
+    /// Call after the values are known to be positive and finite.
+    pub fn check_sizes(&self) -> Result<ScenarioSizes, TooLarge> {
+        let p = &self.plan;
+        if !within(p.sample_rate_hz, MAX_SAMPLE_RATE_HZ) {
+            return Err(TooLarge {
+                key: "plan.sample_rate_hz",
+                message: format!(
+                    "{} Hz: expected at most {MAX_SAMPLE_RATE_HZ} Hz",
+                    p.sample_rate_hz
+                ),
+            });
+        }
+        let s = self.sizes();
+        let d = Plan::default();
+        // The plan key furthest above its default is the one to blame for the samples.
+        let sample_key = [
+            ("plan.sample_rate_hz", p.sample_rate_hz / d.sample_rate_hz),
+            ("plan.lines", p.lines as f64 / d.lines as f64),
+            ("plan.line_length_m", p.line_length_m / d.line_length_m),
+            ("plan.ties", p.ties as f64 / d.ties.max(1) as f64),
+            ("plan.speed_m_s", d.speed_m_s / p.speed_m_s),
+            ("plan.line_spacing_m", p.line_spacing_m / d.line_spacing_m),
+        ]
+        .into_iter()
+        .max_by(|a, b| a.1.total_cmp(&b.1))
+        .map_or("plan.lines", |k| k.0);
+        if !within(s.samples, MAX_SIM_SAMPLES) {
+            return Err(TooLarge {
+                key: sample_key,
+                message: format!(
+                    "the survey would log about {:.3e} samples (about {:.1} GB); the limit is {MAX_SIM_SAMPLES:e} samples",
+                    s.samples,
+                    s.samples * SIM_BYTES_PER_SAMPLE / 1e9
+                ),
+            });
+        }
+        let td = Terrain::default();
+        let cell_key = if self.terrain.margin_m / td.margin_m > td.cell_m / self.terrain.cell_m {
+            "terrain.margin_m"
+        } else {
+            "terrain.cell_m"
+        };
+        if !within(s.dem_cells, MAX_SIM_DEM_CELLS) {
+            return Err(TooLarge {
+                key: cell_key,
+                message: format!(
+                    "the DEM over the path plus the margin would be about {:.3e} cells of {} m (about {:.1} GB); the limit is {MAX_SIM_DEM_CELLS:e} cells",
+                    s.dem_cells,
+                    self.terrain.cell_m,
+                    s.dem_cells * 70.0 / 1e9
+                ),
+            });
+        }
+        let work = s.dem_cells * s.samples;
+        if !within(work, MAX_SIM_PRISM_EVALUATIONS) {
+            return Err(TooLarge {
+                key: cell_key,
+                message: format!(
+                    "the terrain truth would take {:.3e} prism evaluations ({:.0} cells at {:.0} samples); the limit is {MAX_SIM_PRISM_EVALUATIONS:e}: coarsen `terrain.cell_m` or shorten the plan",
+                    work, s.dem_cells, s.samples
+                ),
+            });
+        }
+        Ok(s)
+    }
+}

@@ -39,6 +39,8 @@ pub enum SimError {
         "`instrument.pairs`: `{0}` is not a pair of the standard layout (xx yy zz xy yx xz zx yz zy)"
     )]
     Pair(String),
+    #[error("`{key}`: {message}")]
+    TooLarge { key: &'static str, message: String },
 }
 
 /// The standard pair layout: axis along the first letter, baseline along the second, centres a few
@@ -383,7 +385,12 @@ fn validate(s: &Scenario) -> Result<(), SimError> {
     if let Some(cf) = &s.calibration_flight {
         validate_calibration_flight(s, cf)?;
     }
-    Ok(())
+    s.check_sizes()
+        .map_err(|e| SimError::TooLarge {
+            key: e.key,
+            message: e.message,
+        })
+        .map(|_| ())
 }
 
 fn validate_calibration_flight(s: &Scenario, cf: &CalibrationFlight) -> Result<(), SimError> {

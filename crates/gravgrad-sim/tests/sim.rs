@@ -816,18 +816,33 @@ fn leg_of(
 }
 
 #[test]
-fn a_calibration_flight_with_linear_errors_per_flight_leaves_the_survey_as_it_was() {
+fn a_calibration_flight_with_linear_errors_per_flight_leaves_the_survey_path_and_errors_as_they_were()
+ {
     use gravgrad_sim::scenario::LinearErrors;
     let plain = simulate(&scenario(SMALL)).unwrap();
     let mut s = with_calibration_flight();
     s.instrument.linear_errors = Some(LinearErrors::PerFlight);
     let sim = simulate(&s).unwrap();
+    // The DEM grows to cover the calibration flight too (a run refuses a DEM short of any flight
+    // plus its margin), so the terrain, and with it the pairs' outputs, differ; the path, the
+    // navigation and every error drawn for the survey do not.
     for ((na, va), (nb, vb)) in plain.flights[0].columns.iter().zip(&sim.flights[0].columns) {
         assert_eq!(na, nb);
+        if na.ends_with("_a") || na.ends_with("_b") {
+            continue;
+        }
         assert!(
             va.iter().zip(vb).all(|(x, y)| x.to_bits() == y.to_bits()),
             "{na} differs"
         );
+    }
+    for (a, b) in plain.flights[0]
+        .pair_errors
+        .iter()
+        .zip(&sim.flights[0].pair_errors)
+    {
+        assert_eq!(a.kappa, b.kappa);
+        assert_eq!(a.bias, b.bias);
     }
     // Per flight, the calibration flight is a take-off of its own: other κ.
     let cal = &sim.calibration.as_ref().unwrap().log;
@@ -870,4 +885,38 @@ fn bad_calibration_flight_keys_are_refused_by_name() {
     s.instrument.quadratic_rms_per_m_s2 = -1.0;
     let e = simulate(&s).unwrap_err().to_string();
     assert!(e.contains("instrument.quadratic_rms_per_m_s2"), "{e}");
+}
+
+/// The simulator knows its sizes before it starts and refuses a scenario past its limits, naming
+/// the key most to blame and the size it would need.
+#[test]
+fn scenarios_past_their_size_limits_are_refused_naming_the_key() {
+    let base = "layout = \"scenario/1\"\n";
+    let ok = scenario(base);
+    let sizes = ok.check_sizes().expect("the default scenario fits");
+    assert!(
+        sizes.samples > 1000.0 && sizes.dem_cells > 100.0,
+        "{sizes:?}"
+    );
+    for (extra, key, what) in [
+        ("[terrain]\ncell_m = 0.001", "terrain.cell_m", "cells"),
+        ("[plan]\nlines = 1000000000", "plan.lines", "samples"),
+        (
+            "[plan]\nsample_rate_hz = 1e7",
+            "plan.sample_rate_hz",
+            "at most 1000 Hz",
+        ),
+        (
+            "[plan]\nsample_rate_hz = 100.0\nline_length_m = 200000.0",
+            "plan.line_length_m",
+            "samples",
+        ),
+    ] {
+        let s = scenario(&format!("{base}{extra}"));
+        let Err(e) = simulate(&s) else {
+            panic!("{extra}: not refused")
+        };
+        let text = e.to_string();
+        assert!(text.contains(key) && text.contains(what), "{extra}: {text}");
+    }
 }
