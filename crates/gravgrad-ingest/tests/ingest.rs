@@ -658,6 +658,8 @@ mod mutation {
     fn mutated_netcdf_files() {
         run(BinaryFormat::NetCdf, 14);
     }
+}
+
 /// The DEM window a run uses (`dem::prepare_window`): coverage, size, holes and implausible cells.
 mod dem_window {
     use gravgrad_core::Location;
