@@ -69,6 +69,12 @@ fn recipe_values_and_sizes_past_their_limits_are_refused_before_any_work() {
             &["grid.cell_m", "nodes", "the limit is 500000"][..],
         ),
         (
+            "max-nodes.toml",
+            "cell_m = 50.0",
+            "cell_m = 50.0\nmax_nodes = 100000000",
+            &["grid.max_nodes", "from 1000 to 2000000 nodes"][..],
+        ),
+        (
             "finer.toml",
             "cell_m = 50.0",
             "cell_m = 0.1",
@@ -425,4 +431,29 @@ fn check_says_what_the_run_does_with_a_holed_temperature_log() {
     let note = said[0].trim_start_matches("the run will do this: ");
     let head = &note[..note.find(':').unwrap_or(note.len())];
     assert!(stderr.contains(head), "run does not say `{head}`: {stderr}");
+}
+
+/// A grid past the default limit is refused naming `grid.cell_m` and `grid.max_nodes`; raising
+/// `grid.max_nodes` deliberately lets the same recipe through `check` (which sizes, not grids).
+#[test]
+fn grid_max_nodes_raises_the_grid_limit_deliberately() {
+    let dir = tempfile::tempdir().unwrap();
+    let recipe = survey(dir.path(), BASE);
+    // 2 m cells on four 3 km lines 200 m apart plus the blanking distance: about 1.3 million nodes.
+    let fine = variant(&recipe, "fine.toml", "cell_m = 50.0", "cell_m = 2.0");
+    let (code, report, _) = check_json(&[fine.to_str().unwrap()]);
+    assert_eq!(code, 2, "{report}");
+    let text = report.to_string();
+    assert!(
+        text.contains("grid.cell_m") && text.contains("raise `grid.max_nodes`"),
+        "{text}"
+    );
+    let raised = variant(
+        &recipe,
+        "raised.toml",
+        "cell_m = 50.0",
+        "cell_m = 2.0\nmax_nodes = 1500000",
+    );
+    let (code, report, _) = check_json(&[raised.to_str().unwrap()]);
+    assert_eq!(code, 0, "{report}");
 }

@@ -120,7 +120,7 @@ echo "== the demo survey, two flights, through Slurm"
 survey="$work/survey"
 mkdir -p "$survey/flights"
 cp data/demo/recipe.toml data/demo/instrument.toml data/demo/dem.tif "$survey/"
-cp data/demo/flights/*.parquet "$survey/flights/"
+cp data/demo/flights/kestrand-flats-demo-f*.parquet "$survey/flights/"
 [ "$(ls "$survey"/flights/*.parquet | wc -l)" -eq 2 ] || { echo "the demo should have two flights" >&2; exit 1; }
 "$bin" --threads 1 batch "$survey/recipe.toml" --emit slurm --out-script "$work/jobs.sh" --logs "$work/jobs"
 grep -q -- "--array=0-1 " "$work/jobs.sh"

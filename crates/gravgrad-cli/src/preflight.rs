@@ -16,6 +16,7 @@ use gravgrad_core::projection::TransverseMercator;
 use gravgrad_core::{Location, Problem};
 use gravgrad_ingest::check::{LoadedFlight, Survey, load_recipe};
 use gravgrad_ingest::dem::{self, DEM_BYTES_PER_CELL, DemWindow, Extent};
+use gravgrad_ingest::recipe::MAX_GRID_NODES_ALLOWED;
 use gravgrad_ingest::recipe::{CalibrationMode, Recipe};
 use rayon::prelude::*;
 use std::path::Path;
@@ -179,7 +180,8 @@ fn survey_geometry(
     (extent, tracks)
 }
 
-/// The grid lattice, refused past [`MAX_GRID_NODES`] naming `grid.cell_m`.
+/// The grid lattice, refused past `grid.max_nodes` (default [`MAX_GRID_NODES`]) naming
+/// `grid.cell_m`.
 fn check_grid(
     recipe: &Recipe,
     recipe_path: &Path,
@@ -188,14 +190,18 @@ fn check_grid(
 ) -> Option<GridPlan> {
     let plan = grid_stage::plan_grid(recipe, tracks)?;
     let nodes = plan.nodes();
-    if nodes > MAX_GRID_NODES {
+    let limit = recipe
+        .grid
+        .max_nodes
+        .map_or(MAX_GRID_NODES, |n| usize::try_from(n).unwrap_or(usize::MAX));
+    if nodes > limit {
         let how = match (recipe.grid.cell_m, plan.spacing_m) {
             (Some(_), _) => "the recipe's cell".to_string(),
             (None, Some(s)) => format!("the default cell, a quarter of the {s:.0} m line spacing"),
             (None, None) => "the default cell (no line spacing found)".to_string(),
         };
         // The blanking distance is to blame when the lines alone fit.
-        let (key, hint) = if recipe.grid.blanking_m.is_some() && plan.line_nodes <= MAX_GRID_NODES {
+        let (key, hint) = if recipe.grid.blanking_m.is_some() && plan.line_nodes <= limit {
             (
                 "grid.blanking_m",
                 "lower `grid.blanking_m` (cells farther than it from data are empty anyway)"
@@ -203,10 +209,19 @@ fn check_grid(
             )
         } else {
             // Nodes scale with 1/cell²: the cell at which the lattice fits.
-            let fits = plan.cell_m * (nodes as f64 / MAX_GRID_NODES as f64).sqrt();
+            let fits = plan.cell_m * (nodes as f64 / limit as f64).sqrt();
             (
                 "grid.cell_m",
-                format!("set `grid.cell_m` to {:.0} m or more", fits.ceil()),
+                format!(
+                    "set `grid.cell_m` to {:.0} m or more{}",
+                    fits.ceil(),
+                    if (nodes as u64) <= MAX_GRID_NODES_ALLOWED {
+                        ", or raise `grid.max_nodes` (at most 2,000,000: about 1 kB of memory a \
+                         node, and minutes of gridding)"
+                    } else {
+                        ""
+                    }
+                ),
             )
         };
         problems.push(
@@ -215,7 +230,7 @@ fn check_grid(
                 format!(
                     "the grid would be {} × {} = {nodes} nodes of {} m ({how}; the survey's lines \
                      plus the {} m blanking distance), about {:.1} GB; the limit is \
-                     {MAX_GRID_NODES} nodes",
+                     {limit} nodes (`grid.max_nodes`)",
                     plan.nx,
                     plan.ny,
                     plan.cell_m,

@@ -795,6 +795,11 @@ pub fn write_qc(
 }
 
 pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
+    // The folder is checked before any work, as a run's is.
+    let checked = match run_cmd::checked_qc_folder(&args.recipe, args.out.as_deref()) {
+        Ok(c) => c,
+        Err(code) => return code,
+    };
     let p = match run_cmd::process(&args.recipe, log, run_cmd::CalibrationChoice::Recipe) {
         Ok(p) => p,
         Err(code) => return code,
@@ -810,7 +815,9 @@ pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
     for n in &stages.notes {
         log.info(n);
     }
-    let dir = run_cmd::output_folder(&p, args.out.as_deref()).join("qc");
+    let dir = checked
+        .unwrap_or_else(|| run_cmd::output_folder(&p, args.out.as_deref()))
+        .join("qc");
     let qcs = match write_qc(&dir, &p, &stages, recipe) {
         Ok(q) => q,
         Err(code) => return code,

@@ -458,6 +458,33 @@ fn write_archive(
     archive::write(&dir.join("survey.h5"), &a)
 }
 
+/// The output folder `gravgrad qc` writes its `qc/` into, checked as a run's is
+/// (`output_folder::check`) before any work: `Ok(None)` when the recipe cannot be read (the
+/// processing's own check then says why).
+pub fn checked_qc_folder(recipe_path: &Path, out: Option<&Path>) -> Result<Option<PathBuf>, u8> {
+    let Ok(text) = std::fs::read_to_string(recipe_path) else {
+        return Ok(None);
+    };
+    let Ok(recipe) = gravgrad_ingest::recipe::read_recipe(recipe_path) else {
+        return Ok(None);
+    };
+    let (dir, key) = match out {
+        Some(o) => (o.to_path_buf(), "--out".to_string()),
+        None => (
+            recipe.resolve(&recipe.output.folder),
+            format!("{}: output.folder", recipe_path.display()),
+        ),
+    };
+    let inputs = Inputs::list(recipe_path, text, &recipe);
+    let paths: Vec<PathBuf> = inputs.files.iter().map(|f| f.path.clone()).collect();
+    output_folder::check(&dir, &key, &paths)
+        .map(Some)
+        .map_err(|e| {
+            eprintln!("error: {e}");
+            EXIT_BAD_INPUT
+        })
+}
+
 /// What a run knows before any work: the recipe's inputs hashed before they are read, and the
 /// output folder checked.
 struct OutputPlan {

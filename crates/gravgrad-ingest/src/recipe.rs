@@ -284,7 +284,15 @@ pub struct Grid {
     pub blanking_m: Option<f64>,
     /// Upward continuation of the derived full tensor and gz, m (0: the flight surface).
     pub upward_continuation_m: f64,
+    /// Most nodes the grid lattice may have before the run is refused. Absent: the default limit
+    /// (500,000, about 0.5 GB and under a minute of gridding); a large survey may raise it
+    /// deliberately, up to [`MAX_GRID_NODES_ALLOWED`].
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub max_nodes: Option<u64>,
 }
+
+/// The most `grid.max_nodes` may allow: about 2 GB resident at about 1 kB a node.
+pub const MAX_GRID_NODES_ALLOWED: u64 = 2_000_000;
 
 impl Default for Grid {
     fn default() -> Self {
@@ -293,6 +301,7 @@ impl Default for Grid {
             tension: 0.25,
             blanking_m: None,
             upward_continuation_m: 0.0,
+            max_nodes: None,
         }
     }
 }
@@ -643,6 +652,11 @@ pub fn numeric_keys(r: &Recipe) -> Vec<(&'static str, f64, Range)> {
         "grid.blanking_m",
         r.grid.blanking_m,
         Range::above(0.0, 100_000.0, "m"),
+    );
+    opt(
+        "grid.max_nodes",
+        r.grid.max_nodes.map(|n| n as f64),
+        Range::from(1000.0, MAX_GRID_NODES_ALLOWED as f64, "nodes"),
     );
     opt(
         "qc.planned_clearance_m",
