@@ -119,6 +119,14 @@ fn parse_threads(s: &str) -> Result<usize, String> {
 }
 
 fn main() -> ExitCode {
+    // A panic of the Parquet decoders on a damaged column is caught and reported as that column's
+    // located error (docs/reliability.md): its default message would only confuse.
+    let default_hook = std::panic::take_hook();
+    std::panic::set_hook(Box::new(move |info| {
+        if !gravgrad_ingest::parquet_reader::in_contained_decode() {
+            default_hook(info);
+        }
+    }));
     let cli = Cli::parse();
     let log = logging::Log::new(cli.quiet, cli.json);
     if let Some(n) = cli.threads

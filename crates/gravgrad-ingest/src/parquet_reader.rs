@@ -82,6 +82,26 @@ impl ChunkReader for PositionalFile {
     }
 }
 
+thread_local! {
+    /// Whether this thread is inside [`contained`]: a panic hook reads it to stay silent about a
+    /// panic that is caught and reported as a located problem.
+    static CONTAINED: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// Whether the current thread is decoding inside [`contained`] (for a panic hook: the panic is
+/// caught there and reported as the column's error, so the default message is noise).
+pub fn in_contained_decode() -> bool {
+    CONTAINED.with(std::cell::Cell::get)
+}
+
+/// Runs `f`, catching a panic of the `parquet` crate's decoders as `Err(())`.
+fn contained<T>(f: impl FnOnce() -> T) -> Result<T, ()> {
+    CONTAINED.with(|c| c.set(true));
+    let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)).map_err(|_| ());
+    CONTAINED.with(|c| c.set(false));
+    r
+}
+
 /// Reads a Parquet flight log into raw columns (file units, first record = row 1).
 pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns>, Vec<Problem>) {
     let loc = Location::file(path);
@@ -150,9 +170,7 @@ pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns
             // The `parquet` crate's decoders index some damaged pages out of bounds (seen with a
             // page whose encoding byte was flipped to BYTE_STREAM_SPLIT, docs/reliability.md):
             // such a panic is contained here and reported as this column's error.
-            let decoded = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                read_column(&reader, slot.index, col.max_def_level(), n_rows)
-            }));
+            let decoded = contained(|| read_column(&reader, slot.index, col.max_def_level(), n_rows));
             match decoded {
                 Ok(r) => r.map_err(|e| Problem::error(cloc, format!("cannot decode: {e}"))),
                 Err(_) => Err(Problem::error(
