@@ -580,8 +580,14 @@ fn a_constant_temperature_log_is_named_in_the_calibration_section_and_counted_pe
     );
     let recipe = constant.join("survey/recipe.toml");
     let text = std::fs::read_to_string(&recipe).unwrap();
-    assert!(text.contains("flights/*.parquet"));
-    std::fs::write(&recipe, text.replace("flights/*.parquet", "flights/*.csv")).unwrap();
+    // The survey flights only (the demo also has a calibration flight).
+    let survey_logs = "flights/kestrand-flats-demo-f*.parquet";
+    assert!(text.contains(survey_logs), "{text}");
+    std::fs::write(
+        &recipe,
+        text.replace(survey_logs, "flights/kestrand-flats-demo-f*.csv"),
+    )
+    .unwrap();
     let csv = std::fs::read_to_string(constant.join("survey/flights/kestrand-flats-demo-f01.csv"))
         .unwrap();
     let mut rows = csv.lines().filter(|l| !l.starts_with('#'));
