@@ -4,7 +4,7 @@
 //! point, holding nothing a run does not write, writable, and — when it is a symbolic link — a link
 //! to a folder that exists (the run then replaces the folder it points to and keeps the link).
 
-use crate::staging::{ENTRIES, LEGACY_PREFIX};
+use crate::staging::{ASIDE_PREFIX, ENTRIES, LEGACY_PREFIX, QC_NEXT_PREFIX};
 use std::path::{Component, Path, PathBuf};
 
 /// Folders refused together with everything below them: system folders.
@@ -158,6 +158,8 @@ pub fn check(out: &Path, key: &str, inputs: &[PathBuf]) -> Result<PathBuf, Strin
                     !ENTRIES.contains(&n.as_str())
                         && !n.starts_with(LEGACY_PREFIX)
                         && !n.starts_with(PROBE_PREFIX)
+                        && !n.starts_with(QC_NEXT_PREFIX)
+                        && !n.starts_with(ASIDE_PREFIX)
                 })
                 .collect();
             foreign.sort();

@@ -815,13 +815,29 @@ pub fn run(args: &QcArgs, log: &Log, json_out: bool) -> u8 {
     for n in &stages.notes {
         log.info(n);
     }
-    let dir = checked
-        .unwrap_or_else(|| run_cmd::output_folder(&p, args.out.as_deref()))
-        .join("qc");
-    let qcs = match write_qc(&dir, &p, &stages, recipe) {
+    let folder = checked.unwrap_or_else(|| run_cmd::output_folder(&p, args.out.as_deref()));
+    let dir = folder.join("qc");
+    // Written whole beside `qc/` and swapped in at once: a stopped run leaves the old `qc/`.
+    let next = folder.join(format!(
+        "{}{}",
+        crate::staging::QC_NEXT_PREFIX,
+        std::process::id()
+    ));
+    if let Err(e) = std::fs::create_dir_all(&next) {
+        eprintln!("error: {}: cannot make the folder: {e}", next.display());
+        return crate::EXIT_FAILURE;
+    }
+    let qcs = match write_qc(&next, &p, &stages, recipe) {
         Ok(q) => q,
-        Err(code) => return code,
+        Err(code) => {
+            let _ = std::fs::remove_dir_all(&next);
+            return code;
+        }
     };
+    if let Err(e) = crate::staging::replace_folder(&next, &dir) {
+        eprintln!("error: {e}");
+        return crate::EXIT_FAILURE;
+    }
     log.info(&format!(
         "filter, levelling and QC of {} lines in {:.2} s",
         qcs.len(),

@@ -51,6 +51,11 @@ pub const ENTRIES: [&str; 11] = [
 /// generation that holds them).
 pub const LEGACY_PREFIX: &str = ".gravgrad-staging-";
 
+/// Prefix of the folder `gravgrad qc` builds its `qc/` in, and of a folder moved aside while one is
+/// replaced ([`replace_folder`]): left by a stopped process, they are ours, not the user's.
+pub const QC_NEXT_PREFIX: &str = ".gravgrad-qc-next-";
+pub const ASIDE_PREFIX: &str = ".gravgrad-old-";
+
 /// Environment variable of the test hook that pauses a run at a named commit step.
 pub const PAUSE_ENV: &str = "GRAVGRAD_COMMIT_PAUSE";
 
@@ -127,6 +132,24 @@ fn exchange(a: &Path, b: &Path) -> Result<bool, std::io::Error> {
 #[cfg(not(any(target_os = "linux", target_os = "macos")))]
 fn exchange(_a: &Path, _b: &Path) -> Result<bool, std::io::Error> {
     Ok(false)
+}
+
+/// Replaces the folder `target` by the complete folder `new` (a sibling): one exchange where the
+/// file system can, the old one then removed; where `target` does not exist yet, one rename. Where
+/// the file system cannot exchange, the old folder is moved aside first (a kill between the two
+/// renames leaves `target` missing, never half-written).
+pub fn replace_folder(new: &Path, target: &Path) -> Result<(), String> {
+    if !target.exists() {
+        return std::fs::rename(new, target).map_err(|e| io_err(target, "move into place", e));
+    }
+    if exchange(new, target).map_err(|e| io_err(target, "swap", e))? {
+        // `new` now holds the old folder.
+        return std::fs::remove_dir_all(new).map_err(|e| io_err(new, "remove", e));
+    }
+    let aside = target.with_file_name(format!("{ASIDE_PREFIX}{}", std::process::id()));
+    std::fs::rename(target, &aside).map_err(|e| io_err(target, "move aside", e))?;
+    std::fs::rename(new, target).map_err(|e| io_err(target, "move into place", e))?;
+    std::fs::remove_dir_all(&aside).map_err(|e| io_err(&aside, "remove", e))
 }
 
 impl Staging {
@@ -271,6 +294,28 @@ impl Drop for Staging {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_folder_is_replaced_whole_and_nothing_of_the_old_one_stays() {
+        let root = temp("replace");
+        let _ = std::fs::remove_dir_all(&root);
+        let (new, target) = (root.join(".next"), root.join("qc"));
+        // No folder yet: one rename.
+        std::fs::create_dir_all(&new).unwrap();
+        std::fs::write(new.join("a.csv"), "1").unwrap();
+        replace_folder(&new, &target).unwrap();
+        assert_eq!(std::fs::read_to_string(target.join("a.csv")).unwrap(), "1");
+        assert!(!new.exists());
+        // A folder there: swapped, and its files gone.
+        std::fs::create_dir_all(&new).unwrap();
+        std::fs::write(new.join("b.csv"), "2").unwrap();
+        replace_folder(&new, &target).unwrap();
+        assert!(!target.join("a.csv").exists());
+        assert_eq!(std::fs::read_to_string(target.join("b.csv")).unwrap(), "2");
+        let left: Vec<_> = std::fs::read_dir(&root).unwrap().flatten().collect();
+        assert_eq!(left.len(), 1, "{left:?}");
+        std::fs::remove_dir_all(&root).unwrap();
+    }
 
     fn temp(name: &str) -> PathBuf {
         let d =
