@@ -96,6 +96,25 @@ pub fn prepare_window(
     path: &Path,
     key: &Location,
 ) -> Result<DemWindow, Vec<Problem>> {
+    check_coverage(dem, need, path, key)?;
+    let (mut window, c0, r0) = cut_window(dem, need, key)?;
+    let (holes, mut warnings) = screen_cells(dem, &window, (c0, r0), path)?;
+    fill_or_refuse(dem, &mut window, &holes, (c0, r0), path, &mut warnings)?;
+    Ok(DemWindow {
+        raster: window,
+        filled: holes.len(),
+        warnings,
+    })
+}
+
+/// Refuses a survey without a finite position, and a DEM that misses the survey plus the margin
+/// (`need`: x_min, x_max, y_min, y_max in the DEM's map frame, m) by more than one cell.
+fn check_coverage(
+    dem: &Raster,
+    need: Extent,
+    path: &Path,
+    key: &Location,
+) -> Result<(), Vec<Problem>> {
     let at = |msg: String| Problem::error(key.clone(), msg);
     let have = [
         dem.x_min,
@@ -143,6 +162,17 @@ pub fn prepare_window(
             ),
         ]);
     }
+    Ok(())
+}
+
+/// The DEM's cells the window `need` touches, one more on each side, clipped to the DEM, with the
+/// column and row of its first cell in the DEM; refused past [`MAX_DEM_WINDOW_CELLS`] naming
+/// `terrain.margin_m`.
+fn cut_window(
+    dem: &Raster,
+    need: Extent,
+    key: &Location,
+) -> Result<(Raster, usize, usize), Vec<Problem>> {
     // Cells the window touches, one more on each side, clipped to the DEM.
     let col = |x: f64| ((x - dem.x_min) / dem.dx).clamp(0.0, dem.nx as f64);
     let row = |y: f64| ((dem.y_max - y) / dem.dy).clamp(0.0, dem.ny as f64);
@@ -183,6 +213,19 @@ pub fn prepare_window(
         nodata: None,
         values,
     };
+    Ok((window, c0, r0))
+}
+
+/// Sorts the window's cells: holes (no-data, NaN, or an undeclared sentinel, with a warning naming
+/// those) as indices into the window, and implausible elevations, refused with their cells (named
+/// by their place in the DEM file; `(c0, r0)` the window's first cell there).
+fn screen_cells(
+    dem: &Raster,
+    window: &Raster,
+    (c0, r0): (usize, usize),
+    path: &Path,
+) -> Result<(Vec<usize>, Vec<Problem>), Vec<Problem>> {
+    let nx = window.nx;
     // Holes and implausible cells, named by their place in the DEM file.
     let mut holes = Vec::new();
     let mut sentinels = Vec::new();
@@ -234,7 +277,20 @@ pub fn prepare_window(
             ),
         ));
     }
-    let mut window = window;
+    Ok((holes, warnings))
+}
+
+/// Fills the window's `holes` with a warning naming them, or refuses the DEM when they are more than
+/// [`MAX_HOLE_FRACTION`] of its cells.
+fn fill_or_refuse(
+    dem: &Raster,
+    window: &mut Raster,
+    holes: &[usize],
+    (c0, r0): (usize, usize),
+    path: &Path,
+    warnings: &mut Vec<Problem>,
+) -> Result<(), Vec<Problem>> {
+    let (nx, cells) = (window.nx, window.values.len());
     if !holes.is_empty() {
         let share = holes.len() as f64 / cells as f64;
         let named: Vec<(usize, usize)> = holes
@@ -258,7 +314,7 @@ pub fn prepare_window(
                 .with_hint("fill the terrain model's holes, or give one without them"),
             ]);
         }
-        fill_holes(&mut window, &holes);
+        fill_holes(window, holes);
         warnings.push(Problem::warning(
             Location::file(path),
             format!(
@@ -270,11 +326,7 @@ pub fn prepare_window(
             ),
         ));
     }
-    Ok(DemWindow {
-        raster: window,
-        filled: holes.len(),
-        warnings,
-    })
+    Ok(())
 }
 
 /// Fills the cells `holes` (indices into `r.values`, which hold NaN or no-data there) from the
