@@ -45,7 +45,8 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
     // the survey's run applies (and refines with what the survey's own data see).
     let cal_recipe = dir.join("recipe-calibration.toml");
     let cal_dir = calibration_folder(&out);
-    let calibration = if cal_recipe.is_file() {
+    let has_calibration_flight = cal_recipe.is_file();
+    let calibration = if has_calibration_flight {
         log.info("the calibration flight: estimating every pair's calibration from its manoeuvres");
         if let Err(e) = std::fs::create_dir_all(&cal_dir) {
             eprintln!("error: {}: cannot make the folder: {e}", cal_dir.display());
@@ -79,12 +80,18 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
     if code != 0 {
         return code;
     }
+    let cal_note = if has_calibration_flight {
+        format!(
+            "; the calibration flight's calibration in {}",
+            cal_dir.display()
+        )
+    } else {
+        String::new()
+    };
     log.info(&format!(
         "products in {}: lines.parquet, grids.nc, grids/*.tif, maps/*.png, qc/report.html, \
-         survey.h5, calibration/, provenance.json; the calibration flight's calibration in {}; the \
-         result against the demo's truth:",
+         survey.h5, calibration/, provenance.json{cal_note}; the result against the demo's truth:",
         out.display(),
-        cal_dir.display()
     ));
     score_cmd::run(
         &ScoreArgs {
