@@ -27,6 +27,17 @@ temperature_coefficient_rms_m_s2_c = 0.0
 
 use crate::run::parquet_f64;
 
+/// The inverse of a 3 × 3 matrix (adjugate over determinant).
+fn invert3(m: &[[f64; 3]; 3]) -> [[f64; 3]; 3] {
+    let c = |r: usize, k: usize| {
+        let (r1, r2) = ((r + 1) % 3, (r + 2) % 3);
+        let (k1, k2) = ((k + 1) % 3, (k + 2) % 3);
+        m[r1][k1] * m[r2][k2] - m[r1][k2] * m[r2][k1]
+    };
+    let det: f64 = (0..3).map(|k| m[0][k] * c(0, k)).sum();
+    std::array::from_fn(|i| std::array::from_fn(|j| c(j, i) / det))
+}
+
 /// Every int64 column `name` of one of our Parquet tables (the `line` column).
 fn parquet_i64(path: &Path, name: &str) -> Vec<i64> {
     crate::run::parquet_column(path, name, |row, k| {
@@ -337,17 +348,21 @@ fn scores_400(run: &Path, truth: &Path) -> Vec<(String, String, f64, f64)> {
 /// The calibration flight's file against the simulator's truth (`truth/calibration.toml`, the
 /// calibration flight's entry): every κ, and every quadratic coefficient applied, against the truth
 /// in standard errors. The file's κ is the coupling about its force origin f0 (its quadratic form is
-/// centred there), so the truth's κ is moved to the same origin: κ' = κ + ∇q(f0).
+/// centred there), so the truth's κ is moved to the same origin: κ' = κ + ∇q(f0). And it is the
+/// coupling to the force the pipeline uses, the pairs' common mode, whose own scale and
+/// misalignment errors (1e-5) make it f̂ = T·f with row k of T the mean common-mode axis of the
+/// pairs sensing along k (`common_axis` in the truth): κ̂ᵀ·f̂ = κᵀ·f, so the truth is compared as
+/// T⁻ᵀ·κ'. Left in the truth's own frame, κ of 3e-5 times T's 1e-5 off-diagonal is 3e-10, several
+/// standard errors of an in-line pair's κ (docs/methods/calibration.md).
 ///
-/// What is asserted is what was measured, not yet the goal (every coefficient within 3σ):
-/// on four seeds of this scenario, 2 coefficients of about 40 each came out at 3.0σ and 3.8σ
-/// (yy κy, xy κy) while the rest of the z-scores lie mostly within 1σ. The cause is not known: the
-/// products f·(α × b) the simulated quadratic terms make at each accelerometer's own position were
-/// ruled out (docs/methods/calibration.md). So: at most one coefficient in twenty beyond 3σ, none
-/// beyond 4σ.
+/// Every coefficient must lie within 3σ (the goal, at this seed; the distribution over
+/// seeds is in the method note).
 fn assert_calibration_against_truth(file: &Path, truth: &Path) {
     let cal: toml::Value = toml::from_str(&std::fs::read_to_string(file).unwrap()).unwrap();
     let tr: toml::Value = toml::from_str(&std::fs::read_to_string(truth).unwrap()).unwrap();
+    let instrument: toml::Value =
+        toml::from_str(&std::fs::read_to_string(file.with_file_name("instrument.toml")).unwrap())
+            .unwrap();
     let flight = tr["flight"]
         .as_array()
         .unwrap()
@@ -361,6 +376,30 @@ fn assert_calibration_against_truth(file: &Path, truth: &Path) {
             .map(|x| x.as_float().unwrap())
             .collect()
     };
+    // T: per sensor axis, the mean of ±common_axis over the pairs sensing along it.
+    let mut t = [[0.0f64; 3]; 3];
+    let mut count = [0usize; 3];
+    for p in instrument["pair"].as_array().unwrap() {
+        let axis = floats(&p["axis"]);
+        let k = (0..3).find(|&k| axis[k].abs() > 0.5).unwrap();
+        let common = floats(
+            &flight["pair"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .find(|q| q["id"] == p["id"])
+                .unwrap()["common_axis"],
+        );
+        for m in 0..3 {
+            t[k][m] += axis[k].signum() * common[m];
+        }
+        count[k] += 1;
+    }
+    for k in 0..3 {
+        assert!(count[k] > 0, "no pair senses along axis {k}");
+        t[k] = t[k].map(|v| v / count[k] as f64);
+    }
+    let t_inv = invert3(&t);
     const PRODUCTS: [(usize, usize); 6] = [(0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2)];
     let mut worst = 0.0f64;
     let mut zs: Vec<(String, f64)> = Vec::new();
@@ -374,14 +413,17 @@ fn assert_calibration_against_truth(file: &Path, truth: &Path) {
             .unwrap();
         let (tk, tq) = (floats(&t["kappa"]), floats(&t["quadratic"]));
         let f0 = p.get("force_mean_m_s2").map_or(vec![0.0; 3], floats);
-        let mut grad = [0.0; 3];
+        let mut moved = [tk[0], tk[1], tk[2]];
         for ((a, b), q) in PRODUCTS.iter().zip(&tq) {
-            grad[*a] += q * f0[*b];
-            grad[*b] += q * f0[*a];
+            moved[*a] += q * f0[*b];
+            moved[*b] += q * f0[*a];
         }
+        // T⁻ᵀ·κ': component m is Σ_j (T⁻¹)_jm κ'_j.
+        let target: [f64; 3] =
+            std::array::from_fn(|m| (0..3).map(|j| t_inv[j][m] * moved[j]).sum());
         let (k, kse) = (floats(&p["kappa"]), floats(&p["kappa_se"]));
         for m in 0..3 {
-            let z = (k[m] - (tk[m] + grad[m])) / kse[m];
+            let z = (k[m] - target[m]) / kse[m];
             zs.push((format!("pair {id} κ[{m}]"), z));
         }
         if let (Some(q), Some(qse)) = (p.get("quadratic_per_m_s2"), p.get("quadratic_se")) {
@@ -392,20 +434,19 @@ fn assert_calibration_against_truth(file: &Path, truth: &Path) {
             }
         }
     }
-    for (name, z) in &zs {
+    for (_, z) in &zs {
         worst = worst.max(z.abs());
-        assert!(z.abs() < 4.0, "{name}: z {z:.2}");
     }
-    let beyond3 = zs.iter().filter(|(_, z)| z.abs() > 3.0).count();
+    let rms = (zs.iter().map(|(_, z)| z * z).sum::<f64>() / zs.len() as f64).sqrt();
     eprintln!(
-        "calibration flight: {} coefficients, worst |z| {worst:.2}, {beyond3} beyond 3σ",
+        "calibration flight: {} coefficients, RMS z {rms:.2}, worst |z| {worst:.2}",
         zs.len()
     );
-    assert!(
-        20 * beyond3 <= zs.len(),
-        "{beyond3} of {} beyond 3σ: {zs:?}",
-        zs.len()
-    );
+    for (name, z) in &zs {
+        assert!(z.abs() < 3.0, "{name}: z {z:.2} ({zs:?})");
+    }
+    // Standard errors neither far too small nor far too large.
+    assert!((0.4..1.6).contains(&rms), "RMS z {rms:.2}: {zs:?}");
     // The diagonal quadratic terms of the in-line pairs are among those applied.
     let zz = cal["pair"]
         .as_array()

@@ -1,11 +1,12 @@
 //! Applying a pair's calibration: the correction subtracted from its difference d = a − b.
 
-use crate::estimate::{PRODUCTS, PairCalibration, PairData};
+use crate::estimate::{PRODUCTS, PairCalibration, PairData, rotation_terms};
 
 impl PairCalibration {
     /// The calibration part of pair difference `i`, m/s²: κ·f(O) + bias and drift (polynomial in
-    /// t − t_mid, by Horner's rule) + temperature term + self-gradient term. The rotation terms (ΩΩ,
-    /// α) are physics, not calibration: the solve removes them.
+    /// t − t_mid, by Horner's rule) + temperature term + self-gradient term + quadratic terms + the
+    /// gyro bias's trace c·ω + the axis errors' D·R. The rotation terms (ΩΩ, α) are physics, not calibration: the solve
+    /// removes them.
     pub fn correction_at(&self, d: &PairData<'_>, i: usize) -> f64 {
         let mut c = (0..3).map(|k| self.kappa[k].value * d.f[k][i]).sum::<f64>();
         let dt = d.time[i] - self.t_mid;
@@ -25,6 +26,16 @@ impl PairCalibration {
                 .map(|((a, b), qm)| qm.value * df[*a] * df[*b])
                 .sum::<f64>();
         }
+        if let Some(g) = self.gyro_rate {
+            c += (0..3).map(|k| g[k].value * d.omega[k][i]).sum::<f64>();
+        }
+        if let Some(dc) = self.rotation_coupling {
+            let r = rotation_terms(
+                std::array::from_fn(|k| d.alpha[k][i]),
+                std::array::from_fn(|k| d.omega[k][i]),
+            );
+            c += dc.iter().zip(r).map(|(x, v)| x.value * v).sum::<f64>();
+        }
         c
     }
 
@@ -33,7 +44,7 @@ impl PairCalibration {
     /// sample. The terms of [`Self::correction_at`], with the coefficients and the optional terms
     /// settled once instead of per sample, in passes across the samples (vectorised); the optional
     /// terms are subtracted one after the other, so the result may differ from x − correction_at in
-    /// the last bit. Reads only `d`'s force, time, temperature and relative attitude, so a caller
+    /// the last bit. Reads only `d`'s force, time, temperature, relative attitude and angular rate, so a caller
     /// can apply the calibration as it reads the samples instead of keeping a corrected series.
     pub fn subtract_span(&self, d: &PairData<'_>, first: usize, x: &[f64], out: &mut [f64]) {
         let kappa = self.kappa.map(|k| k.value);
@@ -86,6 +97,29 @@ impl PairCalibration {
                 let (ma, mb) = (f0[*a], f0[*b]);
                 for ((o, x), y) in out.iter_mut().zip(fa).zip(fb) {
                     *o -= qm.value * ((x - ma) * (y - mb));
+                }
+            }
+        }
+        // The axis errors' rotation terms, sample by sample.
+        if let Some(dc) = self.rotation_coupling {
+            let dv = dc.map(|x| x.value);
+            for (k, o) in out.iter_mut().enumerate() {
+                let i = first + k;
+                let r = rotation_terms(
+                    [d.alpha[0][i], d.alpha[1][i], d.alpha[2][i]],
+                    [d.omega[0][i], d.omega[1][i], d.omega[2][i]],
+                );
+                *o -= dv.iter().zip(r).map(|(x, v)| x * v).sum::<f64>();
+            }
+        }
+        // The gyro bias's trace: only the terms applied, each across the span.
+        if let Some(g) = self.gyro_rate {
+            for (k, gk) in g.iter().enumerate() {
+                if gk.value == 0.0 {
+                    continue;
+                }
+                for (o, w) in out.iter_mut().zip(&d.omega[k][r.clone()]) {
+                    *o -= gk.value * w;
                 }
             }
         }

@@ -165,7 +165,15 @@ pub fn fit_drift(
         .collect();
     // Biases are nuisance terms here: kept whenever resolved, never tested.
     let always: Vec<usize> = (0..6).map(|comp| comp * n_fun).collect();
-    let fit = regress_with(&Normal::of(&columns), &columns, &y, &names, &always, min_z);
+    let fit = regress_with(
+        &Normal::of(&columns),
+        &columns,
+        &y,
+        &names,
+        &always,
+        min_z,
+        None,
+    );
     let components = std::array::from_fn(|comp| ComponentDrift {
         drift: (1..=drift_order)
             .map(|q| fit.coefs[comp * n_fun + q])

@@ -26,11 +26,17 @@ pub struct Settings {
     /// A coefficient is applied only when its estimate exceeds this many standard errors; below,
     /// it is held at its prior (zero, or the calibration file's value).
     pub min_significance: f64,
+    /// Also fit the gyros' bias from what it leaves in the centrifugal correction, over the whole
+    /// instrument ([`crate::gyro_bias`], [`PairCalibration::gyro_rate`]; the instrument fit only).
+    pub gyro_rate: bool,
+    /// Also fit the pairs' axis errors against the rotation terms
+    /// ([`PairCalibration::rotation_coupling`]), where the caller supplies those regressors.
+    pub rotation_coupling: bool,
 }
 
 impl Settings {
-    /// Default settings at `rate_hz`: band 0.05–1 Hz, linear drift, no quadratic terms, four
-    /// standard errors to apply a coefficient.
+    /// Default settings at `rate_hz`: band 0.05–1 Hz, linear drift, no quadratic terms, the gyro
+    /// rate terms, four standard errors to apply a coefficient.
     pub fn at_rate(rate_hz: f64) -> Self {
         Self {
             band_hz: [0.05, 1.0],
@@ -38,6 +44,8 @@ impl Settings {
             rate_hz,
             quadratic: false,
             min_significance: 4.0,
+            gyro_rate: true,
+            rotation_coupling: true,
         }
     }
 }
@@ -92,6 +100,25 @@ pub struct PairCalibration {
     pub quadratic: Option<[Coefficient; 6]>,
     /// Origin of the quadratic terms, sensor axes, m/s².
     pub force_mean: [f64; 3],
+    /// Coefficients c of the angular rate ω (sensor axes, rad/s), m/s² per rad/s, when fitted: what
+    /// a gyro bias β leaves in the centrifugal correction nᵀ·ΩΩ·b formed from the gyros. To first
+    /// order in β that error is c·ω with c = (β·b) n + (n·β) b − 2(n·b) β, so for an in-line pair
+    /// along x, c = −2|b|·(0, βy, βz). A bias of 1e-7 rad/s on a 0.2 m baseline at a yaw rate of
+    /// 0.1 rad/s is 4e-9 m/s² (20 E); in a coordinated manoeuvre the yaw rate follows the lateral
+    /// force, ωz ≈ fy/V, so left out the term biases κy by about −2|b|βz/V. A gyro's bias changes
+    /// from one switch-on to the next: every flight fits its own.
+    pub gyro_rate: Option<[Coefficient; 3]>,
+    /// Coefficients D (m) of the rotation terms R = [αx αy αz, (ΩΩ)xx xy xz yy yz zz] (rad/s²,
+    /// rad²/s², gyro rates, sensor axes), when fitted: the correction D·R. Each accelerometer senses
+    /// (1 + s)(n + δ)·(f + M·r) at its position r, with M = Ω̇ + ΩΩ − G; the difference of a pair
+    /// keeps, besides κ·f, the common part m̄ = s̄n + δ̄ of its two axes times the rotation terms,
+    /// m̄ᵀ·(Ω̇ + ΩΩ)·b: the pair's axis is not quite the one the solve assumes (a misalignment of
+    /// the pair as a whole, or of the sensor to the gyros). With m̄ of 1e-5 and rates of 0.1 rad/s
+    /// on a 0.2 m baseline that is 2e-8 m/s² (100 E) in a manoeuvre, and, since the yaw rate follows
+    /// the lateral force in a turn, left out it leaks into the quadratic terms. On a survey line it
+    /// is far smaller. Linear in R, so the coefficients of the solve's unknowns combine into each
+    /// pair's as κ's do (the G part, 1e-5 of the normal gradient, is left out).
+    pub rotation_coupling: Option<[Coefficient; 9]>,
     /// Mid time of the flight, s (the polynomial's origin).
     pub t_mid: f64,
     /// Mean temperature, °C (the temperature term's origin).
@@ -248,7 +275,10 @@ pub(crate) struct Fit {
 /// one at a time, the coefficient of smallest |value/standard error| is held at zero and the rest
 /// refitted while that ratio is below `min_z`, for the columns not listed in `always` (e.g. the
 /// bias). Standard errors come from the residual variance and the inverse normal matrix, inflated
-/// by n/n_eff (Bretherton et al. 1999), n_eff from the full model's residual.
+/// by n/n_eff (Bretherton et al. 1999), n_eff from the full model's residual. With `batch`, each
+/// coefficient's variance is at least its cluster-robust one with consecutive batches of `batch`
+/// samples as clusters ([`batch_variance_ratios`]), which also holds when the noise is larger where
+/// the regressors are (a manoeuvre's rates put the gyros' noise into the centrifugal term).
 pub(crate) fn regress_with(
     normal: &Normal,
     columns: &[Vec<f64>],
@@ -256,6 +286,7 @@ pub(crate) fn regress_with(
     names: &[String],
     always: &[usize],
     min_z: f64,
+    batch: Option<usize>,
 ) -> Fit {
     let k = columns.len();
     let n = y.len();
@@ -317,12 +348,25 @@ pub(crate) fn regress_with(
         r
     };
     let (mut beta, mut diag) = solve(&active);
-    let inflation = n as f64 / effective_size(&residual(&active, &beta));
+    let full_residual = residual(&active, &beta);
+    let inflation = n as f64 / effective_size(&full_residual);
+    // Per column, the factor the classical variance is raised by: n/n_eff, or the cluster-robust
+    // variance's ratio to the classical where that is larger (from the full model, like n_eff).
+    let mut factor = vec![inflation; k];
+    if let Some(b) = batch {
+        let ratios = batch_variance_ratios(normal, columns, &active, &full_residual, b);
+        for (&c, r) in active.iter().zip(ratios) {
+            factor[c] = factor[c].max(r);
+        }
+    }
     let sigma = |act: &[usize], beta: &[f64], diag: &[f64]| -> Vec<f64> {
         // RSS = yᵀy − β̃ᵀ·X̃ᵀy at the least-squares solution.
         let rss = (yy - beta.iter().zip(act).map(|(b, &c)| b * rhs[c]).sum::<f64>()).max(0.0);
         let var = rss / (n as f64 - act.len() as f64).max(1.0);
-        diag.iter().map(|d| (var * d * inflation).sqrt()).collect()
+        diag.iter()
+            .zip(act)
+            .map(|(d, &c)| (var * d * factor[c]).sqrt())
+            .collect()
     };
     let mut se = sigma(&active, &beta, &diag);
     // With fewer than three degrees of freedom the residual says nothing of the errors: every
@@ -390,6 +434,74 @@ pub(crate) fn regress_with(
         }
     }
     Fit { coefs, resid, held }
+}
+
+/// For each `active` column, the ratio of its coefficient's cluster-robust variance to its
+/// classical one, σ²·(XᵀX)⁻¹: the clusters are consecutive batches of `batch` samples, long enough
+/// that the band-limited residual's correlation seldom crosses from one to the next (Bester,
+/// Conley & Hansen 2011, J. Econometrics 165:137–151). With hᵢ the row of (XᵀX)⁻¹Xᵀ giving
+/// coefficient i, Var(β̂ᵢ) = Σ_B (Σ_{t∈B} h_it·r_t)²: neither white nor equal-variance noise is
+/// assumed. O(n·k²); 1 where there are fewer than eight batches to estimate from.
+fn batch_variance_ratios(
+    normal: &Normal,
+    columns: &[Vec<f64>],
+    active: &[usize],
+    r: &[f64],
+    batch: usize,
+) -> Vec<f64> {
+    let n = r.len();
+    let batch = batch.max(1);
+    let q = active.len();
+    if n < 8 * batch || q == 0 {
+        return vec![1.0; q];
+    }
+    let sub: Vec<Vec<f64>> = active
+        .iter()
+        .map(|&i| active.iter().map(|&j| normal.a[i][j]).collect())
+        .collect();
+    let f = PivotedCholesky::of(&sub, COLLINEAR_TOLERANCE);
+    if f.kept_sorted().len() < q {
+        return vec![1.0; q];
+    }
+    let scale = &normal.scale;
+    let var = r.iter().map(|v| v * v).sum::<f64>() / (n as f64 - q as f64).max(1.0);
+    // Per batch, the scaled score sums g_B = Σ_t x̃_t·r_t, one per column.
+    let scores: Vec<Vec<f64>> = (0..n.div_ceil(batch))
+        .map(|bq| {
+            let span = bq * batch..((bq + 1) * batch).min(n);
+            active
+                .iter()
+                .map(|&c| {
+                    columns[c][span.clone()]
+                        .iter()
+                        .zip(&r[span.clone()])
+                        .map(|(x, e)| x * e)
+                        .sum::<f64>()
+                        / scale[c]
+                })
+                .collect()
+        })
+        .collect();
+    (0..q)
+        .map(|a| {
+            // Coefficient a's share of each batch: (N⁻¹·g_B)_a.
+            let robust: f64 = scores
+                .iter()
+                .map(|g| {
+                    (0..q)
+                        .map(|b| f.inverse_entry(a, b) * g[b])
+                        .sum::<f64>()
+                        .powi(2)
+                })
+                .sum();
+            let classical = var * f.inverse_entry(a, a);
+            if classical > 0.0 && robust.is_finite() {
+                robust / classical
+            } else {
+                1.0
+            }
+        })
+        .collect()
 }
 
 /// Effective number of independent samples of an autocorrelated series: n / (1 + 2 Σ ρ_k), the sum
@@ -488,6 +600,29 @@ pub fn estimate_with_held(d: &PairData<'_>, s: &Settings) -> (PairCalibration, V
     fit_series(&diff, d, true, s)
 }
 
+/// Names of the rotation terms R of [`PairCalibration::rotation_coupling`], in its order.
+pub const ROTATION_NAMES: [&str; 9] = [
+    "αx", "αy", "αz", "ωω xx", "ωω xy", "ωω xz", "ωω yy", "ωω yz", "ωω zz",
+];
+
+/// The rotation terms R at one sample: α (rad/s²) and ΩΩ = ωωᵀ − |ω|²I (rad²/s²) in the order of
+/// [`ROTATION_NAMES`].
+#[inline]
+pub fn rotation_terms(alpha: [f64; 3], w: [f64; 3]) -> [f64; 9] {
+    let w2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
+    [
+        alpha[0],
+        alpha[1],
+        alpha[2],
+        w[0] * w[0] - w2,
+        w[0] * w[1],
+        w[0] * w[2],
+        w[1] * w[1] - w2,
+        w[1] * w[2],
+        w[2] * w[2] - w2,
+    ]
+}
+
 /// Names of the six products of the force's deviations, in the order of
 /// [`PairCalibration::quadratic`].
 pub const PRODUCT_NAMES: [&str; 6] = ["fx²", "fy²", "fz²", "fx·fy", "fx·fz", "fy·fz"];
@@ -528,6 +663,13 @@ pub(crate) struct Design {
     with_alpha: bool,
     /// Whether the six quadratic columns follow the force (and α) in step 1.
     quadratic: bool,
+    /// The first of the nine rotation-term columns in step 1, when fitted, and those terms on the
+    /// design's time base (step 2 takes their fitted part off).
+    rotation_column: Option<usize>,
+    rotation_raw: Option<[Vec<f64>; 9]>,
+    /// The band (Hz) and sample rate (Hz) the band columns were formed at.
+    band_hz: [f64; 2],
+    rate_hz: f64,
     band_columns: Vec<Vec<f64>>,
     band_names: Vec<String>,
     band_normal: Normal,
@@ -552,6 +694,7 @@ impl Design {
         d: &PairData<'_>,
         with_alpha: bool,
         products: Option<(&[Vec<f64>; 6], [f64; 3])>,
+        rotation: Option<[&[f64]; 9]>,
         s: &Settings,
     ) -> Self {
         let [lo, hi] = s.band_hz;
@@ -567,6 +710,11 @@ impl Design {
         if let Some((p, _)) = products {
             regressors.extend(p.iter().map(|v| &v[..]));
             band_names.extend(PRODUCT_NAMES.map(String::from));
+        }
+        let rotation_column = rotation.map(|_| regressors.len());
+        if let Some(r) = rotation {
+            regressors.extend(r);
+            band_names.extend(ROTATION_NAMES.map(|t| format!("axis error: {t}")));
         }
         let band_columns: Vec<Vec<f64>> = regressors.par_iter().map(|c| bp(c)).collect();
         let t_mid = 0.5 * (d.time[0] + d.time[n - 1]);
@@ -606,6 +754,10 @@ impl Design {
             runs,
             with_alpha,
             quadratic: products.is_some(),
+            rotation_column,
+            rotation_raw: rotation.map(|r| r.map(<[f64]>::to_vec)),
+            band_hz: s.band_hz,
+            rate_hz: s.rate_hz,
             band_columns,
             band_names,
             t_mid,
@@ -618,6 +770,44 @@ impl Design {
             has_temperature: d.temperature.is_some(),
             has_self_gradient: d.relative_attitude.is_some(),
         }
+    }
+
+    /// What of series `x` (on the design's time base) the band fit's regressors do not explain:
+    /// `x` band-passed run by run as the fit reads it, less its least-squares projection on every
+    /// resolved band column. Regressing on these residuals gives the coefficient a further regressor
+    /// would get beside the band columns (Frisch–Waugh–Lovell), so a parameter shared by many
+    /// series can be fitted without fitting every series' own coefficients jointly with it.
+    pub(crate) fn band_residual(&self, x: &[f64]) -> Vec<f64> {
+        let [lo, hi] = self.band_hz;
+        let y = band_pass_runs(x, &self.runs, self.rate_hz, lo, hi);
+        let nm = &self.band_normal;
+        let kept = nm.chol.kept_sorted();
+        let rhs: Vec<f64> = kept
+            .iter()
+            .map(|&c| {
+                if nm.scale[c] > 0.0 {
+                    self.band_columns[c]
+                        .iter()
+                        .zip(&y)
+                        .map(|(p, q)| p * q)
+                        .sum::<f64>()
+                        / nm.scale[c]
+                } else {
+                    0.0
+                }
+            })
+            .collect();
+        let mut r = y;
+        for (a, &c) in kept.iter().enumerate() {
+            let beta: f64 = (0..kept.len())
+                .map(|b| nm.chol.inverse_entry(a, b) * rhs[b])
+                .sum();
+            let w = beta / nm.scale[c];
+            for (rv, v) in r.iter_mut().zip(&self.band_columns[c]) {
+                *rv -= w * v;
+            }
+        }
+        r
     }
 
     /// Condition number estimates of the band fit's and the whole-band fit's regressors.
@@ -639,7 +829,7 @@ pub(crate) fn fit_series(
 ) -> (PairCalibration, Vec<HeldTerm>) {
     let f0 = force_mean(d.f, d.usable);
     let products = s.quadratic.then(|| force_products(d.f, f0));
-    let design = Design::new(d, with_alpha, products.as_ref().map(|p| (p, f0)), s);
+    let design = Design::new(d, with_alpha, products.as_ref().map(|p| (p, f0)), None, s);
     fit_with(&design, y, d, products.as_ref(), s)
 }
 
@@ -665,6 +855,7 @@ pub(crate) fn fit_with(
         &design.band_names,
         &[],
         s.min_significance,
+        Some(2 * (s.rate_hz / lo).ceil() as usize),
     );
     let c1 = &fit1.coefs;
     let band_residual_rms =
@@ -682,6 +873,9 @@ pub(crate) fn fit_with(
     let quadratic: Option<[Coefficient; 6]> = design
         .quadratic
         .then(|| std::array::from_fn(|m| c1[q0 + m]));
+    let rotation_coupling: Option<[Coefficient; 9]> = design
+        .rotation_column
+        .map(|w| std::array::from_fn(|m| c1[w + m]));
     // Step 2: bias, drift and temperature from what remains over the whole band, on line samples.
     let rest: Vec<f64> = design
         .line_rows
@@ -694,6 +888,9 @@ pub(crate) fn fit_with(
             if let (Some(q), Some(p)) = (&quadratic, products) {
                 v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
             }
+            if let (Some(c), Some(r)) = (&rotation_coupling, &design.rotation_raw) {
+                v -= (0..9).map(|m| c[m].value * r[m][i]).sum::<f64>();
+            }
             v
         })
         .collect();
@@ -704,6 +901,7 @@ pub(crate) fn fit_with(
         &design.whole_names,
         &[0],
         s.min_significance,
+        None,
     );
     let c2 = &fit2.coefs;
     let n_poly = design.n_poly;
@@ -724,6 +922,10 @@ pub(crate) fn fit_with(
             self_gradient,
             quadratic,
             force_mean: design.force_mean,
+            // The gyros' bias is the instrument's, fitted over all pairs at once
+            // ([`crate::gyro_bias`]), not pair by pair.
+            gyro_rate: None,
+            rotation_coupling,
             t_mid: design.t_mid,
             temperature_mean: design.temperature_mean,
             band_residual_rms,
@@ -759,7 +961,15 @@ impl Design {
             .map(|&i| self.whole_columns[i].clone())
             .collect();
         let names: Vec<String> = pick.iter().map(|&i| self.whole_names[i].clone()).collect();
-        let fit = regress_with(&Normal::of(&columns), &columns, rest, &names, &[0], min_z);
+        let fit = regress_with(
+            &Normal::of(&columns),
+            &columns,
+            rest,
+            &names,
+            &[0],
+            min_z,
+            None,
+        );
         let sg = (self_gradient && self.has_self_gradient).then(|| {
             [
                 fit.coefs[fit.coefs.len() - 2],
@@ -862,7 +1072,7 @@ mod tests {
             relative_attitude: None,
         };
         let s = Settings::at_rate(rate);
-        let design = Design::new(&d, false, None, &s);
+        let design = Design::new(&d, false, None, None, &s);
         let shared = fit_with(&design, &y, &d, None, &s).0;
         assert_eq!(shared, fit_series(&y, &d, false, &s).0);
         assert!((shared.kappa[0].value - 1e-5).abs() < 3.0 * shared.kappa[0].std_error + 1e-9);

@@ -66,6 +66,20 @@ pub struct PairEntry {
     /// Origin of the quadratic terms, sensor axes, m/s².
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub force_mean_m_s2: Option<[f64; 3]>,
+    /// Coefficients of the angular rate ωx ωy ωz, m/s² per rad/s: the trace the flight's gyro bias
+    /// left in the centrifugal correction. A record of the flight, never applied to another: a gyro's
+    /// bias changes from one switch-on to the next, so every flight fits its own.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub gyro_rate_m_s2_per_rad_s: Option<[f64; 3]>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub gyro_rate_se: Option<[f64; 3]>,
+    /// Coefficients, m, of the rotation terms αx αy αz (rad/s²) and (ΩΩ)xx xy xz yy yz zz
+    /// (rad²/s², ΩΩ = ωωᵀ − |ω|²I from the gyros): the pair's axis error against the gyros' frame,
+    /// times its baseline. An instrument's own, like κ.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rotation_coupling_m: Option<[f64; 9]>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rotation_coupling_se: Option<[f64; 9]>,
     /// RMS of the band-limited residual of the fit, m/s².
     #[serde(default)]
     pub band_residual_m_s2: f64,
@@ -106,6 +120,10 @@ impl PairEntry {
             quadratic_per_m_s2: c.quadratic.map(|q| q.map(|x| x.value)),
             quadratic_se: c.quadratic.map(|q| q.map(|x| x.std_error)),
             force_mean_m_s2: c.quadratic.map(|_| c.force_mean),
+            gyro_rate_m_s2_per_rad_s: c.gyro_rate.map(|w| v(&w)),
+            gyro_rate_se: c.gyro_rate.map(|w| e(&w)),
+            rotation_coupling_m: c.rotation_coupling.map(|r| r.map(|x| x.value)),
+            rotation_coupling_se: c.rotation_coupling.map(|r| r.map(|x| x.std_error)),
             band_residual_m_s2: c.band_residual_rms,
         }
     }
@@ -136,6 +154,12 @@ impl PairEntry {
                 std::array::from_fn(|m| coef(q[m], e[m]))
             }),
             force_mean: self.force_mean_m_s2.unwrap_or([0.0; 3]),
+            // The file's flight's gyro bias is not this flight's (see the field).
+            gyro_rate: None,
+            rotation_coupling: self.rotation_coupling_m.map(|r| {
+                let e = self.rotation_coupling_se.unwrap_or([f64::NAN; 9]);
+                std::array::from_fn(|m| coef(r[m], e[m]))
+            }),
             t_mid: self.t_mid_s,
             temperature_mean: self.temperature_mean_c,
             band_residual_rms: self.band_residual_m_s2,

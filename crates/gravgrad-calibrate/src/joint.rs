@@ -249,6 +249,36 @@ pub struct FlightCalibration {
     pub health: Health,
 }
 
+/// Block means of ΩΩ = ωωᵀ − |ω|²I's six components xx xy xz yy yz zz (rad²/s²) from the rates
+/// `omega` (rad/s) sample by sample, over blocks of `block` samples; each block summed in sample
+/// order.
+fn spin_block_means(omega: [&[f64]; 3], block: usize) -> [Vec<f64>; 6] {
+    let n = omega[0].len();
+    let span = block * 1024;
+    let parts: Vec<[Vec<f64>; 6]> = (0..n.div_ceil(span))
+        .into_par_iter()
+        .map(|q| {
+            let r = q * span..((q + 1) * span).min(n);
+            let terms: Vec<[f64; 9]> = r
+                .clone()
+                .map(|i| {
+                    crate::estimate::rotation_terms(
+                        [0.0; 3],
+                        [omega[0][i], omega[1][i], omega[2][i]],
+                    )
+                })
+                .collect();
+            std::array::from_fn(|c| {
+                let col: Vec<f64> = terms.iter().map(|t| t[3 + c]).collect();
+                let mut out = Vec::with_capacity(col.len().div_ceil(block));
+                push_block_means(&col, block, &mut out);
+                out
+            })
+        })
+        .collect();
+    std::array::from_fn(|c| parts.iter().flat_map(|p| p[c].iter().copied()).collect())
+}
+
 /// Block means of the six products (f_a − f0_a)(f_b − f0_b) of the force's deviations (m²/s⁴),
 /// over blocks of `block` samples, spans in parallel; each block summed in sample order.
 fn product_block_means(f: [&[f64]; 3], f0: [f64; 3], block: usize) -> [Vec<f64>; 6] {
@@ -321,6 +351,13 @@ pub fn estimate_from_blocks(
     // The block means of what the fits read: force, gyro α, time, temperature, relative attitude.
     let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
     let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
+    // The angular rate's block means: the regressors of the gyro bias's trace.
+    let wb: Vec<Vec<f64>> = d.samples.omega.iter().map(|v| mean(v)).collect();
+    // The rotation terms' block means (gyro α, then ΩΩ's six components from the rates sample by
+    // sample): the regressors of the pairs' axis errors.
+    let spin_b: Option<[Vec<f64>; 6]> = s
+        .rotation_coupling
+        .then(|| spin_block_means(d.samples.omega, blocks.block));
     let tb = mean(d.time);
     // The quadratic terms' regressors: block means of the products of the force's deviations from
     // its mean over the lines (products of block means would miss the power inside a block).
@@ -341,11 +378,11 @@ pub fn estimate_from_blocks(
         .usable
         .map(|u| u.chunks(block).map(|c| c.iter().all(|x| *x)).collect());
     // A series at block level with the regressors' block means (pair geometry not read by the fits
-    // or the corrections; the angular rate, at full rate, not read either).
+    // or the corrections).
     let block_series = |y| PairData {
         geometry: &pairs[0],
         difference: y,
-        omega: d.samples.omega,
+        omega: [&wb[0], &wb[1], &wb[2]],
         f: [&fb[0], &fb[1], &fb[2]],
         alpha: [&ab[0], &ab[1], &ab[2]],
         time: &tb,
@@ -413,8 +450,11 @@ pub fn estimate_from_blocks(
             zp
         })
         .collect();
+    // The gyro bias is fitted once for the instrument (below), not per row.
+    let fit_gyro_bias = s.gyro_rate;
     let settings_b = Settings {
         rate_hz: s.rate_hz / block as f64,
+        gyro_rate: false,
         ..s.clone()
     };
     let s = &settings_b;
@@ -440,7 +480,7 @@ pub fn estimate_from_blocks(
     // The fits' regressors (the force band-passed, the polynomial and temperature columns) and
     // their normal equations, formed once for all targets, beside the targets: −û_j (+ the gyro
     // prediction of its α content) and −r_p.
-    let (design, targets) = rayon::join(
+    let (design, mut targets) = rayon::join(
         || {
             // With a file, the flight refines what its own data see: coupling, quadratic and
             // temperature terms, bias and drift (the file's self-gradient is kept).
@@ -449,7 +489,26 @@ pub fn estimate_from_blocks(
             if fixed.is_some() {
                 series.relative_attitude = None;
             }
-            Some(Design::new(&series, false, products.map(|p| (p, f0)), s))
+            let rotation: Option<[&[f64]; 9]> = spin_b.as_ref().map(|sp| {
+                [
+                    &ab[0][..],
+                    &ab[1][..],
+                    &ab[2][..],
+                    &sp[0][..],
+                    &sp[1][..],
+                    &sp[2][..],
+                    &sp[3][..],
+                    &sp[4][..],
+                    &sp[5][..],
+                ]
+            });
+            Some(Design::new(
+                &series,
+                false,
+                products.map(|p| (p, f0)),
+                rotation,
+                s,
+            ))
         },
         || {
             // û_j = Σ_p P_jp·z_p, whole series at a time (vectorised), terms added in pair order.
@@ -489,6 +548,32 @@ pub fn estimate_from_blocks(
             targets
         },
     );
+    // The gyros' bias from the tensor rows, jointly; its trace taken off every unknown's target.
+    let gyro_bias = match design.as_ref() {
+        Some(g) if fit_gyro_bias => {
+            let mix: [[f64; 6]; 6] = std::array::from_fn(|j| std::array::from_fn(|i| pa[j][i]));
+            let gb = crate::gyro_bias::estimate(
+                g,
+                &targets,
+                &mix,
+                [&wb[0], &wb[1], &wb[2]],
+                s.min_significance,
+            );
+            let beta = gb.beta.map(|c| c.value);
+            if beta.iter().any(|b| *b != 0.0) {
+                for (j, t) in targets.iter_mut().enumerate().take(k) {
+                    for (i, tv) in t.iter_mut().enumerate() {
+                        let omega = [wb[0][i], wb[1][i], wb[2][i]];
+                        *tv += (0..6)
+                            .map(|r| pa[j][r] * crate::gyro_bias::trace_at(r, beta, omega))
+                            .sum::<f64>();
+                    }
+                }
+            }
+            Some(gb)
+        }
+        _ => None,
+    };
     // Fit each target: the full model, or bias and drift only.
     let products = if s.quadratic { pb.as_ref() } else { None };
     let fitted: Vec<Option<(PairCalibration, Vec<HeldTerm>)>> = targets
@@ -541,8 +626,25 @@ pub fn estimate_from_blocks(
         }
         _ => None,
     };
+    let mut notes: Vec<String> = crossing_note.into_iter().collect();
+    if let Some(gb) = &gyro_bias {
+        let shown: Vec<String> = gb
+            .beta
+            .iter()
+            .zip(crate::gyro_bias::NAMES)
+            .filter(|(c, _)| c.value != 0.0)
+            .map(|(c, name)| format!("{name} {:.2e} ± {:.1e} rad/s", c.value, c.std_error))
+            .collect();
+        if !shown.is_empty() {
+            notes.push(format!(
+                "the gyros' bias, from what it leaves in the centrifugal correction: {}; its \
+                 trace is taken off",
+                shown.join(", ")
+            ));
+        }
+    }
     let mut health = Health {
-        notes: crossing_note.into_iter().collect(),
+        notes,
         condition: design.as_ref().map_or([0.0; 2], Design::conditions),
         band_hz: s.band_hz,
         ..Health::default()
@@ -552,6 +654,13 @@ pub fn estimate_from_blocks(
             health
                 .held
                 .extend(held.iter().map(|h| (target_name(t), h.clone())));
+            if t == 0
+                && let Some(gb) = &gyro_bias
+            {
+                health
+                    .held
+                    .extend(gb.held.iter().map(|h| ("gyros".to_string(), h.clone())));
+            }
             if t < k {
                 health
                     .band_residual
@@ -604,6 +713,22 @@ pub fn estimate_from_blocks(
                     std::array::from_fn(|m| pick(&|c| c.quadratic.map(|q| q[m])).unwrap_or(zero))
                 }),
                 force_mean: f0,
+                gyro_rate: gyro_bias
+                    .as_ref()
+                    .and_then(|gb| crate::gyro_bias::pair_correction(&pairs[p], &gb.beta)),
+                // From the tensor rows and the pair's own residual row only: an α row's coefficient
+                // of the gyro α is the gyros' differentiated noise against the pairs', not an axis
+                // error, and would put that noise into the pair.
+                rotation_coupling: first.and_then(|c| c.rotation_coupling).map(|_| {
+                    std::array::from_fn(|m| {
+                        let v: Vec<(f64, Coefficient)> = (0..6)
+                            .filter_map(|j| fits[j].as_ref().map(|c| (a[p][j], c)))
+                            .chain(fits[k + p].as_ref().map(|c| (1.0, c)))
+                            .filter_map(|(w, c)| c.rotation_coupling.map(|r| (w, r[m])))
+                            .collect();
+                        if v.is_empty() { zero } else { combine(&v) }
+                    })
+                }),
                 self_gradient: {
                     let r = pick(&|c| c.self_gradient.map(|x| x[0]));
                     let q = pick(&|c| c.self_gradient.map(|x| x[1]));
@@ -886,6 +1011,13 @@ fn refine(file: &PairCalibration, delta: &PairCalibration) -> (PairCalibration, 
         }
         (f, None) => f,
     };
+    c.rotation_coupling = match (file.rotation_coupling, delta.rotation_coupling) {
+        (Some(f), Some(d)) => Some(std::array::from_fn(|m| posterior(f[m], d[m]))),
+        (None, Some(d)) => Some(d),
+        (f, None) => f,
+    };
+    // The flight's own gyro bias: the file holds none to refine (a gyro's bias is per switch-on).
+    c.gyro_rate = delta.gyro_rate;
     c.band_residual_rms = delta.band_residual_rms;
     (c, bias_shift)
 }
@@ -972,6 +1104,8 @@ mod tests {
             temperature: None,
             self_gradient: None,
             quadratic: None,
+            gyro_rate: None,
+            rotation_coupling: None,
             force_mean: [0.0; 3],
             t_mid: 0.0,
             temperature_mean: 0.0,

@@ -19,5 +19,6 @@ pub mod channels;
 pub mod crossings;
 pub mod estimate;
 pub mod file;
+pub mod gyro_bias;
 pub mod joint;
 pub mod stability;

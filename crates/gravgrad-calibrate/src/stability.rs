@@ -1,5 +1,6 @@
 //! Stability of a calibration between flights: how far each coefficient an instrument should keep
-//! (κ, the angular-acceleration terms, the temperature coefficient, the quadratic terms) moved from
+//! (κ, the angular-acceleration terms, the temperature coefficient, the quadratic terms, the axis
+//! errors' rotation terms) moved from
 //! one calibration to another, measured in standard errors of the difference,
 //!
 //! ```text
@@ -47,6 +48,11 @@ fn stable_terms(p: &PairEntry) -> Vec<(String, f64, f64)> {
     if let (Some(v), Some(e)) = (p.quadratic_per_m_s2, p.quadratic_se) {
         for k in 0..6 {
             out.push((format!("quadratic_per_m_s2[{k}]"), v[k], e[k]));
+        }
+    }
+    if let (Some(v), Some(e)) = (p.rotation_coupling_m, p.rotation_coupling_se) {
+        for k in 0..9 {
+            out.push((format!("rotation_coupling_m[{k}]"), v[k], e[k]));
         }
     }
     out
@@ -136,6 +142,10 @@ mod tests {
             quadratic_per_m_s2: None,
             quadratic_se: None,
             force_mean_m_s2: None,
+            gyro_rate_m_s2_per_rad_s: None,
+            gyro_rate_se: None,
+            rotation_coupling_m: None,
+            rotation_coupling_se: None,
             band_residual_m_s2: 0.0,
         }
     }

@@ -1,4 +1,4 @@
-//! The stored result of one flight's per-flight stages (layout `flight-result/1`, HDF5):
+//! The stored result of one flight's per-flight stages (layout `flight-result/2`, HDF5):
 //! `<out>/flights/<flight>.h5`, written by `gravgrad run RECIPE --flight NAME` and reused by a later
 //! `gravgrad run RECIPE` when its key still matches. Every number is stored as the bits the pipeline
 //! produced (no filters that could change them), so products made from a stored flight are the
@@ -17,8 +17,10 @@
 //! (rad/s²); group `calibration` with one subgroup per pair (in the instrument's order, named
 //! `NN-<id>`) holding `kappa`, `kappa_se` (dimensionless), `rotation`, `rotation_se` (m),
 //! `polynomial`, `polynomial_se` (m/s², m/s²/sᵏ), `scalars` (t_mid s, temperature mean °C, band
-//! residual RMS m/s²) and, when fitted, `temperature` (value, SE; m/s² per °C) and `self_gradient`
-//! (roll value, roll SE, pitch value, pitch SE; m/s² per rad).
+//! residual RMS m/s²) and, when fitted, `temperature` (value, SE; m/s² per °C), `self_gradient`
+//! (roll value, roll SE, pitch value, pitch SE; m/s² per rad), `quadratic`, `quadratic_se`
+//! ((m/s²)⁻¹) with `force_mean` (m/s²), `gyro_rate`, `gyro_rate_se` (m/s² per rad/s) and `rotation_coupling`, `rotation_coupling_se`
+//! (m).
 
 use crate::pipeline::{FlightResult, Positions};
 use crate::tables::write_atomic;
@@ -31,7 +33,7 @@ use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
 /// The layout string of the file.
-pub const LAYOUT: &str = "flight-result/1";
+pub const LAYOUT: &str = "flight-result/2";
 
 const COMPONENTS: [&str; 6] = ["xx", "xy", "xz", "yy", "yz", "zz"];
 
@@ -160,6 +162,16 @@ pub fn write(path: &Path, key: &str, name: &str, r: &FlightResult) -> Result<(),
             g.create_dataset("quadratic").with_f64_data(&values(&q));
             g.create_dataset("quadratic_se").with_f64_data(&errors(&q));
             g.create_dataset("force_mean").with_f64_data(&c.force_mean);
+        }
+        if let Some(r) = c.rotation_coupling {
+            g.create_dataset("rotation_coupling")
+                .with_f64_data(&values(&r));
+            g.create_dataset("rotation_coupling_se")
+                .with_f64_data(&errors(&r));
+        }
+        if let Some(w) = c.gyro_rate {
+            g.create_dataset("gyro_rate").with_f64_data(&values(&w));
+            g.create_dataset("gyro_rate_se").with_f64_data(&errors(&w));
         }
         if let Some([roll, pitch]) = c.self_gradient {
             g.create_dataset("self_gradient").with_f64_data(&[
@@ -425,6 +437,34 @@ fn read_pair(
             )));
         }
     };
+    let gyro_rate = match (get("gyro_rate")?, get("gyro_rate_se")?) {
+        (Some(v), Some(e)) if v.len() == 3 && e.len() == 3 => {
+            Some(std::array::from_fn(|m| Coefficient {
+                value: v[m],
+                std_error: e[m],
+            }))
+        }
+        (None, None) => None,
+        _ => {
+            return Err(at(format!(
+                "group `calibration/{name}`: `gyro_rate` and `gyro_rate_se` must hold 3 values each"
+            )));
+        }
+    };
+    let rotation_coupling = match (get("rotation_coupling")?, get("rotation_coupling_se")?) {
+        (Some(v), Some(e)) if v.len() == 9 && e.len() == 9 => {
+            Some(std::array::from_fn(|m| Coefficient {
+                value: v[m],
+                std_error: e[m],
+            }))
+        }
+        (None, None) => None,
+        _ => {
+            return Err(at(format!(
+                "group `calibration/{name}`: `rotation_coupling` and `rotation_coupling_se` must hold 9 values each"
+            )));
+        }
+    };
     let force_mean = match get("force_mean")? {
         Some(f) if f.len() == 3 => [f[0], f[1], f[2]],
         None => [0.0; 3],
@@ -439,6 +479,8 @@ fn read_pair(
         PairCalibration {
             quadratic,
             force_mean,
+            gyro_rate,
+            rotation_coupling,
             kappa: three(need("kappa", Some(3))?, need("kappa_se", Some(3))?),
             rotation: three(need("rotation", Some(3))?, need("rotation_se", Some(3))?),
             polynomial,

@@ -791,6 +791,8 @@ fn calibration_settings(
         rate_hz: rate,
         quadratic: c.quadratic,
         min_significance: c.min_significance,
+        gyro_rate: c.gyro_bias,
+        rotation_coupling: c.axis_errors,
     })
 }
 

@@ -356,7 +356,7 @@ fn calibration_truth(
         for (p, e) in sim.pairs.iter().zip(&f.pair_errors) {
             let q = e.quadratic;
             t.push_str(&format!(
-                "\n[[flight.pair]]\nid = {}\nkappa = [{:?}, {:?}, {:?}]\nbias_m_s2 = {:?}\ndrift_m_s2_per_s = {:?}\ntemperature_m_s2_per_c = {:?}\nquadratic = [{:?}, {:?}, {:?}, {:?}, {:?}, {:?}]\n",
+                "\n[[flight.pair]]\nid = {}\nkappa = [{:?}, {:?}, {:?}]\nbias_m_s2 = {:?}\ndrift_m_s2_per_s = {:?}\ntemperature_m_s2_per_c = {:?}\nquadratic = [{:?}, {:?}, {:?}, {:?}, {:?}, {:?}]\ncommon_axis = [{:?}, {:?}, {:?}]\n",
                 text(&p.id),
                 e.kappa[0],
                 e.kappa[1],
@@ -369,7 +369,10 @@ fn calibration_truth(
                 q[2],
                 q[3],
                 q[4],
-                q[5]
+                q[5],
+                e.common_axis[0],
+                e.common_axis[1],
+                e.common_axis[2]
             ));
         }
     }

@@ -123,6 +123,12 @@ pub struct Calibration {
     /// A coefficient is applied only when its estimate exceeds this many standard errors; below,
     /// it is held at its prior (the calibration file's value, else zero).
     pub min_significance: f64,
+    /// Also estimate, flight by flight, what the gyros' bias leaves in the centrifugal correction
+    /// (terms linear in the angular rate), where the data resolve it.
+    pub gyro_bias: bool,
+    /// Also estimate each pair's axis error against the gyros' frame (the pair's coupling to the
+    /// angular acceleration and the centripetal terms), where the data resolve it.
+    pub axis_errors: bool,
     /// Shortest wavelength of the geology, m: the band's low edge is raised, flight by flight, to
     /// the median line speed over this wavelength, so that the fit does not take geology for
     /// motion coupling. Absent: 4 × the median clearance over the lines when the log has a
@@ -140,6 +146,8 @@ impl Default for Calibration {
             drift_order: 1,
             quadratic: true,
             min_significance: 4.0,
+            gyro_bias: true,
+            axis_errors: true,
             geology_wavelength_m: None,
         }
     }

@@ -223,6 +223,10 @@ pub struct AccelerometerErrors {
 pub struct PairErrors {
     /// κ = (1 + ε_a)(n + δ_a) − (1 + ε_b)(n + δ_b), sensor frame, dimensionless.
     pub kappa: Vec3,
+    /// The pair's common-mode axis ((1 + ε_a)(n + δ_a) + (1 + ε_b)(n + δ_b))/2, sensor frame,
+    /// dimensionless: what the pair's mean output (a + b)/2 senses of the force. The pipeline's
+    /// force comes from these, so its κ is relative to them.
+    pub common_axis: Vec3,
     /// Δβ, m/s².
     pub bias: f64,
     /// Δβ̇, m/s² per second.
@@ -1009,6 +1013,10 @@ fn flight_log(
                 kappa: std::array::from_fn(|k| {
                     (1.0 + ea.scale) * (p.axis[k] + ea.misalignment[k])
                         - (1.0 + eb.scale) * (p.axis[k] + eb.misalignment[k])
+                }),
+                common_axis: std::array::from_fn(|k| {
+                    0.5 * ((1.0 + ea.scale) * (p.axis[k] + ea.misalignment[k])
+                        + (1.0 + eb.scale) * (p.axis[k] + eb.misalignment[k]))
                 }),
                 bias: ea.bias - eb.bias,
                 drift: ea.drift - eb.drift,
