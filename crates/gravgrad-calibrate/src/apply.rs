@@ -100,16 +100,41 @@ impl PairCalibration {
                 }
             }
         }
-        // The axis errors' rotation terms, sample by sample.
+        // The axis errors' rotation terms: only those applied, each across the span (the
+        // diagonal of ΩΩ as −(ω_b² + ω_c²), the off-diagonal as ω_a·ω_b).
         if let Some(dc) = self.rotation_coupling {
-            let dv = dc.map(|x| x.value);
-            for (k, o) in out.iter_mut().enumerate() {
-                let i = first + k;
-                let r = rotation_terms(
-                    [d.alpha[0][i], d.alpha[1][i], d.alpha[2][i]],
-                    [d.omega[0][i], d.omega[1][i], d.omega[2][i]],
-                );
-                *o -= dv.iter().zip(r).map(|(x, v)| x * v).sum::<f64>();
+            for (c, dv) in dc.iter().map(|x| x.value).enumerate() {
+                if dv == 0.0 {
+                    continue;
+                }
+                let w = |k: usize| &d.omega[k][r.clone()];
+                match c {
+                    0..=2 => {
+                        for (o, a) in out.iter_mut().zip(&d.alpha[c][r.clone()]) {
+                            *o -= dv * a;
+                        }
+                    }
+                    3 | 6 | 8 => {
+                        let (p, q) = match c {
+                            3 => (1, 2),
+                            6 => (0, 2),
+                            _ => (0, 1),
+                        };
+                        for ((o, a), b) in out.iter_mut().zip(w(p)).zip(w(q)) {
+                            *o += dv * (a * a + b * b);
+                        }
+                    }
+                    _ => {
+                        let (p, q) = match c {
+                            4 => (0, 1),
+                            5 => (0, 2),
+                            _ => (1, 2),
+                        };
+                        for ((o, a), b) in out.iter_mut().zip(w(p)).zip(w(q)) {
+                            *o -= dv * (a * b);
+                        }
+                    }
+                }
             }
         }
         // The gyro bias's trace: only the terms applied, each across the span.

@@ -117,7 +117,9 @@ pub struct PairCalibration {
     /// on a 0.2 m baseline that is 2e-8 m/s² (100 E) in a manoeuvre, and, since the yaw rate follows
     /// the lateral force in a turn, left out it leaks into the quadratic terms. On a survey line it
     /// is far smaller. Linear in R, so the coefficients of the solve's unknowns combine into each
-    /// pair's as κ's do (the G part, 1e-5 of the normal gradient, is left out).
+    /// pair's as κ's do. The instrument fit regresses on the block means of ΩΩ − G it forms anyway;
+    /// the correction applies ΩΩ alone: D·G (1e-5 of the normal gradient, about 0.03 E, nearly
+    /// constant along a line) is left to the bias.
     pub rotation_coupling: Option<[Coefficient; 9]>,
     /// Mid time of the flight, s (the polynomial's origin).
     pub t_mid: f64,

@@ -249,36 +249,6 @@ pub struct FlightCalibration {
     pub health: Health,
 }
 
-/// Block means of ΩΩ = ωωᵀ − |ω|²I's six components xx xy xz yy yz zz (rad²/s²) from the rates
-/// `omega` (rad/s) sample by sample, over blocks of `block` samples; each block summed in sample
-/// order.
-fn spin_block_means(omega: [&[f64]; 3], block: usize) -> [Vec<f64>; 6] {
-    let n = omega[0].len();
-    let span = block * 1024;
-    let parts: Vec<[Vec<f64>; 6]> = (0..n.div_ceil(span))
-        .into_par_iter()
-        .map(|q| {
-            let r = q * span..((q + 1) * span).min(n);
-            let terms: Vec<[f64; 9]> = r
-                .clone()
-                .map(|i| {
-                    crate::estimate::rotation_terms(
-                        [0.0; 3],
-                        [omega[0][i], omega[1][i], omega[2][i]],
-                    )
-                })
-                .collect();
-            std::array::from_fn(|c| {
-                let col: Vec<f64> = terms.iter().map(|t| t[3 + c]).collect();
-                let mut out = Vec::with_capacity(col.len().div_ceil(block));
-                push_block_means(&col, block, &mut out);
-                out
-            })
-        })
-        .collect();
-    std::array::from_fn(|c| parts.iter().flat_map(|p| p[c].iter().copied()).collect())
-}
-
 /// Block means of the six products (f_a − f0_a)(f_b − f0_b) of the force's deviations (m²/s⁴),
 /// over blocks of `block` samples, spans in parallel; each block summed in sample order.
 fn product_block_means(f: [&[f64]; 3], f0: [f64; 3], block: usize) -> [Vec<f64>; 6] {
@@ -353,11 +323,9 @@ pub fn estimate_from_blocks(
     let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
     // The angular rate's block means: the regressors of the gyro bias's trace.
     let wb: Vec<Vec<f64>> = d.samples.omega.iter().map(|v| mean(v)).collect();
-    // The rotation terms' block means (gyro α, then ΩΩ's six components from the rates sample by
-    // sample): the regressors of the pairs' axis errors.
-    let spin_b: Option<[Vec<f64>; 6]> = s
-        .rotation_coupling
-        .then(|| spin_block_means(d.samples.omega, blocks.block));
+    // The axis errors' regressors: the gyro α's block means, and M = ΩΩ − G's (formed already for
+    // the known part of every difference; the G part is m̄ᵀ·G·b, the normal gradient times 1e-5).
+    let use_rotation = s.rotation_coupling;
     let tb = mean(d.time);
     // The quadratic terms' regressors: block means of the products of the force's deviations from
     // its mean over the lines (products of block means would miss the power inside a block).
@@ -489,17 +457,17 @@ pub fn estimate_from_blocks(
             if fixed.is_some() {
                 series.relative_attitude = None;
             }
-            let rotation: Option<[&[f64]; 9]> = spin_b.as_ref().map(|sp| {
+            let rotation: Option<[&[f64]; 9]> = use_rotation.then(|| {
                 [
                     &ab[0][..],
                     &ab[1][..],
                     &ab[2][..],
-                    &sp[0][..],
-                    &sp[1][..],
-                    &sp[2][..],
-                    &sp[3][..],
-                    &sp[4][..],
-                    &sp[5][..],
+                    &m_b[0][..],
+                    &m_b[1][..],
+                    &m_b[2][..],
+                    &m_b[3][..],
+                    &m_b[4][..],
+                    &m_b[5][..],
                 ]
             });
             Some(Design::new(
