@@ -295,7 +295,10 @@ fn record(o: &Options, case: &(PathBuf, u64, Damage), r: &CaseReport, t: &mut Ta
         let _ = std::fs::copy(&case.0, o.keep.join(case.0.file_name().unwrap_or_default()));
     }
     if r.contained {
+        // The reader caught a third-party decoder's panic and reported it as a problem: located,
+        // but a check that should have refused the file first is missing.
         t.contained += 1;
+        fail(o, case, "a decoder panic, contained", t);
     }
     if r.panicked {
         t.panics += 1;
