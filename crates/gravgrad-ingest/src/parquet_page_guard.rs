@@ -53,7 +53,14 @@ impl GuardedPages {
     }
 
     /// Checks a version 1 data page's levels and, for BYTE_STREAM_SPLIT, its values.
-    fn check_v1(&self, buf: &[u8], n: u32, encoding: Encoding, def: Encoding, rep: Encoding) -> Result<()> {
+    fn check_v1(
+        &self,
+        buf: &[u8],
+        n: u32,
+        encoding: Encoding,
+        def: Encoding,
+        rep: Encoding,
+    ) -> Result<()> {
         let fail = |what: String| {
             ParquetError::General(format!(
                 "row group {}, page {}: {what}",
@@ -95,7 +102,12 @@ fn bit_width(max: i16) -> u32 {
 /// section's 4-byte length and data, or BIT_PACKED's ⌈n × width / 8⌉; an error when `buf` is
 /// shorter.
 #[allow(deprecated)] // BIT_PACKED is deprecated for new files but still read
-fn level_bytes(buf: &[u8], n: u32, max: i16, encoding: Encoding) -> std::result::Result<usize, String> {
+fn level_bytes(
+    buf: &[u8],
+    n: u32,
+    max: i16,
+    encoding: Encoding,
+) -> std::result::Result<usize, String> {
     let need = match encoding {
         Encoding::RLE => match buf.get(..4) {
             Some(b) => 4 + u32::from_le_bytes([b[0], b[1], b[2], b[3]]) as usize,
@@ -220,7 +232,13 @@ impl PageReader for GuardedPages {
             ..
         }) = &page
         {
-            self.check_v1(buf, *num_values, *encoding, *def_level_encoding, *rep_level_encoding)?;
+            self.check_v1(
+                buf,
+                *num_values,
+                *encoding,
+                *def_level_encoding,
+                *rep_level_encoding,
+            )?;
         }
         self.page += 1;
         Ok(page)
@@ -272,7 +290,10 @@ mod tests {
         assert_eq!(level_bytes(&[0; 5], 40, 1, Encoding::BIT_PACKED), Ok(5));
         assert!(level_bytes(&[0; 4], 40, 1, Encoding::BIT_PACKED).is_err());
         // RLE: the 4-byte length says 2 bytes follow.
-        assert_eq!(level_bytes(&[2, 0, 0, 0, 80, 1], 40, 1, Encoding::RLE), Ok(6));
+        assert_eq!(
+            level_bytes(&[2, 0, 0, 0, 80, 1], 40, 1, Encoding::RLE),
+            Ok(6)
+        );
         assert!(level_bytes(&[9, 0, 0, 0, 80, 1], 40, 1, Encoding::RLE).is_err());
     }
 }

@@ -635,11 +635,20 @@ mod tests {
         };
         assert_eq!(c.pos, 19);
         assert_eq!(
-            (h.kind, h.uncompressed, h.compressed, h.num_values, h.encoding),
+            (
+                h.kind,
+                h.uncompressed,
+                h.compressed,
+                h.num_values,
+                h.encoding
+            ),
             (Some(0), Some(320), Some(100), Some(40), Some(2))
         );
         // Cut inside the header: more bytes are asked for, not an error.
-        let mut c = Compact { b: &b[..10], pos: 0 };
+        let mut c = Compact {
+            b: &b[..10],
+            pos: 0,
+        };
         assert!(matches!(c.page_header(), Err(Short)));
     }
 

@@ -124,21 +124,19 @@ pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns
         .with_encoding_stats_as_mask(true)
         .build();
     let file = Arc::new(input.file);
-    let reader = match SerializedFileReader::new_with_options(
-        PositionalFile(file.clone(), size),
-        options,
-    ) {
-        Ok(r) => r,
-        Err(e) => {
-            return (
-                None,
-                vec![
-                    Problem::error(loc, format!("not a readable Parquet file: {e}"))
-                        .with_hint("check that the file is complete"),
-                ],
-            );
-        }
-    };
+    let reader =
+        match SerializedFileReader::new_with_options(PositionalFile(file.clone(), size), options) {
+            Ok(r) => r,
+            Err(e) => {
+                return (
+                    None,
+                    vec![
+                        Problem::error(loc, format!("not a readable Parquet file: {e}"))
+                            .with_hint("check that the file is complete"),
+                    ],
+                );
+            }
+        };
     let schema = reader.metadata().file_metadata().schema_descr_ptr();
     let header: Vec<String> = (0..schema.num_columns())
         .map(|i| schema.column(i).path().string())
@@ -335,7 +333,11 @@ fn read_column(
     index: usize,
     n_rows: usize,
 ) -> parquet::errors::Result<Vec<f64>> {
-    let descr = reader.metadata().file_metadata().schema_descr().column(index);
+    let descr = reader
+        .metadata()
+        .file_metadata()
+        .schema_descr()
+        .column(index);
     let max_def = descr.max_def_level();
     let mut out: Vec<f64> = Vec::with_capacity(n_rows);
     for rg in 0..reader.num_row_groups() {
