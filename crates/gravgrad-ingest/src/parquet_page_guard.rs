@@ -74,8 +74,10 @@ impl GuardedPages {
         let mut non_null = n as usize;
         if self.max_def > 0 {
             let len = level_bytes(&buf[offset..], n, self.max_def, def).map_err(fail)?;
-            let data = level_data(&buf[offset..offset + len], def);
-            non_null = count_level(data, n as usize, self.max_def, def);
+            if encoding == Encoding::BYTE_STREAM_SPLIT {
+                let data = level_data(&buf[offset..offset + len], def);
+                non_null = count_level(data, n as usize, self.max_def, def);
+            }
             offset += len;
         }
         if encoding == Encoding::BYTE_STREAM_SPLIT {

@@ -129,8 +129,8 @@ pub fn max_expansion(codec: Compression) -> Option<u64> {
     }
 }
 
-/// Checks the pages of column `column` in every row group of the file (`file`, `file_len` bytes)
-/// before the `parquet` crate reads them. The chunks are known to lie inside the file.
+/// Checks the pages of column `column` in every row group of `file` before the `parquet` crate
+/// reads them. The chunks are known to lie inside the file (checked with the footer).
 pub fn check_column(
     file: &File,
     meta: &ParquetMetaData,
@@ -339,7 +339,8 @@ fn check_sizes(
 fn check_dictionary(encoding: i64, dictionary_seen: bool) -> Result<(), String> {
     if matches!(encoding, PLAIN_DICTIONARY | RLE_DICTIONARY) && !dictionary_seen {
         return Err(format!(
-            "a data page of encoding {} and no dictionary page before it in the column chunk",
+            "a data page of encoding {} with no dictionary page before it; expected the column \
+             chunk's dictionary page first",
             encoding_name(encoding)
         ));
     }
@@ -439,7 +440,11 @@ fn read_header(file: &File, at: u64, left: u64) -> Result<(PageHeader, u64), Str
                     "the page header runs over {MAX_HEADER_BYTES} bytes; expected a few tens"
                 ));
             }
-            Err(Bad(what)) => return Err(format!("the page header is damaged: {what}")),
+            Err(Bad(what)) => {
+                return Err(format!(
+                    "the page header is damaged: {what}; expected a Thrift compact PageHeader"
+                ));
+            }
         }
     }
 }

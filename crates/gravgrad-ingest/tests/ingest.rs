@@ -856,7 +856,7 @@ mod parquet_pages {
             "fx",
             &[
                 "row group 0, page 1",
-                "RLE_DICTIONARY and no dictionary page before it",
+                "RLE_DICTIONARY with no dictionary page before it",
             ],
         );
     }
