@@ -7,10 +7,11 @@
 //! (`/proc/self/clear_refs`, value 5) and after it reports the peak (`VmHWM` of
 //! `/proc/self/status`) above the resident size at the case's start, plus the child's resident
 //! size before its first case (the baseline), and the time taken. The parent counts, per format: cases read, cases
-//! refused with problems, problems not located at the file, panics (and panics of a third-party
-//! decoder the reader contained and reported as a problem), aborts or kills, cases over
-//! the time limit, and cases whose peak resident size exceeds twice the file plus the fixed
-//! allowance; it prints the worst peak and the worst time, and keeps every failing case's file.
+//! refused with problems, problems not located at the file, panics, panics of a third-party
+//! decoder the reader contained and reported as a problem (counted apart, and failures too: the
+//! reader's checks should have refused the file first), aborts or kills, cases over the time
+//! limit, and cases whose peak resident size exceeds twice the file plus the fixed allowance; it
+//! prints the worst peak and the worst time, and keeps every failing case's file.
 
 use gravgrad_ingest::mutate::{BinaryFormat, Damage, Rng, mutate, read_as};
 use std::io::{BufRead, BufReader, Write};
@@ -295,7 +296,10 @@ fn record(o: &Options, case: &(PathBuf, u64, Damage), r: &CaseReport, t: &mut Ta
         let _ = std::fs::copy(&case.0, o.keep.join(case.0.file_name().unwrap_or_default()));
     }
     if r.contained {
+        // The reader caught a third-party decoder's panic and reported it as a problem: located,
+        // but a check that should have refused the file first is missing.
         t.contained += 1;
+        fail(o, case, "a decoder panic, contained", t);
     }
     if r.panicked {
         t.panics += 1;

@@ -38,6 +38,14 @@ pub const MAX_WHOLE_FILE_BYTES: u64 = 1 << 30;
 /// stored size once decoded; 20,000 row groups of 18 columns written by pyarrow have a 39 MB footer.
 pub const MAX_PARQUET_FOOTER_BYTES: u64 = 64 << 20;
 
+/// Largest Parquet page a flight log may declare, decompressed: 288 MiB (9 × [`MAX_FLIGHT_ROWS`]
+/// bytes). The largest page a log inside the limits can need holds a whole column of
+/// [`MAX_FLIGHT_ROWS`] 8-byte values in one page (writers cut pages at about 1 MiB; a writer that
+/// does not cut them writes one page per column chunk), plus its definition levels at less than a
+/// byte per value. The `parquet` crate reserves a page's declared size before decompressing it; a
+/// page header may declare up to 2 GiB.
+pub const MAX_PARQUET_PAGE_BYTES: u64 = 9 * MAX_FLIGHT_ROWS;
+
 /// Largest TOML file read (recipes, instrument files, calibration files): 16 MiB.
 pub const MAX_TEXT_FILE_BYTES: u64 = 16 << 20;
 

@@ -23,6 +23,8 @@ pub mod layout;
 pub mod mutate;
 pub mod navmerge;
 mod parquet_footer;
+mod parquet_page_guard;
+mod parquet_pages;
 pub mod parquet_reader;
 pub mod plan;
 pub mod read;

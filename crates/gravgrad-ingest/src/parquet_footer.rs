@@ -11,20 +11,20 @@
 /// Deepest nesting of structs, lists and maps walked (a flat log's footer nests about 6 deep).
 pub const MAX_DEPTH: usize = 64;
 
-/// Thrift compact type codes.
-const STOP: u8 = 0;
-const BOOL_TRUE: u8 = 1;
-const BOOL_FALSE: u8 = 2;
-const BYTE: u8 = 3;
-const I16: u8 = 4;
-const I32: u8 = 5;
-const I64: u8 = 6;
-const DOUBLE: u8 = 7;
-const BINARY: u8 = 8;
-const LIST: u8 = 9;
-const SET: u8 = 10;
-const MAP: u8 = 11;
-const STRUCT: u8 = 12;
+/// Thrift compact type codes (also read by [`crate::parquet_pages`]).
+pub(crate) const STOP: u8 = 0;
+pub(crate) const BOOL_TRUE: u8 = 1;
+pub(crate) const BOOL_FALSE: u8 = 2;
+pub(crate) const BYTE: u8 = 3;
+pub(crate) const I16: u8 = 4;
+pub(crate) const I32: u8 = 5;
+pub(crate) const I64: u8 = 6;
+pub(crate) const DOUBLE: u8 = 7;
+pub(crate) const BINARY: u8 = 8;
+pub(crate) const LIST: u8 = 9;
+pub(crate) const SET: u8 = 10;
+pub(crate) const MAP: u8 = 11;
+pub(crate) const STRUCT: u8 = 12;
 
 struct Walk<'a> {
     b: &'a [u8],

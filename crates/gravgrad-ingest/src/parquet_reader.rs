@@ -8,6 +8,8 @@
 use crate::columns::{self, Expectation, ReadPlan};
 use crate::csv::RawColumns;
 use crate::input_file::open_regular;
+use crate::parquet_page_guard::GuardedPages;
+use crate::parquet_pages::{self, ColumnShape};
 use bytes::Bytes;
 use gravgrad_core::limits::{
     MAX_FLIGHT_ROWS, MAX_FLIGHT_VALUES, MAX_LOG_EXPANSION, MAX_PARQUET_FOOTER_BYTES,
@@ -15,8 +17,8 @@ use gravgrad_core::limits::{
 };
 use gravgrad_core::{Location, Problem};
 use parquet::basic::Type as PhysicalType;
-use parquet::column::reader::{ColumnReader, ColumnReaderImpl};
-use parquet::data_type::DataType;
+use parquet::column::reader::ColumnReaderImpl;
+use parquet::data_type::{DataType, DoubleType, FloatType, Int32Type, Int64Type};
 use parquet::file::metadata::ParquetStatisticsPolicy;
 use parquet::file::reader::{ChunkReader, FileReader, Length, SerializedFileReader};
 use parquet::file::serialized_reader::ReadOptionsBuilder;
@@ -121,21 +123,20 @@ pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns
         .with_encoding_stats_policy(ParquetStatisticsPolicy::SkipAll)
         .with_encoding_stats_as_mask(true)
         .build();
-    let reader = match SerializedFileReader::new_with_options(
-        PositionalFile(Arc::new(input.file), size),
-        options,
-    ) {
-        Ok(r) => r,
-        Err(e) => {
-            return (
-                None,
-                vec![
-                    Problem::error(loc, format!("not a readable Parquet file: {e}"))
-                        .with_hint("check that the file is complete"),
-                ],
-            );
-        }
-    };
+    let file = Arc::new(input.file);
+    let reader =
+        match SerializedFileReader::new_with_options(PositionalFile(file.clone(), size), options) {
+            Ok(r) => r,
+            Err(e) => {
+                return (
+                    None,
+                    vec![
+                        Problem::error(loc, format!("not a readable Parquet file: {e}"))
+                            .with_hint("check that the file is complete"),
+                    ],
+                );
+            }
+        };
     let schema = reader.metadata().file_metadata().schema_descr_ptr();
     let header: Vec<String> = (0..schema.num_columns())
         .map(|i| schema.column(i).path().string())
@@ -167,10 +168,16 @@ pub fn read_parquet(path: &Path, expect: &Expectation<'_>) -> (Option<RawColumns
                         .with_hint("write the channel as a floating-point column"));
                 }
             }
-            // The `parquet` crate's decoders index some damaged pages out of bounds (seen with a
-            // page whose encoding byte was flipped to BYTE_STREAM_SPLIT, docs/reliability.md):
-            // such a panic is contained here and reported as this column's error.
-            let decoded = contained(|| read_column(&reader, slot.index, col.max_def_level(), n_rows));
+            // The page headers are checked before the crate reads the chunks, the pages' levels
+            // and BYTE_STREAM_SPLIT values as it decodes them ([`GuardedPages`]): the panics of its
+            // decoders on damaged pages (docs/reliability.md) are prevented. One the checks missed
+            // would still be contained here and reported as this column's error.
+            let shape = ColumnShape::new(col.physical_type(), col.max_def_level(), col.max_rep_level());
+            if let Err(fault) = parquet_pages::check_column(&file, reader.metadata(), slot.index, shape) {
+                return Err(Problem::error(cloc, format!("cannot decode: {fault}"))
+                    .with_hint("the file is damaged or was not fully written"));
+            }
+            let decoded = contained(|| read_column(&reader, slot.index, n_rows));
             match decoded {
                 Ok(r) => r.map_err(|e| Problem::error(cloc, format!("cannot decode: {e}"))),
                 Err(_) => Err(Problem::error(
@@ -320,21 +327,49 @@ fn declared_rows(
     usize::try_from(footer_rows).map_err(|_| refuse(format!("{footer_rows} rows")))
 }
 
+/// Reads column `index` of every row group, its data pages checked as the crate decodes them.
 fn read_column(
     reader: &SerializedFileReader<PositionalFile>,
     index: usize,
-    max_def: i16,
     n_rows: usize,
 ) -> parquet::errors::Result<Vec<f64>> {
+    let descr = reader
+        .metadata()
+        .file_metadata()
+        .schema_descr()
+        .column(index);
+    let max_def = descr.max_def_level();
     let mut out: Vec<f64> = Vec::with_capacity(n_rows);
     for rg in 0..reader.num_row_groups() {
         let group = reader.get_row_group(rg)?;
         let rows = group.metadata().num_rows().max(0) as usize;
-        match group.get_column_reader(index)? {
-            ColumnReader::DoubleColumnReader(r) => drain_f64(r, rows, max_def, &mut out)?,
-            ColumnReader::FloatColumnReader(r) => drain(r, rows, max_def, &mut out, f64::from)?,
-            ColumnReader::Int32ColumnReader(r) => drain(r, rows, max_def, &mut out, f64::from)?,
-            ColumnReader::Int64ColumnReader(r) => drain(r, rows, max_def, &mut out, |v| v as f64)?,
+        let pages = |width: usize| -> parquet::errors::Result<Box<GuardedPages>> {
+            Ok(Box::new(GuardedPages::new(
+                group.get_column_page_reader(index)?,
+                width,
+                max_def,
+                descr.max_rep_level(),
+                rg,
+            )))
+        };
+        let d = descr.clone();
+        match descr.physical_type() {
+            PhysicalType::DOUBLE => {
+                let r = ColumnReaderImpl::<DoubleType>::new(d, pages(8)?);
+                drain_f64(r, rows, max_def, &mut out)?
+            }
+            PhysicalType::FLOAT => {
+                let r = ColumnReaderImpl::<FloatType>::new(d, pages(4)?);
+                drain(r, rows, max_def, &mut out, f64::from)?
+            }
+            PhysicalType::INT32 => {
+                let r = ColumnReaderImpl::<Int32Type>::new(d, pages(4)?);
+                drain(r, rows, max_def, &mut out, f64::from)?
+            }
+            PhysicalType::INT64 => {
+                let r = ColumnReaderImpl::<Int64Type>::new(d, pages(8)?);
+                drain(r, rows, max_def, &mut out, |v| v as f64)?
+            }
             _ => {
                 return Err(parquet::errors::ParquetError::General(
                     "not a numeric column".into(),

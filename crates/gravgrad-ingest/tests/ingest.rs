@@ -587,6 +587,376 @@ mod declared_sizes {
 /// The fixed-seed share of the mutation tests (the long run: `xtask mutate`,
 /// docs/reliability.md): mutated copies of valid Parquet, HDF5, GeoTIFF and NetCDF files are read
 /// in process; none may panic, and every problem must be located at the file.
+/// The pages of a Parquet column chunk, checked before the `parquet` crate decodes them
+/// (`gravgrad_ingest::parquet_pages`, docs/reliability.md): each damage below, made by patching a
+/// page header of a file the crate's writer wrote, is refused with an error naming the file, the
+/// column, the row group and the page; the ones that make the crate panic on its own are shown to.
+mod parquet_pages {
+    use gravgrad_core::Problem;
+    use gravgrad_ingest::columns::Expectation;
+    use gravgrad_ingest::mutate::patch_parquet_footer_count;
+    use gravgrad_ingest::read::read_flight_file;
+    use parquet::basic::{Compression, Encoding};
+    use parquet::column::reader::ColumnReader;
+    use parquet::data_type::DoubleType;
+    use parquet::file::properties::WriterProperties;
+    use parquet::file::reader::{FileReader, SerializedFileReader};
+    use parquet::file::writer::SerializedFileWriter;
+    use parquet::schema::parser::parse_message_type;
+    use parquet::schema::types::ColumnPath;
+    use std::sync::Arc;
+
+    const ROWS: usize = 40;
+    const ONLY: [&str; 4] = ["time", "fx", "fy", "fz"];
+
+    /// A log of 40 rows, columns `time fx fy fz` (fz last), `optional` or `required`, written by
+    /// the crate with `props`. fx and fy take four values, so that a dictionary encodes them.
+    fn log(repetition: &str, props: WriterProperties) -> Vec<u8> {
+        let schema = Arc::new(
+            parse_message_type(&format!(
+                "message f {{ {r} double time; {r} double fx; {r} double fy; {r} double fz; }}",
+                r = repetition
+            ))
+            .unwrap(),
+        );
+        let mut out = Vec::new();
+        let mut w = SerializedFileWriter::new(&mut out, schema, Arc::new(props)).unwrap();
+        let mut rg = w.next_row_group().unwrap();
+        let mut c = 0;
+        while let Some(mut col) = rg.next_column().unwrap() {
+            let v: Vec<f64> = (0..ROWS)
+                .map(|i| match c {
+                    0 => i as f64 * 0.1,
+                    1 | 2 => (i % 4) as f64,
+                    _ => 9.81 + i as f64 * 1e-3,
+                })
+                .collect();
+            let defs = [1i16; ROWS];
+            let defs = (repetition == "optional").then_some(&defs[..]);
+            col.typed::<DoubleType>()
+                .write_batch(&v, defs, None)
+                .unwrap();
+            col.close().unwrap();
+            c += 1;
+        }
+        rg.close().unwrap();
+        w.close().unwrap();
+        out
+    }
+
+    /// The byte where `column`'s first page (`dictionary`) or first data page starts.
+    fn page_at(bytes: &[u8], column: usize, dictionary: bool) -> usize {
+        let r = SerializedFileReader::new(bytes::Bytes::from(bytes.to_vec())).unwrap();
+        let cc = r.metadata().row_group(0).column(column);
+        let at = if dictionary {
+            cc.dictionary_page_offset().unwrap()
+        } else {
+            cc.data_page_offset()
+        };
+        at as usize
+    }
+
+    /// The i32 fields of the page header at `at`, in order, as (offset, length, value) of their
+    /// zigzag varints: type, uncompressed_page_size, compressed_page_size, then the inner header's
+    /// num_values and encoding (Thrift compact protocol: field header 0x15 is an i32 one id on,
+    /// 0x?c a struct; the crate writes no crc).
+    fn header_fields(b: &[u8], at: usize) -> Vec<(usize, usize, i64)> {
+        let mut out = Vec::new();
+        let mut p = at;
+        while out.len() < 5 {
+            let h = b[p];
+            p += 1;
+            match h & 0x0f {
+                5 => {
+                    let (mut v, mut n) = (0u64, 0);
+                    while b[p + n] & 0x80 != 0 {
+                        v |= u64::from(b[p + n] & 0x7f) << (7 * n);
+                        n += 1;
+                    }
+                    v |= u64::from(b[p + n]) << (7 * n);
+                    out.push((p, n + 1, (v >> 1) as i64 ^ -((v & 1) as i64)));
+                    p += n + 1;
+                }
+                12 => {}
+                t => panic!("unexpected Thrift type {t} at byte {p}"),
+            }
+        }
+        out
+    }
+
+    fn zigzag_varint(v: i64) -> Vec<u8> {
+        let mut z = ((v << 1) ^ (v >> 63)) as u64;
+        let mut out = Vec::new();
+        while z >= 0x80 {
+            out.push((z as u8 & 0x7f) | 0x80);
+            z >>= 7;
+        }
+        out.push(z as u8);
+        out
+    }
+
+    /// `bytes` with header field `field` ([`header_fields`]) of the page at `at` set to `value`,
+    /// the varint keeping its length.
+    fn set_field(bytes: &[u8], at: usize, field: usize, value: i64) -> Vec<u8> {
+        let (p, n, _) = header_fields(bytes, at)[field];
+        let enc = zigzag_varint(value);
+        assert_eq!(enc.len(), n, "{value} does not fit the field's {n} bytes");
+        let mut out = bytes.to_vec();
+        out[p..p + n].copy_from_slice(&enc);
+        out
+    }
+
+    /// `bytes` with header field `field` of the last column's (fz) data page set to `value`, the
+    /// varint longer than before: the chunk's total_compressed_size in the footer grows with it.
+    fn grow_field_of_last_page(bytes: &[u8], field: usize, value: i64) -> Vec<u8> {
+        let at = page_at(bytes, 3, false);
+        let (p, n, _) = header_fields(bytes, at)[field];
+        let enc = zigzag_varint(value);
+        let grown = (enc.len() - n) as i64;
+        let mut out = bytes.to_vec();
+        out.splice(p..p + n, enc);
+        let r = SerializedFileReader::new(bytes::Bytes::from(bytes.to_vec())).unwrap();
+        let size = r.metadata().row_group(0).column(3).compressed_size();
+        for k in 0.. {
+            let patched = patch_parquet_footer_count(&out, size, size + grown, k)
+                .expect("the chunk's size is in the footer");
+            let r = SerializedFileReader::new(bytes::Bytes::from(patched.clone())).unwrap();
+            if r.metadata().row_group(0).column(3).compressed_size() == size + grown {
+                return patched;
+            }
+        }
+        unreachable!()
+    }
+
+    /// Writes `bytes` and reads them as a flight log: exactly one error, at `column` of the file,
+    /// whose message holds every one of `words`, and no contained panic.
+    fn refused(bytes: &[u8], column: &str, words: &[&str]) {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("f.parquet");
+        std::fs::write(&path, bytes).unwrap();
+        let expect = Expectation {
+            only: Some(&ONLY),
+            ..Expectation::default()
+        };
+        let out = read_flight_file(&path, &expect);
+        assert!(out.flights.is_empty());
+        let errors: Vec<&Problem> = out.problems.iter().filter(|p| p.is_error()).collect();
+        assert_eq!(errors.len(), 1, "{:?}", out.problems);
+        let e = errors[0];
+        assert_eq!(e.location.file.as_deref(), Some(path.as_path()));
+        assert_eq!(e.location.column.as_deref(), Some(column));
+        assert!(!e.message.contains("panicked"), "{}", e.message);
+        for w in words {
+            assert!(e.message.contains(w), "{w:?} not in {}", e.message);
+        }
+    }
+
+    /// Whether the crate alone, reading column `column` of `bytes` the plain way, panics.
+    fn crate_alone_panics(bytes: &[u8], column: usize) -> bool {
+        let r = SerializedFileReader::new(bytes::Bytes::from(bytes.to_vec())).unwrap();
+        std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+            let rg = r.get_row_group(0).unwrap();
+            let ColumnReader::DoubleColumnReader(mut c) = rg.get_column_reader(column).unwrap()
+            else {
+                unreachable!()
+            };
+            let (mut vals, mut defs) = (Vec::new(), Vec::new());
+            let _ = c.read_records(ROWS, Some(&mut defs), None, &mut vals);
+        }))
+        .is_err()
+    }
+
+    fn dictionary_props() -> WriterProperties {
+        WriterProperties::builder()
+            .set_compression(Compression::UNCOMPRESSED)
+            .build()
+    }
+
+    #[test]
+    fn valid_logs_of_each_page_kind_are_read() {
+        let v2 = parquet::file::properties::WriterVersion::PARQUET_2_0;
+        let fx = ColumnPath::from("fx");
+        for repetition in ["required", "optional"] {
+            for props in [
+                dictionary_props(),
+                WriterProperties::builder()
+                    .set_compression(Compression::SNAPPY)
+                    .set_writer_version(v2)
+                    .build(),
+                WriterProperties::builder()
+                    .set_compression(Compression::ZSTD(Default::default()))
+                    .set_column_dictionary_enabled(fx.clone(), false)
+                    .set_column_encoding(fx.clone(), Encoding::BYTE_STREAM_SPLIT)
+                    .build(),
+            ] {
+                let bytes = log(repetition, props);
+                let dir = tempfile::tempdir().unwrap();
+                let path = dir.path().join("f.parquet");
+                std::fs::write(&path, &bytes).unwrap();
+                let expect = Expectation {
+                    only: Some(&ONLY),
+                    ..Expectation::default()
+                };
+                let out = read_flight_file(&path, &expect);
+                assert!(out.problems.is_empty(), "{:?}", out.problems);
+                let t = &out.flights[0].table;
+                assert_eq!(t.get("fx").unwrap()[7], 3.0);
+            }
+        }
+    }
+
+    #[test]
+    fn parquet_required_page_flipped_to_byte_stream_split_is_refused_before_decoding() {
+        // fx's data page holds 40 dictionary indices in a few bytes; as BYTE_STREAM_SPLIT its 40
+        // values need 320.
+        let bytes = log("required", dictionary_props());
+        let at = page_at(&bytes, 1, false);
+        assert_eq!(header_fields(&bytes, at)[4].2, 8, "RLE_DICTIONARY");
+        let bad = set_field(&bytes, at, 4, 9);
+        assert!(crate_alone_panics(&bad, 1));
+        refused(
+            &bad,
+            "fx",
+            &[
+                "row group 0, page 1",
+                "40 values of encoding BYTE_STREAM_SPLIT need 320 bytes",
+            ],
+        );
+    }
+
+    #[test]
+    fn parquet_optional_page_flipped_to_byte_stream_split_is_refused_as_it_is_decoded() {
+        // The same with definition levels before the values: only the decoded page tells how many
+        // values are not null (the case `xtask mutate` found in pyarrow's files).
+        let bytes = log("optional", dictionary_props());
+        let at = page_at(&bytes, 1, false);
+        let bad = set_field(&bytes, at, 4, 9);
+        assert!(crate_alone_panics(&bad, 1));
+        refused(
+            &bad,
+            "fx",
+            &[
+                "row group 0, page 1",
+                "40 non-null values of encoding BYTE_STREAM_SPLIT need 320 bytes",
+            ],
+        );
+    }
+
+    #[test]
+    fn parquet_dictionary_encoded_page_without_its_dictionary_is_refused() {
+        // fx's dictionary page retyped INDEX_PAGE (which readers skip): its data page is
+        // dictionary-encoded with no dictionary before it.
+        let bytes = log("required", dictionary_props());
+        let at = page_at(&bytes, 1, true);
+        assert_eq!(header_fields(&bytes, at)[0].2, 2, "DICTIONARY_PAGE");
+        let bad = set_field(&bytes, at, 0, 1);
+        assert!(crate_alone_panics(&bad, 1));
+        refused(
+            &bad,
+            "fx",
+            &[
+                "row group 0, page 1",
+                "RLE_DICTIONARY with no dictionary page before it",
+            ],
+        );
+    }
+
+    #[test]
+    fn parquet_page_declaring_2_gib_is_refused_before_reserving_it() {
+        let bytes = log("required", dictionary_props());
+        let bad = grow_field_of_last_page(&bytes, 1, i32::MAX.into());
+        refused(
+            &bad,
+            "fz",
+            &[
+                "row group 0, page 1",
+                "uncompressed_page_size is 2147483647 bytes",
+                "at most 301989888",
+            ],
+        );
+    }
+
+    #[test]
+    fn parquet_page_declaring_more_than_its_codec_can_expand_is_refused() {
+        // fz (no dictionary: 40 distinct values, PLAIN) compressed with SNAPPY: 64 MiB declared
+        // for a page of a few hundred bytes, under the page limit but over 22 times the page.
+        let props = WriterProperties::builder()
+            .set_compression(Compression::SNAPPY)
+            .set_column_dictionary_enabled(ColumnPath::from("fz"), false)
+            .build();
+        let bytes = log("required", props);
+        let at = page_at(&bytes, 3, false);
+        let compressed = header_fields(&bytes, at)[2].2;
+        let bad = grow_field_of_last_page(&bytes, 1, 64 << 20);
+        refused(
+            &bad,
+            "fz",
+            &[
+                "row group 0, page 0",
+                "uncompressed_page_size is 67108864 bytes",
+                &format!(
+                    "SNAPPY expands the page's {compressed} bytes to at most {}",
+                    22 * compressed
+                ),
+            ],
+        );
+    }
+
+    #[test]
+    fn parquet_page_running_past_its_chunk_is_refused() {
+        let bytes = log("required", dictionary_props());
+        let at = page_at(&bytes, 1, false);
+        let [_, (_, _, unc), (_, n, comp), ..] = header_fields(&bytes, at)[..] else {
+            unreachable!()
+        };
+        assert_eq!(unc, comp);
+        // One more byte than the page: into the next chunk. Both sizes, so that the codec's
+        // bound holds.
+        let bad = set_field(&set_field(&bytes, at, 1, comp + 1), at, 2, comp + 1);
+        assert_eq!(header_fields(&bad, at)[2].1, n);
+        refused(
+            &bad,
+            "fx",
+            &[
+                "row group 0, page 1",
+                &format!(
+                    "compressed_page_size is {} bytes; expected 0 to {comp}",
+                    comp + 1
+                ),
+            ],
+        );
+    }
+
+    #[test]
+    fn parquet_pages_holding_fewer_values_than_their_chunk_are_refused() {
+        let bytes = log("required", dictionary_props());
+        let at = page_at(&bytes, 1, false);
+        assert_eq!(header_fields(&bytes, at)[3].2, 40);
+        let bad = set_field(&bytes, at, 3, 39);
+        refused(
+            &bad,
+            "fx",
+            &["the chunk's data pages hold 39 values, its footer entry declares 40"],
+        );
+    }
+
+    #[test]
+    fn parquet_uncompressed_page_of_two_sizes_is_refused() {
+        let bytes = log("required", dictionary_props());
+        let at = page_at(&bytes, 1, false);
+        let unc = header_fields(&bytes, at)[1].2;
+        let bad = set_field(&bytes, at, 1, unc - 1);
+        refused(
+            &bad,
+            "fx",
+            &[&format!(
+                "uncompressed_page_size is {} bytes, compressed_page_size {unc}",
+                unc - 1
+            )],
+        );
+    }
+}
+
 mod mutation {
     use gravgrad_ingest::mutate::{BinaryFormat, Rng, mutate, read_as};
     use std::path::PathBuf;
