@@ -1034,7 +1034,8 @@ mod big_dem_windows {
             }
         }
         // (name, dimension ids, attributes, type, bytes)
-        let vars: [(&str, &[u32], &[(&str, &str)], u32, u64); 4] = [
+        type Var<'a> = (&'a str, &'a [u32], &'a [(&'a str, &'a str)], u32, u64);
+        let vars: [Var; 4] = [
             ("crs", &[], &[("epsg_code", "EPSG:32753")], 4, 4),
             (
                 "x",
