@@ -346,6 +346,228 @@ fn terrain_command_fast_engine_agrees_with_the_exact_sum_and_locates_bad_points(
     assert!(err.contains("row 3") && err.contains("`height`"), "{err}");
 }
 
+/// A terrain model of 8400 × 8000 cells of 30 m (past the 2^26 cells a whole read may hold) as a
+/// classic (CDF-2) NetCDF file, `elevation(y, x)` int16 with y running south to north, sparse on
+/// disk: only the cells of `rows` × `cols` (north-up) hold `height`, the rest is a hole read as
+/// 0 m. With `copy`, the same cells are also written alone, by our writer, as a small file.
+mod big_dem {
+    use std::ops::Range;
+    use std::os::unix::fs::FileExt;
+    use std::path::Path;
+
+    pub const W: usize = 8400;
+    pub const H: usize = 8000;
+    pub const CELL: f64 = 30.0;
+    /// The outer north-west corner, EPSG:32753 (m).
+    pub const X0: f64 = 400_000.0;
+    pub const Y0: f64 = 7_400_000.0;
+
+    /// The invented terrain at (`col`, `row`), m: a hill on a plane, different in every cell.
+    pub fn height(col: usize, row: usize) -> i16 {
+        let (dx, dy) = (col as f64 - 4200.0, row as f64 - 4000.0);
+        (150.0 + 0.1 * col as f64 + 400.0 * (-(dx * dx + dy * dy) / 20_000.0).exp()) as i16
+    }
+
+    fn x(c: usize) -> f64 {
+        X0 + (c as f64 + 0.5) * CELL
+    }
+    /// The centre of file row `j` (south to north).
+    fn y(j: usize) -> f64 {
+        Y0 - H as f64 * CELL + (j as f64 + 0.5) * CELL
+    }
+
+    fn name(out: &mut Vec<u8>, n: &str) {
+        out.extend((n.len() as u32).to_be_bytes());
+        out.extend(n.as_bytes());
+        out.resize(out.len().next_multiple_of(4), 0);
+    }
+
+    pub fn write(big: &Path, rows: Range<usize>, cols: Range<usize>, copy: Option<&Path>) {
+        type Var<'a> = (&'a str, &'a [u32], &'a [(&'a str, &'a str)], u32, u64);
+        let vars: [Var; 4] = [
+            ("crs", &[], &[("epsg_code", "EPSG:32753")], 4, 4),
+            ("x", &[1], &[("units", "m"), ("axis", "X")], 6, W as u64 * 8),
+            ("y", &[0], &[("units", "m"), ("axis", "Y")], 6, H as u64 * 8),
+            (
+                "elevation",
+                &[0, 1],
+                &[("units", "m"), ("grid_mapping", "crs")],
+                3,
+                (W * H * 2) as u64,
+            ),
+        ];
+        let header = |begins: &[u64]| {
+            let mut h = b"CDF\x02".to_vec();
+            h.extend(0u32.to_be_bytes());
+            h.extend(10u32.to_be_bytes());
+            h.extend(2u32.to_be_bytes());
+            name(&mut h, "y");
+            h.extend((H as u32).to_be_bytes());
+            name(&mut h, "x");
+            h.extend((W as u32).to_be_bytes());
+            h.extend([0u8; 8]);
+            h.extend(11u32.to_be_bytes());
+            h.extend(4u32.to_be_bytes());
+            for (k, (n, dims, attrs, t, bytes)) in vars.iter().enumerate() {
+                name(&mut h, n);
+                h.extend((dims.len() as u32).to_be_bytes());
+                for d in *dims {
+                    h.extend(d.to_be_bytes());
+                }
+                h.extend(12u32.to_be_bytes());
+                h.extend((attrs.len() as u32).to_be_bytes());
+                for (a, v) in *attrs {
+                    name(&mut h, a);
+                    h.extend(2u32.to_be_bytes());
+                    name(&mut h, v);
+                }
+                h.extend(t.to_be_bytes());
+                h.extend((*bytes as u32).to_be_bytes());
+                h.extend(begins[k].to_be_bytes());
+            }
+            h
+        };
+        let mut begins = vec![header(&[0; 4]).len() as u64];
+        for v in &vars[..3] {
+            begins.push(begins.last().unwrap() + v.4);
+        }
+        let mut bytes = header(&begins);
+        bytes.extend(0i32.to_be_bytes());
+        bytes.extend((0..W).flat_map(|c| x(c).to_be_bytes()));
+        bytes.extend((0..H).flat_map(|j| y(j).to_be_bytes()));
+        let f = std::fs::File::create(big).unwrap();
+        f.set_len(begins[3] + vars[3].4).unwrap();
+        f.write_all_at(&bytes, 0).unwrap();
+        for r in rows.clone() {
+            let cells: Vec<u8> = cols
+                .clone()
+                .flat_map(|c| height(c, r).to_be_bytes())
+                .collect();
+            let at = begins[3] + (((H - 1 - r) * W + cols.start) * 2) as u64;
+            f.write_all_at(&cells, at).unwrap();
+        }
+        if let Some(copy) = copy {
+            use gravgrad_netcdf::{NcWriter, VarData};
+            let mut w = NcWriter::new();
+            let dy = w.add_dimension("y", rows.len()).unwrap();
+            let dx = w.add_dimension("x", cols.len()).unwrap();
+            let crs = w.add_variable("crs", &[], VarData::I32(vec![0])).unwrap();
+            w.add_attribute(crs, "epsg_code", "EPSG:32753").unwrap();
+            let xs = cols.clone().map(x).collect();
+            let vx = w.add_variable("x", &[dx], VarData::F64(xs)).unwrap();
+            w.add_attribute(vx, "units", "m").unwrap();
+            // South to north, as in the big file.
+            let ys = rows.clone().rev().map(|r| y(H - 1 - r)).collect();
+            let vy = w.add_variable("y", &[dy], VarData::F64(ys)).unwrap();
+            w.add_attribute(vy, "units", "m").unwrap();
+            let z = rows
+                .clone()
+                .rev()
+                .flat_map(|r| cols.clone().map(move |c| height(c, r)))
+                .collect();
+            let vz = w
+                .add_variable("elevation", &[dy, dx], VarData::I16(z))
+                .unwrap();
+            w.add_attribute(vz, "units", "m").unwrap();
+            w.add_attribute(vz, "grid_mapping", "crs").unwrap();
+            w.write(copy).unwrap();
+        }
+    }
+}
+
+/// `gravgrad terrain --points` on a DEM past the whole-read limit reads only the window the
+/// points need (their extent plus `--margin`): the same tensors as from a small copy of those
+/// cells; a point off the DEM is the run's coverage error naming both extents; evaluating every
+/// cell (`--height`) needs the whole DEM and is refused by its size.
+#[test]
+fn terrain_command_reads_only_the_window_of_a_big_dem() {
+    use big_dem::{CELL, H, W, X0, Y0};
+    let tmp = tempfile::tempdir().unwrap();
+    let (big, copy) = (tmp.path().join("big.nc"), tmp.path().join("copy.nc"));
+    // Points over the hill within 3 km of column 4200, row 4000; a 2 km margin: the window is
+    // columns about 4000 to 4400 and rows 3800 to 4200; the copy holds a few cells more.
+    let (rows, cols) = (3780..4220, 3980..4420);
+    big_dem::write(&big, rows.clone(), cols.clone(), Some(&copy));
+    let centre = (X0 + 4200.5 * CELL, Y0 - 4000.5 * CELL);
+    let pts = tmp.path().join("points.csv");
+    let mut text = "easting,northing,height\n".to_string();
+    for (k, (de, dn)) in [
+        (0.0, 0.0),
+        (-3000.0, 1500.0),
+        (2500.0, -3000.0),
+        (900.0, 2200.0),
+    ]
+    .iter()
+    .enumerate()
+    {
+        text += &format!(
+            "{},{},{}\n",
+            centre.0 + de,
+            centre.1 + dn,
+            700.0 + 40.0 * k as f64
+        );
+    }
+    std::fs::write(&pts, text).unwrap();
+    let out = |name: &str| tmp.path().join(name);
+    for (dem, table) in [(&big, "big.csv"), (&copy, "copy.csv")] {
+        ok(&[
+            "terrain",
+            dem.to_str().unwrap(),
+            "--points",
+            pts.to_str().unwrap(),
+            "--margin",
+            "2000",
+            "--out",
+            out(table).to_str().unwrap(),
+        ]);
+    }
+    let (b, c) = (csv_table(&out("big.csv")), csv_table(&out("copy.csv")));
+    assert_eq!(b[0].len(), 4);
+    // The same window, the same model: the same numbers, and a terrain effect of tens of E.
+    assert_eq!(b, c);
+    assert!(b[8].iter().any(|v| v.abs() > 10.0), "gzz {:?}", b[8]);
+
+    // A point 10 km east of the DEM's east edge.
+    let east = X0 + W as f64 * CELL + 10_000.0;
+    std::fs::write(
+        &pts,
+        format!("easting,northing,height\n{east},{},900\n", centre.1),
+    )
+    .unwrap();
+    let o = gravgrad(&[
+        "terrain",
+        big.to_str().unwrap(),
+        "--points",
+        pts.to_str().unwrap(),
+        "--out",
+        out("off.csv").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    let south = Y0 - H as f64 * CELL;
+    assert!(
+        err.contains(&format!(
+            "spans x {X0:.0} to {:.0}, y {south:.0} to {Y0:.0} m",
+            X0 + W as f64 * CELL
+        )) && err.contains("but the survey plus the margin needs x")
+            && err.contains("big.nc"),
+        "{err}"
+    );
+
+    // Every cell as a point: the whole DEM would be read, past its limit.
+    let o = gravgrad(&[
+        "terrain",
+        big.to_str().unwrap(),
+        "--height",
+        "900",
+        "--out",
+        out("all.csv").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("67108864"), "{err}");
+}
+
 /// Every value of column `name` of one of our Parquet tables, read by `get` (row, column index).
 pub fn parquet_column<T>(
     path: &Path,

@@ -255,7 +255,9 @@ fn window(
         return Err(vec![]);
     };
     let path = recipe.resolve(&t.dem);
-    let raster = dem::read_dem(&path, None).map_err(|p| {
+    // Where the DEM lies, from its header: the frame and the window are judged before any cell
+    // is decoded, and only the window's cells are.
+    let header = dem::read_dem_header(&path, None).map_err(|p| {
         let mut out = vec![Problem::error(
             key.clone(),
             format!("the terrain model {} cannot be used", path.display()),
@@ -263,14 +265,14 @@ fn window(
         out.extend(p);
         out
     })?;
-    if raster.epsg != Some(frame.epsg) {
+    if header.epsg != Some(frame.epsg) {
         return Err(vec![
             Problem::error(
                 key.clone(),
                 format!(
                     "{}: the terrain model's frame is {}, the survey's EPSG:{}",
                     path.display(),
-                    raster
+                    header
                         .epsg
                         .map_or("not stated".to_string(), |c| format!("EPSG:{c}")),
                     frame.epsg
@@ -279,7 +281,7 @@ fn window(
             .with_hint("reproject the terrain model to the survey's projection (metres)"),
         ]);
     }
-    dem::prepare_window(&raster, need, &path, key)
+    dem::read_window(&path, None, &header, need, &dem::WindowKeys::recipe(key))
 }
 
 /// What the run will do with the optional channels `temp`, `ac_roll`, `ac_pitch` (calibration

@@ -2,13 +2,21 @@
 //! gradient tensor at given points or on a surface over the DEM, from the fast engine (or the exact
 //! prism sum with `--exact`). Tensors in Eötvös in the DEM's map frame: x grid north, y grid east,
 //! z down.
+//!
+//! With `--points`, only the DEM window the points need is read: their extent plus `--margin`,
+//! checked against the DEM's extent from its header before any cell is decoded (the same check
+//! and wording as a run's, `gravgrad_ingest::dem::read_window`), holes filled as a run fills them.
+//! With `--height` or `--clearance` every cell is a point, so the whole DEM is read.
 
 use crate::logging::Log;
 use crate::tables::{Column, write_csv, write_parquet};
 use crate::terrain_stage::read_dem;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
+use gravgrad_core::Location;
+use gravgrad_core::raster::Raster;
 use gravgrad_core::units::EOTVOS;
+use gravgrad_ingest::dem::{WindowKeys, read_dem_header, read_window};
 use gravgrad_reduce::terrain::{TerrainModel, TerrainSettings};
 use std::path::{Path, PathBuf};
 
@@ -37,7 +45,12 @@ pub struct TerrainArgs {
     /// Water density for cells below sea level, kg/m³ (default: none).
     #[arg(long, value_name = "KG_M3")]
     pub water_density: Option<f64>,
-    /// Reference level of the terrain mass, m above the ellipsoid (default: the DEM's mean).
+    /// With --points: the DEM is read over the points' extent plus this distance on every side,
+    /// m (the mass farther away is left out).
+    #[arg(long, value_name = "M", default_value_t = 5000.0)]
+    pub margin: f64,
+    /// Reference level of the terrain mass, m above the ellipsoid (default: the mean of the DEM
+    /// cells read).
     #[arg(long, value_name = "M")]
     pub reference: Option<f64>,
     /// Target accuracy of the fast engine, E.
@@ -109,15 +122,81 @@ fn read_points(path: &Path) -> Result<Vec<[f64; 3]>, String> {
     Ok(out)
 }
 
+/// Prints `problems` and gives the exit code of bad input.
+fn refuse(problems: Vec<gravgrad_core::Problem>) -> u8 {
+    for p in problems {
+        eprintln!("{p}");
+    }
+    EXIT_BAD_INPUT
+}
+
+/// The DEM window `points` need (their extent plus `margin` m on every side), read from `dem`
+/// alone, checked and filled as a run's window is; warnings are logged.
+fn points_window(
+    dem: &Path,
+    points: &[[f64; 3]],
+    margin: f64,
+    log: &Log,
+) -> Result<Raster, Vec<gravgrad_core::Problem>> {
+    let header = read_dem_header(dem, None)?;
+    let need = points.iter().fold(
+        [
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+        ],
+        |e, p| {
+            [
+                e[0].min(p[0] - margin),
+                e[1].max(p[0] + margin),
+                e[2].min(p[1] - margin),
+                e[3].max(p[1] + margin),
+            ]
+        },
+    );
+    let keys = WindowKeys {
+        dem: Location::file(dem),
+        margin: Location::file(dem),
+        margin_name: "`--margin`".into(),
+    };
+    let w = read_window(dem, None, &header, need, &keys)?;
+    for p in &w.warnings {
+        log.info(&p.to_string());
+    }
+    Ok(w.raster)
+}
+
 pub fn run(args: &TerrainArgs, log: &Log) -> u8 {
-    let raster = match read_dem(&args.dem, None) {
-        Ok(r) => r,
-        Err(ps) => {
-            for p in ps {
-                eprintln!("{p}");
-            }
+    if !(args.margin.is_finite() && args.margin >= 0.0) {
+        eprintln!(
+            "error: --margin {}: expected a distance of 0 m or more",
+            args.margin
+        );
+        return EXIT_BAD_INPUT;
+    }
+    let given = match args.points.as_deref().map(read_points) {
+        None => None,
+        Some(Ok(v)) if v.is_empty() => {
+            eprintln!(
+                "error: {}: no points; expected rows of easting,northing,height",
+                args.points.as_deref().unwrap_or(Path::new("")).display()
+            );
             return EXIT_BAD_INPUT;
         }
+        Some(Ok(v)) => Some(v),
+        Some(Err(e)) => {
+            eprintln!("error: {e}");
+            return EXIT_BAD_INPUT;
+        }
+    };
+    let raster = match &given {
+        Some(points) => points_window(&args.dem, points, args.margin, log),
+        None => read_dem(&args.dem, None),
+    };
+    let raster = match raster {
+        Ok(r) => r,
+        Err(ps) => return refuse(ps),
     };
     let settings = TerrainSettings {
         density_kg_m3: args.density,
@@ -132,14 +211,8 @@ pub fn run(args: &TerrainArgs, log: &Log) -> u8 {
             return EXIT_BAD_INPUT;
         }
     };
-    let points: Vec<[f64; 3]> = if let Some(p) = &args.points {
-        match read_points(p) {
-            Ok(v) => v,
-            Err(e) => {
-                eprintln!("error: {e}");
-                return EXIT_BAD_INPUT;
-            }
-        }
+    let points: Vec<[f64; 3]> = if let Some(p) = given {
+        p
     } else {
         let step = args.step.max(1);
         let mut v = Vec::new();

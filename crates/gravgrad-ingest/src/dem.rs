@@ -1,12 +1,18 @@
 //! Terrain models (DEMs) by file type: NetCDF-CF (`.nc`, `.nc4`, `.cdf`, `.netcdf`) through
 //! `gravgrad-netcdf`, anything else as GeoTIFF. Both give the same north-up [`Raster`] of heights in
-//! metres (docs/formats.md, section 4). [`prepare_window`] cuts the window a run needs (survey plus
-//! `terrain.margin_m`), refuses implausible elevations and fills holes (docs/recipe.md, "Limits").
+//! metres (docs/formats.md, section 4).
+//!
+//! A run reads only the window it needs (survey plus `terrain.margin_m`): [`read_dem_header`] gives
+//! where the DEM lies before any cell is decoded, and [`read_window`] checks that the DEM covers the
+//! window and that the window is not too big, decodes only the window's cells
+//! ([`read_dem_block`]), refuses implausible elevations and fills holes (docs/recipe.md, "Limits").
+//! [`prepare_window`] does the same for a DEM already in memory.
 
-use crate::geotiff_reader::read_geotiff;
+use crate::geotiff_reader::{read_geotiff, read_geotiff_block, read_geotiff_header};
 use crate::recipe::{MAX_ELEVATION_M, MIN_ELEVATION_M};
 use gravgrad_core::raster::Raster;
 use gravgrad_core::{Location, Problem};
+pub use gravgrad_netcdf::{CellBlock, GridHeader};
 use std::path::Path;
 
 /// Whether `path` names a NetCDF file by its extension.
@@ -17,12 +23,37 @@ pub fn is_netcdf(path: &Path) -> bool {
         .is_some_and(|e| matches!(e.as_str(), "nc" | "nc4" | "cdf" | "netcdf"))
 }
 
-/// Reads a DEM; `variable` names the elevation variable of a NetCDF file (default: found).
+/// Reads a whole DEM (at most `gravgrad_core::limits::MAX_GRID_CELLS` cells); `variable` names the
+/// elevation variable of a NetCDF file (default: found).
 pub fn read_dem(path: &Path, variable: Option<&str>) -> Result<Raster, Vec<Problem>> {
     if is_netcdf(path) {
         gravgrad_netcdf::read_dem(path, variable)
     } else {
         read_geotiff(path)
+    }
+}
+
+/// Where a DEM lies (its grid, frame and no-data value), read from its header before any cell is
+/// decoded; `variable` as for [`read_dem`].
+pub fn read_dem_header(path: &Path, variable: Option<&str>) -> Result<GridHeader, Vec<Problem>> {
+    if is_netcdf(path) {
+        gravgrad_netcdf::dem_header(path, variable)
+    } else {
+        read_geotiff_header(path)
+    }
+}
+
+/// The cells `block` of a DEM (the north-up grid of [`read_dem_header`]), decoding only the strips,
+/// tiles or rows that meet it; the raster's corner is the block's.
+pub fn read_dem_block(
+    path: &Path,
+    variable: Option<&str>,
+    block: CellBlock,
+) -> Result<Raster, Vec<Problem>> {
+    if is_netcdf(path) {
+        gravgrad_netcdf::read_dem_block(path, variable, block)
+    } else {
+        read_geotiff_block(path, block)
     }
 }
 
@@ -56,13 +87,56 @@ pub struct DemWindow {
     pub warnings: Vec<Problem>,
 }
 
+/// Where a window's problems are reported: `dem` for the coverage, `margin` (called
+/// `margin_name` in hints) for the window's size.
+#[derive(Clone, Debug)]
+pub struct WindowKeys {
+    pub dem: Location,
+    pub margin: Location,
+    pub margin_name: String,
+}
+
+impl WindowKeys {
+    /// A run's: the recipe key `key` (`terrain.dem`) and `terrain.margin_m` in the same file.
+    pub fn recipe(key: &Location) -> Self {
+        Self {
+            dem: key.clone(),
+            margin: key.clone().with_key("terrain.margin_m"),
+            margin_name: "`terrain.margin_m`".into(),
+        }
+    }
+}
+
+/// The grid of a raster already in memory.
+fn header_of(r: &Raster) -> GridHeader {
+    GridHeader {
+        nx: r.nx,
+        ny: r.ny,
+        x_min: r.x_min,
+        y_max: r.y_max,
+        dx: r.dx,
+        dy: r.dy,
+        epsg: r.epsg,
+        nodata: r.nodata,
+    }
+}
+
+/// Whether `v` is the grid's no-data value (any NaN when that is NaN).
+fn is_missing(h: &GridHeader, v: f64) -> bool {
+    match h.nodata {
+        Some(nd) if nd.is_nan() => v.is_nan(),
+        Some(nd) => v == nd,
+        None => false,
+    }
+}
+
 /// A cell of the DEM file: (column eastwards, row southwards), counted from 0 at the north-west.
-fn cell_name(dem: &Raster, col: usize, row: usize) -> String {
+fn cell_name(dem: &GridHeader, col: usize, row: usize) -> String {
     let (x, y) = dem.cell_centre(col, row);
     format!("row {row}, column {col} (centre {x:.1}, {y:.1})")
 }
 
-fn name_cells(dem: &Raster, cells: &[(usize, usize)], total: usize) -> String {
+fn name_cells(dem: &GridHeader, cells: &[(usize, usize)], total: usize) -> String {
     let mut s: Vec<String> = cells
         .iter()
         .take(NAMED_CELLS)
@@ -75,13 +149,27 @@ fn name_cells(dem: &Raster, cells: &[(usize, usize)], total: usize) -> String {
 }
 
 /// Cuts the window `need` (the survey's extent widened by the margin; the DEM's frame, m) out of
-/// `dem` and makes it fit to use:
+/// `dem`, held in memory, and makes it fit to use as [`read_window`] does; `key` is the recipe key
+/// of the DEM (`terrain.dem`), and the window's size is blamed on `terrain.margin_m`.
+pub fn prepare_window(
+    dem: &Raster,
+    need: Extent,
+    path: &Path,
+    key: &Location,
+) -> Result<DemWindow, Vec<Problem>> {
+    prepare(&header_of(dem), need, path, &WindowKeys::recipe(key), |b| {
+        Ok(copy_block(dem, b))
+    })
+}
+
+/// Reads the window `need` (the survey's extent widened by the margin; the DEM's frame, m) of the
+/// DEM at `path`, whose header `header` was read by [`read_dem_header`], and makes it fit to use:
 ///
-/// - `dem` must cover `need` to within one cell on every side, else an error naming the DEM's
-///   extent and the one needed;
+/// - the DEM must cover `need` to within one cell on every side, else an error naming the DEM's
+///   extent and the one needed (at `keys.dem`);
 /// - the window (the cells `need` touches, plus one cell on every side where the DEM has it) may
-///   hold at most [`MAX_DEM_WINDOW_CELLS`] cells, else an error naming `terrain.margin_m` and the
-///   size needed;
+///   hold at most [`MAX_DEM_WINDOW_CELLS`] cells, else an error at `keys.margin` naming the size
+///   needed; both are checked before any cell is decoded, and only the window's cells are;
 /// - an elevation outside [`MIN_ELEVATION_M`] to [`MAX_ELEVATION_M`] (or infinite) is an error
 ///   naming its cells;
 /// - holes — the file's no-data value, NaN, or an undeclared [`NODATA_SENTINELS`] value — are
@@ -89,17 +177,50 @@ fn name_cells(dem: &Raster, cells: &[(usize, usize)], total: usize) -> String {
 ///   directions (weights 1/d²) with a warning naming them, or refused when they are more than
 ///   [`MAX_HOLE_FRACTION`] of the window.
 ///
-/// `path` names the DEM file and `key` the recipe key in messages.
-pub fn prepare_window(
-    dem: &Raster,
+/// `variable` names a NetCDF file's elevation variable (default: found).
+pub fn read_window(
+    path: &Path,
+    variable: Option<&str>,
+    header: &GridHeader,
+    need: Extent,
+    keys: &WindowKeys,
+) -> Result<DemWindow, Vec<Problem>> {
+    prepare(header, need, path, keys, |b| {
+        read_dem_block(path, variable, b).map_err(|p| {
+            let mut out = vec![Problem::error(
+                keys.dem.clone(),
+                format!("the terrain model {} cannot be used", path.display()),
+            )];
+            out.extend(p);
+            out
+        })
+    })
+}
+
+/// The steps of [`read_window`], the cells got by `cells`.
+fn prepare(
+    header: &GridHeader,
     need: Extent,
     path: &Path,
-    key: &Location,
+    keys: &WindowKeys,
+    cells: impl FnOnce(CellBlock) -> Result<Raster, Vec<Problem>>,
 ) -> Result<DemWindow, Vec<Problem>> {
-    check_coverage(dem, need, path, key)?;
-    let (mut window, c0, r0) = cut_window(dem, need, key)?;
-    let (holes, mut warnings) = screen_cells(dem, &window, (c0, r0), path)?;
-    fill_or_refuse(dem, &mut window, &holes, (c0, r0), path, &mut warnings)?;
+    check_coverage(header, need, path, keys)?;
+    let block = window_block(header, need, keys)?;
+    let mut window = cells(block)?;
+    if (window.nx, window.ny) != (block.nx, block.ny) {
+        return Err(vec![Problem::error(
+            Location::file(path),
+            format!(
+                "the window read is {} × {} cells, {} × {} were asked for",
+                window.nx, window.ny, block.nx, block.ny
+            ),
+        )]);
+    }
+    let at = (block.col0, block.row0);
+    let (holes, mut warnings) = screen_cells(header, &window, at, path)?;
+    fill_or_refuse(header, &mut window, &holes, at, path, &mut warnings)?;
+    window.nodata = None;
     Ok(DemWindow {
         raster: window,
         filled: holes.len(),
@@ -108,20 +229,15 @@ pub fn prepare_window(
 }
 
 /// Refuses a survey without a finite position, and a DEM that misses the survey plus the margin
-/// (`need`: x_min, x_max, y_min, y_max in the DEM's map frame, m) by more than one cell.
+/// (`need`: x_min, x_max, y_min, y_max in the DEM's map frame, m) by more than one cell, at `keys.dem`.
 fn check_coverage(
-    dem: &Raster,
+    dem: &GridHeader,
     need: Extent,
     path: &Path,
-    key: &Location,
+    keys: &WindowKeys,
 ) -> Result<(), Vec<Problem>> {
-    let at = |msg: String| Problem::error(key.clone(), msg);
-    let have = [
-        dem.x_min,
-        dem.x_min + dem.nx as f64 * dem.dx,
-        dem.y_max - dem.ny as f64 * dem.dy,
-        dem.y_max,
-    ];
+    let at = |msg: String| Problem::error(keys.dem.clone(), msg);
+    let have = dem.extent();
     let short = [
         have[0] - need[0],
         need[1] - have[1],
@@ -156,23 +272,23 @@ fn check_coverage(
                 need[3],
                 sides.join(", ")
             ))
-            .with_hint(
-                "give a terrain model that covers the survey plus `terrain.margin_m`, or lower the \
-                 margin knowing the terrain effect near the edges is then incomplete",
-            ),
+            .with_hint(format!(
+                "give a terrain model that covers the survey plus {}, or lower the margin knowing \
+                 the terrain effect near the edges is then incomplete",
+                keys.margin_name
+            )),
         ]);
     }
     Ok(())
 }
 
-/// The DEM's cells the window `need` touches, one more on each side, clipped to the DEM, with the
-/// column and row of its first cell in the DEM; refused past [`MAX_DEM_WINDOW_CELLS`] naming
-/// `terrain.margin_m`.
-fn cut_window(
-    dem: &Raster,
+/// The DEM's cells the window `need` touches, one more on each side, clipped to the DEM; refused
+/// past [`MAX_DEM_WINDOW_CELLS`] at `keys.margin`.
+fn window_block(
+    dem: &GridHeader,
     need: Extent,
-    key: &Location,
-) -> Result<(Raster, usize, usize), Vec<Problem>> {
+    keys: &WindowKeys,
+) -> Result<CellBlock, Vec<Problem>> {
     // Cells the window touches, one more on each side, clipped to the DEM.
     let col = |x: f64| ((x - dem.x_min) / dem.dx).clamp(0.0, dem.nx as f64);
     let row = |y: f64| ((dem.y_max - y) / dem.dy).clamp(0.0, dem.ny as f64);
@@ -180,12 +296,17 @@ fn cut_window(
     let c1 = (col(need[1]).ceil() as usize + 1).min(dem.nx);
     let r0 = (row(need[3]).floor() as usize).saturating_sub(1);
     let r1 = (row(need[2]).ceil() as usize + 1).min(dem.ny);
+    // At least one cell, inside the DEM.
+    let (c0, r0) = (
+        c0.min(dem.nx.saturating_sub(1)),
+        r0.min(dem.ny.saturating_sub(1)),
+    );
     let (nx, ny) = (c1.saturating_sub(c0).max(1), r1.saturating_sub(r0).max(1));
     let cells = nx.saturating_mul(ny);
     if cells > MAX_DEM_WINDOW_CELLS {
         return Err(vec![
             Problem::error(
-                key.clone().with_key("terrain.margin_m"),
+                keys.margin.clone(),
                 format!(
                     "the terrain model's window over the survey plus the margin is {nx} × {ny} = \
                      {cells} cells of {} × {} m (about {:.1} GB for the terrain stage); the limit \
@@ -195,32 +316,44 @@ fn cut_window(
                     (cells as f64 * DEM_BYTES_PER_CELL as f64) / 1e9
                 ),
             )
-            .with_hint("resample the terrain model to coarser cells, or lower `terrain.margin_m`"),
+            .with_hint(format!(
+                "resample the terrain model to coarser cells, or lower {}",
+                keys.margin_name
+            )),
         ]);
     }
-    let mut values = Vec::with_capacity(cells);
-    for r in r0..r0 + ny {
-        values.extend_from_slice(&dem.values[r * dem.nx + c0..r * dem.nx + c0 + nx]);
-    }
-    let window = Raster {
+    Ok(CellBlock {
+        col0: c0,
+        row0: r0,
         nx,
         ny,
-        x_min: dem.x_min + c0 as f64 * dem.dx,
-        y_max: dem.y_max - r0 as f64 * dem.dy,
+    })
+}
+
+/// The cells `b` of a raster in memory (inside it: [`window_block`] clips to the grid).
+fn copy_block(dem: &Raster, b: CellBlock) -> Raster {
+    let mut values = Vec::with_capacity(b.nx * b.ny);
+    for r in b.row0..b.row0 + b.ny {
+        values.extend_from_slice(&dem.values[r * dem.nx + b.col0..r * dem.nx + b.col0 + b.nx]);
+    }
+    Raster {
+        nx: b.nx,
+        ny: b.ny,
+        x_min: dem.x_min + b.col0 as f64 * dem.dx,
+        y_max: dem.y_max - b.row0 as f64 * dem.dy,
         dx: dem.dx,
         dy: dem.dy,
         epsg: dem.epsg,
-        nodata: None,
+        nodata: dem.nodata,
         values,
-    };
-    Ok((window, c0, r0))
+    }
 }
 
 /// Sorts the window's cells: holes (no-data, NaN, or an undeclared sentinel, with a warning naming
 /// those) as indices into the window, and implausible elevations, refused with their cells (named
 /// by their place in the DEM file; `(c0, r0)` the window's first cell there).
 fn screen_cells(
-    dem: &Raster,
+    dem: &GridHeader,
     window: &Raster,
     (c0, r0): (usize, usize),
     path: &Path,
@@ -233,7 +366,7 @@ fn screen_cells(
     let mut wrong_first = None;
     for (k, v) in window.values.iter().enumerate() {
         let (c, r) = (k % nx, k / nx);
-        if dem.is_missing(*v) || v.is_nan() {
+        if is_missing(dem, *v) || v.is_nan() {
             holes.push(k);
         } else if NODATA_SENTINELS.contains(v) {
             holes.push(k);
@@ -283,7 +416,7 @@ fn screen_cells(
 /// Fills the window's `holes` with a warning naming them, or refuses the DEM when they are more than
 /// [`MAX_HOLE_FRACTION`] of its cells.
 fn fill_or_refuse(
-    dem: &Raster,
+    dem: &GridHeader,
     window: &mut Raster,
     holes: &[usize],
     (c0, r0): (usize, usize),

@@ -9,20 +9,27 @@
 //! the file is read; further images (overviews, masks) are ignored.
 //!
 //! Before the `tiff` crate reads the file, every entry of the first image directory is checked
-//! against the file's size ([`check_tag_sizes`]). Before the image is decoded, its declared cells (ImageWidth × ImageLength) are checked against
-//! [`MAX_GRID_CELLS`] and, times the bytes per sample, against the file's size at the largest
-//! expansion of its Compression tag ([`max_expansion`]; `docs/reliability.md`).
+//! against the file's size ([`check_tag_sizes`]). Before any cell is decoded, the image's declared
+//! bytes (ImageWidth × ImageLength × bytes per sample) are checked against the file's size at the
+//! largest expansion of its Compression tag ([`max_expansion`]; `docs/reliability.md`).
+//!
+//! Two ways to read: [`read_geotiff`] decodes the whole image, which may hold at most
+//! [`MAX_GRID_CELLS`] cells; [`read_geotiff_header`] then [`read_geotiff_block`] read where the
+//! grid lies first and then decode only the strips or tiles that meet a block of cells (a terrain
+//! model's window over the survey), so the limit applies to the block and to each strip or tile,
+//! not to the file.
 //!
 //! Refused, each with the file and the tag at fault: more than one band; no georeferencing (no
 //! pixel scale and tie point, no transformation matrix); a rotated or sheared grid; a south-up or
 //! otherwise flipped grid; a CRS not given by an EPSG code; units other than metres or degrees.
 
 use crate::input_file::open_regular;
-use gravgrad_core::limits::MAX_GRID_CELLS;
+use gravgrad_core::limits::{MAX_GRID_CELLS, SMALL_FILE_ALLOWANCE, decoded_bound, decoded_fits};
 use gravgrad_core::{Location, Problem, Raster};
+pub use gravgrad_netcdf::{CellBlock, GridHeader};
 use std::io::BufReader;
 use std::path::Path;
-use tiff::decoder::{Decoder, DecodingResult, Limits};
+use tiff::decoder::{ChunkType, Decoder, DecodingResult, Limits};
 use tiff::tags::Tag;
 
 use gravgrad_core::raster::geokey as key;
@@ -47,9 +54,21 @@ fn max_expansion(compression: u16) -> u64 {
     }
 }
 
-/// Reads a single-band GeoTIFF into a north-up raster (frame and units in the module
-/// documentation). Every problem carries the file's location and names the tag at fault.
-pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
+/// An open GeoTIFF whose header has been read and checked, before any cell is decoded.
+struct Opened {
+    dec: Decoder<BufReader<std::fs::File>>,
+    header: GridHeader,
+    loc: Location,
+    /// The Compression tag (259).
+    compression: u16,
+    /// Bytes of one sample.
+    sample_bytes: u64,
+}
+
+/// Opens the GeoTIFF at `path` and reads its header: the tag sizes against the file's, one band,
+/// the declared size against the file's at its compression's largest expansion (and, when
+/// `whole`, against [`MAX_GRID_CELLS`] first), the georeferencing, the frame and the no-data value.
+fn open(path: &Path, whole: bool) -> Result<Opened, Vec<Problem>> {
     let loc = Location::file(path);
     let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
     let input = open_regular(path).map_err(|p| vec![p])?;
@@ -81,10 +100,10 @@ pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
             "unreadable ImageWidth/ImageLength tags (256, 257): {e}"
         ))
     })?;
-    let (nx, ny) = (width as usize, height as usize);
-    check_declared_size(&mut dec, (width, height), file_len, &loc)?;
+    let (compression, bits) =
+        check_declared_size(&mut dec, (width, height), file_len, whole, &loc)?;
 
-    let geometry = read_geometry(&mut dec, &loc)?;
+    let (x_min, y_max, dx, dy) = read_geometry(&mut dec, &loc)?;
     let epsg = read_crs(&mut dec, &loc)?;
     let nodata = match dec.find_tag(Tag::GdalNodata) {
         Ok(None) => None,
@@ -100,11 +119,199 @@ pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
         }
         Err(e) => return Err(fail(format!("unreadable GDAL_NODATA tag (42113): {e}"))),
     };
+    Ok(Opened {
+        dec,
+        header: GridHeader {
+            nx: width as usize,
+            ny: height as usize,
+            x_min,
+            y_max,
+            dx,
+            dy,
+            epsg,
+            nodata,
+        },
+        loc,
+        compression,
+        sample_bytes: u64::from(bits).div_ceil(8),
+    })
+}
 
+/// Reads a single-band GeoTIFF into a north-up raster (frame and units in the module
+/// documentation). Every problem carries the file's location and names the tag at fault.
+pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
+    let Opened {
+        mut dec,
+        header,
+        loc,
+        ..
+    } = open(path, true)?;
+    let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
     let image = dec
         .read_image()
         .map_err(|e| fail(format!("cannot decode the image data: {e}")))?;
-    let values: Vec<f64> = match image {
+    let values = samples_as_f64(image).map_err(fail)?;
+    let mut raster = Raster::new(
+        header.nx,
+        header.ny,
+        (header.x_min, header.y_max),
+        (header.dx, header.dy),
+        values,
+    )
+    .map_err(|e| fail(format!("the image does not form a raster: {e}")))?;
+    raster.epsg = header.epsg;
+    raster.nodata = header.nodata;
+    Ok(raster)
+}
+
+/// Reads a GeoTIFF's header: where its grid lies, its frame and no-data value, with every check
+/// [`read_geotiff`] makes before it decodes a cell but the limit on the cells of a whole image.
+pub fn read_geotiff_header(path: &Path) -> Result<GridHeader, Vec<Problem>> {
+    open(path, false).map(|o| o.header)
+}
+
+/// Reads the cells `block` of a GeoTIFF (the north-up grid of [`read_geotiff_header`]) by decoding
+/// only the strips or tiles that meet it, one at a time. [`MAX_GRID_CELLS`] applies to the block
+/// and to each strip or tile; each one's decoded bytes must fit its stored bytes at its
+/// compression's largest expansion ([`max_expansion`]). The raster's corner is the block's.
+pub fn read_geotiff_block(path: &Path, block: CellBlock) -> Result<Raster, Vec<Problem>> {
+    let Opened {
+        mut dec,
+        header: h,
+        loc,
+        compression,
+        sample_bytes,
+    } = open(path, false)?;
+    let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
+    if !block.inside(h.nx, h.ny) {
+        return Err(fail(format!(
+            "the block of columns {} to {} and rows {} to {} is not inside the image's {} × {} \
+             cells (ImageWidth, ImageLength tags 256, 257)",
+            block.col0,
+            block.col0.saturating_add(block.nx),
+            block.row0,
+            block.row0.saturating_add(block.ny),
+            h.nx,
+            h.ny
+        )));
+    }
+    if block.cells() > MAX_GRID_CELLS {
+        return Err(vec![
+            Problem::error(
+                loc.clone(),
+                format!(
+                    "the block of {} × {} = {} cells is more than the {MAX_GRID_CELLS} read at once",
+                    block.nx,
+                    block.ny,
+                    block.cells()
+                ),
+            )
+            .with_hint("cut the raster to the survey area plus its margin"),
+        ]);
+    }
+    let tiled = dec.get_chunk_type() == ChunkType::Tile;
+    let (cw, ch) = dec.chunk_dimensions();
+    let (cw, ch) = (cw as usize, ch as usize);
+    let (what, counts_tag) = if tiled {
+        ("tile", Tag::TileByteCounts)
+    } else {
+        ("strip", Tag::StripByteCounts)
+    };
+    if cw == 0 || ch == 0 {
+        return Err(fail(format!("{what}s of {cw} × {ch} cells hold nothing")));
+    }
+    let counts: Vec<u64> = dec
+        .find_tag_unsigned_vec(counts_tag)
+        .map_err(|e| {
+            fail(format!(
+                "unreadable {what} byte counts (tag {}): {e}",
+                counts_tag.to_u16()
+            ))
+        })?
+        .unwrap_or_default();
+    let across = h.nx.div_ceil(cw);
+    let (cx0, cx1) = (block.col0 / cw, (block.col0 + block.nx - 1) / cw);
+    let (cy0, cy1) = (block.row0 / ch, (block.row0 + block.ny - 1) / ch);
+    let chunk_cells = (cw as u64).saturating_mul(ch as u64);
+    if chunk_cells > MAX_GRID_CELLS {
+        return Err(vec![
+            Problem::error(
+                loc.clone(),
+                format!(
+                    "{what}s of {cw} × {ch} = {chunk_cells} cells: one is more than the \
+                     {MAX_GRID_CELLS} cells decoded at once"
+                ),
+            )
+            .with_hint("write the raster in tiles (e.g. 256 × 256) or strips of fewer rows"),
+        ]);
+    }
+    let mut values = vec![f64::NAN; block.nx * block.ny];
+    for cy in cy0..=cy1 {
+        for cx in cx0..=cx1 {
+            let index = cy * across + cx;
+            // The chunk's cells inside the image (the last row and column may be cut).
+            let (x0, y0) = (cx * cw, cy * ch);
+            let (w, hh) = ((h.nx - x0).min(cw), (h.ny - y0).min(ch));
+            let stored = counts.get(index).copied().ok_or_else(|| {
+                fail(format!(
+                    "{what} {index} has no byte count (tag {}): it holds {} entries",
+                    counts_tag.to_u16(),
+                    counts.len()
+                ))
+            })?;
+            let decoded = (w as u64 * hh as u64).saturating_mul(sample_bytes);
+            let ratio = max_expansion(compression);
+            if !decoded_fits(decoded, stored, ratio) {
+                return Err(fail(format!(
+                    "{what} {index} declares {w} × {hh} cells ({decoded} bytes) from {stored} \
+                     stored bytes, more than Compression (tag 259) {compression} can give (at \
+                     most {} bytes, {ratio} times its size plus {SMALL_FILE_ALLOWANCE})",
+                    decoded_bound(stored, ratio)
+                )));
+            }
+            let index32 = u32::try_from(index)
+                .map_err(|_| fail(format!("{what} {index} is past the TIFF's count")))?;
+            let chunk = dec
+                .read_chunk(index32)
+                .map_err(|e| fail(format!("cannot decode {what} {index}: {e}")))?;
+            let chunk = samples_as_f64(chunk).map_err(fail)?;
+            if chunk.len() != w * hh {
+                return Err(fail(format!(
+                    "{what} {index} decodes to {} cells, expected {w} × {hh}",
+                    chunk.len()
+                )));
+            }
+            // The rows and columns of the chunk inside the block.
+            let c_lo = block.col0.max(x0);
+            let c_hi = (block.col0 + block.nx).min(x0 + w);
+            let r_lo = block.row0.max(y0);
+            let r_hi = (block.row0 + block.ny).min(y0 + hh);
+            for r in r_lo..r_hi {
+                let from = (r - y0) * w + (c_lo - x0);
+                let to = (r - block.row0) * block.nx + (c_lo - block.col0);
+                values[to..to + (c_hi - c_lo)].copy_from_slice(&chunk[from..from + (c_hi - c_lo)]);
+            }
+        }
+    }
+    let mut raster = Raster::new(
+        block.nx,
+        block.ny,
+        (
+            h.x_min + block.col0 as f64 * h.dx,
+            h.y_max - block.row0 as f64 * h.dy,
+        ),
+        (h.dx, h.dy),
+        values,
+    )
+    .map_err(|e| fail(format!("the block does not form a raster: {e}")))?;
+    raster.epsg = h.epsg;
+    raster.nodata = h.nodata;
+    Ok(raster)
+}
+
+/// Decoded samples as f64; 64-bit integers are refused.
+fn samples_as_f64(image: DecodingResult) -> Result<Vec<f64>, String> {
+    Ok(match image {
         DecodingResult::F32(v) => v.into_iter().map(f64::from).collect(),
         DecodingResult::F64(v) => v,
         DecodingResult::F16(v) => v.into_iter().map(|x| x.to_f64()).collect(),
@@ -115,17 +322,11 @@ pub fn read_geotiff(path: &Path) -> Result<Raster, Vec<Problem>> {
         DecodingResult::U16(v) => v.into_iter().map(f64::from).collect(),
         DecodingResult::U32(v) => v.into_iter().map(f64::from).collect(),
         DecodingResult::I64(_) | DecodingResult::U64(_) => {
-            return Err(fail(
+            return Err(
                 "64-bit integer samples (BitsPerSample tag 258) are not read; store float64".into(),
-            ));
+            );
         }
-    };
-    let (x_min, y_max, dx, dy) = geometry;
-    let mut raster = Raster::new(nx, ny, (x_min, y_max), (dx, dy), values)
-        .map_err(|e| fail(format!("the image does not form a raster: {e}")))?;
-    raster.epsg = epsg;
-    raster.nodata = nodata;
-    Ok(raster)
+    })
 }
 
 /// Bytes of one value of a TIFF field type (TIFF 6.0 section 2, BigTIFF): BYTE, ASCII, SBYTE,
@@ -207,14 +408,17 @@ fn check_tag_sizes(file: &std::fs::File, file_len: u64) -> Result<(), String> {
     Ok(())
 }
 
-/// Refuses an image whose declared cells exceed [`MAX_GRID_CELLS`], or whose decoded bytes exceed
-/// what the file's size can hold at its compression's largest expansion ([`max_expansion`]).
+/// Refuses an image whose decoded bytes exceed what the file's size can hold at its
+/// compression's largest expansion ([`max_expansion`]), and, when `whole` (the image is to be
+/// decoded whole), first one whose declared cells exceed [`MAX_GRID_CELLS`]. Gives the
+/// Compression tag and the bits per sample.
 fn check_declared_size<R: std::io::Read + std::io::Seek>(
     dec: &mut Decoder<R>,
     (width, height): (u32, u32),
     file_len: u64,
+    whole: bool,
     loc: &Location,
-) -> Result<(), Vec<Problem>> {
+) -> Result<(u16, u16), Vec<Problem>> {
     let fail = |msg: String| vec![Problem::error(loc.clone(), msg)];
     let bits: u16 = dec
         .find_tag_unsigned(Tag::BitsPerSample)
@@ -226,13 +430,13 @@ fn check_declared_size<R: std::io::Read + std::io::Seek>(
         .unwrap_or(1);
     let cells = u64::from(width) * u64::from(height);
     let bytes = cells.saturating_mul(u64::from(bits).div_ceil(8));
-    if cells > MAX_GRID_CELLS {
+    if whole && cells > MAX_GRID_CELLS {
         return Err(vec![
             Problem::error(
                 loc.clone(),
                 format!(
                     "ImageWidth × ImageLength (tags 256, 257) declare {width} × {height} = {cells} \
-                     cells; a raster read here has at most {MAX_GRID_CELLS}"
+                     cells; a raster read whole here has at most {MAX_GRID_CELLS}"
                 ),
             )
             .with_hint("cut the raster to the survey area plus its margin"),
@@ -246,7 +450,7 @@ fn check_declared_size<R: std::io::Read + std::io::Seek>(
              Compression (tag 259) {compression} (at most {ratio} times its size)"
         )));
     }
-    Ok(())
+    Ok((compression, bits))
 }
 
 /// GDAL_NODATA text to a number: decimal, or `nan`/`inf` in any case, surrounded by spaces.

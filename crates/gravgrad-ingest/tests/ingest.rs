@@ -190,6 +190,70 @@ mod geotiff {
         }
     }
 
+    /// The rasterio files read by block (`read_geotiff_block`: only the tiles or strips meeting
+    /// it) hold the same cells as the whole read: the float32 file in 16 × 16 tiles (the last
+    /// ones padded), the int16 file in strips of 4 rows, the pixel-is-point file.
+    #[test]
+    fn blocks_of_rasterio_tiled_and_striped_files_equal_the_whole_read() {
+        use gravgrad_ingest::geotiff_reader::{CellBlock, read_geotiff_block, read_geotiff_header};
+        for name in [
+            "good/dem_rasterio.tif",
+            "good/dem_rasterio_int16.tif",
+            "good/dem_rasterio_point.tif",
+        ] {
+            let path = corpus(name);
+            let whole = read_geotiff(&path).unwrap();
+            let h = read_geotiff_header(&path).unwrap();
+            assert_eq!(
+                (h.nx, h.ny, h.x_min, h.y_max, h.epsg, h.nodata),
+                (
+                    whole.nx,
+                    whole.ny,
+                    whole.x_min,
+                    whole.y_max,
+                    whole.epsg,
+                    whole.nodata
+                ),
+                "{name}"
+            );
+            let mut blocks = vec![h.whole()];
+            for row0 in 0..h.ny {
+                for col0 in 0..h.nx {
+                    for (w, t) in [(1, 1), (5, 3), (17, 9), (h.nx, h.ny)] {
+                        blocks.push(CellBlock {
+                            col0,
+                            row0,
+                            nx: (h.nx - col0).min(w),
+                            ny: (h.ny - row0).min(t),
+                        });
+                    }
+                }
+            }
+            for b in blocks {
+                let r = read_geotiff_block(&path, b).unwrap();
+                assert_eq!((r.nx, r.ny), (b.nx, b.ny), "{name} {b:?}");
+                assert_eq!(
+                    (r.x_min, r.y_max, r.nodata),
+                    (
+                        h.x_min + b.col0 as f64 * h.dx,
+                        h.y_max - b.row0 as f64 * h.dy,
+                        h.nodata
+                    ),
+                    "{name} {b:?}"
+                );
+                for row in 0..b.ny {
+                    for col in 0..b.nx {
+                        assert_eq!(
+                            r.values[row * b.nx + col],
+                            whole.values[(b.row0 + row) * whole.nx + b.col0 + col],
+                            "{name} {b:?}: ({col}, {row})"
+                        );
+                    }
+                }
+            }
+        }
+    }
+
     /// Int16, LZW, strips of 4 rows, EPSG:4326, 0.00125° cells from (134.5 E, 24 S),
     /// value = 300 + col − 3 row, nodata −32768 at (col 11, row 9).
     #[test]
@@ -1167,6 +1231,355 @@ mod dem_window {
             text.contains("terrain.margin_m") && text.contains("3200 × 3200 = 10240000 cells"),
             "{text}"
         );
+    }
+}
+
+/// DEMs larger than a whole read may hold (`MAX_GRID_CELLS`, 2^26 cells) read by the window a
+/// survey needs: a GeoTIFF in deflated strips, one in deflated tiles and a classic NetCDF file
+/// (sparse on disk: only the cells near the window are written), each 9000 × 8000 cells of
+/// 30 m. The window's cells equal the same cells read whole from a small copy.
+mod big_dem_windows {
+    use gravgrad_core::Location;
+    use gravgrad_core::limits::MAX_GRID_CELLS;
+    use gravgrad_core::raster::Raster;
+    use gravgrad_ingest::dem::{
+        CellBlock, WindowKeys, read_dem, read_dem_block, read_dem_header, read_window,
+    };
+    use std::io::{BufWriter, Seek, Write};
+    use std::path::Path;
+    use tiff::encoder::compression::{CompressionAlgorithm, Deflate, DeflateLevel};
+    use tiff::encoder::{DirectoryEncoder, TiffEncoder, TiffKindStandard};
+    use tiff::tags::Tag;
+
+    const W: usize = 9000;
+    const H: usize = 8000;
+    const CELL: f64 = 30.0;
+    /// The grid's outer north-west corner, EPSG:32753 (m).
+    const X0: f64 = 500_000.0;
+    const Y0: f64 = 7_300_000.0;
+    /// The block the small copy holds: columns 4100..4400, rows 3500..3700.
+    const COPY: CellBlock = CellBlock {
+        col0: 4100,
+        row0: 3500,
+        nx: 300,
+        ny: 200,
+    };
+
+    /// The invented terrain at (`col`, `row`) of the big grid, m: a slope in steps of 128 cells
+    /// with a ripple that changes from every cell to the next (so a window one cell off shows),
+    /// repeating every 64 cells (so deflate packs it small).
+    fn height(col: usize, row: usize) -> i16 {
+        (100 + col / 128 + row / 128 + (col + 3 * row) % 64) as i16
+    }
+
+    /// The survey plus margin inside the small copy: its extent less 2 cells on every side.
+    fn need() -> [f64; 4] {
+        let x = |c: usize| X0 + c as f64 * CELL;
+        let y = |r: usize| Y0 - r as f64 * CELL;
+        [
+            x(COPY.col0 + 2),
+            x(COPY.col0 + COPY.nx - 2),
+            y(COPY.row0 + COPY.ny - 2),
+            y(COPY.row0 + 2),
+        ]
+    }
+
+    fn keys() -> WindowKeys {
+        WindowKeys::recipe(&Location::file("recipe.toml").with_key("terrain.dem"))
+    }
+
+    /// The georeferencing tags of a grid in EPSG:32753 with 30 m cells from (`x_min`, `y_max`).
+    fn geo_tags<W: Write + Seek>(
+        d: &mut DirectoryEncoder<'_, W, TiffKindStandard>,
+        x_min: f64,
+        y_max: f64,
+    ) {
+        d.write_tag(Tag::ModelPixelScaleTag, &[CELL, CELL, 0.0][..])
+            .unwrap();
+        d.write_tag(
+            Tag::ModelTiepointTag,
+            &[0.0, 0.0, 0.0, x_min, y_max, 0.0][..],
+        )
+        .unwrap();
+        d.write_tag(
+            Tag::GeoKeyDirectoryTag,
+            &[1u16, 1, 0, 2, 1024, 0, 1, 1, 3072, 0, 1, 32753][..],
+        )
+        .unwrap();
+    }
+
+    /// The cells `b` of the big grid in a GeoTIFF of deflated strips of `rows` rows.
+    fn striped(path: &Path, b: CellBlock, rows: usize) {
+        chunked(path, b, (b.nx, rows), false);
+    }
+
+    /// The whole big grid in a GeoTIFF of deflated `t` × `t` tiles (padded with zeros at the
+    /// right and bottom edges).
+    fn tiled(path: &Path, t: usize) {
+        let all = CellBlock {
+            col0: 0,
+            row0: 0,
+            nx: W,
+            ny: H,
+        };
+        chunked(path, all, (t, t), true);
+    }
+
+    /// The cells `b` of the big grid in a GeoTIFF of int16 in deflated chunks of `cw` × `ch`
+    /// cells: tiles (padded with zeros) or strips (the last one shorter).
+    fn chunked(path: &Path, b: CellBlock, (cw, ch): (usize, usize), tiles: bool) {
+        let f = BufWriter::new(std::fs::File::create(path).unwrap());
+        let mut enc = TiffEncoder::new(f).unwrap();
+        let mut d = enc.image_directory().unwrap();
+        let (mut offsets, mut counts) = (Vec::new(), Vec::new());
+        for ty in 0..b.ny.div_ceil(ch) {
+            for tx in 0..b.nx.div_ceil(cw) {
+                let rows = if tiles {
+                    ty * ch..(ty + 1) * ch
+                } else {
+                    ty * ch..((ty + 1) * ch).min(b.ny)
+                };
+                let mut raw = Vec::with_capacity(cw * ch * 2);
+                for r in rows {
+                    for c in tx * cw..(tx + 1) * cw {
+                        let v = if r < b.ny && c < b.nx {
+                            height(b.col0 + c, b.row0 + r)
+                        } else {
+                            0
+                        };
+                        raw.extend_from_slice(&v.to_ne_bytes());
+                    }
+                }
+                let mut packed = Vec::new();
+                Deflate::with_level(DeflateLevel::Fast)
+                    .write_to(&mut packed, &raw)
+                    .unwrap();
+                offsets.push(d.write_data(&packed[..]).unwrap() as u32);
+                counts.push(packed.len() as u32);
+            }
+        }
+        d.write_tag(Tag::ImageWidth, b.nx as u32).unwrap();
+        d.write_tag(Tag::ImageLength, b.ny as u32).unwrap();
+        d.write_tag(Tag::BitsPerSample, 16u16).unwrap();
+        d.write_tag(Tag::Compression, 8u16).unwrap();
+        d.write_tag(Tag::PhotometricInterpretation, 1u16).unwrap();
+        d.write_tag(Tag::SamplesPerPixel, 1u16).unwrap();
+        d.write_tag(Tag::PlanarConfiguration, 1u16).unwrap();
+        if tiles {
+            d.write_tag(Tag::TileWidth, cw as u32).unwrap();
+            d.write_tag(Tag::TileLength, ch as u32).unwrap();
+            d.write_tag(Tag::TileOffsets, &offsets[..]).unwrap();
+            d.write_tag(Tag::TileByteCounts, &counts[..]).unwrap();
+        } else {
+            d.write_tag(Tag::RowsPerStrip, ch as u32).unwrap();
+            d.write_tag(Tag::StripOffsets, &offsets[..]).unwrap();
+            d.write_tag(Tag::StripByteCounts, &counts[..]).unwrap();
+        }
+        d.write_tag(Tag::SampleFormat, 2u16).unwrap();
+        geo_tags(&mut d, X0 + b.col0 as f64 * CELL, Y0 - b.row0 as f64 * CELL);
+        d.finish().unwrap();
+    }
+
+    /// A classic (CDF-2) NetCDF file of the big grid as `elevation(y, x)`, int16, y running south
+    /// to north, with `x`, `y` coordinates in metres and a `crs` variable giving EPSG:32753. The
+    /// file has its full length, but only the cells of `written` (north-up) hold heights: the
+    /// rest is a hole on disk, read as zeros.
+    fn sparse_classic(path: &Path, written: CellBlock) {
+        fn name(out: &mut Vec<u8>, n: &str) {
+            out.extend((n.len() as u32).to_be_bytes());
+            out.extend(n.as_bytes());
+            out.resize(out.len().next_multiple_of(4), 0);
+        }
+        fn text_attrs(out: &mut Vec<u8>, attrs: &[(&str, &str)]) {
+            if attrs.is_empty() {
+                out.extend([0u8; 8]);
+                return;
+            }
+            out.extend(12u32.to_be_bytes());
+            out.extend((attrs.len() as u32).to_be_bytes());
+            for (k, v) in attrs {
+                name(out, k);
+                out.extend(2u32.to_be_bytes()); // NC_CHAR
+                name(out, v);
+            }
+        }
+        // (name, dimension ids, attributes, type, bytes)
+        type Var<'a> = (&'a str, &'a [u32], &'a [(&'a str, &'a str)], u32, u64);
+        let vars: [Var; 4] = [
+            ("crs", &[], &[("epsg_code", "EPSG:32753")], 4, 4),
+            (
+                "x",
+                &[1],
+                &[("units", "m"), ("standard_name", "projection_x_coordinate")],
+                6,
+                W as u64 * 8,
+            ),
+            (
+                "y",
+                &[0],
+                &[("units", "m"), ("standard_name", "projection_y_coordinate")],
+                6,
+                H as u64 * 8,
+            ),
+            (
+                "elevation",
+                &[0, 1],
+                &[("units", "m"), ("grid_mapping", "crs")],
+                3,
+                (W * H * 2) as u64,
+            ),
+        ];
+        let header = |begins: &[u64]| {
+            let mut h = b"CDF\x02".to_vec();
+            h.extend(0u32.to_be_bytes());
+            h.extend(10u32.to_be_bytes());
+            h.extend(2u32.to_be_bytes());
+            name(&mut h, "y");
+            h.extend((H as u32).to_be_bytes());
+            name(&mut h, "x");
+            h.extend((W as u32).to_be_bytes());
+            h.extend([0u8; 8]);
+            h.extend(11u32.to_be_bytes());
+            h.extend((vars.len() as u32).to_be_bytes());
+            for (k, (n, dims, attrs, t, bytes)) in vars.iter().enumerate() {
+                name(&mut h, n);
+                h.extend((dims.len() as u32).to_be_bytes());
+                for d in *dims {
+                    h.extend(d.to_be_bytes());
+                }
+                text_attrs(&mut h, attrs);
+                h.extend(t.to_be_bytes());
+                h.extend((*bytes as u32).to_be_bytes());
+                h.extend(begins[k].to_be_bytes());
+            }
+            h
+        };
+        let len = header(&[0; 4]).len() as u64;
+        let mut begins = vec![len];
+        for v in &vars[..3] {
+            begins.push(begins.last().unwrap() + v.4);
+        }
+        let mut bytes = header(&begins);
+        bytes.extend(0i32.to_be_bytes());
+        for c in 0..W {
+            bytes.extend((X0 + (c as f64 + 0.5) * CELL).to_be_bytes());
+        }
+        for j in 0..H {
+            // South to north: file row j is north-up row H − 1 − j.
+            bytes.extend((Y0 - H as f64 * CELL + (j as f64 + 0.5) * CELL).to_be_bytes());
+        }
+        assert_eq!(bytes.len() as u64, begins[3]);
+        let f = std::fs::File::create(path).unwrap();
+        f.set_len(begins[3] + vars[3].4).unwrap();
+        use std::os::unix::fs::FileExt;
+        f.write_all_at(&bytes, 0).unwrap();
+        for r in written.row0..written.row0 + written.ny {
+            let j = (H - 1 - r) as u64;
+            let row: Vec<u8> = (written.col0..written.col0 + written.nx)
+                .flat_map(|c| height(c, r).to_be_bytes())
+                .collect();
+            let at = begins[3] + (j * W as u64 + written.col0 as u64) * 2;
+            f.write_all_at(&row, at).unwrap();
+        }
+    }
+
+    /// The window read from the big file `big` (the survey plus margin of [`need`]) holds the
+    /// cells of the small copy at the same places, and the copy's block read alone is the copy.
+    fn window_equals_the_copy(big: &Path, copy: &Raster) {
+        let h = read_dem_header(big, None).unwrap();
+        assert_eq!((h.nx, h.ny, h.x_min, h.y_max), (W, H, X0, Y0));
+        assert!((W * H) as u64 > MAX_GRID_CELLS);
+        let w = read_window(big, None, &h, need(), &keys()).unwrap().raster;
+        // The cells `need` touches plus one on each side: the copy less one cell on every side.
+        assert_eq!(
+            (w.nx, w.ny),
+            (COPY.nx - 2, COPY.ny - 2),
+            "{}",
+            big.display()
+        );
+        assert_eq!(
+            (w.x_min, w.y_max),
+            (copy.x_min + CELL, copy.y_max - CELL),
+            "{}",
+            big.display()
+        );
+        for row in 0..w.ny {
+            for col in 0..w.nx {
+                assert_eq!(
+                    w.values[row * w.nx + col],
+                    copy.values[(row + 1) * copy.nx + col + 1],
+                    "{}: window cell ({col}, {row})",
+                    big.display()
+                );
+            }
+        }
+        let block = read_dem_block(big, None, COPY).unwrap();
+        assert_eq!(block.values, copy.values, "{}", big.display());
+    }
+
+    #[test]
+    fn big_geotiffs_in_strips_and_tiles_and_a_big_netcdf_are_read_by_window() {
+        let dir = tempfile::tempdir().unwrap();
+        let copy_path = dir.path().join("copy.tif");
+        striped(&copy_path, COPY, 7);
+        let copy = read_dem(&copy_path, None).unwrap();
+        assert_eq!((copy.nx, copy.ny), (COPY.nx, COPY.ny));
+
+        let strips = dir.path().join("strips.tif");
+        striped(
+            &strips,
+            CellBlock {
+                col0: 0,
+                row0: 0,
+                nx: W,
+                ny: H,
+            },
+            16,
+        );
+        let tiles = dir.path().join("tiles.tif");
+        tiled(&tiles, 256);
+        let nc = dir.path().join("sparse.nc");
+        sparse_classic(&nc, COPY);
+        for (big, whole_refusal) in [
+            (&strips, "at most 67108864"),
+            (&tiles, "at most 67108864"),
+            (&nc, "more than the 67108864 read at once"),
+        ] {
+            eprintln!(
+                "{}: {} bytes",
+                big.display(),
+                std::fs::metadata(big).unwrap().len()
+            );
+            // Read whole, the file is refused: it is past the limit of a whole read.
+            let e = read_dem(big, None).unwrap_err();
+            assert!(e[0].to_string().contains(whole_refusal), "{}", e[0]);
+            window_equals_the_copy(big, &copy);
+        }
+    }
+
+    #[test]
+    fn a_window_off_a_big_dem_is_the_coverage_error_naming_both_extents() {
+        let dir = tempfile::tempdir().unwrap();
+        let tiles = dir.path().join("tiles.tif");
+        tiled(&tiles, 512);
+        let h = read_dem_header(&tiles, None).unwrap();
+        // 20 km east of the DEM's east edge (770 000 m).
+        let need = [790_000.0, 800_000.0, 7_100_000.0, 7_110_000.0];
+        let e = read_window(&tiles, None, &h, need, &keys()).unwrap_err();
+        let text = e[0].to_string();
+        assert!(
+            text.contains("tiles.tif") && text.contains("key `terrain.dem`"),
+            "{text}"
+        );
+        assert!(
+            text.contains("spans x 500000 to 770000, y 7060000 to 7300000 m"),
+            "{text}"
+        );
+        assert!(
+            text.contains("needs x 790000 to 800000, y 7100000 to 7110000 m"),
+            "{text}"
+        );
+        assert!(text.contains("short by 30000 m east"), "{text}");
     }
 }
 

@@ -62,12 +62,102 @@ impl From<String> for Refusal {
     }
 }
 
+/// Where a north-up grid lies, read from a file's header and coordinates before any cell:
+/// `nx` columns eastwards and `ny` rows southwards of `dx` × `dy` (positive) from the outer
+/// north-west corner (`x_min`, `y_max`), in the frame's units (m, or degrees); the frame's EPSG
+/// code when the file states one; the value that marks a missing cell (NaN for NetCDF, whose
+/// missing cells come back as NaN).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct GridHeader {
+    pub nx: usize,
+    pub ny: usize,
+    pub x_min: f64,
+    pub y_max: f64,
+    pub dx: f64,
+    pub dy: f64,
+    pub epsg: Option<u32>,
+    pub nodata: Option<f64>,
+}
+
+impl GridHeader {
+    /// The grid's edges: west, east, south, north, in the frame's units.
+    pub fn extent(&self) -> [f64; 4] {
+        [
+            self.x_min,
+            self.x_min + self.nx as f64 * self.dx,
+            self.y_max - self.ny as f64 * self.dy,
+            self.y_max,
+        ]
+    }
+    /// The centre of the cell at `col` (eastwards) and `row` (southwards), counted from 0.
+    pub fn cell_centre(&self, col: usize, row: usize) -> (f64, f64) {
+        (
+            self.x_min + (col as f64 + 0.5) * self.dx,
+            self.y_max - (row as f64 + 0.5) * self.dy,
+        )
+    }
+    /// Every cell of the grid as one block.
+    pub fn whole(&self) -> CellBlock {
+        CellBlock {
+            col0: 0,
+            row0: 0,
+            nx: self.nx,
+            ny: self.ny,
+        }
+    }
+}
+
+/// A block of a north-up grid's cells: columns `col0..col0 + nx` (eastwards) and rows
+/// `row0..row0 + ny` (southwards), counted from 0 at the north-west corner.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct CellBlock {
+    pub col0: usize,
+    pub row0: usize,
+    pub nx: usize,
+    pub ny: usize,
+}
+
+impl CellBlock {
+    /// Cells of the block.
+    pub fn cells(&self) -> u64 {
+        (self.nx as u64).saturating_mul(self.ny as u64)
+    }
+    /// Whether the block lies inside a grid of `nx` × `ny` cells and holds at least one cell.
+    pub fn inside(&self, nx: usize, ny: usize) -> bool {
+        self.nx > 0
+            && self.ny > 0
+            && self.col0.checked_add(self.nx).is_some_and(|e| e <= nx)
+            && self.row0.checked_add(self.ny).is_some_and(|e| e <= ny)
+    }
+}
+
 /// Reads a terrain model from the NetCDF file at `path` (classic CDF-1/2/5 or NetCDF-4) into a
 /// north-up raster of heights in metres (frame, units and the choice of variable in the module
 /// documentation). `variable` names the 2-D variable to read; `None` lets the reader find it.
 /// Every problem carries the file's location and says what was expected.
 pub fn read_dem(path: &Path, variable: Option<&str>) -> Result<Raster, Vec<Problem>> {
-    read(path, variable, true).map_err(|r| to_problems(path, r))
+    read(path, variable, true, None).map_err(|r| to_problems(path, r))
+}
+
+/// Reads the header of a terrain model as [`read_dem`] would, with every check but those of the
+/// values: where it lies and in which frame, before any cell is decoded.
+pub fn dem_header(path: &Path, variable: Option<&str>) -> Result<GridHeader, Vec<Problem>> {
+    (|| {
+        let file = NcFile::open(path).map_err(|e| Refusal::new(e.message))?;
+        Ok(Layout::of(&file, variable, true)?.header)
+    })()
+    .map_err(|r: Refusal| to_problems(path, r))
+}
+
+/// Reads the cells `block` of a terrain model (the north-up grid of [`dem_header`]) as [`read_dem`]
+/// would: only the block is decoded, and the limit on cells read at once applies to it, not to the
+/// file. The raster's corner is the block's.
+pub fn read_dem_block(
+    path: &Path,
+    variable: Option<&str>,
+    block: CellBlock,
+) -> Result<Raster, Vec<Problem>> {
+    read(path, variable, true, Some(block)).map_err(|r| to_problems(path, r))
 }
 
 /// Reads any 2-D grid of a NetCDF-CF file into a north-up raster, as [`read_dem`] does but with
@@ -75,7 +165,7 @@ pub fn read_dem(path: &Path, variable: Option<&str>) -> Result<Raster, Vec<Probl
 /// example a product of `grids.nc` in E or mGal). `variable` names it; `None` picks it as
 /// [`read_dem`] does.
 pub fn read_grid(path: &Path, variable: Option<&str>) -> Result<Raster, Vec<Problem>> {
-    read(path, variable, false).map_err(|r| to_problems(path, r))
+    read(path, variable, false, None).map_err(|r| to_problems(path, r))
 }
 
 fn to_problems(path: &Path, r: Refusal) -> Vec<Problem> {
@@ -86,86 +176,169 @@ fn to_problems(path: &Path, r: Refusal) -> Vec<Problem> {
     vec![p]
 }
 
-fn read(path: &Path, variable: Option<&str>, heights: bool) -> Result<Raster, Refusal> {
-    let file = NcFile::open(path).map_err(|e| Refusal::new(e.message))?;
-    let var = choose_variable(&file, variable)?;
-    let name = var.name.clone();
-    if var.dims.len() != 2 {
-        return Err(Refusal::new(format!(
-            "variable `{name}` has {} dimensions, a terrain model has 2 (y, x)",
-            var.dims.len()
-        ))
-        .hint("store the heights as a 2-D variable over the dimensions (y, x)"));
-    }
-    if !var.nc_type.is_numeric() {
-        return Err(Refusal::new(format!(
-            "variable `{name}` holds {} values, expected numbers (heights in metres)",
-            var.nc_type.name()
-        )));
-    }
-    if heights {
-        check_height_units(var)?;
-    }
+/// How a file's 2-D variable maps onto the north-up grid.
+struct Layout {
+    name: String,
+    header: GridHeader,
+    /// The variable's dimensions are (x, y) rather than (y, x).
+    transposed: bool,
+    /// The file's x runs east to west.
+    flip_cols: bool,
+    /// The file's y runs south to north.
+    flip_rows: bool,
+}
 
-    let epsg = crs(&file, var)?;
-    let frame = epsg.map(frame_kind_of_epsg);
-    let a0 = axis(&file, var, 0, frame)?;
-    let a1 = axis(&file, var, 1, frame)?;
-    let (xa, ya, transposed) = match (a0.dir, a1.dir) {
-        (Dir::Y, Dir::X) => (a1, a0, false),
-        (Dir::X, Dir::Y) => (a0, a1, true),
-        _ => {
+impl Layout {
+    /// The chosen variable's layout and header, every check but those of the values done.
+    fn of(file: &NcFile, variable: Option<&str>, heights: bool) -> Result<Self, Refusal> {
+        let var = choose_variable(file, variable)?;
+        let name = var.name.clone();
+        if var.dims.len() != 2 {
             return Err(Refusal::new(format!(
-                "variable `{name}`: cannot tell which of its dimensions `{}` and `{}` runs east \
-                 and which north (from their coordinates' axis, standard_name, units or name)",
-                a0.name, a1.name
+                "variable `{name}` has {} dimensions, a terrain model has 2 (y, x)",
+                var.dims.len()
             ))
-            .hint("give the coordinate variables axis = \"X\" / \"Y\" or CF standard names"));
+            .hint("store the heights as a 2-D variable over the dimensions (y, x)"));
         }
-    };
-    if xa.geographic != ya.geographic {
-        return Err(Refusal::new(format!(
-            "coordinates `{}` and `{}` mix degrees and metres",
-            xa.name, ya.name
-        )));
-    }
-    let geographic = xa.geographic;
-
-    if let Some(code) = epsg {
-        let kind = frame_kind_of_epsg(code);
-        let want = if geographic {
-            FrameKind::Geographic
-        } else {
-            FrameKind::Projected
-        };
-        if kind != want {
+        if !var.nc_type.is_numeric() {
             return Err(Refusal::new(format!(
-                "the grid mapping gives EPSG:{code}, a {} frame, but the coordinates are in {}",
-                if kind == FrameKind::Geographic {
-                    "geographic (degrees)"
-                } else {
-                    "projected (metres)"
-                },
-                if geographic { "degrees" } else { "metres" }
+                "variable `{name}` holds {} values, expected numbers (heights in metres)",
+                var.nc_type.name()
             )));
         }
-    }
+        if heights {
+            check_height_units(var)?;
+        }
 
-    let raw = file.read_f64(&name).map_err(|e| Refusal::new(e.message))?;
+        let epsg = crs(file, var)?;
+        let frame = epsg.map(frame_kind_of_epsg);
+        let a0 = axis(file, var, 0, frame)?;
+        let a1 = axis(file, var, 1, frame)?;
+        let (xa, ya, transposed) = match (a0.dir, a1.dir) {
+            (Dir::Y, Dir::X) => (a1, a0, false),
+            (Dir::X, Dir::Y) => (a0, a1, true),
+            _ => {
+                return Err(Refusal::new(format!(
+                    "variable `{name}`: cannot tell which of its dimensions `{}` and `{}` runs \
+                     east and which north (from their coordinates' axis, standard_name, units \
+                     or name)",
+                    a0.name, a1.name
+                ))
+                .hint("give the coordinate variables axis = \"X\" / \"Y\" or CF standard names"));
+            }
+        };
+        if xa.geographic != ya.geographic {
+            return Err(Refusal::new(format!(
+                "coordinates `{}` and `{}` mix degrees and metres",
+                xa.name, ya.name
+            )));
+        }
+        let geographic = xa.geographic;
+
+        if let Some(code) = epsg {
+            let kind = frame_kind_of_epsg(code);
+            let want = if geographic {
+                FrameKind::Geographic
+            } else {
+                FrameKind::Projected
+            };
+            if kind != want {
+                return Err(Refusal::new(format!(
+                    "the grid mapping gives EPSG:{code}, a {} frame, but the coordinates are in {}",
+                    if kind == FrameKind::Geographic {
+                        "geographic (degrees)"
+                    } else {
+                        "projected (metres)"
+                    },
+                    if geographic { "degrees" } else { "metres" }
+                )));
+            }
+        }
+        let dx = xa.step.abs();
+        let dy = ya.step.abs();
+        let x_west = xa.values.iter().copied().fold(f64::INFINITY, f64::min);
+        let y_north = ya.values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        Ok(Self {
+            name,
+            header: GridHeader {
+                nx: xa.values.len(),
+                ny: ya.values.len(),
+                x_min: x_west - 0.5 * dx,
+                y_max: y_north + 0.5 * dy,
+                dx,
+                dy,
+                epsg,
+                nodata: Some(f64::NAN),
+            },
+            transposed,
+            flip_cols: xa.step < 0.0,
+            flip_rows: ya.step > 0.0,
+        })
+    }
+}
+
+/// Reads the block `block` (all cells when `None`) of the chosen variable into a north-up raster.
+fn read(
+    path: &Path,
+    variable: Option<&str>,
+    heights: bool,
+    block: Option<CellBlock>,
+) -> Result<Raster, Refusal> {
+    let file = NcFile::open(path).map_err(|e| Refusal::new(e.message))?;
+    let layout = Layout::of(&file, variable, heights)?;
+    let Layout {
+        name,
+        header: h,
+        transposed,
+        flip_cols,
+        flip_rows,
+    } = layout;
+    let b = block.unwrap_or(h.whole());
+    if !b.inside(h.nx, h.ny) {
+        return Err(Refusal::new(format!(
+            "variable `{name}`: the block of columns {} to {} and rows {} to {} is not inside its \
+             {} × {} cells",
+            b.col0,
+            b.col0.saturating_add(b.nx),
+            b.row0,
+            b.row0.saturating_add(b.ny),
+            h.nx,
+            h.ny
+        )));
+    }
+    // The block's first x and y index in the file, and how many.
+    let ix0 = if flip_cols {
+        h.nx - b.col0 - b.nx
+    } else {
+        b.col0
+    };
+    let iy0 = if flip_rows {
+        h.ny - b.row0 - b.ny
+    } else {
+        b.row0
+    };
+    let (start, count) = if transposed {
+        ([ix0 as u64, iy0 as u64], [b.nx as u64, b.ny as u64])
+    } else {
+        ([iy0 as u64, ix0 as u64], [b.ny as u64, b.nx as u64])
+    };
+    let var = file
+        .variable(&name)
+        .ok_or_else(|| Refusal::new(format!("no variable `{name}`")))?;
+    let raw = if block.is_none() {
+        file.read_f64(&name)
+    } else {
+        file.read_f64_block(&name, start, count)
+    }
+    .map_err(|e| Refusal::new(e.message))?;
     let heights = unpack(var, raw);
-    let (nx, ny) = (xa.values.len(), ya.values.len());
+    let (nx, ny) = (b.nx, b.ny);
     if heights.len() != nx * ny {
         return Err(Refusal::new(format!(
             "variable `{name}` holds {} values, its coordinates make {nx} × {ny}",
             heights.len()
         )));
     }
-    let dx = xa.step.abs();
-    let dy = ya.step.abs();
-    let x_west = xa.values.iter().copied().fold(f64::INFINITY, f64::min);
-    let y_north = ya.values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    let flip_cols = xa.step < 0.0;
-    let flip_rows = ya.step > 0.0;
     let mut values = Vec::with_capacity(nx * ny);
     for row in 0..ny {
         let iy = if flip_rows { ny - 1 - row } else { row };
@@ -182,13 +355,16 @@ fn read(path: &Path, variable: Option<&str>, heights: bool) -> Result<Raster, Re
     let raster = Raster::new(
         nx,
         ny,
-        (x_west - 0.5 * dx, y_north + 0.5 * dy),
-        (dx, dy),
+        (
+            h.x_min + b.col0 as f64 * h.dx,
+            h.y_max - b.row0 as f64 * h.dy,
+        ),
+        (h.dx, h.dy),
         values,
     )
     .map_err(|e| Refusal::new(format!("variable `{name}` does not form a raster: {e}")))?
     .with_nodata(f64::NAN);
-    Ok(match epsg {
+    Ok(match h.epsg {
         Some(c) => raster.with_epsg(c),
         None => raster,
     })

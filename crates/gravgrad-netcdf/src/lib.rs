@@ -5,6 +5,8 @@
 //!   through this crate's own parser (after Unidata's NetCDF Classic Format Specification),
 //!   NetCDF-4 files through the pure-Rust `hdf5-pure` crate — into a north-up
 //!   [`gravgrad_core::Raster`] of heights in metres.
+//! - [`dem_header`] and [`read_dem_block`]: the same, in two steps: where the grid lies (before
+//!   any cell is decoded), then only the block of cells a run needs.
 //! - [`NcFile`]: the general reader underneath (dimensions, attributes, variables, values as f64).
 //! - [`NcWriter`]: a general writer of the 64-bit offset format (CDF-2): dimensions, variables of
 //!   f32, f64, i32, i16, i8 and char, attributes. [`write_grids`] builds a CF-1.8 grid file on
@@ -26,7 +28,7 @@ pub use cf::{
     GRIDS_LAYOUT, GridError, GridFile, GridProblem, GridVariable, build_grids, frame_wkt,
     write_grids,
 };
-pub use dem::{read_dem, read_grid};
+pub use dem::{CellBlock, GridHeader, dem_header, read_dem, read_dem_block, read_grid};
 pub use model::{AttrValue, Attribute, Dimension, Format, NcType, Variable};
 pub use read::{NcFile, ReadError};
 pub use write::{DimId, NcWriter, VarData, VarId, WriteError};

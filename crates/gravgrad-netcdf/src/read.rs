@@ -25,6 +25,10 @@ pub const MAX_VALUES: u64 = MAX_GRID_CELLS;
 /// writers use by default. A classic file stores its values uncompressed: they must lie inside it.
 pub const MAX_NC4_EXPANSION: u64 = 1032;
 
+/// Values of the whole-row bands in which a block of a NetCDF-4 variable is decoded: 4 Mi (32 MiB
+/// as f64), so a band costs little beside the block whatever the variable's width.
+const BAND_VALUES: u64 = 1 << 22;
+
 /// Why a NetCDF file or one of its variables could not be read: the file and what was expected.
 #[derive(Clone, Debug, PartialEq, Eq, Error)]
 #[error("{}: {message}", .path.display())]
@@ -219,25 +223,7 @@ impl NcFile {
                 let ds = file
                     .dataset(name)
                     .map_err(|e| self.err(format!("cannot open variable `{name}`: {e}")))?;
-                let stored = count.saturating_mul(var.nc_type.size());
-                if !decoded_fits(stored, *file_len, MAX_NC4_EXPANSION) {
-                    return Err(self.err(format!(
-                        "variable `{name}` declares {count} values ({stored} bytes), more than a \
-                         file of {file_len} bytes can hold (at most {} bytes, {MAX_NC4_EXPANSION} \
-                         times its size plus {SMALL_FILE_ALLOWANCE})",
-                        decoded_bound(*file_len, MAX_NC4_EXPANSION)
-                    )));
-                }
-                if let Ok(Some(chunk)) = ds.chunk_shape() {
-                    let cells = chunk.iter().fold(1u64, |a, &n| a.saturating_mul(n));
-                    let bytes = cells.saturating_mul(var.nc_type.size());
-                    if cells > MAX_VALUES || !decoded_fits(bytes, *file_len, MAX_NC4_EXPANSION) {
-                        return Err(self.err(format!(
-                            "variable `{name}` declares chunks of {cells} values, more than a \
-                             file of {file_len} bytes can hold (limit {MAX_VALUES} values)"
-                        )));
-                    }
-                }
+                self.check_nc4_sizes(var, &ds, count, *file_len)?;
                 let v = ds
                     .read_f64()
                     .map_err(|e| self.err(format!("cannot read variable `{name}`: {e}")))?;
@@ -250,6 +236,190 @@ impl NcFile {
                 Ok(v)
             }
         }
+    }
+
+    /// The block `start[0]..start[0] + count[0]` × `start[1]..start[1] + count[1]` of the 2-D
+    /// numeric variable `name` as f64, row-major within the block (the second dimension varying
+    /// fastest), as stored (no scale, offset or fill handling).
+    ///
+    /// Only the block is decoded and held: a classic file's values are read row by row from
+    /// their place in the file; a NetCDF-4 variable is decoded a band of whole rows at a time
+    /// (the chunks meeting the block's rows), of which the block's columns are kept. The limit
+    /// [`MAX_VALUES`] applies to the block, not to the variable; the variable's declared size
+    /// must still be one the file can hold. Errors name the variable and say what was expected.
+    pub fn read_f64_block(
+        &self,
+        name: &str,
+        start: [u64; 2],
+        count: [u64; 2],
+    ) -> Result<Vec<f64>, ReadError> {
+        let Some(index) = self.variables.iter().position(|v| v.name == name) else {
+            return Err(self.err(format!("no variable `{name}`")));
+        };
+        let var = &self.variables[index];
+        if !var.nc_type.is_numeric() {
+            return Err(self.err(format!(
+                "variable `{name}` holds {} values, expected numbers",
+                var.nc_type.name()
+            )));
+        }
+        let shape = self.shape(var);
+        if shape.len() != 2 {
+            return Err(self.err(format!(
+                "variable `{name}` has {} dimensions, a block is read from 2",
+                shape.len()
+            )));
+        }
+        for k in 0..2 {
+            let end = start[k].checked_add(count[k]);
+            if count[k] == 0 || end.is_none_or(|e| e > shape[k]) {
+                return Err(self.err(format!(
+                    "variable `{name}`: the block's {} {} to {} is not inside its {} along \
+                     dimension `{}`",
+                    count[k],
+                    start[k],
+                    start[k].saturating_add(count[k]),
+                    shape[k],
+                    self.dims[var.dims[k]].name
+                )));
+            }
+        }
+        let cells = count[0].saturating_mul(count[1]);
+        if cells > MAX_VALUES {
+            return Err(self.err(format!(
+                "variable `{name}`: the block of {} × {} = {cells} values is more than the \
+                 {MAX_VALUES} read at once",
+                count[0], count[1]
+            )));
+        }
+        match &self.backend {
+            Backend::Classic {
+                places,
+                recsize,
+                file_len,
+                ..
+            } => self.read_classic_block(var, &places[index], (*recsize, *file_len), start, count),
+            Backend::Nc4(file, file_len) => {
+                let ds = file
+                    .dataset(name)
+                    .map_err(|e| self.err(format!("cannot open variable `{name}`: {e}")))?;
+                self.check_nc4_sizes(var, &ds, shape[0].saturating_mul(shape[1]), *file_len)?;
+                // Bands of whole rows of at most about BAND_VALUES values.
+                let band = (BAND_VALUES / shape[1].max(1)).max(1);
+                let (c0, nc) = (start[1] as usize, count[1] as usize);
+                let mut out = Vec::new();
+                out.try_reserve_exact(cells as usize)
+                    .map_err(|_| self.err(format!("no memory for a block of `{name}`")))?;
+                let mut row = start[0];
+                let end = start[0] + count[0];
+                while row < end {
+                    let n = band.min(end - row);
+                    let v = ds.read_f64_rows(row, n).map_err(|e| {
+                        self.err(format!(
+                            "cannot read rows {row} to {} of variable `{name}`: {e}",
+                            row + n
+                        ))
+                    })?;
+                    let width = shape[1] as usize;
+                    if v.len() != n as usize * width {
+                        return Err(self.err(format!(
+                            "variable `{name}`: {} values read for {n} rows of {width}",
+                            v.len()
+                        )));
+                    }
+                    for r in v.chunks_exact(width) {
+                        out.extend_from_slice(&r[c0..c0 + nc]);
+                    }
+                    row += n;
+                }
+                Ok(out)
+            }
+        }
+    }
+
+    /// Refuses a NetCDF-4 variable of `count` values, or chunks of it, that the file of
+    /// `file_len` bytes cannot hold at deflate's largest expansion ([`MAX_NC4_EXPANSION`]).
+    fn check_nc4_sizes(
+        &self,
+        var: &Variable,
+        ds: &hdf5_pure::Dataset,
+        count: u64,
+        file_len: u64,
+    ) -> Result<(), ReadError> {
+        let name = &var.name;
+        let stored = count.saturating_mul(var.nc_type.size());
+        if !decoded_fits(stored, file_len, MAX_NC4_EXPANSION) {
+            return Err(self.err(format!(
+                "variable `{name}` declares {count} values ({stored} bytes), more than a \
+                 file of {file_len} bytes can hold (at most {} bytes, {MAX_NC4_EXPANSION} \
+                 times its size plus {SMALL_FILE_ALLOWANCE})",
+                decoded_bound(file_len, MAX_NC4_EXPANSION)
+            )));
+        }
+        if let Ok(Some(chunk)) = ds.chunk_shape() {
+            let cells = chunk.iter().fold(1u64, |a, &n| a.saturating_mul(n));
+            let bytes = cells.saturating_mul(var.nc_type.size());
+            if cells > MAX_VALUES || !decoded_fits(bytes, file_len, MAX_NC4_EXPANSION) {
+                return Err(self.err(format!(
+                    "variable `{name}` declares chunks of {cells} values, more than a \
+                     file of {file_len} bytes can hold (limit {MAX_VALUES} values)"
+                )));
+            }
+        }
+        Ok(())
+    }
+
+    /// The block of a classic file's 2-D variable, read row by row from its place in the file.
+    fn read_classic_block(
+        &self,
+        var: &Variable,
+        place: &VarPlace,
+        (recsize, file_len): (u64, u64),
+        start: [u64; 2],
+        count: [u64; 2],
+    ) -> Result<Vec<f64>, ReadError> {
+        use std::os::unix::fs::FileExt;
+        let name = &var.name;
+        let size = var.nc_type.size();
+        let n1 = self.dims[var.dims[1]].len;
+        // Bytes from one row of the first dimension to the next.
+        let stride = if place.record {
+            recsize
+        } else {
+            n1.saturating_mul(size)
+        };
+        let row_bytes = count[1] * size;
+        let last = (start[0] + count[0] - 1)
+            .checked_mul(stride)
+            .and_then(|o| o.checked_add(place.begin))
+            .and_then(|o| o.checked_add((start[1] + count[1]) * size));
+        match last {
+            Some(end) if end <= file_len => {}
+            _ => {
+                return Err(self.err(format!(
+                    "truncated: variable `{name}`: its rows {} to {} run past the end of the \
+                     file ({file_len} bytes)",
+                    start[0],
+                    start[0] + count[0]
+                )));
+            }
+        }
+        let f = File::open(&self.path).map_err(|e| self.err(format!("cannot open: {e}")))?;
+        let mut out = Vec::new();
+        out.try_reserve_exact((count[0] * count[1]) as usize)
+            .map_err(|_| self.err(format!("no memory for a block of `{name}`")))?;
+        let mut buf = vec![0u8; row_bytes as usize];
+        for i0 in start[0]..start[0] + count[0] {
+            // Inside the file: checked above for the last row.
+            let at = place.begin + i0 * stride + start[1] * size;
+            f.read_exact_at(&mut buf, at).map_err(|e| {
+                self.err(format!(
+                    "cannot read row {i0} of variable `{name}` at byte {at}: {e}"
+                ))
+            })?;
+            classic::decode_numbers(var.nc_type, &buf, &mut out);
+        }
+        Ok(out)
     }
 
     fn read_classic(

@@ -15,8 +15,8 @@
 
 use gravgrad_core::Raster;
 use gravgrad_netcdf::{
-    AttrValue, Format, GridError, GridFile, GridProblem, NcFile, NcWriter, VarData, read_dem,
-    read_grid, write_grids,
+    AttrValue, CellBlock, Format, GridError, GridFile, GridProblem, NcFile, NcWriter, VarData,
+    dem_header, read_dem, read_dem_block, read_grid, write_grids,
 };
 use proptest::prelude::*;
 use std::path::{Path, PathBuf};
@@ -104,6 +104,87 @@ fn python_written_terrain_models_read_as_stated() {
         assert!(
             r.values.iter().any(|v| v.is_nan()) == want.iter().any(|v| v.is_nan()),
             "{name}: missing cells"
+        );
+    }
+}
+
+/// Every block read alone (`read_dem_block`) holds the same cells as the whole read of the file,
+/// whatever the file's order (y up or down, transposed, a record variable, NetCDF-4); the header
+/// (`dem_header`) is the whole read's grid.
+#[test]
+fn blocks_of_python_written_terrain_models_equal_the_whole_read() {
+    let text = std::fs::read_to_string(good("expected.json")).unwrap();
+    let expected: serde_json::Value = serde_json::from_str(&text).unwrap();
+    for name in expected
+        .as_object()
+        .unwrap()
+        .keys()
+        .filter(|k| !k.starts_with('_'))
+    {
+        let path = good(name);
+        let whole = read_dem(&path, None).unwrap();
+        let h = dem_header(&path, None).unwrap();
+        assert_eq!(
+            (h.nx, h.ny, h.x_min, h.y_max, h.dx, h.dy, h.epsg),
+            (
+                whole.nx,
+                whole.ny,
+                whole.x_min,
+                whole.y_max,
+                whole.dx,
+                whole.dy,
+                whole.epsg
+            ),
+            "{name}: header"
+        );
+        let mut blocks = vec![h.whole()];
+        for row0 in 0..h.ny {
+            for col0 in 0..h.nx {
+                blocks.push(CellBlock {
+                    col0,
+                    row0,
+                    nx: (h.nx - col0).min(3),
+                    ny: (h.ny - row0).min(2),
+                });
+                blocks.push(CellBlock {
+                    col0,
+                    row0,
+                    nx: h.nx - col0,
+                    ny: h.ny - row0,
+                });
+            }
+        }
+        for b in blocks {
+            let r =
+                read_dem_block(&path, None, b).unwrap_or_else(|p| panic!("{name} {b:?}: {p:?}"));
+            assert_eq!((r.nx, r.ny), (b.nx, b.ny), "{name} {b:?}");
+            assert_eq!(
+                (r.x_min, r.y_max),
+                (
+                    h.x_min + b.col0 as f64 * h.dx,
+                    h.y_max - b.row0 as f64 * h.dy
+                ),
+                "{name} {b:?}: corner"
+            );
+            let want: Vec<f64> = (b.row0..b.row0 + b.ny)
+                .flat_map(|row| (b.col0..b.col0 + b.nx).map(move |col| (col, row)))
+                .map(|(col, row)| whole.values[row * whole.nx + col])
+                .collect();
+            same_values(&format!("{name} {b:?}"), &r.values, &want);
+        }
+        // A block past the grid is refused, naming the grid's size.
+        let past = CellBlock {
+            col0: h.nx - 1,
+            row0: 0,
+            nx: 2,
+            ny: 1,
+        };
+        let p = read_dem_block(&path, None, past).unwrap_err();
+        assert!(
+            p[0].to_string()
+                .contains(&format!("{} × {} cells", h.nx, h.ny)),
+            "{name}: {}",
+            p[0]
         );
     }
 }

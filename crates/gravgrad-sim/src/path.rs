@@ -233,8 +233,9 @@ pub(crate) fn norm(v: [f64; 2]) -> f64 {
     (v[0] * v[0] + v[1] * v[1]).sqrt()
 }
 
-/// Samples the plan at the sample rate, `start_s` the time of the first sample.
-pub fn fly(plan: &Plan, dynamics: &Dynamics, surface: &Surface, start_s: f64) -> Track {
+/// The pieces of the plan's path in flying order: each leg, with a transit before every leg but
+/// the first.
+fn pieces(plan: &Plan) -> Vec<Piece> {
     let legs = legs(plan);
     let radius = plan.speed_m_s / plan.turn_rate_deg_s.to_radians();
     let mut pieces = Vec::new();
@@ -260,10 +261,52 @@ pub fn fly(plan: &Plan, dynamics: &Dynamics, surface: &Surface, start_s: f64) ->
             line: leg.line,
         });
     }
+    pieces
+}
+
+/// Samples of a path `total` m long flown at the plan's speed and rate.
+fn samples(total: f64, plan: &Plan) -> usize {
+    let dt = 1.0 / plan.sample_rate_hz;
+    (total / plan.speed_m_s / dt).floor() as usize + 1
+}
+
+/// How many samples [`fly`] takes of the plan and the extent of its path (north min, north max,
+/// east min, east max; local m), known without flying it: the same legs and transits, each transit
+/// evaluated at 512 points for the extent.
+pub fn outline(plan: &Plan) -> (usize, [f64; 4]) {
+    let pieces = pieces(plan);
+    let total: f64 = pieces.iter().map(Piece::length).sum();
+    let mut ext = [
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+    ];
+    for pc in &pieces {
+        let steps = match pc {
+            Piece::Straight { .. } => 1,
+            Piece::Hermite { .. } => 512,
+        };
+        for k in 0..=steps {
+            let p = pc.eval(k as f64 / steps as f64).0;
+            ext = [
+                ext[0].min(p[0]),
+                ext[1].max(p[0]),
+                ext[2].min(p[1]),
+                ext[3].max(p[1]),
+            ];
+        }
+    }
+    (samples(total, plan), ext)
+}
+
+/// Samples the plan at the sample rate, `start_s` the time of the first sample.
+pub fn fly(plan: &Plan, dynamics: &Dynamics, surface: &Surface, start_s: f64) -> Track {
+    let pieces = pieces(plan);
     let total: f64 = pieces.iter().map(Piece::length).sum();
     let dt = 1.0 / plan.sample_rate_hz;
     let v = plan.speed_m_s;
-    let n = (total / v / dt).floor() as usize + 1;
+    let n = samples(total, plan);
     let mut tr = Track::default();
     let (mut piece, mut base) = (0usize, 0.0);
     for i in 0..n {

@@ -460,13 +460,31 @@ pub const MAX_SIM_SAMPLES: f64 = 1.0e6;
 pub const SIM_BYTES_PER_SAMPLE: f64 = 1500.0;
 /// Most cells of the simulated DEM (each a prism of about 60 bytes, plus its elevation).
 pub const MAX_SIM_DEM_CELLS: f64 = 4.0e6;
-/// Most prism evaluations of the terrain truth (every DEM cell at every sample, exact). A stop for
-/// runaway scenarios, not a time bound: the 200 Hz scenario above (1.5e9 evaluations) took 95 s
-/// in all on two shared cores (release build), and the calibration-flight scenario of the
-/// end-to-end tests needs about 1e10.
-pub const MAX_SIM_PRISM_EVALUATIONS: f64 = 2.0e10;
+/// Most prism evaluations of the terrain truth: every DEM cell's prism at every sample of the path
+/// (survey and calibration flight), counted exactly by [`Scenario::sizes`] before the simulation
+/// (the former estimate from the plan alone was 3 to 7 times the real count). The terrain truth is
+/// nearly all of a simulation's time. Measured on this machine (two cores shared with other builds,
+/// release build): the prism kernel at 5.0 × 10⁶ evaluations a second on 1 thread and 5.1 × 10⁶ on
+/// 2 (`xtask bench-prisms --side 200 --points 40`, load 5 to 7), whole simulations at 5.5 × 10⁶ to
+/// 8.9 × 10⁶ a second on 2 threads ([`SIM_PRISM_EVALUATIONS_PER_S`]; docs/reliability.md,
+/// "Simulator sizes"). The limit is set by the largest scenario the tests simulate, the calibration
+/// flight of the end-to-end tests (2.10 × 10⁹ evaluations, 321 s measured), with a margin of 20 %:
+/// the largest scenario accepted takes about 8 minutes here, not under 60 s. Holding every
+/// simulation under 60 s needs a terrain truth about ten times faster, or smaller test scenarios.
+pub const MAX_SIM_PRISM_EVALUATIONS: f64 = 2.5e9;
+/// Prism evaluations a second the whole simulation achieves here on 2 threads, the slowest
+/// measured (docs/reliability.md): the time a refused scenario would have taken is told by it.
+pub const SIM_PRISM_EVALUATIONS_PER_S: f64 = 5.0e6;
 /// Highest sample rate a scenario may ask for, Hz.
 pub const MAX_SAMPLE_RATE_HZ: f64 = 1000.0;
+
+/// The smallest and largest of `v` (infinite when empty).
+fn minmax(v: &[f64]) -> (f64, f64) {
+    v.iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
+            (a.min(x), b.max(x))
+        })
+}
 
 /// Whether `v` is a number no larger than `limit` (NaN is not).
 fn within(v: f64, limit: f64) -> bool {
@@ -491,9 +509,10 @@ pub struct TooLarge {
 }
 
 impl Scenario {
-    /// The sizes the scenario will need (upper estimates from the plan: every line, tie and turn
-    /// flown at `plan.speed_m_s`).
-    pub fn sizes(&self) -> ScenarioSizes {
+    /// Upper estimates of the sizes the scenario will need, from the plan alone and in constant
+    /// time: every line, tie and turn flown at `plan.speed_m_s`, turns of twice the radius beyond
+    /// the path. They stop runaway scenarios before [`Scenario::sizes`] lays out the path.
+    pub fn rough_sizes(&self) -> ScenarioSizes {
         let p = &self.plan;
         let v = p.speed_m_s;
         let radius = v / p.turn_rate_deg_s.to_radians();
@@ -526,8 +545,37 @@ impl Scenario {
         }
     }
 
-    /// Refuses a scenario past [`MAX_SIM_SAMPLES`], [`MAX_SIM_DEM_CELLS`] or
-    /// [`MAX_SIM_PRISM_EVALUATIONS`], naming the key most to blame and the size it would need.
+    /// The sizes the simulation will have, from the same path layout it flies, without sampling
+    /// the terrain: the samples of the survey path and of the calibration flight, and the cells of
+    /// the DEM over both paths plus `terrain.margin_m` (the DEM the simulation builds, and the
+    /// prisms of its terrain truth). Call only after [`Scenario::rough_sizes`] is within the limits.
+    pub fn sizes(&self) -> ScenarioSizes {
+        let (n, [n0, n1, e0, e1]) = crate::path::outline(&self.plan);
+        let (mut dn, mut de) = ([n0, n1], [e0, e1]);
+        let mut samples = n as f64;
+        if let Some(cf) = &self.calibration_flight {
+            let centre = [0.5 * (n0 + n1), 0.5 * (e0 + e1)];
+            let height = self.area.ground_height_m + cf.altitude_m;
+            let cal = crate::calflight::fly(cf, &self.plan, centre, height, 0.0);
+            let (a, b) = minmax(&cal.north);
+            let (c, d) = minmax(&cal.east);
+            dn = [dn[0].min(a), dn[1].max(b)];
+            de = [de[0].min(c), de[1].max(d)];
+            samples += cal.time_s.len() as f64;
+        }
+        let (m, cell) = (self.terrain.margin_m, self.terrain.cell_m);
+        // As `Surface::dem` counts them.
+        let rows = ((dn[1] - dn[0] + 2.0 * m) / cell).ceil().max(1.0);
+        let cols = ((de[1] - de[0] + 2.0 * m) / cell).ceil().max(1.0);
+        ScenarioSizes {
+            samples,
+            dem_cells: rows * cols,
+        }
+    }
+
+    /// Refuses a scenario past [`MAX_SIM_SAMPLES`] or [`MAX_SIM_DEM_CELLS`] (by the rough sizes),
+    /// or [`MAX_SIM_PRISM_EVALUATIONS`] (by the exact ones), naming the key most to blame and the
+    /// size it would need; gives the exact sizes.
     /// Call after the values are known to be positive and finite.
     pub fn check_sizes(&self) -> Result<ScenarioSizes, TooLarge> {
         let p = &self.plan;
@@ -540,7 +588,7 @@ impl Scenario {
                 ),
             });
         }
-        let s = self.sizes();
+        let s = self.rough_sizes();
         let d = Plan::default();
         // The plan key furthest above its default is the one to blame for the samples.
         let sample_key = [
@@ -581,13 +629,26 @@ impl Scenario {
                 ),
             });
         }
+        // Within the rough limits: lay out the path for the exact count.
+        let s = self.sizes();
         let work = s.dem_cells * s.samples;
         if !within(work, MAX_SIM_PRISM_EVALUATIONS) {
+            // Halving the cell quarters the work; halving the rate halves it.
+            let key = if cell_key == "terrain.margin_m" {
+                cell_key
+            } else if p.sample_rate_hz / d.sample_rate_hz > td.cell_m / self.terrain.cell_m {
+                "plan.sample_rate_hz"
+            } else {
+                "terrain.cell_m"
+            };
             return Err(TooLarge {
-                key: cell_key,
+                key,
                 message: format!(
-                    "the terrain truth would take {:.3e} prism evaluations ({:.0} cells at {:.0} samples); the limit is {MAX_SIM_PRISM_EVALUATIONS:e}: coarsen `terrain.cell_m` or shorten the plan",
-                    work, s.dem_cells, s.samples
+                    "the terrain truth would take {:.3e} prism evaluations ({:.0} DEM cells at {:.0} samples), about {:.0} s at {SIM_PRISM_EVALUATIONS_PER_S:e} a second; the limit is {MAX_SIM_PRISM_EVALUATIONS:e}: coarsen `terrain.cell_m` (the work falls with its square), lower `plan.sample_rate_hz` or `terrain.margin_m`, or shorten the plan",
+                    work,
+                    s.dem_cells,
+                    s.samples,
+                    work / SIM_PRISM_EVALUATIONS_PER_S
                 ),
             });
         }

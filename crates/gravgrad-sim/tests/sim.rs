@@ -911,6 +911,17 @@ fn scenarios_past_their_size_limits_are_refused_naming_the_key() {
             "plan.line_length_m",
             "samples",
         ),
+        // Within the samples and DEM limits, past the terrain truth's work.
+        (
+            "[terrain]\ncell_m = 10.0",
+            "terrain.cell_m",
+            "prism evaluations",
+        ),
+        (
+            "[plan]\nsample_rate_hz = 400.0",
+            "plan.sample_rate_hz",
+            "prism evaluations",
+        ),
     ] {
         let s = scenario(&format!("{base}{extra}"));
         let Err(e) = simulate(&s) else {
@@ -918,5 +929,43 @@ fn scenarios_past_their_size_limits_are_refused_naming_the_key() {
         };
         let text = e.to_string();
         assert!(text.contains(key) && text.contains(what), "{extra}: {text}");
+    }
+}
+
+/// The sizes counted before a simulation (`Scenario::sizes`) are the simulation's own: its samples
+/// (survey and calibration flight) and its DEM's cells, whose product is the terrain truth's prism
+/// evaluations that `MAX_SIM_PRISM_EVALUATIONS` bounds.
+#[test]
+fn counted_sizes_are_the_simulations_own() {
+    for s in [scenario(SMALL), with_calibration_flight()] {
+        let counted = s.check_sizes().expect("fits");
+        let sim = simulate(&s).unwrap();
+        let samples = sim.truth.terrain.len()
+            + sim
+                .calibration
+                .as_ref()
+                .map_or(0, |c| c.truth.terrain.len());
+        assert_eq!(counted.samples, samples as f64);
+        assert_eq!(counted.dem_cells, sim.dem.values.len() as f64);
+        // The rough estimate that stops runaway scenarios is an upper bound.
+        let rough = s.rough_sizes();
+        assert!(rough.samples >= counted.samples && rough.dem_cells >= counted.dem_cells);
+    }
+}
+
+/// The demo scenario and the scenario files of the tests fit the limits.
+#[test]
+fn the_repositorys_scenario_files_fit_the_limits() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+    for f in [
+        "data/demo/scenario.toml",
+        "data/demo/truth/scenario.toml",
+        "tests/end_to_end/small_scenario.toml",
+    ] {
+        let text = std::fs::read_to_string(root.join(f)).unwrap();
+        let sizes = scenario(&text)
+            .check_sizes()
+            .unwrap_or_else(|e| panic!("{f}: {}", e.message));
+        assert!(sizes.samples * sizes.dem_cells > 0.0, "{f}");
     }
 }
