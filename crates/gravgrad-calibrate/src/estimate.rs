@@ -219,9 +219,12 @@ impl Normal {
             .iter()
             .map(|c| (c.iter().map(|v| v * v).sum::<f64>() / n.max(1) as f64).sqrt())
             .collect();
-        let a: Vec<Vec<f64>> = (0..k)
+        // The upper triangle, rows across threads (each entry one dot product in sample order,
+        // whatever the thread count), then mirrored.
+        let upper: Vec<Vec<f64>> = (0..k)
+            .into_par_iter()
             .map(|i| {
-                (0..k)
+                (i..k)
                     .map(|j| {
                         if scale[i] > 0.0 && scale[j] > 0.0 {
                             columns[i]
@@ -232,6 +235,19 @@ impl Normal {
                                 / (scale[i] * scale[j])
                         } else {
                             0.0
+                        }
+                    })
+                    .collect()
+            })
+            .collect();
+        let a: Vec<Vec<f64>> = (0..k)
+            .map(|i| {
+                (0..k)
+                    .map(|j| {
+                        if j >= i {
+                            upper[i][j - i]
+                        } else {
+                            upper[j][i - j]
                         }
                     })
                     .collect()
@@ -774,14 +790,18 @@ impl Design {
         }
     }
 
-    /// What of series `x` (on the design's time base) the band fit's regressors do not explain:
-    /// `x` band-passed run by run as the fit reads it, less its least-squares projection on every
-    /// resolved band column. Regressing on these residuals gives the coefficient a further regressor
-    /// would get beside the band columns (Frisch–Waugh–Lovell), so a parameter shared by many
-    /// series can be fitted without fitting every series' own coefficients jointly with it.
-    pub(crate) fn band_residual(&self, x: &[f64]) -> Vec<f64> {
+    /// Series `x` (on the design's time base) band-passed run by run as the band fit reads it.
+    pub(crate) fn band_pass(&self, x: &[f64]) -> Vec<f64> {
         let [lo, hi] = self.band_hz;
-        let y = band_pass_runs(x, &self.runs, self.rate_hz, lo, hi);
+        band_pass_runs(x, &self.runs, self.rate_hz, lo, hi)
+    }
+
+    /// A band-passed series `y` less its least-squares projection on every resolved band column:
+    /// what the band fit's regressors do not explain. Regressing on these residuals gives the
+    /// coefficient a further regressor would get beside the band columns (Frisch–Waugh–Lovell), so
+    /// a parameter shared by many series can be fitted without fitting every series' own
+    /// coefficients jointly with it.
+    pub(crate) fn project_out(&self, y: Vec<f64>) -> Vec<f64> {
         let nm = &self.band_normal;
         let kept = nm.chol.kept_sorted();
         let rhs: Vec<f64> = kept
@@ -810,6 +830,12 @@ impl Design {
             }
         }
         r
+    }
+
+    /// Samples per cluster of the band fit's cluster-robust standard errors: twice the band's
+    /// longest period.
+    pub(crate) fn batch_length(&self) -> usize {
+        2 * (self.rate_hz / self.band_hz[0]).ceil() as usize
     }
 
     /// Condition number estimates of the band fit's and the whole-band fit's regressors.
@@ -844,20 +870,30 @@ pub(crate) fn fit_with(
     products: Option<&[Vec<f64>; 6]>,
     s: &Settings,
 ) -> (PairCalibration, Vec<HeldTerm>) {
-    let [lo, hi] = s.band_hz;
     // Step 1: κ (and the rotation and quadratic regressors) in the band where aircraft motion
     // dominates. Each line is filtered on its own, so that nothing of the turns (where rotation
     // terms are thousands of times larger) leaks into the line samples, and the ends of each line
     // are dropped. Only what the data resolve, and significantly, is kept.
-    let y_band = band_pass_runs(y, &design.runs, s.rate_hz, lo, hi);
+    fit_with_band(design, y, &design.band_pass(y), d, products, s)
+}
+
+/// [`fit_with`] with `y` band-passed already ([`Design::band_pass`]) as `y_band`.
+pub(crate) fn fit_with_band(
+    design: &Design,
+    y: &[f64],
+    y_band: &[f64],
+    d: &PairData<'_>,
+    products: Option<&[Vec<f64>; 6]>,
+    s: &Settings,
+) -> (PairCalibration, Vec<HeldTerm>) {
     let fit1 = regress_with(
         &design.band_normal,
         &design.band_columns,
-        &y_band,
+        y_band,
         &design.band_names,
         &[],
         s.min_significance,
-        Some(2 * (s.rate_hz / lo).ceil() as usize),
+        Some(design.batch_length()),
     );
     let c1 = &fit1.coefs;
     let band_residual_rms =

@@ -9,15 +9,17 @@
 //! that sees ωz by about −2|b|βz/V, beyond its standard error on a calibration flight.
 //!
 //! β is fitted jointly over the six tensor rows, each row's own band regressors (force, quadratic
-//! products) profiled out first (Frisch–Waugh–Lovell; Frisch & Waugh 1933, Lovell 1963), each row
-//! weighted by its residual variance inflated for autocorrelation (Bretherton et al. 1999). A
-//! component below the significance threshold is held at zero and named, as every other term.
+//! products, axis-error terms) profiled out first (Frisch–Waugh–Lovell; Frisch & Waugh 1933, Lovell
+//! 1963), each row weighted by its residual variance, with cluster-robust standard errors over
+//! batches of time (Bester, Conley & Hansen 2011). A component below the significance threshold is
+//! held at zero and named, as every other term.
 //!
 //! Units: β in rad/s, rates in rad/s, the tensor rows' targets in s⁻² (the unknowns' units).
 
-use crate::estimate::{Coefficient, Design, HeldTerm, effective_size};
+use crate::estimate::{Coefficient, Design, HeldTerm};
 use gravgrad_core::lstsq::PivotedCholesky;
 use gravgrad_core::pairs::PairGeometry;
+use rayon::prelude::*;
 
 /// Coefficient of β_m·ω_c in component (a, b) of δM = ωβᵀ + βωᵀ − 2(ω·β)I.
 fn k(a: usize, b: usize, m: usize, c: usize) -> f64 {
@@ -48,7 +50,7 @@ pub struct GyroBias {
 pub const NAMES: [&str; 3] = ["gyro bias x", "gyro bias y", "gyro bias z"];
 
 /// β from the six tensor rows' targets `targets[..6]` (s⁻²) and the rates `omega` (rad/s), both on
-/// `design`'s time base. Row j carries −Σ_i mix[j][i]·δM_i: `mix` is the solve's P·A restricted to
+/// `design`'s time base and band-passed already ([`Design::band_pass`]). Row j carries −Σ_i mix[j][i]·δM_i: `mix` is the solve's P·A restricted to
 /// the tensor (the identity when the pairs determine the whole tensor). Components whose estimate
 /// lies within `min_z` standard errors of zero, or which the rows do not resolve, are held at zero.
 pub(crate) fn estimate(
@@ -58,65 +60,48 @@ pub(crate) fn estimate(
     omega: [&[f64]; 3],
     min_z: f64,
 ) -> GyroBias {
-    let w: Vec<Vec<f64>> = omega.iter().map(|o| design.band_residual(o)).collect();
-    let y: Vec<Vec<f64>> = targets[..6]
+    let series: Vec<&[f64]> = omega
         .iter()
-        .map(|t| design.band_residual(t))
+        .copied()
+        .chain(targets[..6].iter().map(|t| &t[..]))
         .collect();
-    let n = y.first().map_or(0, Vec::len);
-    // Row j's regressor for β_m: −Σ_i mix[j][i] Σ_c k_i·ω⊥_c (the target carries −δM).
-    let regressor = |j: usize, m: usize| -> Vec<f64> {
-        let mut v = vec![0.0; n];
-        for (c, wc) in w.iter().enumerate() {
-            let kk: f64 = ROWS
-                .iter()
-                .zip(&mix[j])
-                .map(|((a, b), mx)| mx * k(*a, *b, m, c))
-                .sum();
-            if kk != 0.0 {
-                for (x, o) in v.iter_mut().zip(wc) {
-                    *x -= kk * o;
-                }
-            }
-        }
-        v
-    };
-    let x: Vec<[Vec<f64>; 3]> = (0..6)
-        .map(|j| std::array::from_fn(|m| regressor(j, m)))
+    let mut profiled: Vec<Vec<f64>> = series
+        .par_iter()
+        .map(|x| design.project_out(x.to_vec()))
         .collect();
+    let y: Vec<Vec<f64>> = profiled.split_off(3);
+    let w = profiled;
+    // Row j's regressor for β_m is Σ_c L_j[m][c]·ω⊥_c, L_j[m][c] = −Σ_i mix[j][i]·k_i(m, c) (the
+    // target carries −δM).
+    let l: Vec<[[f64; 3]; 3]> = (0..6)
+        .map(|j| {
+            std::array::from_fn(|m| {
+                std::array::from_fn(|c| {
+                    -ROWS
+                        .iter()
+                        .zip(&mix[j])
+                        .map(|((a, b), mx)| mx * k(*a, *b, m, c))
+                        .sum::<f64>()
+                })
+            })
+        })
+        .collect();
+    let stats = BatchStats::of(&w, &y, design.batch_length());
     let mut active: Vec<usize> = vec![0, 1, 2];
     let mut held: Vec<HeldTerm> = Vec::new();
-    // Each row's weight 1/(σ² · n/n_eff) from its residual; first from the target alone, then
-    // from the residual of the fit, until the held set settles.
-    let mut weight: Vec<f64> = y.iter().map(|r| row_weight(r)).collect();
+    // Rows weighted by 1/σ² of their residual: first of the target alone, then of the fit's.
+    let mut weight: Vec<f64> = (0..6)
+        .map(|j| stats.weight(j, &l[j], &active, &[]))
+        .collect();
     loop {
-        let Some(fit) = solve(&x, &y, &weight, &active) else {
-            for &m in &active {
-                held.push(unresolved(m));
-            }
-            active.clear();
-            break;
-        };
-        weight = (0..6)
-            .map(|j| {
-                let r: Vec<f64> = (0..n)
-                    .map(|i| {
-                        y[j][i]
-                            - active
-                                .iter()
-                                .zip(&fit.0)
-                                .map(|(&m, b)| b * x[j][m][i])
-                                .sum::<f64>()
-                    })
-                    .collect();
-                row_weight(&r)
-            })
-            .collect();
-        let Some(fit) = solve(&x, &y, &weight, &active) else {
-            for &m in &active {
-                held.push(unresolved(m));
-            }
-            active.clear();
+        let fitted = stats.solve(&l, &weight, &active).and_then(|fit| {
+            weight = (0..6)
+                .map(|j| stats.weight(j, &l[j], &active, &fit.0))
+                .collect();
+            stats.solve(&l, &weight, &active)
+        });
+        let Some(fit) = fitted else {
+            held.extend(active.iter().map(|&m| unresolved(m)));
             break;
         };
         let weakest = active
@@ -125,45 +110,212 @@ pub(crate) fn estimate(
             .map(|(a, &m)| (a, m, (fit.0[a] / fit.1[a]).abs()))
             .filter(|t| t.2.is_nan() || t.2 < min_z)
             .min_by(|p, q| p.2.total_cmp(&q.2));
-        match weakest {
-            Some((a, m, z)) => {
-                held.push(HeldTerm {
-                    term: NAMES[m].into(),
-                    estimate: Some(Coefficient {
-                        value: fit.0[a],
-                        std_error: fit.1[a],
-                    }),
-                    effect_rms: None,
-                    reason: format!(
-                        "not significant (|estimate| {z:.1} standard errors, {min_z} needed)"
-                    ),
-                });
-                active.remove(a);
-                if active.is_empty() {
-                    break;
-                }
+        let Some((a, m, z)) = weakest else {
+            let mut beta = [HELD; 3];
+            for (a, &m) in active.iter().enumerate() {
+                beta[m] = Coefficient {
+                    value: fit.0[a],
+                    std_error: fit.1[a],
+                };
             }
-            None => {
-                let mut beta = [Coefficient {
-                    value: 0.0,
-                    std_error: f64::INFINITY,
-                }; 3];
-                for (a, &m) in active.iter().enumerate() {
-                    beta[m] = Coefficient {
-                        value: fit.0[a],
-                        std_error: fit.1[a],
-                    };
-                }
-                return GyroBias { beta, held };
-            }
+            return GyroBias { beta, held };
+        };
+        held.push(HeldTerm {
+            term: NAMES[m].into(),
+            estimate: Some(Coefficient {
+                value: fit.0[a],
+                std_error: fit.1[a],
+            }),
+            effect_rms: None,
+            reason: format!("not significant (|estimate| {z:.1} standard errors, {min_z} needed)"),
+        });
+        active.remove(a);
+        if active.is_empty() {
+            break;
         }
     }
     GyroBias {
-        beta: [Coefficient {
-            value: 0.0,
-            std_error: f64::INFINITY,
-        }; 3],
+        beta: [HELD; 3],
         held,
+    }
+}
+
+/// A component held at zero: no value, no standard error of its own.
+const HELD: Coefficient = Coefficient {
+    value: 0.0,
+    std_error: f64::INFINITY,
+};
+
+/// One batch's sums: Σ ω⊥_c ω⊥_d, per row Σ ω⊥_c y_j, per row Σ y_j².
+type BatchSums = ([[f64; 3]; 3], [[f64; 3]; 6], [f64; 6]);
+
+/// Sums over consecutive batches of samples of what the weighted least squares and its
+/// cluster-robust errors need, so that every refit is a few 3 × 3 products per batch instead of a
+/// pass over the samples.
+struct BatchStats {
+    n: usize,
+    batches: Vec<BatchSums>,
+}
+
+impl BatchStats {
+    fn of(w: &[Vec<f64>], y: &[Vec<f64>], batch: usize) -> Self {
+        let n = y.first().map_or(0, Vec::len);
+        let batch = batch.max(1);
+        let batches = (0..n.div_ceil(batch))
+            .into_par_iter()
+            .map(|q| {
+                let span = q * batch..((q + 1) * batch).min(n);
+                let dot = |a: &[f64], b: &[f64]| -> f64 {
+                    a[span.clone()]
+                        .iter()
+                        .zip(&b[span.clone()])
+                        .map(|(p, v)| p * v)
+                        .sum()
+                };
+                let ww = std::array::from_fn(|c| std::array::from_fn(|d| dot(&w[c], &w[d])));
+                let wy = std::array::from_fn(|j| std::array::from_fn(|c| dot(&w[c], &y[j])));
+                let yy = std::array::from_fn(|j| dot(&y[j], &y[j]));
+                (ww, wy, yy)
+            })
+            .collect();
+        Self { n, batches }
+    }
+
+    /// Row j's XᵀX (active × active, row-major) and Xᵀy (active) over one batch's sums, with
+    /// X = ω⊥·Lᵀ.
+    fn row_batch(
+        sums: &BatchSums,
+        j: usize,
+        l: &[[f64; 3]; 3],
+        act: &[usize],
+    ) -> (Vec<f64>, Vec<f64>) {
+        let q = act.len();
+        let ww = &sums.0;
+        let mut xx = vec![0.0; q * q];
+        for (a, &ma) in act.iter().enumerate() {
+            for (c, &mc) in act.iter().enumerate() {
+                let mut v = 0.0;
+                for (e, le) in l[ma].iter().enumerate() {
+                    for (f, lf) in l[mc].iter().enumerate() {
+                        v += le * ww[e][f] * lf;
+                    }
+                }
+                xx[a * q + c] = v;
+            }
+        }
+        let xy = act
+            .iter()
+            .map(|&m| (0..3).map(|c| l[m][c] * sums.1[j][c]).sum())
+            .collect();
+        (xx, xy)
+    }
+
+    /// 1/σ² of row j's residual at `beta` (over `act`; empty: the target alone); 0 for a row
+    /// without variance or with too few samples.
+    fn weight(&self, j: usize, l: &[[f64; 3]; 3], act: &[usize], beta: &[f64]) -> f64 {
+        if self.n < 4 {
+            return 0.0;
+        }
+        let q = act.len();
+        let mut rss: f64 = self.batches.iter().map(|b| b.2[j]).sum();
+        if !beta.is_empty() {
+            for sums in &self.batches {
+                let (xx, xy) = Self::row_batch(sums, j, l, act);
+                for a in 0..q {
+                    rss -= 2.0 * beta[a] * xy[a];
+                    for c in 0..q {
+                        rss += beta[a] * xx[a * q + c] * beta[c];
+                    }
+                }
+            }
+        }
+        let var = rss / self.n as f64;
+        if var.is_finite() && var > 0.0 {
+            1.0 / var
+        } else {
+            0.0
+        }
+    }
+
+    /// Weighted least squares of the rows on the `act` components of β: estimates and standard
+    /// errors in the order of `act`; `None` when the normal matrix does not resolve them all. The
+    /// errors are cluster-robust, each batch of all six rows together a cluster (Bester, Conley &
+    /// Hansen 2011): the rows' residuals are correlated in time and with each other (they share
+    /// the pairs' noise), and larger where the rates are.
+    fn solve(
+        &self,
+        l: &[[[f64; 3]; 3]],
+        weight: &[f64],
+        act: &[usize],
+    ) -> Option<(Vec<f64>, Vec<f64>)> {
+        let q = act.len();
+        // Per batch and row, XᵀX and Xᵀy; the normal equations their weighted sums.
+        let per_batch: Vec<Vec<(Vec<f64>, Vec<f64>)>> = self
+            .batches
+            .iter()
+            .map(|sums| {
+                (0..6)
+                    .map(|j| Self::row_batch(sums, j, &l[j], act))
+                    .collect()
+            })
+            .collect();
+        let mut nm = vec![0.0; q * q];
+        let mut rhs = vec![0.0; q];
+        for rows in &per_batch {
+            for (j, (xx, xy)) in rows.iter().enumerate() {
+                let wj = weight[j];
+                nm.iter_mut().zip(xx).for_each(|(s, v)| *s += wj * v);
+                rhs.iter_mut().zip(xy).for_each(|(s, v)| *s += wj * v);
+            }
+        }
+        // Scaled to a unit diagonal for the rank test.
+        let scale: Vec<f64> = (0..q).map(|a| nm[a * q + a].sqrt()).collect();
+        if scale.iter().any(|s| !(s.is_finite() && *s > 0.0)) {
+            return None;
+        }
+        let scaled: Vec<Vec<f64>> = (0..q)
+            .map(|a| {
+                (0..q)
+                    .map(|b| nm[a * q + b] / (scale[a] * scale[b]))
+                    .collect()
+            })
+            .collect();
+        let f = PivotedCholesky::of(&scaled, 1e-10);
+        if f.kept_sorted().len() < q {
+            return None;
+        }
+        let inv = |a: usize, b: usize| f.inverse_entry(a, b) / (scale[a] * scale[b]);
+        let beta: Vec<f64> = (0..q)
+            .map(|a| (0..q).map(|b| inv(a, b) * rhs[b]).sum::<f64>())
+            .collect();
+        // g_B = Σ_j w_j (Xᵀy − XᵀX·β) over the batch; Var(β) = N⁻¹ (Σ_B g_B g_Bᵀ) N⁻¹.
+        let mut meat = vec![0.0; q * q];
+        for rows in &per_batch {
+            let mut g = vec![0.0; q];
+            for (j, (xx, xy)) in rows.iter().enumerate() {
+                let wj = weight[j];
+                for a in 0..q {
+                    g[a] += wj * (xy[a] - (0..q).map(|c| xx[a * q + c] * beta[c]).sum::<f64>());
+                }
+            }
+            for a in 0..q {
+                for c in 0..q {
+                    meat[a * q + c] += g[a] * g[c];
+                }
+            }
+        }
+        let se: Vec<f64> = (0..q)
+            .map(|a| {
+                let mut v = 0.0;
+                for b in 0..q {
+                    for c in 0..q {
+                        v += inv(a, b) * meat[b * q + c] * inv(c, a);
+                    }
+                }
+                v.sqrt()
+            })
+            .collect();
+        Some((beta, se))
     }
 }
 
@@ -174,73 +326,6 @@ fn unresolved(m: usize) -> HeldTerm {
         effect_rms: None,
         reason: "the rates do not resolve it from the force terms".into(),
     }
-}
-
-/// 1 / (σ² · n/n_eff) of a residual series; 0 for an empty or zero one (the row is left out).
-fn row_weight(r: &[f64]) -> f64 {
-    let n = r.len();
-    if n < 4 {
-        return 0.0;
-    }
-    let var = r.iter().map(|v| v * v).sum::<f64>() / n as f64;
-    if var.is_finite() && var > 0.0 {
-        effective_size(r) / (n as f64 * var)
-    } else {
-        0.0
-    }
-}
-
-/// Weighted least squares of the rows on the `active` β components: estimates and standard
-/// errors, in the order of `active`; `None` when the normal matrix does not resolve them all.
-fn solve(
-    x: &[[Vec<f64>; 3]],
-    y: &[Vec<f64>],
-    weight: &[f64],
-    active: &[usize],
-) -> Option<(Vec<f64>, Vec<f64>)> {
-    let q = active.len();
-    let mut nm = vec![vec![0.0; q]; q];
-    let mut rhs = vec![0.0; q];
-    for (j, wj) in weight.iter().enumerate() {
-        if *wj == 0.0 {
-            continue;
-        }
-        for (a, &ma) in active.iter().enumerate() {
-            rhs[a] += wj * x[j][ma].iter().zip(&y[j]).map(|(p, v)| p * v).sum::<f64>();
-            for (b, &mb) in active.iter().enumerate() {
-                nm[a][b] += wj
-                    * x[j][ma]
-                        .iter()
-                        .zip(&x[j][mb])
-                        .map(|(p, v)| p * v)
-                        .sum::<f64>();
-            }
-        }
-    }
-    // Scaled to a unit diagonal for the rank test.
-    let scale: Vec<f64> = (0..q).map(|a| nm[a][a].sqrt()).collect();
-    if scale.iter().any(|s| !(s.is_finite() && *s > 0.0)) {
-        return None;
-    }
-    let scaled: Vec<Vec<f64>> = (0..q)
-        .map(|a| (0..q).map(|b| nm[a][b] / (scale[a] * scale[b])).collect())
-        .collect();
-    let f = PivotedCholesky::of(&scaled, 1e-10);
-    if f.kept_sorted().len() < q {
-        return None;
-    }
-    let beta: Vec<f64> = (0..q)
-        .map(|a| {
-            (0..q)
-                .map(|b| f.inverse_entry(a, b) * rhs[b] / scale[b])
-                .sum::<f64>()
-                / scale[a]
-        })
-        .collect();
-    let se: Vec<f64> = (0..q)
-        .map(|a| f.inverse_entry(a, a).sqrt() / scale[a])
-        .collect();
-    Some((beta, se))
 }
 
 /// A pair's correction for β: the coefficients c (m/s² per rad/s) with c·ω = −nᵀ·δM·b, so that

@@ -14,7 +14,7 @@
 
 use crate::crossings::Crossing;
 use crate::estimate::{
-    Coefficient, Design, HeldTerm, PRODUCTS, PairCalibration, PairData, Settings, fit_with,
+    Coefficient, Design, HeldTerm, PRODUCTS, PairCalibration, PairData, Settings, fit_with_band,
 };
 use gravgrad_core::SymTensor;
 use gravgrad_core::attitude::{c_sn_degrees, c_sn_degrees_span};
@@ -516,27 +516,57 @@ pub fn estimate_from_blocks(
             targets
         },
     );
+    // Every target band-passed once, for the gyro bias and the rows' band fits.
+    let mut band_targets: Vec<Vec<f64>> = match design.as_ref() {
+        Some(g) => targets
+            .par_iter()
+            .map(|t| {
+                if t.is_empty() {
+                    Vec::new()
+                } else {
+                    g.band_pass(t)
+                }
+            })
+            .collect(),
+        None => Vec::new(),
+    };
     // The gyros' bias from the tensor rows, jointly; its trace taken off every unknown's target.
     let gyro_bias = match design.as_ref() {
         Some(g) if fit_gyro_bias => {
             let mix: [[f64; 6]; 6] = std::array::from_fn(|j| std::array::from_fn(|i| pa[j][i]));
+            let wband: Vec<Vec<f64>> = wb.par_iter().map(|w| g.band_pass(w)).collect();
             let gb = crate::gyro_bias::estimate(
                 g,
-                &targets,
+                &band_targets,
                 &mix,
-                [&wb[0], &wb[1], &wb[2]],
+                [&wband[0], &wband[1], &wband[2]],
                 s.min_significance,
             );
             let beta = gb.beta.map(|c| c.value);
             if beta.iter().any(|b| *b != 0.0) {
-                for (j, t) in targets.iter_mut().enumerate().take(k) {
+                // Row j carries −Σ_r pa[j][r]·δM_r, linear in ω: its coefficients once per row.
+                let unit = |c: usize| std::array::from_fn::<f64, 3, _>(|m| f64::from(m == c));
+                let add = |j: usize, t: &mut Vec<f64>, rate: &[Vec<f64>]| {
+                    let w: [f64; 3] = std::array::from_fn(|c| {
+                        (0..6)
+                            .map(|r| pa[j][r] * crate::gyro_bias::trace_at(r, beta, unit(c)))
+                            .sum()
+                    });
                     for (i, tv) in t.iter_mut().enumerate() {
-                        let omega = [wb[0][i], wb[1][i], wb[2][i]];
-                        *tv += (0..6)
-                            .map(|r| pa[j][r] * crate::gyro_bias::trace_at(r, beta, omega))
-                            .sum::<f64>();
+                        *tv += w[0] * rate[0][i] + w[1] * rate[1][i] + w[2] * rate[2][i];
                     }
-                }
+                };
+                // The same linear term whole-band and band-passed (band-passing is linear).
+                targets
+                    .par_iter_mut()
+                    .take(k)
+                    .enumerate()
+                    .for_each(|(j, t)| add(j, t, &wb));
+                band_targets
+                    .par_iter_mut()
+                    .take(k)
+                    .enumerate()
+                    .for_each(|(j, t)| add(j, t, &wband));
             }
             Some(gb)
         }
@@ -546,7 +576,8 @@ pub fn estimate_from_blocks(
     let products = if s.quadratic { pb.as_ref() } else { None };
     let fitted: Vec<Option<(PairCalibration, Vec<HeldTerm>)>> = targets
         .par_iter()
-        .map(|y| {
+        .zip(&band_targets)
+        .map(|(y, y_band)| {
             if y.is_empty() {
                 return None;
             }
@@ -556,7 +587,9 @@ pub fn estimate_from_blocks(
             }
             // With a file in force the targets have the file's parts taken off already: what is
             // fitted here is the flight's change to them, combined with the file below.
-            design.as_ref().map(|g| fit_with(g, y, &data, products, s))
+            design
+                .as_ref()
+                .map(|g| fit_with_band(g, y, y_band, &data, products, s))
         })
         .collect();
     // The series' names: the unknowns, then each pair's own residual.
