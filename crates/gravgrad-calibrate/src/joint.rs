@@ -58,11 +58,14 @@ pub struct FlightData<'a> {
     pub crossings: Option<&'a [(usize, usize)]>,
 }
 
+/// Σ w·c over the parts, errors combined as independent; a part of weight zero contributes
+/// nothing (not 0 × ∞ when its term was not resolved).
 fn combine(parts: &[(f64, Coefficient)]) -> Coefficient {
     Coefficient {
         value: parts.iter().map(|(w, c)| w * c.value).sum(),
         std_error: parts
             .iter()
+            .filter(|(w, _)| *w != 0.0)
             .map(|(w, c)| (w * c.std_error).powi(2))
             .sum::<f64>()
             .sqrt(),
