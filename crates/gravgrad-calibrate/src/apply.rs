@@ -100,6 +100,18 @@ impl PairCalibration {
                 }
             }
         }
+        self.subtract_rotation_terms(d, r, out);
+    }
+
+    /// Subtracts the axis errors' D·R and the gyro bias's c·ω (the terms applied, each across the
+    /// span `r` of `d`'s series) from `out`, m/s²; the diagonal of ΩΩ as −(ω_b² + ω_c²), the
+    /// off-diagonal as ω_a·ω_b (rad²/s²), α in rad/s², ω in rad/s.
+    fn subtract_rotation_terms(
+        &self,
+        d: &PairData<'_>,
+        r: std::ops::Range<usize>,
+        out: &mut [f64],
+    ) {
         // The axis errors' rotation terms: only those applied, each across the span (the
         // diagonal of ΩΩ as −(ω_b² + ω_c²), the off-diagonal as ω_a·ω_b).
         if let Some(dc) = self.rotation_coupling {

@@ -71,21 +71,7 @@ pub(crate) fn estimate(
         .collect();
     let y: Vec<Vec<f64>> = profiled.split_off(3);
     let w = profiled;
-    // Row j's regressor for β_m is Σ_c L_j[m][c]·ω⊥_c, L_j[m][c] = −Σ_i mix[j][i]·k_i(m, c) (the
-    // target carries −δM).
-    let l: Vec<[[f64; 3]; 3]> = (0..6)
-        .map(|j| {
-            std::array::from_fn(|m| {
-                std::array::from_fn(|c| {
-                    -ROWS
-                        .iter()
-                        .zip(&mix[j])
-                        .map(|((a, b), mx)| mx * k(*a, *b, m, c))
-                        .sum::<f64>()
-                })
-            })
-        })
-        .collect();
+    let l = row_maps(mix);
     let stats = BatchStats::of(&w, &y, design.batch_length());
     let mut active: Vec<usize> = vec![0, 1, 2];
     let mut held: Vec<HeldTerm> = Vec::new();
@@ -138,6 +124,85 @@ pub(crate) fn estimate(
         beta: [HELD; 3],
         held,
     }
+}
+
+/// Fits β to a flight ([`estimate`]) and takes its trace off the unknowns' targets, whole-band
+/// (`targets`, beside the block means of the rates `rates`, rad/s) and band-passed
+/// (`band_targets`); `pa` is the solve's P·A (rows × unknowns). Row j carries
+/// −Σ_r pa[j][r]·δM_r, linear in ω, so its three coefficients are formed once per row, and
+/// band-passing being linear the same coefficients serve the band-passed rates.
+pub(crate) fn take_off(
+    design: &Design,
+    pa: &[Vec<f64>],
+    rates: [&[f64]; 3],
+    (targets, band_targets): (&mut [Vec<f64>], &mut [Vec<f64>]),
+    min_z: f64,
+) -> GyroBias {
+    let mix: [[f64; 6]; 6] = std::array::from_fn(|j| std::array::from_fn(|i| pa[j][i]));
+    let band_rates: Vec<Vec<f64>> = rates.par_iter().map(|w| design.band_pass(w)).collect();
+    let band_refs = [&band_rates[0][..], &band_rates[1][..], &band_rates[2][..]];
+    let gb = estimate(design, band_targets, &mix, band_refs, min_z);
+    let beta = gb.beta.map(|c| c.value);
+    if beta.iter().all(|b| *b == 0.0) {
+        return gb;
+    }
+    let unit = |c: usize| std::array::from_fn::<f64, 3, _>(|m| f64::from(m == c));
+    let coefficients: Vec<[f64; 3]> = pa
+        .iter()
+        .map(|row| {
+            std::array::from_fn(|c| (0..6).map(|r| row[r] * trace_at(r, beta, unit(c))).sum())
+        })
+        .collect();
+    let add = |w: &[f64; 3], t: &mut Vec<f64>, rate: [&[f64]; 3]| {
+        for (i, tv) in t.iter_mut().enumerate() {
+            *tv += w[0] * rate[0][i] + w[1] * rate[1][i] + w[2] * rate[2][i];
+        }
+    };
+    targets
+        .par_iter_mut()
+        .zip(&coefficients)
+        .for_each(|(t, w)| add(w, t, rates));
+    band_targets
+        .par_iter_mut()
+        .zip(&coefficients)
+        .for_each(|(t, w)| add(w, t, band_refs));
+    gb
+}
+
+/// The log's line for a flight's applied gyro bias, `None` when every component is held.
+pub(crate) fn note(gb: &GyroBias) -> Option<String> {
+    let shown: Vec<String> = gb
+        .beta
+        .iter()
+        .zip(NAMES)
+        .filter(|(c, _)| c.value != 0.0)
+        .map(|(c, name)| format!("{name} {:.2e} ± {:.1e} rad/s", c.value, c.std_error))
+        .collect();
+    (!shown.is_empty()).then(|| {
+        format!(
+            "the gyros' bias, from what it leaves in the centrifugal correction: {}; its trace is \
+             taken off",
+            shown.join(", ")
+        )
+    })
+}
+
+/// Per tensor row j, the map L_j with row j's regressor for β_m equal to Σ_c L_j[m][c]·ω⊥_c:
+/// L_j[m][c] = −Σ_i mix[j][i]·k_i(m, c) (the target carries −δM).
+fn row_maps(mix: &[[f64; 6]; 6]) -> Vec<[[f64; 3]; 3]> {
+    mix.iter()
+        .map(|row| {
+            std::array::from_fn(|m| {
+                std::array::from_fn(|c| {
+                    -ROWS
+                        .iter()
+                        .zip(row)
+                        .map(|((a, b), mx)| mx * k(*a, *b, m, c))
+                        .sum::<f64>()
+                })
+            })
+        })
+        .collect()
 }
 
 /// A component held at zero: no value, no standard error of its own.

@@ -535,44 +535,13 @@ pub fn estimate_from_blocks(
     };
     // The gyros' bias from the tensor rows, jointly; its trace taken off every unknown's target.
     let gyro_bias = match design.as_ref() {
-        Some(g) if fit_gyro_bias => {
-            let mix: [[f64; 6]; 6] = std::array::from_fn(|j| std::array::from_fn(|i| pa[j][i]));
-            let wband: Vec<Vec<f64>> = wb.par_iter().map(|w| g.band_pass(w)).collect();
-            let gb = crate::gyro_bias::estimate(
-                g,
-                &band_targets,
-                &mix,
-                [&wband[0], &wband[1], &wband[2]],
-                s.min_significance,
-            );
-            let beta = gb.beta.map(|c| c.value);
-            if beta.iter().any(|b| *b != 0.0) {
-                // Row j carries −Σ_r pa[j][r]·δM_r, linear in ω: its coefficients once per row.
-                let unit = |c: usize| std::array::from_fn::<f64, 3, _>(|m| f64::from(m == c));
-                let add = |j: usize, t: &mut Vec<f64>, rate: &[Vec<f64>]| {
-                    let w: [f64; 3] = std::array::from_fn(|c| {
-                        (0..6)
-                            .map(|r| pa[j][r] * crate::gyro_bias::trace_at(r, beta, unit(c)))
-                            .sum()
-                    });
-                    for (i, tv) in t.iter_mut().enumerate() {
-                        *tv += w[0] * rate[0][i] + w[1] * rate[1][i] + w[2] * rate[2][i];
-                    }
-                };
-                // The same linear term whole-band and band-passed (band-passing is linear).
-                targets
-                    .par_iter_mut()
-                    .take(k)
-                    .enumerate()
-                    .for_each(|(j, t)| add(j, t, &wb));
-                band_targets
-                    .par_iter_mut()
-                    .take(k)
-                    .enumerate()
-                    .for_each(|(j, t)| add(j, t, &wband));
-            }
-            Some(gb)
-        }
+        Some(g) if fit_gyro_bias => Some(crate::gyro_bias::take_off(
+            g,
+            &pa,
+            [&wb[0], &wb[1], &wb[2]],
+            (&mut targets, &mut band_targets),
+            s.min_significance,
+        )),
         _ => None,
     };
     // Fit each target: the full model, or bias and drift only.
@@ -631,22 +600,7 @@ pub fn estimate_from_blocks(
         _ => None,
     };
     let mut notes: Vec<String> = crossing_note.into_iter().collect();
-    if let Some(gb) = &gyro_bias {
-        let shown: Vec<String> = gb
-            .beta
-            .iter()
-            .zip(crate::gyro_bias::NAMES)
-            .filter(|(c, _)| c.value != 0.0)
-            .map(|(c, name)| format!("{name} {:.2e} ± {:.1e} rad/s", c.value, c.std_error))
-            .collect();
-        if !shown.is_empty() {
-            notes.push(format!(
-                "the gyros' bias, from what it leaves in the centrifugal correction: {}; its \
-                 trace is taken off",
-                shown.join(", ")
-            ));
-        }
-    }
+    notes.extend(gyro_bias.as_ref().and_then(crate::gyro_bias::note));
     let mut health = Health {
         notes,
         condition: design.as_ref().map_or([0.0; 2], Design::conditions),
@@ -658,19 +612,17 @@ pub fn estimate_from_blocks(
             health
                 .held
                 .extend(held.iter().map(|h| (target_name(t), h.clone())));
-            if t == 0
-                && let Some(gb) = &gyro_bias
-            {
-                health
-                    .held
-                    .extend(gb.held.iter().map(|h| ("gyros".to_string(), h.clone())));
-            }
             if t < k {
                 health
                     .band_residual
                     .push((target_name(t), c.band_residual_rms));
             }
         }
+    }
+    if let Some(gb) = &gyro_bias {
+        health
+            .held
+            .extend(gb.held.iter().map(|h| ("gyros".to_string(), h.clone())));
     }
     let fits: Vec<Option<PairCalibration>> = fitted.into_iter().map(|f| f.map(|x| x.0)).collect();
     let pair_cals = (0..np)

@@ -341,6 +341,30 @@ fn read_calibration(
         .collect()
 }
 
+/// The optional `N` coefficients stored as datasets `key` (values) and `key_se` (standard errors)
+/// of pair group `name`: both absent is `None`; one absent or either of the wrong length an error
+/// naming the group and both datasets.
+fn optional_coefficients<const N: usize>(
+    values: Option<Vec<f64>>,
+    errors: Option<Vec<f64>>,
+    name: &str,
+    key: &str,
+    at: &dyn Fn(String) -> String,
+) -> Result<Option<[Coefficient; N]>, String> {
+    match (values, errors) {
+        (Some(v), Some(e)) if v.len() == N && e.len() == N => {
+            Ok(Some(std::array::from_fn(|m| Coefficient {
+                value: v[m],
+                std_error: e[m],
+            })))
+        }
+        (None, None) => Ok(None),
+        _ => Err(at(format!(
+            "group `calibration/{name}`: `{key}` and `{key}_se` must hold {N} values each"
+        ))),
+    }
+}
+
 fn read_pair(
     g: &Group,
     name: &str,
@@ -423,48 +447,27 @@ fn read_pair(
         }
         None => None,
     };
-    let quadratic = match (get("quadratic")?, get("quadratic_se")?) {
-        (Some(v), Some(e)) if v.len() == 6 && e.len() == 6 => {
-            Some(std::array::from_fn(|m| Coefficient {
-                value: v[m],
-                std_error: e[m],
-            }))
-        }
-        (None, None) => None,
-        _ => {
-            return Err(at(format!(
-                "group `calibration/{name}`: `quadratic` and `quadratic_se` must hold 6 values each"
-            )));
-        }
-    };
-    let gyro_rate = match (get("gyro_rate")?, get("gyro_rate_se")?) {
-        (Some(v), Some(e)) if v.len() == 3 && e.len() == 3 => {
-            Some(std::array::from_fn(|m| Coefficient {
-                value: v[m],
-                std_error: e[m],
-            }))
-        }
-        (None, None) => None,
-        _ => {
-            return Err(at(format!(
-                "group `calibration/{name}`: `gyro_rate` and `gyro_rate_se` must hold 3 values each"
-            )));
-        }
-    };
-    let rotation_coupling = match (get("rotation_coupling")?, get("rotation_coupling_se")?) {
-        (Some(v), Some(e)) if v.len() == 9 && e.len() == 9 => {
-            Some(std::array::from_fn(|m| Coefficient {
-                value: v[m],
-                std_error: e[m],
-            }))
-        }
-        (None, None) => None,
-        _ => {
-            return Err(at(format!(
-                "group `calibration/{name}`: `rotation_coupling` and `rotation_coupling_se` must hold 9 values each"
-            )));
-        }
-    };
+    let quadratic = optional_coefficients::<6>(
+        get("quadratic")?,
+        get("quadratic_se")?,
+        name,
+        "quadratic",
+        at,
+    )?;
+    let gyro_rate = optional_coefficients::<3>(
+        get("gyro_rate")?,
+        get("gyro_rate_se")?,
+        name,
+        "gyro_rate",
+        at,
+    )?;
+    let rotation_coupling = optional_coefficients::<9>(
+        get("rotation_coupling")?,
+        get("rotation_coupling_se")?,
+        name,
+        "rotation_coupling",
+        at,
+    )?;
     let force_mean = match get("force_mean")? {
         Some(f) if f.len() == 3 => [f[0], f[1], f[2]],
         None => [0.0; 3],
