@@ -3,6 +3,7 @@
 use crate::bandpass::band_pass;
 use gravgrad_core::lstsq::PivotedCholesky;
 use gravgrad_core::pairs::PairGeometry;
+use gravgrad_core::stats::{dot, sum_of_squares};
 use rayon::prelude::*;
 use rustfft::num_complex::Complex64;
 
@@ -217,7 +218,7 @@ impl Normal {
         let n = columns.first().map_or(0, Vec::len);
         let scale: Vec<f64> = columns
             .iter()
-            .map(|c| (c.iter().map(|v| v * v).sum::<f64>() / n.max(1) as f64).sqrt())
+            .map(|c| (sum_of_squares(c) / n.max(1) as f64).sqrt())
             .collect();
         // The upper triangle, rows across threads (each entry one dot product in sample order,
         // whatever the thread count), then mirrored.
@@ -227,12 +228,7 @@ impl Normal {
                 (i..k)
                     .map(|j| {
                         if scale[i] > 0.0 && scale[j] > 0.0 {
-                            columns[i]
-                                .iter()
-                                .zip(&columns[j])
-                                .map(|(p, q)| p * q)
-                                .sum::<f64>()
-                                / (scale[i] * scale[j])
+                            dot(&columns[i], &columns[j]) / (scale[i] * scale[j])
                         } else {
                             0.0
                         }
@@ -312,13 +308,13 @@ pub(crate) fn regress_with(
     let rhs: Vec<f64> = (0..k)
         .map(|i| {
             if scale[i] > 0.0 {
-                columns[i].iter().zip(y).map(|(p, q)| p * q).sum::<f64>() / scale[i]
+                dot(&columns[i], y) / scale[i]
             } else {
                 0.0
             }
         })
         .collect();
-    let yy: f64 = y.iter().map(|v| v * v).sum();
+    let yy: f64 = sum_of_squares(y);
     let mut held: Vec<HeldTerm> = normal
         .chol
         .dependent
@@ -482,21 +478,14 @@ fn batch_variance_ratios(
         return vec![1.0; q];
     }
     let scale = &normal.scale;
-    let var = r.iter().map(|v| v * v).sum::<f64>() / (n as f64 - q as f64).max(1.0);
+    let var = sum_of_squares(r) / (n as f64 - q as f64).max(1.0);
     // Per batch, the scaled score sums g_B = Σ_t x̃_t·r_t, one per column.
     let scores: Vec<Vec<f64>> = (0..n.div_ceil(batch))
         .map(|bq| {
             let span = bq * batch..((bq + 1) * batch).min(n);
             active
                 .iter()
-                .map(|&c| {
-                    columns[c][span.clone()]
-                        .iter()
-                        .zip(&r[span.clone()])
-                        .map(|(x, e)| x * e)
-                        .sum::<f64>()
-                        / scale[c]
-                })
+                .map(|&c| dot(&columns[c][span.clone()], &r[span.clone()]) / scale[c])
                 .collect()
         })
         .collect();
@@ -526,7 +515,7 @@ fn batch_variance_ratios(
 /// over lags until the autocorrelation first drops below zero (Bretherton et al. 1999).
 pub fn effective_size(r: &[f64]) -> f64 {
     let n = r.len();
-    let var: f64 = r.iter().map(|v| v * v).sum::<f64>() / n.max(1) as f64;
+    let var: f64 = sum_of_squares(r) / n.max(1) as f64;
     if var <= 0.0 || n < 4 {
         return n as f64;
     }
@@ -537,12 +526,7 @@ pub fn effective_size(r: &[f64]) -> f64 {
     let norm = 1.0 / (n as f64 * var);
     let mut sum = 0.0;
     for lag in 1..last.min(DIRECT_LAGS + 1) {
-        let rho = r[..n - lag]
-            .iter()
-            .zip(&r[lag..])
-            .map(|(a, b)| a * b)
-            .sum::<f64>()
-            * norm;
+        let rho = dot(&r[..n - lag], &r[lag..]) * norm;
         if rho <= 0.0 {
             return (n as f64 / (1.0 + 2.0 * sum)).clamp(1.0, n as f64);
         }
@@ -808,12 +792,7 @@ impl Design {
             .iter()
             .map(|&c| {
                 if nm.scale[c] > 0.0 {
-                    self.band_columns[c]
-                        .iter()
-                        .zip(&y)
-                        .map(|(p, q)| p * q)
-                        .sum::<f64>()
-                        / nm.scale[c]
+                    dot(&self.band_columns[c], &y) / nm.scale[c]
                 } else {
                     0.0
                 }
@@ -896,8 +875,7 @@ pub(crate) fn fit_with_band(
         Some(design.batch_length()),
     );
     let c1 = &fit1.coefs;
-    let band_residual_rms =
-        (fit1.resid.iter().map(|r| r * r).sum::<f64>() / fit1.resid.len().max(1) as f64).sqrt();
+    let band_residual_rms = (sum_of_squares(&fit1.resid) / fit1.resid.len().max(1) as f64).sqrt();
     let zero = Coefficient {
         value: 0.0,
         std_error: 0.0,
@@ -915,23 +893,35 @@ pub(crate) fn fit_with_band(
         .rotation_column
         .map(|w| std::array::from_fn(|m| c1[w + m]));
     // Step 2: bias, drift and temperature from what remains over the whole band, on line samples.
-    let rest: Vec<f64> = design
-        .line_rows
-        .iter()
-        .map(|&i| {
-            let mut v = y[i]
-                - (0..3)
-                    .map(|k| c1[k].value * d.f[k][i] + rotation[k].value * d.alpha[k][i])
-                    .sum::<f64>();
-            if let (Some(q), Some(p)) = (&quadratic, products) {
-                v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
+    // The band fit's terms taken off the whole series, one regressor at a time across it (each
+    // sample's terms in the order force, α, quadratic, rotation), then the line rows picked.
+    let mut whole = y.to_vec();
+    let mut take_off = |c: f64, x: &[f64]| {
+        if c != 0.0 {
+            for (v, xv) in whole.iter_mut().zip(x) {
+                *v -= c * xv;
             }
-            if let (Some(c), Some(r)) = (&rotation_coupling, &design.rotation_raw) {
-                v -= (0..9).map(|m| c[m].value * r[m][i]).sum::<f64>();
-            }
-            v
-        })
-        .collect();
+        }
+    };
+    for (c, x) in c1.iter().zip(d.f) {
+        take_off(c.value, x);
+    }
+    if design.with_alpha {
+        for (c, x) in rotation.iter().zip(d.alpha) {
+            take_off(c.value, x);
+        }
+    }
+    if let (Some(q), Some(p)) = (&quadratic, products) {
+        for (c, x) in q.iter().zip(p) {
+            take_off(c.value, x);
+        }
+    }
+    if let (Some(c), Some(r)) = (&rotation_coupling, &design.rotation_raw) {
+        for (c, x) in c.iter().zip(r) {
+            take_off(c.value, x);
+        }
+    }
+    let rest: Vec<f64> = design.line_rows.iter().map(|&i| whole[i]).collect();
     let fit2 = regress_with(
         &design.whole_normal,
         &design.whole_columns,

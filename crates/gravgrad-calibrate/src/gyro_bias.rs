@@ -231,11 +231,7 @@ impl BatchStats {
             .map(|q| {
                 let span = q * batch..((q + 1) * batch).min(n);
                 let dot = |a: &[f64], b: &[f64]| -> f64 {
-                    a[span.clone()]
-                        .iter()
-                        .zip(&b[span.clone()])
-                        .map(|(p, v)| p * v)
-                        .sum()
+                    gravgrad_core::stats::dot(&a[span.clone()], &b[span.clone()])
                 };
                 let ww = std::array::from_fn(|c| std::array::from_fn(|d| dot(&w[c], &w[d])));
                 let wy = std::array::from_fn(|j| std::array::from_fn(|c| dot(&w[c], &y[j])));

@@ -252,28 +252,55 @@ pub struct FlightCalibration {
     pub health: Health,
 }
 
-/// Block means of the six products (f_a − f0_a)(f_b − f0_b) of the force's deviations (m²/s⁴),
-/// over blocks of `block` samples, spans in parallel; each block summed in sample order.
-fn product_block_means(f: [&[f64]; 3], f0: [f64; 3], block: usize) -> [Vec<f64>; 6] {
+/// Block means of the force's three components (m/s²) and, with an origin `f0`, of the six products
+/// (f_a − f0_a)(f_b − f0_b) of its deviations (m²/s⁴), in the order of [`PRODUCTS`], over blocks of
+/// `block` samples: one pass over the force in spans (in parallel), each span's products formed in a
+/// buffer of the span's length and summed while the span is in cache. Each block is summed in sample
+/// order, so the means are the same bits as [`block_means`] of each series alone.
+fn force_block_means(
+    f: [&[f64]; 3],
+    f0: Option<[f64; 3]>,
+    block: usize,
+) -> ([Vec<f64>; 3], Option<[Vec<f64>; 6]>) {
     let n = f[0].len();
     let span = block * 1024;
-    PRODUCTS.map(|(a, b)| {
-        let parts: Vec<Vec<f64>> = (0..n.div_ceil(span))
-            .into_par_iter()
-            .map(|q| {
+    type Part = ([Vec<f64>; 3], [Vec<f64>; 6]);
+    let parts: Vec<Part> = (0..n.div_ceil(span))
+        .into_par_iter()
+        .map_init(
+            || vec![0.0; span],
+            |prod, q| {
                 let r = q * span..((q + 1) * span).min(n);
-                let prod: Vec<f64> = f[a][r.clone()]
-                    .iter()
-                    .zip(&f[b][r])
-                    .map(|(x, y)| (x - f0[a]) * (y - f0[b]))
-                    .collect();
-                let mut out = Vec::with_capacity(prod.len().div_ceil(block));
-                push_block_means(&prod, block, &mut out);
-                out
-            })
-            .collect();
-        parts.concat()
-    })
+                let nb = r.len().div_ceil(block);
+                let means = f.map(|x| {
+                    let mut out = Vec::with_capacity(nb);
+                    push_block_means(&x[r.clone()], block, &mut out);
+                    out
+                });
+                let products = match f0 {
+                    Some(f0) => PRODUCTS.map(|(a, b)| {
+                        let prod = &mut prod[..r.len()];
+                        for ((p, x), y) in
+                            prod.iter_mut().zip(&f[a][r.clone()]).zip(&f[b][r.clone()])
+                        {
+                            *p = (x - f0[a]) * (y - f0[b]);
+                        }
+                        let mut out = Vec::with_capacity(nb);
+                        push_block_means(prod, block, &mut out);
+                        out
+                    }),
+                    None => Default::default(),
+                };
+                (means, products)
+            },
+        )
+        .collect();
+    let means =
+        std::array::from_fn(|c| parts.iter().flat_map(|p| p.0[c].iter().copied()).collect());
+    let products = f0.map(|_| {
+        std::array::from_fn(|c| parts.iter().flat_map(|p| p.1[c].iter().copied()).collect())
+    });
+    (means, products)
 }
 
 /// Estimates every pair's calibration from one flight. With `fixed` (a calibration flight's
@@ -322,7 +349,6 @@ pub fn estimate_from_blocks(
     });
     let m_b = &blocks.m;
     // The block means of what the fits read: force, gyro α, time, temperature, relative attitude.
-    let fb: Vec<Vec<f64>> = d.f.iter().map(|v| mean(v)).collect();
     let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
     // The angular rate's block means: the regressors of the gyro bias's trace.
     let wb: Vec<Vec<f64>> = d.samples.omega.iter().map(|v| mean(v)).collect();
@@ -339,8 +365,7 @@ pub fn estimate_from_blocks(
         Some(c) => c.force_mean,
         None => crate::estimate::force_mean(d.f, d.usable),
     };
-    let pb: Option<[Vec<f64>; 6]> =
-        (s.quadratic || fixed_quadratic).then(|| product_block_means(d.f, f0, block));
+    let (fb, pb) = force_block_means(d.f, (s.quadratic || fixed_quadratic).then_some(f0), block);
     let temp_b = d.temperature.map(mean);
     let rel_b: Option<Vec<Vec<f64>>> = d
         .relative_attitude
