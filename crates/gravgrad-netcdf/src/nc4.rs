@@ -113,9 +113,9 @@ struct RawVar {
     attrs: HashMap<String, H>,
 }
 
-/// Bytes of decompressed chunks a NetCDF-4 file keeps between the row bands of one read: 64 MiB,
+/// Bytes of decompressed chunks a NetCDF-4 file keeps between the row bands of one read: 32 MiB,
 /// so that a band of rows narrower than a row of chunks does not decode those chunks again.
-pub(crate) const CHUNK_CACHE_BYTES: usize = 64 << 20;
+pub(crate) const CHUNK_CACHE_BYTES: usize = 32 << 20;
 
 /// Bytes of the file's metadata (object headers, B-tree nodes, heaps) kept once read: 8 MiB.
 const METADATA_CACHE_BYTES: usize = 8 << 20;

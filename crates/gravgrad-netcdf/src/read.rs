@@ -25,10 +25,13 @@ pub const MAX_VALUES: u64 = MAX_GRID_CELLS;
 /// writers use by default. A classic file stores its values uncompressed: they must lie inside it.
 pub const MAX_NC4_EXPANSION: u64 = 1032;
 
-/// Values of the whole-row bands in which a block of a NetCDF-4 variable is decoded: 4 Mi (32 MiB
-/// as f64), so a band costs little beside the block whatever the variable's width. It is also the
-/// widest row such a variable may have.
-pub const BAND_VALUES: u64 = 1 << 22;
+/// Values of the whole-row bands in which a block of a NetCDF-4 variable is decoded: 1 Mi (8 MiB
+/// as f64, beside the stored values they are converted from), so a band costs little beside the
+/// block whatever the variable's width; a row wider than this is a band of its own.
+pub const BAND_VALUES: u64 = 1 << 20;
+
+/// Widest row of a NetCDF-4 variable read by block: 4 Mi values (32 MiB as f64).
+pub const MAX_NC4_ROW_VALUES: u64 = 1 << 22;
 
 /// Most values decoded for one block of a NetCDF-4 variable: the block's rows at the variable's
 /// full width (`hdf5-pure` reads whole rows), 2²⁹ (one band of [`BAND_VALUES`] at a time, so this
@@ -319,7 +322,7 @@ impl NcFile {
     /// Refuses, before anything of a NetCDF-4 variable of `shape` is decoded, a block whose rows
     /// (`count[0]` from `start[0]`, each of the variable's full width `shape[1]`) cannot be read
     /// within the stated limits, or a variable whose storage the file of `file_len` bytes cannot
-    /// hold: a row wider than [`BAND_VALUES`], rows of more than [`MAX_NC4_BLOCK_ROW_VALUES`]
+    /// hold: a row wider than [`MAX_NC4_ROW_VALUES`], rows of more than [`MAX_NC4_BLOCK_ROW_VALUES`]
     /// values in all, chunks as [`NcFile::check_nc4_chunks`] says, and contiguous values running
     /// past the file. The variable as a whole is not held to the deflate bound: chunks it never
     /// wrote read as its fill value and cost nothing until a block meets them.
@@ -333,10 +336,10 @@ impl NcFile {
     ) -> Result<(), ReadError> {
         let name = &var.name;
         let width = shape[1];
-        if width > BAND_VALUES {
+        if width > MAX_NC4_ROW_VALUES {
             return Err(self.err(format!(
                 "variable `{name}` has rows of {width} values; a NetCDF-4 variable is read in \
-                 whole rows of at most {BAND_VALUES} values"
+                 whole rows of at most {MAX_NC4_ROW_VALUES} values"
             )));
         }
         let decoded = count[0].saturating_mul(width);
@@ -364,8 +367,8 @@ impl NcFile {
     }
 
     /// The block of a NetCDF-4 variable checked by [`NcFile::check_nc4_block`]: decoded a band of
-    /// whole rows at a time (at most [`BAND_VALUES`] values, a whole number of chunk rows when
-    /// that fits; only the chunks meeting the band's rows are decoded, and those kept between
+    /// whole rows at a time (at most [`BAND_VALUES`] values or one row, a whole number of chunk
+    /// rows when that fits; only the chunks meeting the band's rows are decoded, and those kept between
     /// bands up to [`crate::nc4::CHUNK_CACHE_BYTES`]), of which the block's columns are kept.
     fn read_nc4_block(
         &self,
