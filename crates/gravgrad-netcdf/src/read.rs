@@ -441,9 +441,12 @@ impl NcFile {
     }
 
     /// Refuses a NetCDF-4 variable whose chunks hold more than [`MAX_VALUES`] values, or more
-    /// bytes than the file of `file_len` bytes can hold at deflate's largest expansion: each chunk
-    /// read is decoded whole. (`hdf5-pure` also refuses a chunk whose data decompresses to more,
-    /// or other, than its declared size.)
+    /// bytes than the file of `file_len` bytes can hold at deflate's largest expansion (each chunk
+    /// read is decoded whole), or whose chunk index lists a chunk outside the file or stored in
+    /// more bytes than its values and an eighth (plus 1 KiB) for the filters' overhead. The index
+    /// is walked by `hdf5-pure`, which reads no more of the file than each node declares and the
+    /// file holds; it also refuses a chunk whose data decompresses to more, or other, than its
+    /// declared size.
     fn check_nc4_chunks(
         &self,
         var: &Variable,
@@ -451,13 +454,34 @@ impl NcFile {
         file_len: u64,
     ) -> Result<(), ReadError> {
         let name = &var.name;
-        if let Ok(Some(chunk)) = ds.chunk_shape() {
-            let cells = chunk.iter().fold(1u64, |a, &n| a.saturating_mul(n));
-            let bytes = cells.saturating_mul(var.nc_type.size());
-            if cells > MAX_VALUES || !decoded_fits(bytes, file_len, MAX_NC4_EXPANSION) {
+        let Ok(Some(chunk)) = ds.chunk_shape() else {
+            return Ok(());
+        };
+        let cells = chunk.iter().fold(1u64, |a, &n| a.saturating_mul(n));
+        let bytes = cells.saturating_mul(var.nc_type.size());
+        if cells > MAX_VALUES || !decoded_fits(bytes, file_len, MAX_NC4_EXPANSION) {
+            return Err(self.err(format!(
+                "variable `{name}` declares chunks of {cells} values, more than a \
+                 file of {file_len} bytes can hold (limit {MAX_VALUES} values)"
+            )));
+        }
+        // Every chunk the index lists must lie inside the file and be stored in no more bytes
+        // than its values plus the filters' overhead: `hdf5-pure` sizes its read buffers from
+        // these entries (and zero-fills them) before it reads.
+        let stored_max = bytes.saturating_add(bytes / 8).saturating_add(1024);
+        let chunks = ds.chunks().map_err(|e| {
+            self.err(format!(
+                "variable `{name}`: cannot list its chunks (expected a chunk index of a \
+                 version-1 B-tree, a fixed or an extensible array): {e}"
+            ))
+        })?;
+        for c in &chunks {
+            let end = c.address.checked_add(c.storage_size);
+            if end.is_none_or(|e| e > file_len) || c.storage_size > stored_max {
                 return Err(self.err(format!(
-                    "variable `{name}` declares chunks of {cells} values, more than a \
-                     file of {file_len} bytes can hold (limit {MAX_VALUES} values)"
+                    "variable `{name}`: its chunk at {:?} declares {} bytes at byte {}, \
+                     expected at most {stored_max} bytes inside the file's {file_len}",
+                    c.offset, c.storage_size, c.address
                 )));
             }
         }

@@ -796,6 +796,48 @@ mod declared_sizes {
         );
     }
 
+    /// A chunk whose index entry declares 700 MB stored (the long mutation run's case): the crate
+    /// sizes and zero-fills its read buffer from that entry before the read fails, 690 MB
+    /// resident for a 16 KB file. Refused from the index, whole or by block, before any chunk
+    /// is read.
+    #[test]
+    fn netcdf4_chunk_declaring_700_mb_is_refused_before_reading() {
+        let src = good("dem_netcdf4.nc");
+        let bytes = std::fs::read(&src).unwrap();
+        let file = hdf5_pure::File::open(&src).unwrap();
+        let chunks = file.dataset("topo").unwrap().chunks().unwrap();
+        assert!(chunks.len() >= 4, "{chunks:?}");
+        // The version-1 B-tree key of the first chunk: its stored size (u32), filter mask (u32),
+        // then its offsets and the element offset 0 (u64 each), little endian.
+        let c = &chunks[0];
+        let mut key = (c.storage_size as u32).to_le_bytes().to_vec();
+        key.extend(c.filter_mask.to_le_bytes());
+        for o in c.offset.iter().chain(&[0]) {
+            key.extend(o.to_le_bytes());
+        }
+        let at = bytes
+            .windows(key.len())
+            .position(|w| w == key.as_slice())
+            .expect("the chunk's key");
+        let mut patched = bytes.clone();
+        patched[at..at + 4].copy_from_slice(&700_000_000u32.to_le_bytes());
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dem.nc");
+        std::fs::write(&path, patched).unwrap();
+        let words = [
+            "variable `topo`",
+            "declares 700000000 bytes",
+            "inside the file's 16794",
+        ];
+        one_error_at(&path, &words);
+        let h = gravgrad_netcdf::dem_header(&path, None).unwrap();
+        let p = gravgrad_netcdf::read_dem_block(&path, None, h.whole()).unwrap_err();
+        assert_eq!(p.len(), 1, "{p:?}");
+        for w in words {
+            assert!(p[0].message.contains(w), "{w:?} not in {}", p[0].message);
+        }
+    }
+
     #[test]
     fn netcdf_symlinked_to_dev_zero_is_refused() {
         let dir = tempfile::tempdir().unwrap();
