@@ -102,21 +102,7 @@ pub fn write_parquet_with_metadata(
             parse_message_type(&format!("message table {{ {} }}", fields.join(" ")))
                 .map_err(|e| e.to_string())?,
         );
-        let level = ZstdLevel::try_new(3).map_err(|e| e.to_string())?;
-        let props = Arc::new(
-            WriterProperties::builder()
-                .set_compression(Compression::ZSTD(level))
-                .set_created_by("gravgrad".into())
-                // Measured values rarely repeat: a dictionary only costs time.
-                .set_dictionary_enabled(false)
-                .set_key_value_metadata((!metadata.is_empty()).then(|| {
-                    metadata
-                        .iter()
-                        .map(|(k, v)| KeyValue::new(k.clone(), v.clone()))
-                        .collect()
-                }))
-                .build(),
-        );
+        let props = parquet_properties(metadata)?;
         let mut w = SerializedFileWriter::new(file, schema, props).map_err(|e| e.to_string())?;
         let mut start = 0;
         while start < n.max(1) {
@@ -139,6 +125,97 @@ pub fn write_parquet_with_metadata(
             }
             rg.close().map_err(|e| e.to_string())?;
             start = end.max(start + 1);
+        }
+        w.close().map_err(|e| e.to_string())?;
+        Ok(())
+    })
+}
+
+/// The writer settings of every Parquet table: zstd level 3, no dictionary, `metadata` in the footer.
+fn parquet_properties(metadata: &[(String, String)]) -> Result<Arc<WriterProperties>, String> {
+    let level = ZstdLevel::try_new(3).map_err(|e| e.to_string())?;
+    Ok(Arc::new(
+        WriterProperties::builder()
+            .set_compression(Compression::ZSTD(level))
+            .set_created_by("gravgrad".into())
+            // Measured values rarely repeat: a dictionary only costs time.
+            .set_dictionary_enabled(false)
+            .set_key_value_metadata((!metadata.is_empty()).then(|| {
+                metadata
+                    .iter()
+                    .map(|(k, v)| KeyValue::new(k.clone(), v.clone()))
+                    .collect()
+            }))
+            .build(),
+    ))
+}
+
+/// A table of float64 columns `names` written a batch of rows at a time, so that only one batch is
+/// ever held: `next` gives each batch (one `Vec` per column, of equal lengths) and `None` after the
+/// last. Parquet (one row group a batch, as [`write_parquet`] writes them) unless `csv_comment`
+/// is given, then CSV as [`write_csv`] writes it. Through a temporary file and a rename like the
+/// others; an error of `next` stops the write and leaves no file.
+pub fn write_f64_batches(
+    path: &Path,
+    csv_comment: Option<&str>,
+    names: &[&str],
+    mut next: impl FnMut() -> Result<Option<Vec<Vec<f64>>>, String>,
+) -> Result<(), WriteError> {
+    let mut batch = move || -> Result<Option<Vec<Vec<f64>>>, String> {
+        let b = next()?;
+        if let Some(cols) = &b {
+            let n = cols.first().map_or(0, Vec::len);
+            if cols.len() != names.len() || cols.iter().any(|c| c.len() != n) {
+                return Err("a batch of rows has columns of different lengths".into());
+            }
+        }
+        Ok(b)
+    };
+    if let Some(comment) = csv_comment {
+        return write_atomic(path, |file| {
+            let mut w = BufWriter::with_capacity(1 << 20, file);
+            let mut text = format!("# {comment}\n{}\n", names.join(","));
+            while let Some(cols) = batch()? {
+                for i in 0..cols.first().map_or(0, Vec::len) {
+                    for (k, c) in cols.iter().enumerate() {
+                        if k > 0 {
+                            text.push(',');
+                        }
+                        text.push_str(&format!("{}", c[i]));
+                    }
+                    text.push('\n');
+                    if text.len() > 1 << 20 {
+                        w.write_all(text.as_bytes()).map_err(|e| e.to_string())?;
+                        text.clear();
+                    }
+                }
+            }
+            w.write_all(text.as_bytes()).map_err(|e| e.to_string())?;
+            w.flush().map_err(|e| e.to_string())
+        });
+    }
+    let fields: Vec<String> = names
+        .iter()
+        .map(|n| format!("REQUIRED DOUBLE {n};"))
+        .collect();
+    write_atomic(path, |file| {
+        let schema = Arc::new(
+            parse_message_type(&format!("message table {{ {} }}", fields.join(" ")))
+                .map_err(|e| e.to_string())?,
+        );
+        let mut w = SerializedFileWriter::new(file, schema, parquet_properties(&[])?)
+            .map_err(|e| e.to_string())?;
+        while let Some(cols) = batch()? {
+            let mut rg = w.next_row_group().map_err(|e| e.to_string())?;
+            for c in &cols {
+                if let Some(mut col) = rg.next_column().map_err(|e| e.to_string())? {
+                    col.typed::<DoubleType>()
+                        .write_batch(c, None, None)
+                        .map_err(|e| e.to_string())?;
+                    col.close().map_err(|e| e.to_string())?;
+                }
+            }
+            rg.close().map_err(|e| e.to_string())?;
         }
         w.close().map_err(|e| e.to_string())?;
         Ok(())

@@ -1,24 +1,55 @@
 //! `gravgrad terrain DEM (--points FILE | --height M | --clearance M) --out FILE`: the terrain's
 //! gradient tensor at given points or on a surface over the DEM, from the fast engine (or the exact
 //! prism sum with `--exact`). Tensors in Eötvös in the DEM's map frame: x grid north, y grid east,
-//! z down.
+//! z down; positions in metres of that frame, heights above the ellipsoid.
 //!
 //! With `--points`, only the DEM window the points need is read: their extent plus `--margin`,
 //! checked against the DEM's extent from its header before any cell is decoded (the same check
 //! and wording as a run's, `gravgrad_ingest::dem::read_window`), holes filled as a run fills them.
-//! With `--height` or `--clearance` every cell is a point, so the whole DEM is read.
+//!
+//! With `--height` or `--clearance` every `--step`-th cell centre is a point ([`surface`]): of the
+//! whole DEM, or, with `--extent`, of the cells inside that rectangle, the DEM then read over it
+//! plus `--margin` as for `--points`. What the command will hold — the DEM cells read and their
+//! terrain model, `gravgrad_ingest::dem::DEM_BYTES_PER_CELL` bytes a cell, and one batch of
+//! [`surface::BATCH_ROWS`] output rows — is stated from the header before any cell is decoded and
+//! refused past `gravgrad_ingest::dem::MAX_DEM_WINDOW_CELLS` cells (as a run's window is), naming
+//! the flag, the size and what to change; the output rows are written a batch at a time as they
+//! are computed, never all held.
+//!
+//! Either way the work is stated and bounded before the DEM is read: at most
+//! [`MAX_TERRAIN_POINTS`] points for the fast engine, and at most [`MAX_EXACT_PRISM_SUMS`] cells ×
+//! points with `--exact` (each about a minute on two cores; `docs/reliability.md`).
+
+mod surface;
 
 use crate::logging::Log;
-use crate::tables::{Column, write_csv, write_parquet};
-use crate::terrain_stage::read_dem;
+use crate::tables::write_f64_batches;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
-use gravgrad_core::Location;
+use gravgrad_core::limits::MAX_TEXT_FILE_BYTES;
 use gravgrad_core::raster::Raster;
 use gravgrad_core::units::EOTVOS;
-use gravgrad_ingest::dem::{WindowKeys, read_dem_header, read_window};
+use gravgrad_core::{Location, Problem, SymTensor};
+use gravgrad_ingest::dem::{WindowKeys, read_dem_header, read_window, window_of};
 use gravgrad_reduce::terrain::{TerrainModel, TerrainSettings};
 use std::path::{Path, PathBuf};
+
+/// Most points one command evaluates with the fast engine: 200,000, about 50 s at the 0.24 ms a
+/// point measured on two cores at the default accuracy (`docs/performance.md`).
+pub const MAX_TERRAIN_POINTS: usize = 200_000;
+
+/// Most prism sums (DEM cells read × points) one command makes with `--exact`: 3 × 10⁸, about
+/// 55 s at the 0.18 µs a sum measured on two shared cores (`docs/reliability.md`).
+pub const MAX_EXACT_PRISM_SUMS: u64 = 300_000_000;
+
+/// Columns of the output table.
+const COLUMNS: [&str; 9] = [
+    "easting", "northing", "height", "gxx", "gxy", "gxz", "gyy", "gyz", "gzz",
+];
+
+/// The comment line of a CSV output.
+const CSV_COMMENT: &str =
+    "gravgrad terrain effect: E, map frame (x grid north, y grid east, z down)";
 
 #[derive(Args, Debug)]
 #[command(group(clap::ArgGroup::new("where").required(true).args(["points", "height", "clearance"])))]
@@ -39,14 +70,24 @@ pub struct TerrainArgs {
     /// With --height or --clearance: every N-th cell in each direction.
     #[arg(long, value_name = "N", default_value_t = 1)]
     pub step: usize,
+    /// With --height or --clearance: only the cells whose centres lie in this rectangle (m, the
+    /// DEM's frame); the DEM is then read over it plus --margin only.
+    #[arg(
+        long,
+        value_name = "WEST,EAST,SOUTH,NORTH",
+        value_delimiter = ',',
+        allow_negative_numbers = true,
+        conflicts_with = "points"
+    )]
+    pub extent: Option<Vec<f64>>,
     /// Terrain density, kg/m³.
     #[arg(long, value_name = "KG_M3", default_value_t = 2670.0)]
     pub density: f64,
     /// Water density for cells below sea level, kg/m³ (default: none).
     #[arg(long, value_name = "KG_M3")]
     pub water_density: Option<f64>,
-    /// With --points: the DEM is read over the points' extent plus this distance on every side,
-    /// m (the mass farther away is left out).
+    /// With --points or --extent: the DEM is read over the points' extent (or --extent) plus this
+    /// distance on every side, m (the mass farther away is left out).
     #[arg(long, value_name = "M", default_value_t = 5000.0)]
     pub margin: f64,
     /// Reference level of the terrain mass, m above the ellipsoid (default: the mean of the DEM
@@ -66,8 +107,8 @@ pub struct TerrainArgs {
 
 /// Reads `easting,northing,height` from a CSV file (other columns ignored; `#` lines skipped).
 fn read_points(path: &Path) -> Result<Vec<[f64; 3]>, String> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| format!("{}: cannot read: {e}", path.display()))?;
+    let text = gravgrad_ingest::input_file::read_text(path, MAX_TEXT_FILE_BYTES)
+        .map_err(|p| format!("{}: {}", path.display(), p.message))?;
     let mut rows = text
         .lines()
         .enumerate()
@@ -122,23 +163,35 @@ fn read_points(path: &Path) -> Result<Vec<[f64; 3]>, String> {
     Ok(out)
 }
 
-/// Prints `problems` and gives the exit code of bad input.
-fn refuse(problems: Vec<gravgrad_core::Problem>) -> u8 {
-    for p in problems {
-        eprintln!("{p}");
+pub fn run(args: &TerrainArgs, log: &Log) -> u8 {
+    if !(args.margin.is_finite() && args.margin >= 0.0) {
+        eprintln!(
+            "error: --margin {}: expected a distance of 0 m or more",
+            args.margin
+        );
+        return EXIT_BAD_INPUT;
     }
-    EXIT_BAD_INPUT
-}
-
-/// The DEM window `points` need (their extent plus `margin` m on every side), read from `dem`
-/// alone, checked and filled as a run's window is; warnings are logged.
-fn points_window(
-    dem: &Path,
-    points: &[[f64; 3]],
-    margin: f64,
-    log: &Log,
-) -> Result<Raster, Vec<gravgrad_core::Problem>> {
-    let header = read_dem_header(dem, None)?;
+    let Some(points_file) = args.points.as_deref() else {
+        return surface::run(args, log);
+    };
+    let points = match read_points(points_file) {
+        Ok(v) if v.is_empty() => {
+            eprintln!(
+                "error: {}: no points; expected rows of easting,northing,height",
+                points_file.display()
+            );
+            return EXIT_BAD_INPUT;
+        }
+        Ok(v) => v,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return EXIT_BAD_INPUT;
+        }
+    };
+    let header = match read_dem_header(&args.dem, None) {
+        Ok(h) => h,
+        Err(ps) => return refuse(ps),
+    };
     let need = points.iter().fold(
         [
             f64::INFINITY,
@@ -148,87 +201,33 @@ fn points_window(
         ],
         |e, p| {
             [
-                e[0].min(p[0] - margin),
-                e[1].max(p[0] + margin),
-                e[2].min(p[1] - margin),
-                e[3].max(p[1] + margin),
+                e[0].min(p[0] - args.margin),
+                e[1].max(p[0] + args.margin),
+                e[2].min(p[1] - args.margin),
+                e[3].max(p[1] + args.margin),
             ]
         },
     );
+    let cells = window_of(&header, need).cells();
+    if let Err(p) = check_work(args, "--points", points.len(), cells, None) {
+        return refuse(vec![p]);
+    }
     let keys = WindowKeys {
-        dem: Location::file(dem),
-        margin: Location::file(dem),
+        dem: Location::file(&args.dem),
+        margin: Location::file(&args.dem),
         margin_name: "`--margin`".into(),
     };
-    let w = read_window(dem, None, &header, need, &keys)?;
-    for p in &w.warnings {
-        log.info(&p.to_string());
-    }
-    Ok(w.raster)
-}
-
-pub fn run(args: &TerrainArgs, log: &Log) -> u8 {
-    if !(args.margin.is_finite() && args.margin >= 0.0) {
-        eprintln!(
-            "error: --margin {}: expected a distance of 0 m or more",
-            args.margin
-        );
-        return EXIT_BAD_INPUT;
-    }
-    let given = match args.points.as_deref().map(read_points) {
-        None => None,
-        Some(Ok(v)) if v.is_empty() => {
-            eprintln!(
-                "error: {}: no points; expected rows of easting,northing,height",
-                args.points.as_deref().unwrap_or(Path::new("")).display()
-            );
-            return EXIT_BAD_INPUT;
+    let raster = match read_window(&args.dem, None, &header, need, &keys) {
+        Ok(w) => {
+            for p in &w.warnings {
+                log.info(&p.to_string());
+            }
+            w.raster
         }
-        Some(Ok(v)) => Some(v),
-        Some(Err(e)) => {
-            eprintln!("error: {e}");
-            return EXIT_BAD_INPUT;
-        }
-    };
-    let raster = match &given {
-        Some(points) => points_window(&args.dem, points, args.margin, log),
-        None => read_dem(&args.dem, None),
-    };
-    let raster = match raster {
-        Ok(r) => r,
         Err(ps) => return refuse(ps),
     };
-    let settings = TerrainSettings {
-        density_kg_m3: args.density,
-        water_density_kg_m3: args.water_density,
-        reference_m: args.reference,
-        accuracy_e: args.accuracy,
-    };
-    let model = match TerrainModel::new(&raster, &settings) {
-        Ok(m) => m,
-        Err(e) => {
-            eprintln!("error: {}: {e}", args.dem.display());
-            return EXIT_BAD_INPUT;
-        }
-    };
-    let points: Vec<[f64; 3]> = if let Some(p) = given {
-        p
-    } else {
-        let step = args.step.max(1);
-        let mut v = Vec::new();
-        for row in (0..raster.ny).step_by(step) {
-            for col in (0..raster.nx).step_by(step) {
-                let (x, y) = raster.cell_centre(col, row);
-                let e = raster.values[row * raster.nx + col];
-                let h = match (args.height, args.clearance) {
-                    (Some(h), _) => h,
-                    (None, Some(c)) if !raster.is_missing(e) && e.is_finite() => e + c,
-                    _ => continue,
-                };
-                v.push([x, y, h]);
-            }
-        }
-        v
+    let Some(model) = build_model(args, &raster) else {
+        return EXIT_BAD_INPUT;
     };
     log.info(&format!(
         "{} points, {} × {} cells, reference level {:.2} m{}",
@@ -238,44 +237,119 @@ pub fn run(args: &TerrainArgs, log: &Log) -> u8 {
         model.reference_m(),
         if args.exact { ", exact sum" } else { "" }
     ));
-    let cover = model.covers(&points, 0.0);
-    if !cover.covered {
+    if !model.covers(&points, 0.0).covered {
         log.info("warning: some points lie outside the DEM; their terrain effect lacks the mass beyond its edges");
     }
-    let t = if args.exact {
-        model.tensor_exact(&points)
-    } else {
-        model.tensor(&points)
+    let mut batch = Some(points);
+    let written = write_table(&args.out, || {
+        Ok(batch.take().map(|p| {
+            let t = evaluate(&model, &p, args.exact);
+            table_columns(&p, &t)
+        }))
+    });
+    finish(written, &args.out, log)
+}
+
+/// Prints `problems` and gives the exit code of bad input.
+fn refuse(problems: Vec<Problem>) -> u8 {
+    for p in problems {
+        eprintln!("{p}");
+    }
+    EXIT_BAD_INPUT
+}
+
+/// Refuses, before the DEM is read, work past the stated limits: `points` points for the fast
+/// engine (at most [`MAX_TERRAIN_POINTS`]), or `points` × `cells` prism sums with `--exact` (at
+/// most [`MAX_EXACT_PRISM_SUMS`]). `flag` is the option that made the points; `fewer` says how
+/// to make fewer, when there is a way.
+fn check_work(
+    args: &TerrainArgs,
+    flag: &str,
+    points: usize,
+    cells: u64,
+    fewer: Option<String>,
+) -> Result<(), Problem> {
+    let fewer = fewer.unwrap_or_else(|| format!("give fewer points in {flag}"));
+    if args.exact {
+        let sums = (points as u64).saturating_mul(cells);
+        if sums > MAX_EXACT_PRISM_SUMS {
+            return Err(Problem::error(
+                Location::file(&args.dem),
+                format!(
+                    "{flag} with --exact: {points} points × {cells} DEM cells = {sums} prism sums, \
+                     more than the {MAX_EXACT_PRISM_SUMS} one command makes (about 0.18 µs \
+                     each on two cores)"
+                ),
+            )
+            .with_hint(format!("{fewer}, or leave out --exact (the fast engine)")));
+        }
+    } else if points > MAX_TERRAIN_POINTS {
+        return Err(Problem::error(
+            Location::file(&args.dem),
+            format!(
+                "{flag}: {points} points, more than the {MAX_TERRAIN_POINTS} one command \
+                 evaluates (about {:.0} s at 0.24 ms a point on two cores)",
+                points as f64 * 0.24e-3
+            ),
+        )
+        .with_hint(fewer));
+    }
+    Ok(())
+}
+
+/// The terrain model of `raster` under the command's settings; `None` after printing why not.
+fn build_model(args: &TerrainArgs, raster: &Raster) -> Option<TerrainModel> {
+    let settings = TerrainSettings {
+        density_kg_m3: args.density,
+        water_density_kg_m3: args.water_density,
+        reference_m: args.reference,
+        accuracy_e: args.accuracy,
     };
-    let comp = |c: usize| -> Vec<f64> { t.iter().map(|x| x.to_array()[c] / EOTVOS).collect() };
-    let cols: Vec<Vec<f64>> = (0..6).map(comp).collect();
-    let xyz: Vec<Vec<f64>> = (0..3)
+    match TerrainModel::new(raster, &settings) {
+        Ok(m) => Some(m),
+        Err(e) => {
+            eprintln!("error: {}: {e}", args.dem.display());
+            None
+        }
+    }
+}
+
+/// The tensor at `points` (easting, northing, height; m), s⁻², map frame NED.
+fn evaluate(model: &TerrainModel, points: &[[f64; 3]], exact: bool) -> Vec<SymTensor> {
+    if exact {
+        model.tensor_exact(points)
+    } else {
+        model.tensor(points)
+    }
+}
+
+/// The output columns ([`COLUMNS`]) of `points` and their tensors `t` (s⁻²): positions in m,
+/// components in E.
+fn table_columns(points: &[[f64; 3]], t: &[SymTensor]) -> Vec<Vec<f64>> {
+    let mut cols: Vec<Vec<f64>> = (0..3)
         .map(|k| points.iter().map(|p| p[k]).collect())
         .collect();
-    let names = [
-        "easting", "northing", "height", "gxx", "gxy", "gxz", "gyy", "gyz", "gzz",
-    ];
-    let table: Vec<(&str, Column<'_>)> = names
-        .iter()
-        .zip(xyz.iter().chain(cols.iter()))
-        .map(|(n, v)| (*n, Column::F64(v)))
-        .collect();
-    let is_csv = args
-        .out
+    let arrays: Vec<[f64; 6]> = t.iter().map(|x| x.to_array()).collect();
+    cols.extend((0..6).map(|c| arrays.iter().map(|a| a[c] / EOTVOS).collect()));
+    cols
+}
+
+/// Writes the output table batch by batch (CSV by the `.csv` extension, else Parquet).
+fn write_table(
+    out: &Path,
+    next: impl FnMut() -> Result<Option<Vec<Vec<f64>>>, String>,
+) -> Result<(), crate::tables::WriteError> {
+    let is_csv = out
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
-    let written = if is_csv {
-        write_csv(
-            &args.out,
-            "gravgrad terrain effect: E, map frame (x grid north, y grid east, z down)",
-            &table,
-        )
-    } else {
-        write_parquet(&args.out, &table)
-    };
+    write_f64_batches(out, is_csv.then_some(CSV_COMMENT), &COLUMNS, next)
+}
+
+/// The exit code of a written (or failed) output table, logged.
+fn finish(written: Result<(), crate::tables::WriteError>, out: &Path, log: &Log) -> u8 {
     match written {
         Ok(()) => {
-            log.info(&format!("written to {}", args.out.display()));
+            log.info(&format!("written to {}", out.display()));
             0
         }
         Err(e) => {

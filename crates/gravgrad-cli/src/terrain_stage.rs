@@ -6,7 +6,6 @@
 use crate::pipeline::{Positions, rz};
 use gravgrad_core::raster::Raster;
 use gravgrad_core::{Location, Problem, SymTensor};
-pub use gravgrad_ingest::dem::read_dem;
 use gravgrad_ingest::recipe::{Recipe, Terrain};
 use gravgrad_reduce::terrain::{TerrainModel, TerrainSettings};
 use std::path::Path;

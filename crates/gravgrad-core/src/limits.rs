@@ -30,8 +30,7 @@ pub const MAX_LOG_EXPANSION: u64 = 64;
 /// (tests, short calibration logs) are never refused by the expansion bound: 4 MiB.
 pub const SMALL_FILE_ALLOWANCE: u64 = 4 << 20;
 
-/// Largest file read whole into memory before it is parsed (HDF5 logs, NetCDF-4 terrain models):
-/// 1 GiB.
+/// Largest file read whole into memory before it is parsed (HDF5 logs): 1 GiB.
 pub const MAX_WHOLE_FILE_BYTES: u64 = 1 << 30;
 
 /// Largest Parquet footer (the file's metadata) decoded: 64 MiB. A footer takes a few times its

@@ -282,14 +282,10 @@ fn check_coverage(
     Ok(())
 }
 
-/// The DEM's cells the window `need` touches, one more on each side, clipped to the DEM; refused
-/// past [`MAX_DEM_WINDOW_CELLS`] at `keys.margin`.
-fn window_block(
-    dem: &GridHeader,
-    need: Extent,
-    keys: &WindowKeys,
-) -> Result<CellBlock, Vec<Problem>> {
-    // Cells the window touches, one more on each side, clipped to the DEM.
+/// The DEM's cells the window `need` (west, east, south, north; the DEM's frame, m) touches, one
+/// more on each side, clipped to the DEM, at least one cell: the block [`read_window`] reads,
+/// known from the header alone.
+pub fn window_of(dem: &GridHeader, need: Extent) -> CellBlock {
     let col = |x: f64| ((x - dem.x_min) / dem.dx).clamp(0.0, dem.nx as f64);
     let row = |y: f64| ((dem.y_max - y) / dem.dy).clamp(0.0, dem.ny as f64);
     let c0 = (col(need[0]).floor() as usize).saturating_sub(1);
@@ -302,6 +298,22 @@ fn window_block(
         r0.min(dem.ny.saturating_sub(1)),
     );
     let (nx, ny) = (c1.saturating_sub(c0).max(1), r1.saturating_sub(r0).max(1));
+    CellBlock {
+        col0: c0,
+        row0: r0,
+        nx,
+        ny,
+    }
+}
+
+/// [`window_of`], refused past [`MAX_DEM_WINDOW_CELLS`] at `keys.margin`.
+fn window_block(
+    dem: &GridHeader,
+    need: Extent,
+    keys: &WindowKeys,
+) -> Result<CellBlock, Vec<Problem>> {
+    let block = window_of(dem, need);
+    let (nx, ny) = (block.nx, block.ny);
     let cells = nx.saturating_mul(ny);
     if cells > MAX_DEM_WINDOW_CELLS {
         return Err(vec![
@@ -322,12 +334,7 @@ fn window_block(
             )),
         ]);
     }
-    Ok(CellBlock {
-        col0: c0,
-        row0: r0,
-        nx,
-        ny,
-    })
+    Ok(block)
 }
 
 /// The cells `b` of a raster in memory (inside it: [`window_block`] clips to the grid).

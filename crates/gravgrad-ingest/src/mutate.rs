@@ -13,11 +13,12 @@
 //!   footer, Thrift varints (row counts, value counts, sizes and offsets), the footer's length
 //!   corrected after the patch.
 //!
-//! Nothing here reads or writes files; [`read_as`] runs the reader of a format on a file.
+//! Nothing here writes files; [`read_as`] runs the reader of a format on a file.
 
 use crate::columns::Expectation;
+use crate::dem::{WindowKeys, read_dem, read_dem_header, read_window};
 use crate::read::read_flight_file;
-use gravgrad_core::Problem;
+use gravgrad_core::{Location, Problem};
 use std::path::Path;
 
 /// The binary formats the readers take.
@@ -83,6 +84,8 @@ impl BinaryFormat {
                 "tests/reference/netcdf/good/dem_gmt.nc",
                 "tests/reference/netcdf/good/dem_lonlat_xarray.nc",
                 "tests/reference/netcdf/good/dem_netcdf4.nc",
+                "tests/reference/netcdf/good/dem_netcdf4_sparse.nc",
+                "tests/reference/netcdf/good/dem_netcdf4_sparse_copy.nc",
             ],
         }
     }
@@ -97,8 +100,15 @@ pub struct ReadResult {
     pub problems: Vec<Problem>,
 }
 
+/// Most cells on a side of the window the mutation tests read from a terrain model: 256.
+pub const WINDOW_SIDE: usize = 256;
+
 /// Runs the reader of `format` on the file at `path`: flight logs as `gravgrad check` reads them
-/// (every pair the header holds), terrain models as a run reads them (variable found).
+/// (every pair the header holds); terrain models (variable found) read whole, and then as a run
+/// reads them: the header, then the window over the middle of the grid (half its width and
+/// height, at most [`WINDOW_SIDE`] cells a side) through [`read_window`], which decodes only the
+/// strips, tiles or rows meeting it, screens its elevations and fills its holes. `items` counts
+/// the reads that gave a raster.
 pub fn read_as(format: BinaryFormat, path: &Path) -> ReadResult {
     match format {
         BinaryFormat::Parquet | BinaryFormat::Hdf5 => {
@@ -108,14 +118,36 @@ pub fn read_as(format: BinaryFormat, path: &Path) -> ReadResult {
                 problems: out.problems,
             }
         }
-        BinaryFormat::GeoTiff | BinaryFormat::NetCdf => match crate::dem::read_dem(path, None) {
-            Ok(_) => ReadResult {
-                items: 1,
+        BinaryFormat::GeoTiff | BinaryFormat::NetCdf => {
+            let mut r = ReadResult {
+                items: 0,
                 problems: vec![],
-            },
-            Err(problems) => ReadResult { items: 0, problems },
-        },
+            };
+            for read in [read_dem(path, None).map(|_| ()), read_middle(path)] {
+                match read {
+                    Ok(()) => r.items += 1,
+                    Err(p) => r.problems.extend(p),
+                }
+            }
+            r
+        }
     }
+}
+
+/// The window over the middle of the terrain model at `path`, as [`read_as`] says.
+fn read_middle(path: &Path) -> Result<(), Vec<Problem>> {
+    let h = read_dem_header(path, None)?;
+    let [w, e, s, n] = h.extent();
+    let half = WINDOW_SIDE as f64 / 2.0;
+    let (hx, hy) = ((e - w) / 4.0, (n - s) / 4.0);
+    let (hx, hy) = (hx.min(half * h.dx), hy.min(half * h.dy));
+    let (cx, cy) = ((w + e) / 2.0, (s + n) / 2.0);
+    let keys = WindowKeys {
+        dem: Location::file(path),
+        margin: Location::file(path),
+        margin_name: "the window's size".into(),
+    };
+    read_window(path, None, &h, [cx - hx, cx + hx, cy - hy, cy + hy], &keys).map(|_| ())
 }
 
 /// The kind of damage done to a file.

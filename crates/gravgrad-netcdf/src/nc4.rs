@@ -1,6 +1,12 @@
 //! NetCDF-4 files (HDF5 underneath) through the pure-Rust `hdf5-pure` crate, mapped onto the same
 //! model as the classic files.
 //!
+//! The file is never read whole: `hdf5-pure`'s streaming reader fetches the metadata and then only
+//! the chunks (or, for contiguous storage, the bytes) of the rows a read asks for, every fetch
+//! checked against the file's length before a buffer is made for it, and every chunk refused when
+//! it decompresses to more, or other, than its declared size. How large a read may be is
+//! `crate::read`'s business.
+//!
 //! Layout facts (NetCDF-4 conventions on HDF5): each variable of the root group is an HDF5
 //! dataset of the same name; each dimension is a dataset marked as a dimension scale
 //! (`CLASS = "DIMENSION_SCALE"`), whose `_Netcdf4Dimid` attribute gives the dimension's id; a
@@ -12,8 +18,10 @@
 //! `_Netcdf4*`, `_NCProperties`) are not reported as attributes.
 
 use crate::model::{AttrValue, Attribute, Dimension, NcType, Variable};
-use gravgrad_core::limits::MAX_WHOLE_FILE_BYTES;
-use hdf5_pure::{AttrValue as H, DType, File};
+use hdf5_pure::{
+    AttrValue as H, ChunkCacheConfig, DType, File, FileAccessProperties, MetadataCacheConfig,
+    ReadSeekSource, WriteMarkPolicy,
+};
 use std::collections::HashMap;
 
 /// The marker netCDF-C puts in `NAME` for a dimension without a coordinate variable.
@@ -105,32 +113,30 @@ struct RawVar {
     attrs: HashMap<String, H>,
 }
 
-/// Reads the open NetCDF-4 file `f` of `file_len` bytes whole (at most [`MAX_WHOLE_FILE_BYTES`])
-/// and describes its root group. Errors are messages without the file name.
-pub(crate) fn open(mut f: std::fs::File, file_len: u64) -> Result<Nc4, String> {
-    use std::io::{Read, Seek, SeekFrom};
-    if file_len > MAX_WHOLE_FILE_BYTES {
-        return Err(format!(
-            "the file is {file_len} bytes long; a NetCDF-4 file is read whole and may be at most \
-             {MAX_WHOLE_FILE_BYTES} bytes"
-        ));
-    }
-    let len = file_len as usize;
-    let mut bytes = Vec::new();
-    bytes
-        .try_reserve_exact(len)
-        .map_err(|_| format!("no memory to read {len} bytes"))?;
-    f.seek(SeekFrom::Start(0))
-        .and_then(|_| f.take(file_len).read_to_end(&mut bytes))
-        .map_err(|e| format!("cannot read: {e}"))?;
-    if bytes.len() != len {
-        return Err(format!(
-            "the file changed while being read: {} bytes read of {len}",
-            bytes.len()
-        ));
-    }
-    let file =
-        File::from_bytes(bytes).map_err(|e| format!("not a readable NetCDF-4/HDF5 file: {e}"))?;
+/// Bytes of decompressed chunks a NetCDF-4 file keeps between the row bands of one read: 32 MiB,
+/// so that a band of rows narrower than a row of chunks does not decode those chunks again.
+pub(crate) const CHUNK_CACHE_BYTES: usize = 32 << 20;
+
+/// Bytes of the file's metadata (object headers, B-tree nodes, heaps) kept once read: 8 MiB.
+const METADATA_CACHE_BYTES: usize = 8 << 20;
+
+/// Opens the NetCDF-4 file `f` for reads on demand and describes its root group. Nothing is read
+/// whole: metadata and then the chunks or rows a read needs are fetched from the file as they are
+/// wanted, each read checked against the file's length before its buffer is made (`hdf5-pure`'s
+/// streaming reader). Errors are messages without the file name.
+pub(crate) fn open(f: std::fs::File) -> Result<Nc4, String> {
+    let source =
+        ReadSeekSource::new(f).map_err(|e| format!("cannot read the file's length: {e}"))?;
+    let access = FileAccessProperties::new()
+        .with_metadata_cache(
+            MetadataCacheConfig::new(METADATA_CACHE_BYTES).with_max_entry_bytes(1 << 20),
+        )
+        .with_chunk_cache(ChunkCacheConfig::from_h5p_cache(4099, CHUNK_CACHE_BYTES))
+        // A file whose writer left only its write mark (not a live SWMR writer) is read as it
+        // stands, as a whole-file read did.
+        .with_write_mark_policy(WriteMarkPolicy::AllowSnapshot);
+    let file = File::from_source_with_options(source, access)
+        .map_err(|e| format!("not a readable NetCDF-4/HDF5 file: {e}"))?;
     let root = file.root();
     let global = root
         .attrs()

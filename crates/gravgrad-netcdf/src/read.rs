@@ -25,9 +25,18 @@ pub const MAX_VALUES: u64 = MAX_GRID_CELLS;
 /// writers use by default. A classic file stores its values uncompressed: they must lie inside it.
 pub const MAX_NC4_EXPANSION: u64 = 1032;
 
-/// Values of the whole-row bands in which a block of a NetCDF-4 variable is decoded: 4 Mi (32 MiB
-/// as f64), so a band costs little beside the block whatever the variable's width.
-const BAND_VALUES: u64 = 1 << 22;
+/// Values of the whole-row bands in which a block of a NetCDF-4 variable is decoded: 1 Mi (8 MiB
+/// as f64, beside the stored values they are converted from), so a band costs little beside the
+/// block whatever the variable's width; a row wider than this is a band of its own.
+pub const BAND_VALUES: u64 = 1 << 20;
+
+/// Widest row of a NetCDF-4 variable read by block: 4 Mi values (32 MiB as f64).
+pub const MAX_NC4_ROW_VALUES: u64 = 1 << 22;
+
+/// Most values decoded for one block of a NetCDF-4 variable: the block's rows at the variable's
+/// full width (`hdf5-pure` reads whole rows), 2²⁹ (one band of [`BAND_VALUES`] at a time, so this
+/// bounds the time, not the memory).
+pub const MAX_NC4_BLOCK_ROW_VALUES: u64 = 1 << 29;
 
 /// Why a NetCDF file or one of its variables could not be read: the file and what was expected.
 #[derive(Clone, Debug, PartialEq, Eq, Error)]
@@ -102,7 +111,7 @@ impl NcFile {
                 dims,
                 attributes,
                 variables,
-            } = nc4::open(f, file_len).map_err(err)?;
+            } = nc4::open(f).map_err(err)?;
             return Ok(Self {
                 path: path.to_path_buf(),
                 format: Format::Netcdf4,
@@ -303,38 +312,110 @@ impl NcFile {
                 let ds = file
                     .dataset(name)
                     .map_err(|e| self.err(format!("cannot open variable `{name}`: {e}")))?;
-                self.check_nc4_sizes(var, &ds, shape[0].saturating_mul(shape[1]), *file_len)?;
-                // Bands of whole rows of at most about BAND_VALUES values.
-                let band = (BAND_VALUES / shape[1].max(1)).max(1);
-                let (c0, nc) = (start[1] as usize, count[1] as usize);
-                let mut out = Vec::new();
-                out.try_reserve_exact(cells as usize)
-                    .map_err(|_| self.err(format!("no memory for a block of `{name}`")))?;
-                let mut row = start[0];
-                let end = start[0] + count[0];
-                while row < end {
-                    let n = band.min(end - row);
-                    let v = ds.read_f64_rows(row, n).map_err(|e| {
-                        self.err(format!(
-                            "cannot read rows {row} to {} of variable `{name}`: {e}",
-                            row + n
-                        ))
-                    })?;
-                    let width = shape[1] as usize;
-                    if v.len() != n as usize * width {
-                        return Err(self.err(format!(
-                            "variable `{name}`: {} values read for {n} rows of {width}",
-                            v.len()
-                        )));
-                    }
-                    for r in v.chunks_exact(width) {
-                        out.extend_from_slice(&r[c0..c0 + nc]);
-                    }
-                    row += n;
-                }
-                Ok(out)
+                let shape = [shape[0], shape[1]];
+                self.check_nc4_block(var, &ds, shape, count, *file_len)?;
+                self.read_nc4_block(var, &ds, shape, start, count)
             }
         }
+    }
+
+    /// Refuses, before anything of a NetCDF-4 variable of `shape` is decoded, a block whose rows
+    /// (`count[0]` from `start[0]`, each of the variable's full width `shape[1]`) cannot be read
+    /// within the stated limits, or a variable whose storage the file of `file_len` bytes cannot
+    /// hold: a row wider than [`MAX_NC4_ROW_VALUES`], rows of more than [`MAX_NC4_BLOCK_ROW_VALUES`]
+    /// values in all, chunks as [`NcFile::check_nc4_chunks`] says, and contiguous values running
+    /// past the file. The variable as a whole is not held to the deflate bound: chunks it never
+    /// wrote read as its fill value and cost nothing until a block meets them.
+    fn check_nc4_block(
+        &self,
+        var: &Variable,
+        ds: &hdf5_pure::Dataset,
+        shape: [u64; 2],
+        count: [u64; 2],
+        file_len: u64,
+    ) -> Result<(), ReadError> {
+        let name = &var.name;
+        let width = shape[1];
+        if width > MAX_NC4_ROW_VALUES {
+            return Err(self.err(format!(
+                "variable `{name}` has rows of {width} values; a NetCDF-4 variable is read in \
+                 whole rows of at most {MAX_NC4_ROW_VALUES} values"
+            )));
+        }
+        let decoded = count[0].saturating_mul(width);
+        if decoded > MAX_NC4_BLOCK_ROW_VALUES {
+            return Err(self.err(format!(
+                "variable `{name}`: the block's {} rows of {width} values ({decoded} values; a \
+                 NetCDF-4 variable is decoded in whole rows) are more than the \
+                 {MAX_NC4_BLOCK_ROW_VALUES} decoded for one block",
+                count[0]
+            )));
+        }
+        self.check_nc4_chunks(var, ds, file_len)?;
+        if let Ok(hdf5_pure::Layout::Contiguous { size, .. }) = ds.layout() {
+            let values = shape[0].saturating_mul(width);
+            let bytes = values.saturating_mul(var.nc_type.size());
+            if bytes > file_len || size > file_len {
+                return Err(self.err(format!(
+                    "variable `{name}` declares {values} values stored uncompressed ({} bytes), \
+                     more than the file's {file_len} bytes",
+                    bytes.max(size)
+                )));
+            }
+        }
+        Ok(())
+    }
+
+    /// The block of a NetCDF-4 variable checked by [`NcFile::check_nc4_block`]: decoded a band of
+    /// whole rows at a time (at most [`BAND_VALUES`] values or one row, a whole number of chunk
+    /// rows when that fits; only the chunks meeting the band's rows are decoded, and those kept between
+    /// bands up to [`crate::nc4::CHUNK_CACHE_BYTES`]), of which the block's columns are kept.
+    fn read_nc4_block(
+        &self,
+        var: &Variable,
+        ds: &hdf5_pure::Dataset,
+        shape: [u64; 2],
+        start: [u64; 2],
+        count: [u64; 2],
+    ) -> Result<Vec<f64>, ReadError> {
+        let name = &var.name;
+        let width = shape[1].max(1);
+        let mut band = (BAND_VALUES / width).max(1);
+        if let Ok(Some(chunk)) = ds.chunk_shape()
+            && let Some(&rows) = chunk.first()
+            && rows > 0
+            && band > rows
+        {
+            band -= band % rows;
+        }
+        let (c0, nc) = (start[1] as usize, count[1] as usize);
+        let mut out = Vec::new();
+        out.try_reserve_exact((count[0] * count[1]) as usize)
+            .map_err(|_| self.err(format!("no memory for a block of `{name}`")))?;
+        let mut row = start[0];
+        let end = start[0] + count[0];
+        while row < end {
+            // Bands start on a multiple of their height, so they meet whole chunk rows.
+            let n = (band - row % band).min(end - row);
+            let v = ds.read_f64_rows(row, n).map_err(|e| {
+                self.err(format!(
+                    "cannot read rows {row} to {} of variable `{name}`: {e}",
+                    row + n
+                ))
+            })?;
+            let width = width as usize;
+            if v.len() != n as usize * width {
+                return Err(self.err(format!(
+                    "variable `{name}`: {} values read for {n} rows of {width}",
+                    v.len()
+                )));
+            }
+            for r in v.chunks_exact(width) {
+                out.extend_from_slice(&r[c0..c0 + nc]);
+            }
+            row += n;
+        }
+        Ok(out)
     }
 
     /// Refuses a NetCDF-4 variable of `count` values, or chunks of it, that the file of
@@ -356,13 +437,51 @@ impl NcFile {
                 decoded_bound(file_len, MAX_NC4_EXPANSION)
             )));
         }
-        if let Ok(Some(chunk)) = ds.chunk_shape() {
-            let cells = chunk.iter().fold(1u64, |a, &n| a.saturating_mul(n));
-            let bytes = cells.saturating_mul(var.nc_type.size());
-            if cells > MAX_VALUES || !decoded_fits(bytes, file_len, MAX_NC4_EXPANSION) {
+        self.check_nc4_chunks(var, ds, file_len)
+    }
+
+    /// Refuses a NetCDF-4 variable whose chunks hold more than [`MAX_VALUES`] values, or more
+    /// bytes than the file of `file_len` bytes can hold at deflate's largest expansion (each chunk
+    /// read is decoded whole), or whose chunk index lists a chunk outside the file or stored in
+    /// more bytes than its values and an eighth (plus 1 KiB) for the filters' overhead. The index
+    /// is walked by `hdf5-pure`, which reads no more of the file than each node declares and the
+    /// file holds; it also refuses a chunk whose data decompresses to more, or other, than its
+    /// declared size.
+    fn check_nc4_chunks(
+        &self,
+        var: &Variable,
+        ds: &hdf5_pure::Dataset,
+        file_len: u64,
+    ) -> Result<(), ReadError> {
+        let name = &var.name;
+        let Ok(Some(chunk)) = ds.chunk_shape() else {
+            return Ok(());
+        };
+        let cells = chunk.iter().fold(1u64, |a, &n| a.saturating_mul(n));
+        let bytes = cells.saturating_mul(var.nc_type.size());
+        if cells > MAX_VALUES || !decoded_fits(bytes, file_len, MAX_NC4_EXPANSION) {
+            return Err(self.err(format!(
+                "variable `{name}` declares chunks of {cells} values, more than a \
+                 file of {file_len} bytes can hold (limit {MAX_VALUES} values)"
+            )));
+        }
+        // Every chunk the index lists must lie inside the file and be stored in no more bytes
+        // than its values plus the filters' overhead: `hdf5-pure` sizes its read buffers from
+        // these entries (and zero-fills them) before it reads.
+        let stored_max = bytes.saturating_add(bytes / 8).saturating_add(1024);
+        let chunks = ds.chunks().map_err(|e| {
+            self.err(format!(
+                "variable `{name}`: cannot list its chunks (expected a chunk index of a \
+                 version-1 B-tree, a fixed or an extensible array): {e}"
+            ))
+        })?;
+        for c in &chunks {
+            let end = c.address.checked_add(c.storage_size);
+            if end.is_none_or(|e| e > file_len) || c.storage_size > stored_max {
                 return Err(self.err(format!(
-                    "variable `{name}` declares chunks of {cells} values, more than a \
-                     file of {file_len} bytes can hold (limit {MAX_VALUES} values)"
+                    "variable `{name}`: its chunk at {:?} declares {} bytes at byte {}, \
+                     expected at most {stored_max} bytes inside the file's {file_len}",
+                    c.offset, c.storage_size, c.address
                 )));
             }
         }

@@ -796,11 +796,163 @@ mod declared_sizes {
         );
     }
 
+    /// A chunk whose index entry declares 700 MB stored (the long mutation run's case): the crate
+    /// sizes and zero-fills its read buffer from that entry before the read fails, 690 MB
+    /// resident for a 16 KB file. Refused from the index, whole or by block, before any chunk
+    /// is read.
+    #[test]
+    fn netcdf4_chunk_declaring_700_mb_is_refused_before_reading() {
+        let src = good("dem_netcdf4.nc");
+        let bytes = std::fs::read(&src).unwrap();
+        let file = hdf5_pure::File::open(&src).unwrap();
+        let chunks = file.dataset("topo").unwrap().chunks().unwrap();
+        assert!(chunks.len() >= 4, "{chunks:?}");
+        // The version-1 B-tree key of the first chunk: its stored size (u32), filter mask (u32),
+        // then its offsets and the element offset 0 (u64 each), little endian.
+        let c = &chunks[0];
+        let mut key = (c.storage_size as u32).to_le_bytes().to_vec();
+        key.extend(c.filter_mask.to_le_bytes());
+        for o in c.offset.iter().chain(&[0]) {
+            key.extend(o.to_le_bytes());
+        }
+        let at = bytes
+            .windows(key.len())
+            .position(|w| w == key.as_slice())
+            .expect("the chunk's key");
+        let mut patched = bytes.clone();
+        patched[at..at + 4].copy_from_slice(&700_000_000u32.to_le_bytes());
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dem.nc");
+        std::fs::write(&path, patched).unwrap();
+        let words = [
+            "variable `topo`",
+            "declares 700000000 bytes",
+            "inside the file's 16794",
+        ];
+        one_error_at(&path, &words);
+        let h = gravgrad_netcdf::dem_header(&path, None).unwrap();
+        let p = gravgrad_netcdf::read_dem_block(&path, None, h.whole()).unwrap_err();
+        assert_eq!(p.len(), 1, "{p:?}");
+        for w in words {
+            assert!(p[0].message.contains(w), "{w:?} not in {}", p[0].message);
+        }
+    }
+
     #[test]
     fn netcdf_symlinked_to_dev_zero_is_refused() {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("dem.nc");
         std::os::unix::fs::symlink("/dev/zero", &path).unwrap();
         one_error_at(&path, &["not a regular file"]);
+    }
+}
+
+/// NetCDF-4 terrain models larger than any whole read are read by window (issue 16): only the
+/// chunks or rows of the window's rows are fetched from the file, which is never read whole.
+mod netcdf4_windows {
+    use super::{good, same_values};
+    use gravgrad_core::limits::{MAX_GRID_CELLS, MAX_WHOLE_FILE_BYTES};
+    use gravgrad_netcdf::{CellBlock, GridHeader, dem_header, read_dem, read_dem_block};
+
+    /// The block of the grid `big` over the raster `small` (same cell size, corners on its cells).
+    fn block_over(big: &GridHeader, small: &gravgrad_core::Raster) -> CellBlock {
+        let col0 = (small.x_min - big.x_min) / big.dx;
+        let row0 = (big.y_max - small.y_max) / big.dy;
+        assert!(col0.fract() == 0.0 && row0.fract() == 0.0, "{col0} {row0}");
+        CellBlock {
+            col0: col0 as usize,
+            row0: row0 as usize,
+            nx: small.nx,
+            ny: small.ny,
+        }
+    }
+
+    /// netCDF4-python's 20000 × 24000 float32 cells, deflated and shuffled in 256 × 256 chunks,
+    /// most never written: 1.9 GB as stored (past the whole-file limit), 22 KB on disk. The
+    /// window over the written block equals the small contiguous copy read whole, NaN for NaN.
+    #[test]
+    fn window_of_a_sparse_netcdf4_dem_past_every_whole_read_limit_equals_its_small_copy() {
+        let big = good("dem_netcdf4_sparse.nc");
+        let h = dem_header(&big, None).unwrap();
+        assert_eq!((h.nx, h.ny), (20_000, 24_000));
+        let stored_bytes = (h.nx * h.ny * 4) as u64;
+        assert!(stored_bytes > MAX_WHOLE_FILE_BYTES, "{stored_bytes}");
+        assert!(std::fs::metadata(&big).unwrap().len() < 1 << 20);
+        // Read whole it is refused by its count, before anything is decoded.
+        let whole = read_dem(&big, None).unwrap_err();
+        assert!(
+            whole[0].message.contains(&MAX_GRID_CELLS.to_string()),
+            "{}",
+            whole[0].message
+        );
+
+        let copy = read_dem(&good("dem_netcdf4_sparse_copy.nc"), None).unwrap();
+        assert!(copy.values.iter().any(|v| v.is_nan()));
+        assert!(copy.values.iter().any(|v| v.is_finite()));
+        let b = block_over(&h, &copy);
+        let w = read_dem_block(&big, None, b).unwrap();
+        assert_eq!(
+            (w.nx, w.ny, w.x_min, w.y_max),
+            (copy.nx, copy.ny, copy.x_min, copy.y_max)
+        );
+        assert_eq!((w.dx, w.dy), (copy.dx, copy.dy));
+        same_values("window over the written block", &w.values, &copy.values);
+
+        // A window of 600 × 500 cells around it: the copy's cells where they lie, NaN (never
+        // written) everywhere else.
+        let wide = CellBlock {
+            col0: b.col0 - 300,
+            row0: b.row0 - 200,
+            nx: 600,
+            ny: 500,
+        };
+        let r = read_dem_block(&big, None, wide).unwrap();
+        for row in 0..wide.ny {
+            for col in 0..wide.nx {
+                let v = r.values[row * wide.nx + col];
+                let (c, k) = (col + wide.col0, row + wide.row0);
+                let inside =
+                    (b.col0..b.col0 + b.nx).contains(&c) && (b.row0..b.row0 + b.ny).contains(&k);
+                let want = if inside {
+                    copy.values[(k - b.row0) * copy.nx + (c - b.col0)]
+                } else {
+                    f64::NAN
+                };
+                assert!(
+                    v == want || (v.is_nan() && want.is_nan()),
+                    "row {row}, column {col}: {v} vs {want}"
+                );
+            }
+        }
+    }
+
+    /// A NetCDF-4 file longer than the whole-file limit (the small contiguous copy, its length
+    /// set past 1 GiB, sparse on disk) is opened and read, by window and whole: nothing reads the
+    /// file whole.
+    #[test]
+    fn netcdf4_file_longer_than_the_whole_file_limit_is_read() {
+        let src = good("dem_netcdf4_sparse_copy.nc");
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("long.nc");
+        std::fs::copy(&src, &path).unwrap();
+        let f = std::fs::OpenOptions::new().write(true).open(&path).unwrap();
+        f.set_len(MAX_WHOLE_FILE_BYTES + (1 << 20)).unwrap();
+        drop(f);
+        assert!(std::fs::metadata(&path).unwrap().len() > MAX_WHOLE_FILE_BYTES);
+        let copy = read_dem(&src, None).unwrap();
+        let whole = read_dem(&path, None).unwrap();
+        same_values("whole", &whole.values, &copy.values);
+        let b = CellBlock {
+            col0: 3,
+            row0: 2,
+            nx: 10,
+            ny: 7,
+        };
+        let w = read_dem_block(&path, None, b).unwrap();
+        let want: Vec<f64> = (b.row0..b.row0 + b.ny)
+            .flat_map(|r| (b.col0..b.col0 + b.nx).map(move |c| (c, r)))
+            .map(|(c, r)| copy.values[r * copy.nx + c])
+            .collect();
+        same_values("block", &w.values, &want);
     }
 }

@@ -6,8 +6,10 @@ must return — computed here from the same invented numbers, not by our code.
 
 Good files cover the three classic formats (CDF-1, CDF-2, CDF-5) and NetCDF-4 (HDF5), packed
 integers (scale_factor/add_offset), _FillValue and missing_value, y ascending and descending, x/y in
-metres with a grid mapping, and longitude/latitude in degrees. Each bad file is broken in one known
-place; crates/gravgrad-netcdf/tests/netcdf.rs asserts the place.
+metres with a grid mapping, and longitude/latitude in degrees. One NetCDF-4 file declares 480
+million cells (1.9 GB as stored) of which a small block is written, so that it is a few KB on disk;
+a small copy of that block beside it is what a window of it must read as. Each bad file is broken
+in one known place; crates/gravgrad-netcdf/tests/netcdf.rs asserts the place.
 
 Two more writers: GDAL (through rasterio's netCDF driver) and GMT (`gmt grdmath`, when the `gmt`
 command is installed; without it, the committed GMT files are copied to DIR unchanged).
@@ -211,6 +213,53 @@ def netcdf4_two_variables():
     expect(name, h, x0, ytop, dx, dy, 32754)
 
 
+def netcdf4_sparse_big():
+    """NetCDF-4 terrain model of 20000 x 24000 float32 cells (1.9 GB as stored, past every
+    whole-read limit) of which only a block of 12 x 16 cells is written: deflate and shuffle in
+    chunks of 256 x 256, the block straddling four chunks, every other chunk never written (it
+    reads as the NaN fill value), so the file is some 30 KB. y ascending, float64 coordinates
+    deflated. Beside it, the same cells and a ring of 4 unwritten cells around them as a small
+    contiguous NetCDF-4 file: the window of the big file over them must equal it."""
+    big, small = "dem_netcdf4_sparse.nc", "dem_netcdf4_sparse_copy.nc"
+    nx, ny, dx, dy, x0, ybottom = 20000, 24000, 25.0, 25.0, 500000.0, 7000000.0
+    # The written block, in the file's order (y ascending): rows 8698..8710, columns 12280..12296.
+    iy0, ix0, wy, wx = 8698, 12280, 12, 16
+    block = plane(wx, wy, 312.0, 0.75, -1.25)[::-1, :]  # south first, as stored
+    block[3, 5] = np.nan
+    x = x0 + dx * (np.arange(nx) + 0.5)
+    y = ybottom + dy * (np.arange(ny) + 0.5)
+    with netCDF4.Dataset(os.path.join(GOOD, big), "w", format="NETCDF4") as ds:
+        ds.Conventions = "CF-1.8"
+        ds.createDimension("y", ny)
+        ds.createDimension("x", nx)
+        for name, values, axis in (("x", x, "X"), ("y", y, "Y")):
+            v = ds.createVariable(name, "f8", (name,), zlib=True, shuffle=True)
+            v.standard_name = "projection_%s_coordinate" % name
+            v.units = "m"
+            v.axis = axis
+            v[:] = values
+        v = ds.createVariable("z", "f4", ("y", "x"), zlib=True, shuffle=True,
+                              chunksizes=(256, 256), fill_value=np.float32(np.nan))
+        v.units = "m"
+        v.standard_name = "surface_altitude"
+        v[iy0:iy0 + wy, ix0:ix0 + wx] = block
+    ring = 4
+    sy0, sx0, sy, sx = iy0 - ring, ix0 - ring, wy + 2 * ring, wx + 2 * ring
+    copy = np.full((sy, sx), np.nan)
+    copy[ring:ring + wy, ring:ring + wx] = block
+    with netCDF4.Dataset(os.path.join(GOOD, small), "w", format="NETCDF4") as ds:
+        ds.Conventions = "CF-1.8"
+        ds.createDimension("y", sy)
+        ds.createDimension("x", sx)
+        xy_vars(ds, x[sx0:sx0 + sx], y[sy0:sy0 + sy])
+        v = ds.createVariable("z", "f4", ("y", "x"), contiguous=True,
+                              fill_value=np.float32(np.nan))
+        v.units = "m"
+        v.standard_name = "surface_altitude"
+        v[:] = copy
+    expect(small, copy[::-1, :], x0 + dx * sx0, ybottom + dy * (sy0 + sy), dx, dy, None)
+
+
 def netcdf4_lonlat_xarray():
     """NetCDF-4 written by xarray: longitude/latitude in degrees, latitude ascending, float64,
     NaN fill, a latitude_longitude grid mapping on WGS 84 (EPSG:4326)."""
@@ -366,6 +415,7 @@ def main():
     cdf5_record()
     netcdf4_two_variables()
     netcdf4_lonlat_xarray()
+    netcdf4_sparse_big()
     scipy_classic()
     gdal_rasterio()
     gmt_grdmath()
