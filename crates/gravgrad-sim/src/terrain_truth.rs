@@ -35,7 +35,7 @@
 use crate::terrain::Dem;
 use gravgrad_core::SymTensor;
 use gravgrad_core::units::G;
-use gravgrad_forward::column::{FAR_ERROR_CONSTANT, line_terms};
+use gravgrad_forward::column::{FAR_ERROR_CONSTANT, far_terms, line_terms};
 use gravgrad_forward::prism::Prism;
 use rayon::prelude::*;
 
@@ -167,8 +167,8 @@ impl TerrainTruth {
         let reach = self.switch_cells * self.cell_m;
         let switch2 = reach * reach;
         let spread = self.cell_m * self.cell_m / 24.0;
-        // Far columns: Σ ρ·t, times G·a² at the end; near ones in full.
-        let mut far = [0.0; 6];
+        // Far columns: Σρ·(zz, xz, yz, xy, xx − yy) per unit G·a²; near ones in full.
+        let mut far = [0.0; 5];
         let mut near = [0.0; 6];
         let east0 = self.east.first().copied().unwrap_or(0.0);
         for (row, &north) in self.north.iter().enumerate() {
@@ -204,10 +204,13 @@ impl TerrainTruth {
             }
         }
         let ga2 = G * self.cell_m * self.cell_m;
-        SymTensor::from_array(std::array::from_fn(|i| near[i] + ga2 * far[i]))
+        let [zz, xz, yz, xy, d] = far.map(|v| ga2 * v);
+        let far = [0.5 * (d - zz), xy, xz, -0.5 * (d + zz), yz, zz];
+        SymTensor::from_array(std::array::from_fn(|i| near[i] + far[i]))
     }
 
-    /// Adds the far form of the columns `cols` of `row` at `obs` (NED), unscaled by G·a².
+    /// Adds the far form of the columns `cols` of `row` at `obs` (NED), unscaled by G·a², to
+    /// `far` = Σρ·(T_zz, T_xz, T_yz, T_xy, T_xx − T_yy) ([`far_terms`]).
     fn far_run(
         &self,
         x: f64,
@@ -215,19 +218,30 @@ impl TerrainTruth {
         cols: std::ops::Range<usize>,
         row: usize,
         spread: f64,
-        far: &mut [f64; 6],
+        far: &mut [f64; 5],
     ) {
-        for col in cols {
-            let c = &self.cells[row * self.ncol + col];
+        let cells = &self.cells[row * self.ncol..(row + 1) * self.ncol];
+        // Σρ·dz, Σρ·dx, Σρ·y·dx, Σρ·dq, Σρ·y·dq, Σρ·y²·dq along the row; x is the row's.
+        let mut s = [0.0; 6];
+        for (c, east) in cells[cols.clone()].iter().zip(&self.east[cols]) {
             if c[2] == 0.0 {
                 continue;
             }
-            let w = [c[0] - obs[2], c[1] - obs[2]];
-            let t = line_terms(c[2], x, self.east[col] - obs[1], w, spread);
-            for (a, v) in far.iter_mut().zip(t.to_array()) {
-                *a += v;
-            }
+            let y = east - obs[1];
+            let [dz, dx, dq] = far_terms(x, y, [c[0] - obs[2], c[1] - obs[2]], spread);
+            let (rdx, rdq) = (c[2] * dx, c[2] * dq);
+            s[0] += c[2] * dz;
+            s[1] += rdx;
+            s[2] += y * rdx;
+            s[3] += rdq;
+            s[4] += y * rdq;
+            s[5] += y * y * rdq;
         }
+        far[0] += s[0];
+        far[1] += x * s[1];
+        far[2] += s[2];
+        far[3] += x * s[4];
+        far[4] += x * x * s[3] - s[5];
     }
 
     /// The terrain tensor (NED, s⁻²) at points given as (north, east, height above the ellipsoid).
