@@ -461,7 +461,7 @@ pub const SIM_BYTES_PER_SAMPLE: f64 = 1500.0;
 /// Most cells of the simulated DEM (each a prism of about 60 bytes, plus its elevation).
 pub const MAX_SIM_DEM_CELLS: f64 = 4.0e6;
 // The time a simulation will take is estimated before it starts from the terrain truth's counted
-// work ([`TerrainWork`]) and the samples and DEM cells, each at a cost per item measured on this
+// work (`TerrainWork`) and the samples and DEM cells, each at a cost per item measured on this
 // machine (2 cores shared with other agents' builds, load 6 to 11; release build, 2 threads;
 // docs/reliability.md, "Simulator sizes"). The costs are whole-simulation costs fitted so that the
 // estimate is above every measured time: of the eight scenarios measured the estimate exceeds the
@@ -509,9 +509,9 @@ fn within(v: f64, limit: f64) -> bool {
 /// What a scenario will need, known before anything is simulated.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ScenarioSizes {
-    /// Samples over all flights (survey and calibration flight).
+    /// Samples over all flights (survey and calibration flight), an upper estimate.
     pub samples: f64,
-    /// Cells of the DEM over the path plus `terrain.margin_m`.
+    /// Cells of the DEM over the path plus `terrain.margin_m`, an upper estimate.
     pub dem_cells: f64,
     /// The terrain truth's work ([`crate::terrain_truth`]); zero until [`Scenario::check_sizes`]
     /// has counted it.
