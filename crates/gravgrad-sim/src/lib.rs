@@ -11,3 +11,4 @@ pub mod scenario;
 pub mod score;
 pub mod simulate;
 pub mod terrain;
+pub mod terrain_truth;

@@ -460,21 +460,37 @@ pub const MAX_SIM_SAMPLES: f64 = 1.0e6;
 pub const SIM_BYTES_PER_SAMPLE: f64 = 1500.0;
 /// Most cells of the simulated DEM (each a prism of about 60 bytes, plus its elevation).
 pub const MAX_SIM_DEM_CELLS: f64 = 4.0e6;
-/// Most prism evaluations of the terrain truth: every DEM cell's prism at every sample of the path
-/// (survey and calibration flight), counted exactly by [`Scenario::sizes`] before the simulation
-/// (the former estimate from the plan alone was 3 to 7 times the real count). The terrain truth is
-/// nearly all of a simulation's time. Measured on this machine (two cores shared with other builds,
-/// release build): the prism kernel at 5.0 × 10⁶ evaluations a second on 1 thread and 5.1 × 10⁶ on
-/// 2 (`xtask bench-prisms --side 200 --points 40`, load 5 to 7), whole simulations at 5.5 × 10⁶ to
-/// 8.9 × 10⁶ a second on 2 threads ([`SIM_PRISM_EVALUATIONS_PER_S`]; docs/reliability.md,
-/// "Simulator sizes"). The limit is set by the largest scenario the tests simulate, the calibration
-/// flight of the end-to-end tests (2.10 × 10⁹ evaluations, 321 s measured), with a margin of 20 %:
-/// the largest scenario accepted takes about 8 minutes here, not under 60 s. Holding every
-/// simulation under 60 s needs a terrain truth about ten times faster, or smaller test scenarios.
-pub const MAX_SIM_PRISM_EVALUATIONS: f64 = 2.5e9;
-/// Prism evaluations a second the whole simulation achieves here on 2 threads, the slowest
-/// measured (docs/reliability.md): the time a refused scenario would have taken is told by it.
-pub const SIM_PRISM_EVALUATIONS_PER_S: f64 = 5.0e6;
+// The time a simulation will take is estimated before it starts from the terrain truth's counted
+// work (`TerrainWork`) and the samples and DEM cells, each at a cost per item measured on this
+// machine (2 cores shared with other agents' builds, load 6 to 11; release build, 2 threads;
+// docs/reliability.md, "Simulator sizes"). The costs are whole-simulation costs fitted so that the
+// estimate is above every measured time: of the eight scenarios measured the estimate exceeds the
+// simulation's time by 8 to 22 %. On one thread or two the forms alone ran at 16 to 17 ns a point
+// form, 20 to 23 ns a line form and 220 to 270 ns a prism (the second core was taken by the other
+// builds); on the machine at rest (load under 1) 7.9, 14.7 and 152 ns on one thread, 3.8, 7.4 and
+// 76 ns on two, and the calibration-flight scenario below took 11.3 s.
+
+/// Cost of one prism of the terrain truth (a column near a sample, closed form of Nagy et al.), s.
+/// Measured in whole simulations: 3.5e-7 at most (the 200 Hz scenario, 1.06e8 prisms), against
+/// 1.6e-7 to 2.1e-7 for prisms alone.
+pub const SIM_SECONDS_PER_PRISM: f64 = 3.5e-7;
+/// Cost of one column in the line form (line mass and cross-section term), s: 2.1e-8 to 2.3e-8
+/// measured alone, 2 threads.
+pub const SIM_SECONDS_PER_LINE: f64 = 2.5e-8;
+/// Cost of one column in the point form (one point with its second moments), s: 1.1e-8 to 1.2e-8
+/// measured alone, 2 threads, and 1.2e-8 to 1.3e-8 in whole simulations.
+pub const SIM_SECONDS_PER_POINT: f64 = 1.3e-8;
+/// Cost of the rest of a simulation per sample (path, normal field, geology, instrument, logs), s:
+/// 1e-5 to 4e-5 measured, 1e-4 on the smallest scenario.
+pub const SIM_SECONDS_PER_SAMPLE: f64 = 5e-5;
+/// Cost of sampling the terrain surface at one DEM cell, s (3.8e-6 to 5.8e-6 measured); done twice,
+/// by [`Scenario::check_sizes`] for the relief, then by the simulation.
+pub const SIM_SECONDS_PER_DEM_CELL: f64 = 6e-6;
+/// Longest estimated simulation accepted, s. The largest scenario of the tests, the calibration
+/// tests' survey with a calibration flight (49,512 samples, 42,364 DEM cells), is estimated at
+/// 37 s and took 31 s at a load of 10 to 11; a scenario at the limit would take about 33 to 37 s
+/// here (the estimates ran 8 to 22 % above the measured times), 40 s at most: a third under 60 s.
+pub const MAX_SIM_SECONDS: f64 = 40.0;
 /// Highest sample rate a scenario may ask for, Hz.
 pub const MAX_SAMPLE_RATE_HZ: f64 = 1000.0;
 
@@ -498,6 +514,41 @@ pub struct ScenarioSizes {
     pub samples: f64,
     /// Cells of the DEM over the path plus `terrain.margin_m`, an upper estimate.
     pub dem_cells: f64,
+    /// The terrain truth's work ([`crate::terrain_truth`]); zero until [`Scenario::check_sizes`]
+    /// has counted it.
+    pub terrain: TerrainWork,
+}
+
+/// The terrain truth's work, counted before the simulation: how many columns take each of its
+/// forms over all samples ([`crate::terrain_truth`]), upper estimates.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct TerrainWork {
+    /// The switch distances for the DEM's relief, cell sizes (zero when not counted).
+    pub switch_line_cells: f64,
+    pub switch_point_cells: f64,
+    /// Prisms: every survey sample counted with every cell within the line switch horizontally,
+    /// calibration-flight samples with those that its height above the highest column leaves
+    /// within it.
+    pub prisms: f64,
+    /// Line forms: counted as the prisms, within the point switch.
+    pub lines: f64,
+    /// Point forms: samples × cells.
+    pub points: f64,
+    /// The estimated time of the whole simulation here, s.
+    pub seconds: f64,
+}
+
+/// The path and DEM as the simulation lays them out.
+struct Layout {
+    samples: usize,
+    survey_samples: usize,
+    /// Heights of the calibration flight's samples above the ellipsoid, m.
+    calibration_heights: Vec<f64>,
+    /// The DEM's extent (local m) and its rows and columns.
+    north: [f64; 2],
+    east: [f64; 2],
+    rows: usize,
+    cols: usize,
 }
 
 /// A scenario that would need more than a stated limit: the key most to blame, the size asked for
@@ -542,17 +593,28 @@ impl Scenario {
         ScenarioSizes {
             samples,
             dem_cells: (north / t.cell_m).ceil() * (east / t.cell_m).ceil(),
+            terrain: TerrainWork::default(),
         }
     }
 
     /// The sizes the simulation will have, from the same path layout it flies, without sampling
     /// the terrain: the samples of the survey path and of the calibration flight, and the cells of
     /// the DEM over both paths plus `terrain.margin_m` (the DEM the simulation builds, and the
-    /// prisms of its terrain truth). Call only after [`Scenario::rough_sizes`] is within the limits.
+    /// columns of its terrain truth). Call only after [`Scenario::rough_sizes`] is within the limits.
     pub fn sizes(&self) -> ScenarioSizes {
+        let l = self.layout();
+        ScenarioSizes {
+            samples: l.samples as f64,
+            dem_cells: (l.rows * l.cols) as f64,
+            terrain: TerrainWork::default(),
+        }
+    }
+
+    /// The path's samples and extent and the DEM's, as the simulation lays them out.
+    fn layout(&self) -> Layout {
         let (n, [n0, n1, e0, e1]) = crate::path::outline(&self.plan);
         let (mut dn, mut de) = ([n0, n1], [e0, e1]);
-        let mut samples = n as f64;
+        let mut calibration_heights = Vec::new();
         if let Some(cf) = &self.calibration_flight {
             let centre = [0.5 * (n0 + n1), 0.5 * (e0 + e1)];
             let height = self.area.ground_height_m + cf.altitude_m;
@@ -561,21 +623,81 @@ impl Scenario {
             let (c, d) = minmax(&cal.east);
             dn = [dn[0].min(a), dn[1].max(b)];
             de = [de[0].min(c), de[1].max(d)];
-            samples += cal.time_s.len() as f64;
+            calibration_heights = cal.height;
         }
         let (m, cell) = (self.terrain.margin_m, self.terrain.cell_m);
+        let (north, east) = ([dn[0] - m, dn[1] + m], [de[0] - m, de[1] + m]);
         // As `Surface::dem` counts them.
-        let rows = ((dn[1] - dn[0] + 2.0 * m) / cell).ceil().max(1.0);
-        let cols = ((de[1] - de[0] + 2.0 * m) / cell).ceil().max(1.0);
-        ScenarioSizes {
-            samples,
-            dem_cells: rows * cols,
+        let rows = ((north[1] - north[0]) / cell).ceil().max(1.0) as usize;
+        let cols = ((east[1] - east[0]) / cell).ceil().max(1.0) as usize;
+        Layout {
+            samples: n + calibration_heights.len(),
+            survey_samples: n,
+            calibration_heights,
+            north,
+            east,
+            rows,
+            cols,
+        }
+    }
+
+    /// The terrain truth's work and the simulation's estimated time for a layout: samples the
+    /// DEM for its relief (the switch distances depend on it) unless the part of the time that
+    /// does not depend on them is already past [`MAX_SIM_SECONDS`].
+    fn terrain_work(&self, l: &Layout) -> TerrainWork {
+        let cells = (l.rows * l.cols) as f64;
+        let points = l.samples as f64 * cells;
+        let base = points * SIM_SECONDS_PER_POINT
+            + l.samples as f64 * SIM_SECONDS_PER_SAMPLE
+            + 2.0 * cells * SIM_SECONDS_PER_DEM_CELL;
+        if !within(base, MAX_SIM_SECONDS) {
+            return TerrainWork {
+                points,
+                seconds: base,
+                ..TerrainWork::default()
+            };
+        }
+        let surface = crate::terrain::Surface::new(&self.area, &self.terrain, self.seed);
+        let dem = surface.dem(l.north, l.east);
+        let reference = dem.mean();
+        let relief = dem
+            .values
+            .iter()
+            .fold(0.0f64, |m, e| m.max((e - reference).abs()));
+        let cell = self.terrain.cell_m;
+        let k = crate::terrain_truth::switches(cell, relief, self.terrain.density_kg_m3);
+        // Cells whose centres lie within a radius r (cell sizes) of a point: at most π(r + 1/√2)².
+        let disc = |r: f64| {
+            (std::f64::consts::PI * (r + std::f64::consts::FRAC_1_SQRT_2).powi(2)).min(cells)
+        };
+        // Columns within a switch k of a sample: a calibration-flight sample's height above the
+        // highest column's top (at most `relief` above the reference level) leaves a disc of
+        // radius √(k² − gap²).
+        let within_of = |k: f64| {
+            let mut n = l.survey_samples as f64 * disc(k);
+            for h in &l.calibration_heights {
+                let gap = ((h - reference - relief) / cell).max(0.0);
+                if gap < k {
+                    n += disc((k * k - gap * gap).sqrt());
+                }
+            }
+            n
+        };
+        let (prisms, lines) = (within_of(k.line), within_of(k.point));
+        TerrainWork {
+            switch_line_cells: k.line,
+            switch_point_cells: k.point,
+            prisms,
+            lines,
+            points,
+            seconds: base + prisms * SIM_SECONDS_PER_PRISM + lines * SIM_SECONDS_PER_LINE,
         }
     }
 
     /// Refuses a scenario past [`MAX_SIM_SAMPLES`] or [`MAX_SIM_DEM_CELLS`] (by the rough sizes),
-    /// or [`MAX_SIM_PRISM_EVALUATIONS`] (by the exact ones), naming the key most to blame and the
-    /// size it would need; gives the exact sizes.
+    /// or whose estimated time (by the exact sizes and the terrain truth's counted work) is past
+    /// [`MAX_SIM_SECONDS`], naming the key most to blame and the size it would need; gives the
+    /// exact sizes and the work.
     /// Call after the values are known to be positive and finite.
     pub fn check_sizes(&self) -> Result<ScenarioSizes, TooLarge> {
         let p = &self.plan;
@@ -630,10 +752,15 @@ impl Scenario {
             });
         }
         // Within the rough limits: lay out the path for the exact count.
-        let s = self.sizes();
-        let work = s.dem_cells * s.samples;
-        if !within(work, MAX_SIM_PRISM_EVALUATIONS) {
-            // Halving the cell quarters the work; halving the rate halves it.
+        let layout = self.layout();
+        let work = self.terrain_work(&layout);
+        let s = ScenarioSizes {
+            samples: layout.samples as f64,
+            dem_cells: (layout.rows * layout.cols) as f64,
+            terrain: work,
+        };
+        if !within(work.seconds, MAX_SIM_SECONDS) {
+            // Halving the cell quarters the far work; halving the rate halves all of it.
             let key = if cell_key == "terrain.margin_m" {
                 cell_key
             } else if p.sample_rate_hz / d.sample_rate_hz > td.cell_m / self.terrain.cell_m {
@@ -644,11 +771,8 @@ impl Scenario {
             return Err(TooLarge {
                 key,
                 message: format!(
-                    "the terrain truth would take {:.3e} prism evaluations ({:.0} DEM cells at {:.0} samples), about {:.0} s at {SIM_PRISM_EVALUATIONS_PER_S:e} a second; the limit is {MAX_SIM_PRISM_EVALUATIONS:e}: coarsen `terrain.cell_m` (the work falls with its square), lower `plan.sample_rate_hz` or `terrain.margin_m`, or shorten the plan",
-                    work,
-                    s.dem_cells,
-                    s.samples,
-                    work / SIM_PRISM_EVALUATIONS_PER_S
+                    "the simulation would take about {:.0} s here ({:.0} samples, {:.0} DEM cells: the terrain truth sums {:.3e} columns); the limit is {MAX_SIM_SECONDS} s: coarsen `terrain.cell_m` (the work falls with its square), lower `plan.sample_rate_hz` or `terrain.margin_m`, or shorten the plan",
+                    work.seconds, s.samples, s.dem_cells, work.points
                 ),
             });
         }

@@ -10,7 +10,8 @@ use crate::flights;
 use crate::noise::{self, Rng};
 use crate::path::{self, Track};
 use crate::scenario::{CalibrationFlight, LAYOUT, Scenario, TemperatureLog};
-use crate::terrain::{self, Dem, Surface};
+use crate::terrain::{Dem, Surface};
+use crate::terrain_truth::TerrainTruth;
 use gravgrad_core::SymTensor;
 use gravgrad_core::attitude::Attitude;
 use gravgrad_core::ellipsoid::GRS80;
@@ -557,12 +558,12 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
     let m = s.terrain.margin_m;
     let dem = surface.dem([dn[0] - m, dn[1] + m], [de[0] - m, de[1] + m]);
     let reference = dem.mean();
-    let prisms = terrain::terrain_prisms(&dem, reference, s.terrain.density_kg_m3);
+    let terrain_truth = TerrainTruth::new(&dem, reference, s.terrain.density_kg_m3);
 
     // Local coordinates are UTM grid metres from the origin's projection (zone of the origin): the
     // frame the DEM and the products use.
     let (tm, e0, n0) = map_origin(s)?;
-    let fields = path_fields(s, &track, &tm, [e0, n0], &prisms);
+    let fields = path_fields(s, &track, &tm, [e0, n0], &terrain_truth);
 
     let ie = &s.instrument;
     let pairs: Vec<PairGeometry> = ie
@@ -603,7 +604,7 @@ pub fn simulate(s: &Scenario) -> Result<Simulation, SimError> {
             let start = last + 1.0 / rate + s.plan.flight_gap_s;
             let height = s.area.ground_height_m + cf.altitude_m;
             let cal_track = calflight::fly(cf, &s.plan, centre, height, start);
-            let cal_fields = path_fields(s, &cal_track, &tm, [e0, n0], &prisms);
+            let cal_fields = path_fields(s, &cal_track, &tm, [e0, n0], &terrain_truth);
             let cal_part = SurveyPart {
                 track: &cal_track,
                 fields: &cal_fields,
@@ -678,7 +679,7 @@ fn path_fields(
     track: &Track,
     tm: &TransverseMercator,
     origin: [f64; 2],
-    prisms: &[Prism],
+    terrain_truth: &TerrainTruth,
 ) -> PathFields {
     let n = track.time_s.len();
     let [e0, n0] = origin;
@@ -698,7 +699,8 @@ fn path_fields(
     let points: Vec<[f64; 3]> = (0..n)
         .map(|i| [track.north[i], track.east[i], track.height[i]])
         .collect();
-    let terrain_t: Vec<SymTensor> = terrain::terrain_tensor(prisms, &points)
+    let terrain_t: Vec<SymTensor> = terrain_truth
+        .tensor(&points)
         .into_iter()
         .zip(&gamma)
         .map(|(t, g)| to_true(t, *g))

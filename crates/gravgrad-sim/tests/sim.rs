@@ -911,16 +911,16 @@ fn scenarios_past_their_size_limits_are_refused_naming_the_key() {
             "plan.line_length_m",
             "samples",
         ),
-        // Within the samples and DEM limits, past the terrain truth's work.
+        // Within the samples and DEM limits, past the estimated time.
         (
             "[terrain]\ncell_m = 10.0",
             "terrain.cell_m",
-            "prism evaluations",
+            "would take about",
         ),
         (
             "[plan]\nsample_rate_hz = 400.0",
             "plan.sample_rate_hz",
-            "prism evaluations",
+            "would take about",
         ),
     ] {
         let s = scenario(&format!("{base}{extra}"));
@@ -933,10 +933,14 @@ fn scenarios_past_their_size_limits_are_refused_naming_the_key() {
 }
 
 /// The sizes counted before a simulation (`Scenario::sizes`) are the simulation's own: its samples
-/// (survey and calibration flight) and its DEM's cells, whose product is the terrain truth's prism
-/// evaluations that `MAX_SIM_PRISM_EVALUATIONS` bounds.
+/// (survey and calibration flight) and its DEM's cells; and the terrain truth's work counted by
+/// `check_sizes` bounds the simulation's: the same switch distance, every sample's far columns at
+/// most samples × cells, and its prisms (columns near a sample) at most the counted number, which
+/// is no more than twice the real one (more where the DEM is small against the switch distance:
+/// its edges cut the samples' discs).
 #[test]
 fn counted_sizes_are_the_simulations_own() {
+    use gravgrad_sim::terrain_truth::TerrainTruth;
     for s in [scenario(SMALL), with_calibration_flight()] {
         let counted = s.check_sizes().expect("fits");
         let sim = simulate(&s).unwrap();
@@ -950,6 +954,31 @@ fn counted_sizes_are_the_simulations_own() {
         // The rough estimate that stops runaway scenarios is an upper bound.
         let rough = s.rough_sizes();
         assert!(rough.samples >= counted.samples && rough.dem_cells >= counted.dem_cells);
+        // The terrain truth's work.
+        let truth = TerrainTruth::new(&sim.dem, sim.reference_level_m, s.terrain.density_kg_m3);
+        let w = counted.terrain;
+        let k = truth.switches();
+        assert!(
+            (w.switch_line_cells - k.line).abs() < 0.02
+                && (w.switch_point_cells - k.point).abs() < 0.02,
+            "{w:?} {k:?}"
+        );
+        assert_eq!(w.points, counted.samples * counted.dem_cells);
+        let mut n = [0; 3];
+        for t in std::iter::once(&sim.truth).chain(sim.calibration.iter().map(|c| &c.truth)) {
+            for i in 0..t.north.len() {
+                let c = truth.form_counts([t.north[i], t.east[i], t.height[i]]);
+                n = std::array::from_fn(|j| n[j] + c[j]);
+            }
+        }
+        assert!(
+            w.prisms >= n[0] as f64 && w.prisms <= 2.0 * n[0] as f64,
+            "counted {} real {}",
+            w.prisms,
+            n[0]
+        );
+        assert!(w.lines >= (n[0] + n[1]) as f64, "{w:?} {n:?}");
+        assert!(w.seconds > 0.0 && w.seconds.is_finite());
     }
 }
 
@@ -967,5 +996,180 @@ fn the_repositorys_scenario_files_fit_the_limits() {
             .check_sizes()
             .unwrap_or_else(|e| panic!("{f}: {}", e.message));
         assert!(sizes.samples * sizes.dem_cells > 0.0, "{f}");
+    }
+}
+
+/// Largest |fast − all-prism| per component (E) over `points`, the terrain tensor's RMS over all
+/// components (E), and whether every point's error is within the far form's bound at that point.
+fn truth_against_all_prisms(
+    dem: &gravgrad_sim::terrain::Dem,
+    points: &[[f64; 3]],
+) -> (
+    [f64; 6],
+    f64,
+    bool,
+    gravgrad_sim::terrain_truth::TerrainTruth,
+) {
+    use gravgrad_sim::terrain::{terrain_prisms, terrain_tensor};
+    use gravgrad_sim::terrain_truth::TerrainTruth;
+    let reference = dem.mean();
+    let exact = terrain_tensor(&terrain_prisms(dem, reference, 2670.0), points);
+    let truth = TerrainTruth::new(dem, reference, 2670.0);
+    let fast = truth.tensor(points);
+    let mut max = [0.0f64; 6];
+    let (mut sum2, mut within) = (0.0, true);
+    for ((f, e), p) in fast.iter().zip(&exact).zip(points) {
+        let (f, e) = (f.to_array(), e.to_array());
+        let bound = truth.error_bound(*p);
+        for i in 0..6 {
+            let err = (f[i] - e[i]).abs();
+            max[i] = max[i].max(err * 1e9);
+            sum2 += e[i] * e[i];
+            // The all-prism sum's own rounding: about 1e-12 of the tensor.
+            within &= err <= bound + 1e-12 * e[i].abs();
+        }
+    }
+    let rms = (sum2 / (6 * points.len()) as f64).sqrt() * 1e9;
+    (max, rms, within, truth)
+}
+
+/// The terrain truth (prisms near, line masses with the cross-section term far) against every
+/// cell as a prism, on random columns: an 80 × 80 DEM of 50 m cells with heights drawn uniformly
+/// within ±60 m of their mean, at random points from level with the columns to 400 m above them.
+/// Every component within 1e-3 E (`TRUTH_TOLERANCE`) and within the far form's bound at its point.
+#[test]
+fn terrain_truth_on_random_columns_is_within_its_bound_of_the_all_prism_sum() {
+    use gravgrad_sim::noise::Rng;
+    use gravgrad_sim::terrain::Dem;
+    use gravgrad_sim::terrain_truth::TRUTH_TOLERANCE;
+    let mut rng = Rng::new(11, 3);
+    let (n, cell) = (80, 50.0);
+    let dem = Dem {
+        nrow: n,
+        ncol: n,
+        cell_m: cell,
+        north_max: 2000.0,
+        east_min: -2000.0,
+        values: (0..n * n)
+            .map(|_| 300.0 + 120.0 * (rng.uniform() - 0.5))
+            .collect(),
+    };
+    let points: Vec<[f64; 3]> = (0..120)
+        .map(|_| {
+            [
+                2000.0 - n as f64 * cell * rng.uniform(),
+                -2000.0 + n as f64 * cell * rng.uniform(),
+                300.0 + 60.0 + 340.0 * rng.uniform().powi(2),
+            ]
+        })
+        .chain([[0.0, 0.0, 300.0], [-1000.0, 500.0, 330.0]])
+        .collect();
+    let (max, rms, within, truth) = truth_against_all_prisms(&dem, &points);
+    eprintln!(
+        "random columns: switches {:?} cells, relief {:.1} m; max error per component {:?} E; terrain RMS {rms:.2} E",
+        truth.switches(),
+        truth.relief_m(),
+        max.map(|v| format!("{v:.2e}"))
+    );
+    // The far form is used for most of the cells (the comparison is not prisms against prisms).
+    let forms = points.iter().fold([0; 3], |acc, p| {
+        let c = truth.form_counts(*p);
+        std::array::from_fn(|j| acc[j] + c[j])
+    });
+    assert!(
+        forms[0] < points.len() * n * n / 2 && forms[1] > 0 && forms[2] > 0,
+        "{forms:?}"
+    );
+    assert!(within, "an error past its point's bound");
+    for m in max {
+        assert!(m <= TRUTH_TOLERANCE * 1e9, "{max:?} E");
+    }
+}
+
+/// The same on a simulated DEM: the demo scenario's terrain (hill, ridge, rough ground) over its
+/// survey plus margin, at draped heights 70 to 130 m above the ground and at the calibration
+/// flight's 1500 m.
+#[test]
+fn terrain_truth_on_the_demo_dem_is_within_its_bound_of_the_all_prism_sum() {
+    use gravgrad_sim::noise::Rng;
+    use gravgrad_sim::terrain::Surface;
+    use gravgrad_sim::terrain_truth::TRUTH_TOLERANCE;
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+    let s = scenario(&std::fs::read_to_string(root.join("data/demo/scenario.toml")).unwrap());
+    let surface = Surface::new(&s.area, &s.terrain, s.seed);
+    let dem = surface.dem([-1500.0, 2100.0], [-1500.0, 4500.0]);
+    let mut rng = Rng::new(12, 3);
+    let points: Vec<[f64; 3]> = (0..150)
+        .map(|k| {
+            let (n, e) = (600.0 * rng.uniform() - 50.0, 3000.0 * rng.uniform());
+            let h = if k % 10 == 0 {
+                1500.0 + s.area.ground_height_m
+            } else {
+                surface.height(n, e) + 70.0 + 60.0 * rng.uniform()
+            };
+            [n, e, h]
+        })
+        .collect();
+    let (max, rms, within, truth) = truth_against_all_prisms(&dem, &points);
+    eprintln!(
+        "demo DEM: switches {:?} cells, relief {:.1} m; max error per component {:?} E; terrain RMS {rms:.2} E",
+        truth.switches(),
+        truth.relief_m(),
+        max.map(|v| format!("{v:.2e}"))
+    );
+    assert!(within, "an error past its point's bound");
+    for m in max {
+        assert!(m <= TRUTH_TOLERANCE * 1e9, "{max:?} E");
+    }
+}
+
+/// The switch distances are the smallest (to 0.01 cell) whose bounds meet half the tolerance each,
+/// grow with the relief and the density, the point form's beyond the line form's, and are the floor
+/// for flat ground.
+#[test]
+fn the_switch_distances_are_the_smallest_that_meet_the_tolerance() {
+    use gravgrad_core::units::G;
+    use gravgrad_forward::column::{FAR_ERROR_CONSTANT, point_error_factor};
+    use gravgrad_sim::terrain_truth::{MIN_SWITCH_CELLS, TRUTH_TOLERANCE, lattice_bound, switches};
+    let a = 50.0;
+    let line = |h: f64, k: f64| FAR_ERROR_CONSTANT * G * 2670.0 * h / a * lattice_bound(k);
+    let point =
+        |h: f64, k: f64| G * 2670.0 * h * point_error_factor(a, h) / a.powi(5) * lattice_bound(k);
+    let half = 0.5 * TRUTH_TOLERANCE;
+    let mut last = 0.0;
+    for h in [5.0, 50.0, 500.0] {
+        let k = switches(a, h, 2670.0);
+        assert!(
+            line(h, k.line) <= half && line(h, k.line - 0.01) > half,
+            "{h}: {k:?}"
+        );
+        assert!(
+            point(h, k.point) <= half && point(h, k.point - 0.01) > half,
+            "{h}: {k:?}"
+        );
+        assert!(k.line > last && k.point > k.line, "{h}: {k:?}");
+        last = k.line;
+    }
+    assert!(switches(a, 50.0, 3000.0).line > switches(a, 50.0, 2000.0).line);
+    let flat = switches(a, 0.0, 2670.0);
+    assert!(flat.line == MIN_SWITCH_CELLS && flat.point == MIN_SWITCH_CELLS);
+    // The bound's lattice sum against the sum itself over a large lattice (it must be above it):
+    // columns at every cell centre with D ≥ k, D − 1/√2 to the power −7, for an observer level with
+    // the cell centres' plane at a cell's corner.
+    for k in [3.0, 8.0, 17.0] {
+        let mut sum = 0.0;
+        for i in -400i32..400 {
+            for j in -400i32..400 {
+                let d = ((i as f64 + 0.5).powi(2) + (j as f64 + 0.5).powi(2)).sqrt();
+                if d >= k {
+                    sum += (d - std::f64::consts::FRAC_1_SQRT_2).powi(-7);
+                }
+            }
+        }
+        assert!(sum <= lattice_bound(k), "{k}: {sum} > {}", lattice_bound(k));
+        eprintln!(
+            "k {k}: lattice sum {sum:.3e}, bound {:.3e}",
+            lattice_bound(k)
+        );
     }
 }
