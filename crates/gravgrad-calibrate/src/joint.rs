@@ -649,7 +649,48 @@ pub fn estimate_from_blocks(
             .held
             .extend(gb.held.iter().map(|h| ("gyros".to_string(), h.clone())));
     }
+    // What each target held, by term, with the estimate it had when held.
+    let held_estimates: Vec<Vec<(String, Coefficient)>> = fitted
+        .iter()
+        .map(|f| {
+            f.as_ref().map_or(Vec::new(), |(_, held)| {
+                held.iter()
+                    .filter_map(|h| h.estimate.map(|e| (h.term.clone(), e)))
+                    .collect()
+            })
+        })
+        .collect();
     let fits: Vec<Option<PairCalibration>> = fitted.into_iter().map(|f| f.map(|x| x.0)).collect();
+    // A band term of pair p (κ, quadratic, axis error): Σ w·c over its parts, the tensor rows
+    // (w = A_pj) and the pair's own residual row (w = 1). A part held at zero in its row is applied
+    // as zero (the tensor gets exactly the rows' kept terms: P·A = I), but what holding it costs
+    // the pair's coefficient is its estimate: the rows' parts carry A·P·q of every pair's term q,
+    // and only all parts together are the pair's own. So a held part's error is counted as
+    // √(σ² + e²), e and σ its estimate and standard error when it was held, not σ alone (a cross
+    // pair's fz² was 3.75 of the old errors from the truth this way, over eight seeds).
+    let band_term = |p: usize,
+                     rows: &[(f64, usize)],
+                     name: &str,
+                     get: &dyn Fn(&PairCalibration) -> Option<Coefficient>|
+     -> Option<Coefficient> {
+        let v: Vec<(f64, Coefficient)> = rows
+            .iter()
+            .copied()
+            .chain(std::iter::once((1.0, k + p)))
+            .filter_map(|(w, t)| {
+                let x = get(fits[t].as_ref()?)?;
+                let held = held_estimates[t].iter().find(|(n, _)| n == name);
+                Some((
+                    w,
+                    held.map_or(x, |(_, e)| Coefficient {
+                        value: x.value,
+                        std_error: e.std_error.hypot(e.value),
+                    }),
+                ))
+            })
+            .collect();
+        (!v.is_empty()).then(|| combine(&v))
+    };
     let pair_cals = (0..np)
         .map(|p| {
             // Weights: A_pj for the unknown rows, 1 for the pair's own residual row.
@@ -685,13 +726,21 @@ pub fn estimate_from_blocks(
                 .map(|(w, c)| (w * c.band_residual_rms).powi(2))
                 .sum::<f64>()
                 .sqrt();
+            let unknown_rows: Vec<(f64, usize)> = (0..k).map(|j| (a[p][j], j)).collect();
             let estimated = PairCalibration {
-                kappa: std::array::from_fn(|m| pick(&|c| Some(c.kappa[m])).unwrap_or(zero)),
+                kappa: std::array::from_fn(|m| {
+                    let name = ["κx", "κy", "κz"][m];
+                    band_term(p, &unknown_rows, name, &|c| Some(c.kappa[m])).unwrap_or(zero)
+                }),
                 rotation: [zero; 3],
                 polynomial: vec![],
                 temperature: pick(&|c| c.temperature),
                 quadratic: first.and_then(|c| c.quadratic).map(|_| {
-                    std::array::from_fn(|m| pick(&|c| c.quadratic.map(|q| q[m])).unwrap_or(zero))
+                    std::array::from_fn(|m| {
+                        let name = crate::estimate::PRODUCT_NAMES[m];
+                        band_term(p, &unknown_rows, name, &|c| c.quadratic.map(|q| q[m]))
+                            .unwrap_or(zero)
+                    })
                 }),
                 force_mean: f0,
                 gyro_rate: gyro_bias
@@ -701,13 +750,13 @@ pub fn estimate_from_blocks(
                 // of the gyro α is the gyros' differentiated noise against the pairs', not an axis
                 // error, and would put that noise into the pair.
                 rotation_coupling: first.and_then(|c| c.rotation_coupling).map(|_| {
+                    let tensor_rows: Vec<(f64, usize)> = (0..6).map(|j| (a[p][j], j)).collect();
                     std::array::from_fn(|m| {
-                        let v: Vec<(f64, Coefficient)> = (0..6)
-                            .filter_map(|j| fits[j].as_ref().map(|c| (a[p][j], c)))
-                            .chain(fits[k + p].as_ref().map(|c| (1.0, c)))
-                            .filter_map(|(w, c)| c.rotation_coupling.map(|r| (w, r[m])))
-                            .collect();
-                        if v.is_empty() { zero } else { combine(&v) }
+                        let name = format!("axis error: {}", crate::estimate::ROTATION_NAMES[m]);
+                        band_term(p, &tensor_rows, &name, &|c| {
+                            c.rotation_coupling.map(|r| r[m])
+                        })
+                        .unwrap_or(zero)
                     })
                 }),
                 self_gradient: {
