@@ -72,6 +72,41 @@ fn combine(parts: &[(f64, Coefficient)]) -> Coefficient {
     }
 }
 
+/// A band term of a pair (κ, quadratic, axis error, any unit): Σ w·c over its `parts`, (weight,
+/// target) — the tensor rows with w = A_pj and the pair's own residual row with w = 1 — of the
+/// term `get` reads from each target's fit, `held` listing per target the terms it held with their
+/// estimates then. A part held at zero is applied as zero (the tensor gets exactly the rows' kept
+/// terms: P·A = I), but what holding it costs the pair's coefficient is its estimate: the rows'
+/// parts carry A·P·q of every pair's term q, and only all parts together are the pair's own. So a
+/// held part's error counts as √(σ² + e²), e and σ its estimate and standard error when held, not σ
+/// alone (a cross pair's fz² was 3.75 of the old errors from the truth this way, over eight
+/// seeds). `None` when no part has the term.
+fn band_term(
+    parts: impl Iterator<Item = (f64, usize)>,
+    fits: &[Option<PairCalibration>],
+    held: &[Vec<(String, Coefficient)>],
+    name: &str,
+    get: &dyn Fn(&PairCalibration) -> Option<Coefficient>,
+) -> Option<Coefficient> {
+    let v: Vec<(f64, Coefficient)> = parts
+        .filter_map(|(w, t)| {
+            let x = get(fits[t].as_ref()?)?;
+            let std_error = match held[t].iter().find(|(n, _)| n == name) {
+                Some((_, e)) => e.std_error.hypot(e.value),
+                None => x.std_error,
+            };
+            Some((
+                w,
+                Coefficient {
+                    value: x.value,
+                    std_error,
+                },
+            ))
+        })
+        .collect();
+    (!v.is_empty()).then(|| combine(&v))
+}
+
 /// Every pair's samples over a flight, as the first stage of the fit reads them: the outputs, the
 /// angular rate and the known field. Nothing else of the flight is needed to form the block means
 /// ([`PairBlocks`]), so a caller can form them while it is still computing the rest.
@@ -661,35 +696,12 @@ pub fn estimate_from_blocks(
         })
         .collect();
     let fits: Vec<Option<PairCalibration>> = fitted.into_iter().map(|f| f.map(|x| x.0)).collect();
-    // A band term of pair p (κ, quadratic, axis error): Σ w·c over its parts, the tensor rows
-    // (w = A_pj) and the pair's own residual row (w = 1). A part held at zero in its row is applied
-    // as zero (the tensor gets exactly the rows' kept terms: P·A = I), but what holding it costs
-    // the pair's coefficient is its estimate: the rows' parts carry A·P·q of every pair's term q,
-    // and only all parts together are the pair's own. So a held part's error is counted as
-    // √(σ² + e²), e and σ its estimate and standard error when it was held, not σ alone (a cross
-    // pair's fz² was 3.75 of the old errors from the truth this way, over eight seeds).
     let band_term = |p: usize,
                      rows: &[(f64, usize)],
                      name: &str,
-                     get: &dyn Fn(&PairCalibration) -> Option<Coefficient>|
-     -> Option<Coefficient> {
-        let v: Vec<(f64, Coefficient)> = rows
-            .iter()
-            .copied()
-            .chain(std::iter::once((1.0, k + p)))
-            .filter_map(|(w, t)| {
-                let x = get(fits[t].as_ref()?)?;
-                let held = held_estimates[t].iter().find(|(n, _)| n == name);
-                Some((
-                    w,
-                    held.map_or(x, |(_, e)| Coefficient {
-                        value: x.value,
-                        std_error: e.std_error.hypot(e.value),
-                    }),
-                ))
-            })
-            .collect();
-        (!v.is_empty()).then(|| combine(&v))
+                     get: &dyn Fn(&PairCalibration) -> Option<Coefficient>| {
+        let parts = rows.iter().copied().chain(std::iter::once((1.0, k + p)));
+        band_term(parts, &fits, &held_estimates, name, get)
     };
     let pair_cals = (0..np)
         .map(|p| {
@@ -1095,6 +1107,67 @@ fn push_block_means(x: &[f64], block: usize, out: &mut Vec<f64>) {
 
 #[cfg(test)]
 mod tests {
+
+    /// A fit with κx = `value` ± `se` and nothing else.
+    fn fit_with_kappa_x(value: f64, se: f64) -> PairCalibration {
+        let c = |value, std_error| Coefficient { value, std_error };
+        PairCalibration {
+            kappa: [c(value, se), c(0.0, 0.0), c(0.0, 0.0)],
+            rotation: [c(0.0, 0.0); 3],
+            polynomial: Vec::new(),
+            temperature: None,
+            self_gradient: None,
+            quadratic: None,
+            force_mean: [0.0; 3],
+            gyro_rate: None,
+            rotation_coupling: None,
+            t_mid: 0.0,
+            temperature_mean: 0.0,
+            band_residual_rms: 0.0,
+        }
+    }
+
+    #[test]
+    fn a_part_its_row_held_adds_its_estimate_to_the_error_not_to_the_value() {
+        // Two parts: a row that kept κx = 3 ± 1 (weight 0.5) and the pair's residual row, which
+        // held it at zero after estimating 4 ± 2 (weight 1). Value: 0.5·3 + 0 = 1.5; error, the
+        // held part counted as √(2² + 4²): √((0.5·1)² + 2² + 4²) = √20.25 = 4.5.
+        let fits = vec![
+            Some(fit_with_kappa_x(3.0, 1.0)),
+            Some(fit_with_kappa_x(0.0, 2.0)),
+        ];
+        let held = vec![
+            Vec::new(),
+            vec![(
+                "κx".to_string(),
+                Coefficient {
+                    value: 4.0,
+                    std_error: 2.0,
+                },
+            )],
+        ];
+        let parts = [(0.5, 0), (1.0, 1)];
+        let got = band_term(parts.into_iter(), &fits, &held, "κx", &|c| {
+            Some(c.kappa[0])
+        })
+        .expect("both parts have κx");
+        assert_eq!(got.value, 1.5);
+        assert!((got.std_error - 4.5).abs() < 1e-12, "{}", got.std_error);
+        // Not held anywhere: the parts' own errors, √(0.5² + 2²).
+        let none: Vec<Vec<(String, Coefficient)>> = vec![Vec::new(), Vec::new()];
+        let plain = band_term(parts.into_iter(), &fits, &none, "κx", &|c| {
+            Some(c.kappa[0])
+        })
+        .expect("both parts have κx");
+        assert!((plain.std_error - 4.25f64.sqrt()).abs() < 1e-12);
+        // No part has the term: none.
+        assert!(
+            band_term(parts.into_iter(), &fits, &held, "fz²", &|c| c
+                .quadratic
+                .map(|q| q[2]))
+            .is_none()
+        );
+    }
     use super::*;
 
     #[test]
