@@ -193,10 +193,8 @@ impl NcFile {
         }
     }
 
-    /// Every value of the numeric variable `name` as f64, row-major, as stored (no scale, offset
-    /// or fill handling; 64-bit integers beyond 2⁵³ are rounded). Errors name the variable and
-    /// say what was expected: a numeric type, at most [`MAX_VALUES`] values, bytes the file holds.
-    pub fn read_f64(&self, name: &str) -> Result<Vec<f64>, ReadError> {
+    /// The numeric variable `name` and its index; errors name it and say what was expected.
+    fn numeric_variable(&self, name: &str) -> Result<(usize, &Variable), ReadError> {
         let Some(index) = self.variables.iter().position(|v| v.name == name) else {
             return Err(self.err(format!("no variable `{name}`")));
         };
@@ -207,6 +205,14 @@ impl NcFile {
                 var.nc_type.name()
             )));
         }
+        Ok((index, var))
+    }
+
+    /// Every value of the numeric variable `name` as f64, row-major, as stored (no scale, offset
+    /// or fill handling; 64-bit integers beyond 2⁵³ are rounded). Errors name the variable and
+    /// say what was expected: a numeric type, at most [`MAX_VALUES`] values, bytes the file holds.
+    pub fn read_f64(&self, name: &str) -> Result<Vec<f64>, ReadError> {
+        let (index, var) = self.numeric_variable(name)?;
         let mut count: u64 = 1;
         for n in self.shape(var) {
             count = count.saturating_mul(n);
@@ -262,16 +268,7 @@ impl NcFile {
         start: [u64; 2],
         count: [u64; 2],
     ) -> Result<Vec<f64>, ReadError> {
-        let Some(index) = self.variables.iter().position(|v| v.name == name) else {
-            return Err(self.err(format!("no variable `{name}`")));
-        };
-        let var = &self.variables[index];
-        if !var.nc_type.is_numeric() {
-            return Err(self.err(format!(
-                "variable `{name}` holds {} values, expected numbers",
-                var.nc_type.name()
-            )));
-        }
+        let (index, var) = self.numeric_variable(name)?;
         let shape = self.shape(var);
         if shape.len() != 2 {
             return Err(self.err(format!(
