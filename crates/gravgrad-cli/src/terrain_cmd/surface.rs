@@ -17,11 +17,13 @@ use super::{
 };
 use crate::EXIT_BAD_INPUT;
 use crate::logging::Log;
+use gravgrad_core::raster::Raster;
 use gravgrad_core::{Location, Problem};
 use gravgrad_ingest::dem::{
     CellBlock, DEM_BYTES_PER_CELL, Extent, GridHeader, MAX_DEM_WINDOW_CELLS, WindowKeys,
     read_dem_block, read_dem_header, read_window, window_of,
 };
+use gravgrad_reduce::terrain::TerrainModel;
 
 /// Output rows computed and written at a time: 131,072 (a Parquet row group, as every table of
 /// ours has).
@@ -228,46 +230,10 @@ pub(super) fn run(args: &TerrainArgs, log: &Log) -> u8 {
         return refuse(vec![p]);
     }
 
-    let raster = match ext {
-        Some([w, e, s, n]) => {
-            let m = args.margin;
-            let keys = WindowKeys {
-                dem: Location::file(&args.dem),
-                margin: Location::file(&args.dem),
-                margin_name: "`--margin`".into(),
-            };
-            match read_window(
-                &args.dem,
-                None,
-                &header,
-                [w - m, e + m, s - m, n + m],
-                &keys,
-            ) {
-                Ok(win) => {
-                    for p in &win.warnings {
-                        log.info(&p.to_string());
-                    }
-                    win.raster
-                }
-                Err(ps) => return refuse(ps),
-            }
-        }
-        None => match read_dem_block(&args.dem, None, plan.read) {
-            Ok(r) => r,
-            Err(ps) => return refuse(ps),
-        },
+    let raster = match read_planned(args, &header, ext, &plan, log) {
+        Ok(r) => r,
+        Err(code) => return code,
     };
-    if (raster.nx, raster.ny) != (plan.read.nx, plan.read.ny) {
-        eprintln!(
-            "error: {}: {} × {} cells read, {} × {} planned",
-            args.dem.display(),
-            raster.nx,
-            raster.ny,
-            plan.read.nx,
-            plan.read.ny
-        );
-        return EXIT_BAD_INPUT;
-    }
     let Some(model) = build_model(args, &raster) else {
         return EXIT_BAD_INPUT;
     };
@@ -279,6 +245,66 @@ pub(super) fn run(args: &TerrainArgs, log: &Log) -> u8 {
         if args.exact { ", exact sum" } else { "" }
     ));
 
+    write_surface(args, &plan, &raster, &model, log)
+}
+
+/// The DEM cells `plan` needs: the extent's window plus `--margin` (holes filled as a run fills
+/// them, with the warnings logged), or the planned block of the whole DEM; checked against the
+/// plan's size. Err: the exit code, the problem printed.
+fn read_planned(
+    args: &TerrainArgs,
+    header: &GridHeader,
+    ext: Option<[f64; 4]>,
+    plan: &Plan,
+    log: &Log,
+) -> Result<Raster, u8> {
+    let raster = match ext {
+        Some([w, e, s, n]) => {
+            let m = args.margin;
+            let keys = WindowKeys {
+                dem: Location::file(&args.dem),
+                margin: Location::file(&args.dem),
+                margin_name: "`--margin`".into(),
+            };
+            match read_window(&args.dem, None, header, [w - m, e + m, s - m, n + m], &keys) {
+                Ok(win) => {
+                    for p in &win.warnings {
+                        log.info(&p.to_string());
+                    }
+                    win.raster
+                }
+                Err(ps) => return Err(refuse(ps)),
+            }
+        }
+        None => match read_dem_block(&args.dem, None, plan.read) {
+            Ok(r) => r,
+            Err(ps) => return Err(refuse(ps)),
+        },
+    };
+    if (raster.nx, raster.ny) != (plan.read.nx, plan.read.ny) {
+        eprintln!(
+            "error: {}: {} × {} cells read, {} × {} planned",
+            args.dem.display(),
+            raster.nx,
+            raster.ny,
+            plan.read.nx,
+            plan.read.ny
+        );
+        return Err(EXIT_BAD_INPUT);
+    }
+    Ok(raster)
+}
+
+/// Evaluates the model at every `--step`-th planned cell (height from `--height`, or the cell's
+/// elevation plus `--clearance`; cells without one skipped) and writes the table a batch of rows
+/// at a time. Returns the exit code.
+fn write_surface(
+    args: &TerrainArgs,
+    plan: &Plan,
+    raster: &Raster,
+    model: &TerrainModel,
+    log: &Log,
+) -> u8 {
     // The cells evaluated, row by row, in the raster's own columns and rows.
     let step = args.step.max(1);
     let (c0, r0) = (plan.read.col0, plan.read.row0);
@@ -309,7 +335,7 @@ pub(super) fn run(args: &TerrainArgs, log: &Log) -> u8 {
             return Ok(None);
         }
         written += batch.len();
-        let t = evaluate(&model, &batch, args.exact);
+        let t = evaluate(model, &batch, args.exact);
         Ok(Some(table_columns(&batch, &t)))
     });
     log.info(&format!("{written} points"));
