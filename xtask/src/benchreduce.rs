@@ -1,12 +1,12 @@
 //! Timing of one flight's calibration, solve and rotation (issue 5), in process: the recipe and its
-//! flight are read once, then `gravgrad_cli::pipeline::process_flight` — the function `gravgrad run`
+//! flight are read once, then `gravgrad_survey::pipeline::process_flight` — the function `gravgrad run`
 //! calls — runs `repeat` times on `threads` threads. Each run's stage times are the pipeline's own;
 //! the medians are printed with the throughput, and a fingerprint of the results (a hash of every
 //! output number's bits) shows whether a change or the thread count altered them.
 
-use gravgrad_cli::pipeline::{self, CalibrationSource, FlightResult};
 use gravgrad_core::SymTensor;
 use gravgrad_ingest::check::load_recipe;
+use gravgrad_survey::pipeline::{self, CalibrationSource, FlightResult};
 use std::path::Path;
 
 /// FNV-1a (one 64-bit word at a time) over the bits of every number the stage produces (tensors, trace, calibration).

@@ -5,11 +5,11 @@
 //! `--jobs` at a time, each with its share of the threads and its own log file. Finished recipes
 //! are skipped unless `--force`; a summary table ends the batch.
 
-use crate::batch_plan::{self, RecipeWork};
 use crate::logging::Log;
-use crate::slurm;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::{Args, ValueEnum};
+use gravgrad::batch_plan::{self, RecipeWork};
+use gravgrad::slurm;
 use std::fs::File;
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};

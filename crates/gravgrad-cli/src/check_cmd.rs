@@ -1,10 +1,10 @@
 //! `gravgrad check`: validate flight logs, instrument files and recipes.
 
 use crate::logging::Log;
-use crate::preflight::preflight;
 use crate::report;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
+use gravgrad::survey::preflight::preflight;
 use gravgrad_ingest::check::{
     CheckSettings, FileReport, check_instrument_file, check_path, read_navigation,
 };

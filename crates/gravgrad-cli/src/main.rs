@@ -1,36 +1,19 @@
 //! The `gravgrad` command. Thin glue over the stage crates: parse arguments, call the stages,
 //! print, and map outcomes to exit codes (0 success, 1 processing failure, 2 bad input or usage).
 
-mod archive;
 mod batch_cmd;
-mod batch_plan;
 mod calibrate_cmd;
 mod check_cmd;
 mod demo_cmd;
-mod flight_store;
-mod flight_units;
-mod grid_stage;
-mod line_stages;
-mod lines_out;
 mod logging;
-mod output_folder;
-mod preflight;
-mod product_formats;
-mod provenance;
 mod qc_cmd;
 mod report;
-mod report_html;
 mod run_cmd;
 mod score_cmd;
 mod simulate_cmd;
-mod slurm;
-mod staging;
-mod tables;
 mod terrain_cmd;
-mod terrain_stage;
 
 use clap::{Parser, Subcommand};
-use gravgrad_cli::pipeline;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -129,6 +112,7 @@ fn main() -> ExitCode {
     }));
     let cli = Cli::parse();
     let log = logging::Log::new(cli.quiet, cli.json);
+    logging::install(log);
     if let Some(n) = cli.threads
         && let Err(e) = rayon::ThreadPoolBuilder::new()
             .num_threads(n)

@@ -2,9 +2,9 @@
 //! survey they came from, per component, beside the noise floor the simulation implies.
 
 use crate::logging::Log;
-use crate::tables::{Owned, read_parquet_columns};
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
+use gravgrad::products::tables::{Owned, read_parquet_columns};
 use gravgrad_core::units::EOTVOS;
 use gravgrad_ingest::tomlfile;
 use gravgrad_sim::scenario::Scenario;

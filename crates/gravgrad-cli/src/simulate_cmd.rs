@@ -2,9 +2,9 @@
 //! real survey would bring (raw log, instrument file, DEM, recipe) plus the truth tables.
 
 use crate::logging::Log;
-use crate::tables::{Column, write_csv, write_parquet};
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
+use gravgrad::products::tables::{Column, write_csv, write_parquet};
 use gravgrad_core::raster::Raster;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_grid::geotiff::{WriteOptions, write_geotiff};
@@ -380,7 +380,7 @@ fn calibration_truth(
 }
 
 fn write_text(path: &Path, text: &str) -> Result<(), String> {
-    crate::tables::write_atomic(path, |f| {
+    gravgrad::products::tables::write_atomic(path, |f| {
         use std::io::Write;
         f.write_all(text.as_bytes()).map_err(|e| e.to_string())
     })

@@ -23,9 +23,9 @@
 mod surface;
 
 use crate::logging::Log;
-use crate::tables::write_f64_batches;
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
 use clap::Args;
+use gravgrad::products::tables::write_f64_batches;
 use gravgrad_core::limits::MAX_TEXT_FILE_BYTES;
 use gravgrad_core::raster::Raster;
 use gravgrad_core::units::EOTVOS;
@@ -338,7 +338,7 @@ fn table_columns(points: &[[f64; 3]], t: &[SymTensor]) -> Vec<Vec<f64>> {
 fn write_table(
     out: &Path,
     next: impl FnMut() -> Result<Option<Vec<Vec<f64>>>, String>,
-) -> Result<(), crate::tables::WriteError> {
+) -> Result<(), gravgrad::products::tables::WriteError> {
     let is_csv = out
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
@@ -346,7 +346,11 @@ fn write_table(
 }
 
 /// The exit code of a written (or failed) output table, logged.
-fn finish(written: Result<(), crate::tables::WriteError>, out: &Path, log: &Log) -> u8 {
+fn finish(
+    written: Result<(), gravgrad::products::tables::WriteError>,
+    out: &Path,
+    log: &Log,
+) -> u8 {
     match written {
         Ok(()) => {
             log.info(&format!("written to {}", out.display()));

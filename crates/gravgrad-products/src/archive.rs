@@ -11,9 +11,9 @@
 //! `inputs` with attributes `recipe` (the recipe's text) and `sha256` (one `hash  path` line per
 //! input file).
 
-use crate::lines_out::LinesTable;
 use crate::tables::write_atomic;
 use gravgrad_core::raster::Raster;
+use gravgrad_survey::line_table::LinesTable;
 use hdf5_pure::{AttrValue, FileBuilder};
 use std::path::Path;
 

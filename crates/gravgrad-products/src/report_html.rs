@@ -5,14 +5,16 @@
 //! component, the noise spectra and each line's Gzz profile at every stage. Same input, same bytes:
 //! no time stamp, no path, numbers formatted at fixed precision, everything in the order of the lines.
 
-use crate::calibrate_cmd::{baseline_of, baselines, figures};
-use crate::line_stages::{self, LineStages};
-use crate::qc_cmd::{CalibrationHealth, LineQc, NAMES, health_counts, worst_motion, worst_noise};
-use crate::run_cmd::Processed;
 use gravgrad_calibrate::file::PairEntry;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_lines::QcSettings;
 use gravgrad_lines::spectrum::welch;
+use gravgrad_survey::calibration_report::{baseline_of, baselines, figures};
+use gravgrad_survey::line_stages::{self, LineStages};
+use gravgrad_survey::processed::Processed;
+use gravgrad_survey::qc::{
+    CalibrationHealth, LineQc, NAMES, health_counts, worst_motion, worst_noise,
+};
 use std::fmt::Write;
 
 /// Colours of the verdicts (ours: a teal for pass, a brick red for fail).

@@ -7,10 +7,8 @@
 //! are NaN.
 
 use crate::pipeline::FlightResult;
-use crate::tables::{Column, WriteError, write_csv, write_parquet_with_metadata};
 use gravgrad_core::SymTensor;
 use gravgrad_core::units::EOTVOS;
-use std::path::Path;
 
 /// The layout string written into the file's metadata.
 pub const LAYOUT: &str = "lines/1";
@@ -148,48 +146,5 @@ pub fn build(results: &[FlightResult]) -> LinesTable {
         f64_columns,
         i64_names: vec!["flight".into(), "line".into(), "flags".into()],
         i64_columns: vec![flight, line, flags],
-    }
-}
-
-impl LinesTable {
-    fn columns(&self) -> Vec<(&str, Column<'_>)> {
-        let mut out: Vec<(&str, Column<'_>)> =
-            vec![(&self.names[0], Column::F64(&self.f64_columns[0]))];
-        for (n, c) in self.i64_names.iter().zip(&self.i64_columns) {
-            out.push((n, Column::I64(c)));
-        }
-        for (n, c) in self.names.iter().zip(&self.f64_columns).skip(1) {
-            out.push((n, Column::F64(c)));
-        }
-        out
-    }
-
-    /// Writes `lines.parquet` with the layout, units and flight names in its metadata.
-    pub fn write_parquet(
-        &self,
-        path: &Path,
-        flights: &[String],
-        epsg: u32,
-    ) -> Result<(), WriteError> {
-        let meta = vec![
-            ("gravgrad_layout".to_string(), LAYOUT.to_string()),
-            ("tensor_units".to_string(), "E".to_string()),
-            (
-                "tensor_frame".to_string(),
-                "NED true north (measured: sensor frame)".to_string(),
-            ),
-            ("crs".to_string(), format!("EPSG:{epsg}")),
-            ("flights".to_string(), flights.join("\n")),
-        ];
-        write_parquet_with_metadata(path, &self.columns(), &meta)
-    }
-
-    /// Writes `lines.csv`.
-    pub fn write_csv(&self, path: &Path) -> Result<(), WriteError> {
-        write_csv(
-            path,
-            &format!("gravgrad {LAYOUT}: tensors in E, NED true north (measured: sensor frame)"),
-            &self.columns(),
-        )
     }
 }

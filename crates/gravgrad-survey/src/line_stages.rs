@@ -7,7 +7,7 @@
 //! Units: Eötvös throughout (the filter and the levelling are linear, so they keep the unit they are
 //! given); positions are the survey projection's easting and northing, m; time s.
 
-use crate::lines_out::{COMPONENTS, LinesTable};
+use crate::line_table::{COMPONENTS, LinesTable};
 use crate::pipeline::FlightResult;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_core::{Location, Problem};

@@ -8,10 +8,10 @@
 //! Paths are recorded relative to the recipe's folder (from canonical paths, `..` steps for inputs
 //! outside it), so the records do not depend on how the recipe's path was typed.
 
-use crate::pipeline::FlightResult;
 use crate::tables::write_atomic;
 use gravgrad_calibrate::file::PairEntry;
 use gravgrad_ingest::recipe::{CalibrationMode, Recipe};
+use gravgrad_survey::pipeline::FlightResult;
 use serde::Serialize;
 use sha2::{Digest, Sha256};
 use std::io::{Read, Write};

@@ -3,13 +3,14 @@
 //! matches instead of computing it. The survey-wide stages (levelling across flights, gridding,
 //! products) always run on all flights.
 
-use crate::flight_store::{self, Stored};
-use crate::logging::Log;
-use crate::pipeline::FlightResult;
-use crate::provenance::{self, Inputs};
+use crate::run::{CalibrationChoice, process_units};
 use gravgrad_core::Location;
 use gravgrad_ingest::check::Survey;
 use gravgrad_ingest::recipe::{CalibrationMode, Recipe};
+use gravgrad_products::flight_store::{self, Stored};
+use gravgrad_products::provenance::{self, Inputs};
+use gravgrad_survey::pipeline::FlightResult;
+use gravgrad_survey::{Processed, RunError};
 use std::path::{Path, PathBuf};
 
 /// What `process` does with stored flights.
@@ -110,18 +111,18 @@ impl<'a> Store<'a> {
 
     /// The stored result of flight `name` when its key matches; `None` (after saying why when the
     /// file exists but cannot be used) otherwise.
-    pub fn reuse(&self, name: &str, key: &str, log: &Log) -> Option<FlightResult> {
+    pub fn reuse(&self, name: &str, key: &str) -> Option<FlightResult> {
         let path = flight_store::path(&self.out, name);
         let clock = std::time::Instant::now();
         match flight_store::read(&path, key) {
             Ok(Stored::Fresh(mut r)) => {
                 r.timings = vec![("stored result read", clock.elapsed().as_secs_f64())];
-                log.info(&format!("{name}: stored result {} reused", path.display()));
+                tracing::info!("{name}: stored result {} reused", path.display());
                 Some(*r)
             }
             Ok(Stored::Stale) => None,
             Err(e) => {
-                log.info(&format!("{e}; the flight is computed again"));
+                tracing::info!("{e}; the flight is computed again");
                 None
             }
         }
@@ -136,44 +137,34 @@ impl<'a> Store<'a> {
 }
 
 /// `gravgrad run RECIPE --flight NAME`: the per-flight stages of the flights NAME selects, stored
-/// in the output folder. Exit 2 when NAME selects no flight of the recipe.
-pub fn run_one(recipe: &Path, out: Option<&Path>, name: &str, log: &Log) -> u8 {
+/// in the output folder. An input error when NAME selects no flight of the recipe.
+pub fn run_one(recipe: &Path, out: Option<&Path>, name: &str) -> Result<Processed, RunError> {
     let units = Units::Only {
         out,
         name,
         known: None,
     };
-    match crate::run_cmd::process_units(
-        recipe,
-        log,
-        crate::run_cmd::CalibrationChoice::Recipe,
-        units,
-    ) {
-        Ok(p) if p.results.is_empty() => {
-            let all = gravgrad_ingest::recipe::read_recipe(recipe)
-                .ok()
-                .and_then(|r| r.flight_files(recipe).ok())
-                .unwrap_or_default();
-            let stems: Vec<String> = all
-                .iter()
-                .filter_map(|f| f.file_stem())
-                .map(|s| s.to_string_lossy().into_owned())
-                .collect();
-            eprintln!(
-                "error: {}: --flight `{name}` is none of the recipe's flights (expected one of: {})",
-                recipe.display(),
-                stems.join(", ")
-            );
-            crate::EXIT_BAD_INPUT
-        }
-        Ok(p) => {
-            log.info(&format!(
-                "{} flight(s) processed and stored: {}",
-                p.names.len(),
-                p.names.join(", ")
-            ));
-            0
-        }
-        Err(code) => code,
+    let p = process_units(recipe, CalibrationChoice::Recipe, units)?;
+    if p.results.is_empty() {
+        let all = gravgrad_ingest::recipe::read_recipe(recipe)
+            .ok()
+            .and_then(|r| r.flight_files(recipe).ok())
+            .unwrap_or_default();
+        let stems: Vec<String> = all
+            .iter()
+            .filter_map(|f| f.file_stem())
+            .map(|s| s.to_string_lossy().into_owned())
+            .collect();
+        return Err(RunError::Refused(format!(
+            "{}: --flight `{name}` is none of the recipe's flights (expected one of: {})",
+            recipe.display(),
+            stems.join(", ")
+        )));
     }
+    tracing::info!(
+        "{} flight(s) processed and stored: {}",
+        p.names.len(),
+        p.names.join(", ")
+    );
+    Ok(p)
 }

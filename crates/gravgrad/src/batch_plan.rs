@@ -85,7 +85,7 @@ pub fn is_finished(out: &Path, recipe: &Path) -> bool {
     let Ok(rec) = serde_json::from_str::<Recorded>(&text) else {
         return false;
     };
-    let Ok(now) = crate::provenance::hashes(&[recipe.to_path_buf()]) else {
+    let Ok(now) = gravgrad_products::provenance::hashes(&[recipe.to_path_buf()]) else {
         return false;
     };
     rec.inputs

@@ -8,7 +8,7 @@
 //! node that sees the same file system.
 
 use crate::batch_plan::RecipeWork;
-use crate::tables::write_atomic;
+use gravgrad_products::tables::write_atomic;
 use std::io::Write;
 use std::path::Path;
 

@@ -22,11 +22,11 @@
 //! ((m/s²)⁻¹) with `force_mean` (m/s²), `gyro_rate`, `gyro_rate_se` (m/s² per rad/s) and `rotation_coupling`, `rotation_coupling_se`
 //! (m).
 
-use crate::pipeline::{FlightResult, Positions};
 use crate::tables::write_atomic;
 use gravgrad_calibrate::estimate::{Coefficient, PairCalibration};
 use gravgrad_core::SymTensor;
 use gravgrad_core::pairs::AlphaSource;
+use gravgrad_survey::pipeline::{FlightResult, Positions};
 use hdf5_pure::{AttrValue, File, FileBuilder, Group};
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
