@@ -16,7 +16,10 @@ pub mod calibrate;
 pub mod flight_units;
 pub mod qc;
 pub mod run;
+pub mod score;
+pub mod simulate;
 pub mod slurm;
+pub mod terrain;
 
 pub use gravgrad_products as products;
 pub use gravgrad_survey as survey;

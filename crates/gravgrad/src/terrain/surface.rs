@@ -13,10 +13,8 @@
 //! whole.
 
 use super::{
-    TerrainArgs, build_model, check_work, evaluate, finish, refuse, table_columns, write_table,
+    TerrainRequest, build_model, check_work, evaluate, finish, refuse, table_columns, write_table,
 };
-use crate::EXIT_BAD_INPUT;
-use crate::logging::Log;
 use gravgrad_core::raster::Raster;
 use gravgrad_core::{Location, Problem};
 use gravgrad_ingest::dem::{
@@ -24,6 +22,7 @@ use gravgrad_ingest::dem::{
     read_dem_block, read_dem_header, read_window, window_of,
 };
 use gravgrad_reduce::terrain::TerrainModel;
+use gravgrad_survey::RunError;
 
 /// Output rows computed and written at a time: 131,072 (a Parquet row group, as every table of
 /// ours has).
@@ -50,7 +49,7 @@ fn stepped(n: usize, step: usize) -> usize {
 }
 
 /// The flag that asked for a surface: `--height` or `--clearance`.
-fn flag(args: &TerrainArgs) -> &'static str {
+fn flag(args: &TerrainRequest) -> &'static str {
     if args.height.is_some() {
         "--height"
     } else {
@@ -59,7 +58,7 @@ fn flag(args: &TerrainArgs) -> &'static str {
 }
 
 /// `--extent` checked: four finite numbers, west < east, south < north.
-fn extent(args: &TerrainArgs) -> Result<Option<Extent>, String> {
+fn extent(args: &TerrainRequest) -> Result<Option<Extent>, String> {
     let Some(v) = &args.extent else {
         return Ok(None);
     };
@@ -79,7 +78,7 @@ fn extent(args: &TerrainArgs) -> Result<Option<Extent>, String> {
 }
 
 /// The plan of a surface run over the DEM of header `h`, or why there is nothing to evaluate.
-fn plan(args: &TerrainArgs, h: &GridHeader, ext: Option<Extent>) -> Result<Plan, Problem> {
+fn plan(args: &TerrainRequest, h: &GridHeader, ext: Option<Extent>) -> Result<Plan, Problem> {
     let step = args.step.max(1);
     let Some([w, e, s, n]) = ext else {
         return Ok(Plan {
@@ -134,7 +133,11 @@ fn memory(p: &Plan) -> (u64, u64) {
 
 /// Refuses a plan whose DEM cells read are past [`MAX_DEM_WINDOW_CELLS`]: the flag, the size it
 /// would need and what to change.
-fn check_memory(args: &TerrainArgs, p: &Plan, (model, batch): (u64, u64)) -> Result<(), Problem> {
+fn check_memory(
+    args: &TerrainRequest,
+    p: &Plan,
+    (model, batch): (u64, u64),
+) -> Result<(), Problem> {
     let cells = p.read.cells();
     if cells <= MAX_DEM_WINDOW_CELLS as u64 {
         return Ok(());
@@ -176,24 +179,21 @@ fn step_for(p: &Plan, max: usize) -> usize {
 }
 
 /// Runs `gravgrad terrain` with `--height` or `--clearance`.
-pub(super) fn run(args: &TerrainArgs, log: &Log) -> u8 {
+pub(super) fn run(args: &TerrainRequest) -> Result<(), RunError> {
     let ext = match extent(args) {
         Ok(e) => e,
-        Err(e) => {
-            eprintln!("error: {e}");
-            return EXIT_BAD_INPUT;
-        }
+        Err(e) => return Err(RunError::Refused(e)),
     };
     let header = match read_dem_header(&args.dem, None) {
         Ok(h) => h,
-        Err(ps) => return refuse(ps),
+        Err(ps) => return Err(refuse(ps)),
     };
     let plan = match plan(args, &header, ext) {
         Ok(p) => p,
-        Err(p) => return refuse(vec![p]),
+        Err(p) => return Err(refuse(vec![p])),
     };
     let need = memory(&plan);
-    log.info(&format!(
+    tracing::info!(
         "{}: up to {} points over {} × {} cells read; about {:.0} MB for the DEM and its terrain \
          model and {:.0} MB for a batch of output rows",
         flag(args),
@@ -202,9 +202,9 @@ pub(super) fn run(args: &TerrainArgs, log: &Log) -> u8 {
         plan.read.ny,
         need.0 as f64 / 1e6,
         need.1 as f64 / 1e6
-    ));
+    );
     if let Err(p) = check_memory(args, &plan, need) {
-        return refuse(vec![p]);
+        return Err(refuse(vec![p]));
     }
     let max = if args.exact {
         (super::MAX_EXACT_PRISM_SUMS / plan.read.cells().max(1)) as usize
@@ -227,37 +227,31 @@ pub(super) fn run(args: &TerrainArgs, log: &Log) -> u8 {
         plan.read.cells(),
         Some(fewer),
     ) {
-        return refuse(vec![p]);
+        return Err(refuse(vec![p]));
     }
 
-    let raster = match read_planned(args, &header, ext, &plan, log) {
-        Ok(r) => r,
-        Err(code) => return code,
-    };
-    let Some(model) = build_model(args, &raster) else {
-        return EXIT_BAD_INPUT;
-    };
-    log.info(&format!(
+    let raster = read_planned(args, &header, ext, &plan)?;
+    let model = build_model(args, &raster)?;
+    tracing::info!(
         "{} × {} cells, reference level {:.2} m{}",
         raster.nx,
         raster.ny,
         model.reference_m(),
         if args.exact { ", exact sum" } else { "" }
-    ));
+    );
 
-    write_surface(args, &plan, &raster, &model, log)
+    write_surface(args, &plan, &raster, &model)
 }
 
 /// The DEM cells `plan` needs: the extent's window plus `--margin` (holes filled as a run fills
 /// them, with the warnings logged), or the planned block of the whole DEM; checked against the
 /// plan's size. Err: the exit code, the problem printed.
 fn read_planned(
-    args: &TerrainArgs,
+    args: &TerrainRequest,
     header: &GridHeader,
     ext: Option<[f64; 4]>,
     plan: &Plan,
-    log: &Log,
-) -> Result<Raster, u8> {
+) -> Result<Raster, RunError> {
     let raster = match ext {
         Some([w, e, s, n]) => {
             let m = args.margin;
@@ -269,7 +263,7 @@ fn read_planned(
             match read_window(&args.dem, None, header, [w - m, e + m, s - m, n + m], &keys) {
                 Ok(win) => {
                     for p in &win.warnings {
-                        log.info(&p.to_string());
+                        tracing::info!("{p}");
                     }
                     win.raster
                 }
@@ -282,29 +276,27 @@ fn read_planned(
         },
     };
     if (raster.nx, raster.ny) != (plan.read.nx, plan.read.ny) {
-        eprintln!(
-            "error: {}: {} × {} cells read, {} × {} planned",
+        return Err(RunError::Refused(format!(
+            "{}: {} × {} cells read, {} × {} planned",
             args.dem.display(),
             raster.nx,
             raster.ny,
             plan.read.nx,
             plan.read.ny
-        );
-        return Err(EXIT_BAD_INPUT);
+        )));
     }
     Ok(raster)
 }
 
 /// Evaluates the model at every `--step`-th planned cell (height from `--height`, or the cell's
 /// elevation plus `--clearance`; cells without one skipped) and writes the table a batch of rows
-/// at a time. Returns the exit code.
+/// at a time.
 fn write_surface(
-    args: &TerrainArgs,
+    args: &TerrainRequest,
     plan: &Plan,
     raster: &Raster,
     model: &TerrainModel,
-    log: &Log,
-) -> u8 {
+) -> Result<(), RunError> {
     // The cells evaluated, row by row, in the raster's own columns and rows.
     let step = args.step.max(1);
     let (c0, r0) = (plan.read.col0, plan.read.row0);
@@ -338,6 +330,6 @@ fn write_surface(
         let t = evaluate(model, &batch, args.exact);
         Ok(Some(table_columns(&batch, &t)))
     });
-    log.info(&format!("{written} points"));
-    finish(result, &args.out, log)
+    tracing::info!("{written} points");
+    finish(result, &args.out)
 }
