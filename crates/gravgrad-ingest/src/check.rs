@@ -93,7 +93,7 @@ pub struct FileReport {
 }
 
 impl FileReport {
-    fn new(file: &Path, kind: FileKind) -> Self {
+    pub(crate) fn new(file: &Path, kind: FileKind) -> Self {
         Self {
             file: file.to_path_buf(),
             kind,
@@ -123,6 +123,91 @@ pub struct LoadedFlight {
     pub lines: Vec<Segment>,
     pub gaps: Vec<Gap>,
     pub time_base: Option<TimeBase>,
+}
+
+/// Checks one flight as read (from a file or from memory): the navigation merged when given, its
+/// values and time base checked, its lines cut. `file_problems`: what reading it already reported
+/// (not reported again). The report and the flight ready for processing.
+pub fn check_read_flight(
+    mut flight: Flight,
+    s: &CheckSettings,
+    nav: Option<&Flight>,
+    file_problems: &[Problem],
+) -> (FlightReport, LoadedFlight) {
+    let mut problems = Vec::new();
+    if let Some(n) = nav {
+        problems.extend(navmerge::merge_navigation(
+            &mut flight,
+            n,
+            s.navigation_max_gap_s,
+        ));
+    }
+    // A cell the reader already rejected (or a row it found short) is not reported again.
+    problems.extend(check_values(&flight));
+    problems = drop_repeats(file_problems, problems);
+    let (tb, p) = check_time(&flight, &s.time);
+    problems.extend(p);
+    let gaps = tb.as_ref().map(|t| t.gaps.clone()).unwrap_or_default();
+    let breaks: Vec<usize> = gaps.iter().map(|g| g.index).collect();
+    let time_ok = !problems
+        .iter()
+        .any(|p| p.is_error() && p.location.column.as_deref() == Some("time"));
+    let lines = if time_ok {
+        segment_lines(&flight.table, &breaks, &s.lines)
+    } else {
+        vec![]
+    };
+    for g in &gaps {
+        problems.push(Problem::warning(
+            flight.row_location(g.index).with_column("time"),
+            format!(
+                "gap of {:.3} s ({} samples missing) after time {}; the line is split here",
+                g.length_s, g.missing_samples, g.start_s
+            ),
+        ));
+    }
+    if !flight.plan.ignored.is_empty() {
+        problems.push(Problem::warning(
+            flight.source.clone(),
+            format!(
+                "columns not in the layout are ignored: {}",
+                flight.plan.ignored.join(", ")
+            ),
+        ));
+    }
+    if s.instrument.is_none() && flight.plan.pairs.is_empty() {
+        problems.push(
+            Problem::warning(
+                flight.source.clone(),
+                "no accelerometer pair columns (<id>_a, <id>_b) found",
+            )
+            .with_hint("give --instrument to name the pairs"),
+        );
+    }
+    problems.sort_by_key(|p| (std::cmp::Reverse(p.severity), p.location.row.unwrap_or(0)));
+    let report = FlightReport {
+        source: flight.source.clone(),
+        format: flight.format,
+        rows: flight.table.n_rows(),
+        first_row: flight.first_row,
+        time_base: tb,
+        channels: flight.table.names().to_vec(),
+        pairs: flight.plan.pairs.clone(),
+        ignored_columns: flight.plan.ignored.clone(),
+        lines,
+        gaps,
+        problems,
+        table_bytes: flight.table.data_bytes(),
+        extent_deg: extent(&flight),
+        track_deg: track(&flight),
+    };
+    let loaded = LoadedFlight {
+        lines: report.lines.clone(),
+        gaps: report.gaps.clone(),
+        time_base: report.time_base.clone(),
+        flight,
+    };
+    (report, loaded)
 }
 
 /// Checks one flight log.
@@ -158,81 +243,10 @@ pub fn load_flight_file(
     };
     let outcome = read_flight_file(path, &expect);
     report.problems = drop_repeats(&[], outcome.problems);
-    for mut flight in outcome.flights {
-        let mut problems = Vec::new();
-        if let Some(n) = nav {
-            problems.extend(navmerge::merge_navigation(
-                &mut flight,
-                n,
-                s.navigation_max_gap_s,
-            ));
-        }
-        // A cell the reader already rejected (or a row it found short) is not reported again.
-        problems.extend(check_values(&flight));
-        problems = drop_repeats(&report.problems, problems);
-        let (tb, p) = check_time(&flight, &s.time);
-        problems.extend(p);
-        let gaps = tb.as_ref().map(|t| t.gaps.clone()).unwrap_or_default();
-        let breaks: Vec<usize> = gaps.iter().map(|g| g.index).collect();
-        let time_ok = !problems
-            .iter()
-            .any(|p| p.is_error() && p.location.column.as_deref() == Some("time"));
-        let lines = if time_ok {
-            segment_lines(&flight.table, &breaks, &s.lines)
-        } else {
-            vec![]
-        };
-        for g in &gaps {
-            problems.push(Problem::warning(
-                flight.row_location(g.index).with_column("time"),
-                format!(
-                    "gap of {:.3} s ({} samples missing) after time {}; the line is split here",
-                    g.length_s, g.missing_samples, g.start_s
-                ),
-            ));
-        }
-        if !flight.plan.ignored.is_empty() {
-            problems.push(Problem::warning(
-                flight.source.clone(),
-                format!(
-                    "columns not in the layout are ignored: {}",
-                    flight.plan.ignored.join(", ")
-                ),
-            ));
-        }
-        if s.instrument.is_none() && flight.plan.pairs.is_empty() {
-            problems.push(
-                Problem::warning(
-                    flight.source.clone(),
-                    "no accelerometer pair columns (<id>_a, <id>_b) found",
-                )
-                .with_hint("give --instrument to name the pairs"),
-            );
-        }
-        problems.sort_by_key(|p| (std::cmp::Reverse(p.severity), p.location.row.unwrap_or(0)));
-        report.flights.push(FlightReport {
-            source: flight.source.clone(),
-            format: flight.format,
-            rows: flight.table.n_rows(),
-            first_row: flight.first_row,
-            time_base: tb,
-            channels: flight.table.names().to_vec(),
-            pairs: flight.plan.pairs.clone(),
-            ignored_columns: flight.plan.ignored.clone(),
-            lines,
-            gaps,
-            problems,
-            table_bytes: flight.table.data_bytes(),
-            extent_deg: extent(&flight),
-            track_deg: track(&flight),
-        });
-        let fr = report.flights.last().expect("pushed above");
-        loaded.push(LoadedFlight {
-            lines: fr.lines.clone(),
-            gaps: fr.gaps.clone(),
-            time_base: fr.time_base.clone(),
-            flight,
-        });
+    for flight in outcome.flights {
+        let (fr, lf) = check_read_flight(flight, s, nav, &report.problems);
+        report.flights.push(fr);
+        loaded.push(lf);
     }
     (report, loaded)
 }

@@ -55,6 +55,18 @@ impl Instrument {
 /// because what is needed depends on the recipe.
 pub fn read_instrument(path: &Path) -> Result<Instrument, Vec<Problem>> {
     let f: InstrumentFile = tomlfile::read(path).map_err(|p| vec![p])?;
+    checked(f, path)
+}
+
+/// An instrument from its TOML text (layout `instrument/1`), checked as [`read_instrument`]
+/// checks a file; `name` names it in messages.
+pub fn parse_instrument(name: &Path, text: &str) -> Result<Instrument, Vec<Problem>> {
+    let f: InstrumentFile = tomlfile::parse(name, text).map_err(|p| vec![p])?;
+    checked(f, name)
+}
+
+/// The instrument file's entries checked (`path` names it in messages).
+fn checked(f: InstrumentFile, path: &Path) -> Result<Instrument, Vec<Problem>> {
     let loc = Location::file(path);
     let mut problems = Vec::new();
     if f.layout != LAYOUT {

@@ -20,6 +20,7 @@ pub mod hdf5_reader;
 pub mod input_file;
 pub mod instrument;
 pub mod layout;
+pub mod memory;
 pub mod mutate;
 pub mod navmerge;
 mod parquet_footer;

@@ -17,6 +17,8 @@ pub enum Format {
     Csv,
     Parquet,
     Hdf5,
+    /// Columns handed over in memory (`crate::memory`), row numbers counted from 0.
+    Memory,
 }
 
 impl Format {
@@ -79,6 +81,7 @@ pub fn read_flight_file(path: &Path, expect: &Expectation<'_>) -> ReadOutcome {
             let (c, p) = read_parquet(path, expect);
             vec![(loc, c, p)]
         }
+        Format::Memory => vec![],
         Format::Hdf5 => read_hdf5(path, expect)
             .into_iter()
             .map(|f| {

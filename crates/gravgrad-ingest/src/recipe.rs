@@ -384,6 +384,41 @@ const FORMATS: [&str; 6] = ["parquet", "csv", "netcdf", "geotiff", "hdf5", "png"
 pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
     let mut r: Recipe = tomlfile::read(path).map_err(|p| vec![p])?;
     r.folder = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    let flights_listed = !r.input.flights.is_empty();
+    match (checked(r, path), flights_listed) {
+        (Ok(r), true) => Ok(r),
+        (res, listed) => {
+            let mut p = res.err().unwrap_or_default();
+            if !listed {
+                p.push(Problem::error(
+                    Location::file(path).with_key("input.flights"),
+                    "no flight files listed",
+                ));
+            }
+            Err(p)
+        }
+    }
+}
+
+/// A recipe from its TOML text, checked as [`read_recipe`] checks a file, except that it need
+/// not list flight files (a survey in memory brings its flights as arrays); `name` names it in
+/// messages, and relative paths in it start from `folder`.
+///
+/// ```
+/// use gravgrad_ingest::recipe::parse_recipe;
+/// use std::path::Path;
+/// let text = "layout = \"recipe/1\"\n[input]\nflights = []\n[instrument]\npath = \"i.toml\"\n";
+/// let r = parse_recipe(Path::new("recipe (in memory)"), text, Path::new(".")).unwrap();
+/// assert_eq!(r.survey.projection, "utm");
+/// ```
+pub fn parse_recipe(name: &Path, text: &str, folder: &Path) -> Result<Recipe, Vec<Problem>> {
+    let mut r: Recipe = tomlfile::parse(name, text).map_err(|p| vec![p])?;
+    r.folder = folder.to_path_buf();
+    checked(r, name)
+}
+
+/// Every key of `r` checked against its range and meaning (`path` names the recipe in messages).
+fn checked(r: Recipe, path: &Path) -> Result<Recipe, Vec<Problem>> {
     let loc = |key: &str| Location::file(path).with_key(key);
     let mut p = Vec::new();
     for (key, v, range) in numeric_keys(&r) {
@@ -470,12 +505,6 @@ pub fn read_recipe(path: &Path) -> Result<Recipe, Vec<Problem>> {
                 "scale must be finite and non-zero, offset finite",
             ));
         }
-    }
-    if r.input.flights.is_empty() {
-        p.push(Problem::error(
-            loc("input.flights"),
-            "no flight files listed",
-        ));
     }
     if p.is_empty() { Ok(r) } else { Err(p) }
 }

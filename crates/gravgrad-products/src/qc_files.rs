@@ -4,14 +4,11 @@
 
 use crate::report_html;
 use crate::tables::write_atomic;
-use gravgrad_ingest::plan::read_plan;
 use gravgrad_survey::RunError;
 use gravgrad_survey::calibration_report::{baseline_of, baselines, figures};
 use gravgrad_survey::line_stages::LineStages;
 use gravgrad_survey::processed::Processed;
-use gravgrad_survey::qc::{
-    CalibrationHealth, LineQc, NAMES, assess_all, calibration_health, settings,
-};
+use gravgrad_survey::qc::{CalibrationHealth, LineQc, NAMES, calibration_health, settings};
 use std::io::Write;
 use std::path::Path;
 
@@ -176,27 +173,23 @@ fn write_text(path: &Path, text: &str) -> Result<(), String> {
     .map_err(|e| e.to_string())
 }
 
-/// Assesses every line against the recipe's `[qc]` and writes `<qc_dir>/lines.csv` and
-/// `<qc_dir>/report.html`.
+/// Writes the QC of every line, `qcs` (`gravgrad_survey::qc::assess_survey`), as
+/// `<qc_dir>/lines.csv` and `<qc_dir>/report.html`.
 pub fn write_qc(
     qc_dir: &Path,
     p: &Processed,
     stages: &LineStages,
     recipe: &gravgrad_ingest::recipe::Recipe,
-) -> Result<Vec<LineQc>, RunError> {
+    qcs: &[LineQc],
+) -> Result<(), RunError> {
     let settings = settings(recipe);
-    let plan = match &recipe.qc.plan {
-        Some(rel) => Some(read_plan(&recipe.resolve(rel)).map_err(RunError::Input)?),
-        None => None,
-    };
-    let qcs = assess_all(p, stages, &settings, plan.as_ref());
     let health = calibration_health(p, recipe);
-    let csv = lines_csv(stages, &qcs, &health);
-    let html = report_html::render(p, stages, &qcs, &settings, &health);
+    let csv = lines_csv(stages, qcs, &health);
+    let html = report_html::render(p, stages, qcs, &settings, &health);
     for (name, text) in [("lines.csv", &csv), ("report.html", &html)] {
         write_text(&qc_dir.join(name), text).map_err(RunError::Failed)?;
     }
-    Ok(qcs)
+    Ok(())
 }
 
 /// Per flight: the calibration mode, the counts, the notes as logged, the held terms per series

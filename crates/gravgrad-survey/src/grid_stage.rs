@@ -236,6 +236,20 @@ pub fn plan_grid(recipe: &Recipe, tracks: &[Vec<(f64, f64)>]) -> Option<GridPlan
 }
 
 impl Grids {
+    /// A grid by its product name: `g??` (the full tensor), `measured_g??` (a measured component
+    /// gridded on its own; `None` when not observed) or `gz`.
+    pub fn by_name(&self, name: &str) -> Option<&Raster> {
+        if name == "gz" {
+            return Some(&self.gz);
+        }
+        if let Some(c) = name.strip_prefix("measured_") {
+            let k = NAMES.iter().position(|n| *n == c)?;
+            return self.measured[k].as_ref();
+        }
+        let k = NAMES.iter().position(|n| *n == name)?;
+        Some(&self.tensor[k])
+    }
+
     /// The cell, lattice and blanking used, and the line spacing they followed, for the log.
     pub fn settings(&self) -> String {
         let spacing = self

@@ -25,6 +25,7 @@ pub mod pipeline;
 pub mod preflight;
 pub mod processed;
 pub mod qc;
+pub mod results;
 pub mod terrain_stage;
 
 pub use error::RunError;

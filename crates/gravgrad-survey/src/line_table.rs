@@ -148,3 +148,12 @@ pub fn build(results: &[FlightResult]) -> LinesTable {
         i64_columns: vec![flight, line, flags],
     }
 }
+
+impl LinesTable {
+    /// The column `name` (see the module doc) as an array, one value per sample of every flight;
+    /// the integer columns (`flight`, `line`, `flags`) are not floats and are not given here.
+    pub fn column(&self, name: &str) -> Option<ndarray::ArrayView1<'_, f64>> {
+        let k = self.names.iter().position(|n| n == name)?;
+        Some(ndarray::ArrayView1::from(&self.f64_columns[k][..]))
+    }
+}

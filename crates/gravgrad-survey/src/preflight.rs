@@ -13,6 +13,7 @@ use crate::grid_stage::{self, GridPlan, MAX_GRID_NODES};
 use crate::pipeline::{self, MapFrame};
 use gravgrad_calibrate::channels::{self, ScreenLimits, Screened};
 use gravgrad_core::projection::TransverseMercator;
+use gravgrad_core::raster::Raster;
 use gravgrad_core::{Location, Problem};
 use gravgrad_ingest::check::{LoadedFlight, Survey, load_recipe};
 use gravgrad_ingest::dem::{self, DEM_BYTES_PER_CELL, DemWindow, Extent};
@@ -74,9 +75,24 @@ impl Preflight {
     }
 }
 
+/// Where the terrain model comes from.
+#[derive(Clone, Copy, Debug)]
+pub enum DemSource<'a> {
+    /// The file the recipe's `terrain.dem` names, read over the window only.
+    Recipe,
+    /// This raster, held in memory (the survey's frame, elevations in m above the ellipsoid).
+    Memory(&'a Raster),
+}
+
 /// Reads, checks and sizes the recipe at `recipe_path` and everything it names (module doc).
 pub fn preflight(recipe_path: &Path) -> Preflight {
-    let mut survey = load_recipe(recipe_path);
+    preflight_survey(load_recipe(recipe_path), recipe_path, DemSource::Recipe)
+}
+
+/// Checks and sizes a survey already read (from files, or from memory by
+/// `gravgrad_ingest::memory::survey_from_memory`), its DEM from `dem`; `recipe_path` names the
+/// recipe in messages.
+pub fn preflight_survey(mut survey: Survey, recipe_path: &Path, dem: DemSource<'_>) -> Preflight {
     let mut out = Preflight {
         survey: Survey::default(),
         frame: None,
@@ -103,7 +119,7 @@ pub fn preflight(recipe_path: &Path) -> Preflight {
                     extent[2] - t.margin_m,
                     extent[3] + t.margin_m,
                 ];
-                match window(&recipe, &frame, need, &key) {
+                match window(&recipe, &frame, need, &key, dem) {
                     Ok(w) => {
                         problems.extend(w.warnings.iter().cloned());
                         out.dem = Some(w);
@@ -250,11 +266,27 @@ fn window(
     frame: &MapFrame,
     need: Extent,
     key: &Location,
+    dem: DemSource<'_>,
 ) -> Result<DemWindow, Vec<Problem>> {
     let Some(t) = &recipe.terrain else {
         return Err(vec![]);
     };
     let path = recipe.resolve(&t.dem);
+    if let DemSource::Memory(raster) = dem {
+        if raster.epsg != Some(frame.epsg) {
+            return Err(vec![Problem::error(
+                key.clone(),
+                format!(
+                    "the terrain model in memory is in {}, the survey in EPSG:{}",
+                    raster
+                        .epsg
+                        .map_or("no stated frame".to_string(), |c| format!("EPSG:{c}")),
+                    frame.epsg
+                ),
+            )]);
+        }
+        return dem::prepare_window(raster, need, &path, key);
+    }
     // Where the DEM lies, from its header: the frame and the window are judged before any cell
     // is decoded, and only the window's cells are.
     let header = dem::read_dem_header(&path, None).map_err(|p| {

@@ -4,10 +4,12 @@
 //! calibration's health (mode, terms held, warnings) from the notes the pipeline gives.
 //! Written to files by `gravgrad_products::qc_files`.
 
+use crate::RunError;
 use crate::line_stages::{self, LineStages, Segment};
 use crate::processed::Processed;
 use gravgrad_core::units::EOTVOS;
-use gravgrad_ingest::plan::Plan;
+use gravgrad_ingest::plan::{Plan, read_plan};
+use gravgrad_ingest::recipe::Recipe;
 use gravgrad_lines::qc::{Component, LineMetrics, PlannedLine};
 use gravgrad_lines::{
     LineInputs, LowPass, MotionSeries, MotionSettings, QcSettings, Tolerances, Verdict, assess_line,
@@ -240,6 +242,20 @@ pub fn assess_all(
         .into_par_iter()
         .map(|k| assess(p, st, k, settings, plan, &motion))
         .collect()
+}
+
+/// Every line of the processed survey `p` assessed against the recipe's `[qc]`, with the recipe's
+/// `qc.plan` (the planned lines, read from its file) when it names one.
+pub fn assess_survey(
+    p: &Processed,
+    stages: &LineStages,
+    recipe: &Recipe,
+) -> Result<Vec<LineQc>, RunError> {
+    let plan = match &recipe.qc.plan {
+        Some(rel) => Some(read_plan(&recipe.resolve(rel)).map_err(RunError::Input)?),
+        None => None,
+    };
+    Ok(assess_all(p, stages, &settings(recipe), plan.as_ref()))
 }
 
 /// What one flight's calibration could not determine, as QC reports it: per line in

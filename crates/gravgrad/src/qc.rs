@@ -5,7 +5,7 @@
 use crate::run::{CalibrationChoice, checked_qc_folder, output_folder, process};
 use gravgrad_products::{qc_files, staging};
 use gravgrad_survey::line_stages::{self, LineStages};
-use gravgrad_survey::qc::LineQc;
+use gravgrad_survey::qc::{self, LineQc};
 use gravgrad_survey::{Processed, RunError};
 use std::path::{Path, PathBuf};
 
@@ -38,6 +38,7 @@ pub fn qc(recipe: &Path, out: Option<&Path>) -> Result<Checked, RunError> {
     for n in &stages.notes {
         tracing::info!("{n}");
     }
+    let lines = qc::assess_survey(&p, &stages, r)?;
     let folder = checked.unwrap_or_else(|| output_folder(&p, out));
     let dir = folder.join("qc");
     // Written whole beside `qc/` and swapped in at once: a stopped run leaves the old `qc/`.
@@ -45,13 +46,10 @@ pub fn qc(recipe: &Path, out: Option<&Path>) -> Result<Checked, RunError> {
     std::fs::create_dir_all(&next).map_err(|e| {
         RunError::Failed(format!("{}: cannot make the folder: {e}", next.display()))
     })?;
-    let lines = match qc_files::write_qc(&next, &p, &stages, r) {
-        Ok(q) => q,
-        Err(e) => {
-            let _ = std::fs::remove_dir_all(&next);
-            return Err(e);
-        }
-    };
+    if let Err(e) = qc_files::write_qc(&next, &p, &stages, r, &lines) {
+        let _ = std::fs::remove_dir_all(&next);
+        return Err(e);
+    }
     staging::replace_folder(&next, &dir).map_err(RunError::Failed)?;
     tracing::info!(
         "filter, levelling and QC of {} lines in {:.2} s",

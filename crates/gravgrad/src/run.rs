@@ -19,12 +19,13 @@ use gravgrad_products::staging::{self, Staging};
 use gravgrad_products::tables::write_atomic;
 use gravgrad_products::{archive, grid_files, lines_file, output_folder, qc_files};
 use gravgrad_survey::RunError;
-use gravgrad_survey::line_table::{self, LinesTable};
+use gravgrad_survey::grid_stage;
+use gravgrad_survey::line_table::LinesTable;
 use gravgrad_survey::pipeline::{self, CalibrationSource};
 use gravgrad_survey::preflight::{Preflight, preflight};
 use gravgrad_survey::processed::{Processed, flight_name};
+use gravgrad_survey::results::survey_results;
 use gravgrad_survey::terrain_stage::TerrainStage;
-use gravgrad_survey::{grid_stage, line_stages};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
@@ -161,6 +162,18 @@ pub fn process_units(
     // The same reading, checks and sizes as `gravgrad check RECIPE`; nothing is processed before
     // they pass.
     let pre = preflight(recipe_path);
+    process_checked(pre, recipe_path, clock, calibration, units)
+}
+
+/// [`process_units`] of a survey already read and checked (`pre`, from files or from memory),
+/// `clock` started when its reading began; `recipe_path` names the recipe in messages.
+pub(crate) fn process_checked(
+    pre: Preflight,
+    recipe_path: &Path,
+    clock: std::time::Instant,
+    calibration: CalibrationChoice<'_>,
+    units: Units<'_>,
+) -> Result<Processed, RunError> {
     if pre.has_errors() {
         return Err(input_errors(recipe_path, &pre.survey));
     }
@@ -566,72 +579,42 @@ fn write_products(
         ProductFormats::of(&gravgrad_ingest::recipe::Output::default()),
         |r| ProductFormats::of(&r.output),
     );
-    let mut table = line_table::build(&p.results);
-    let mut levelled = None;
-    if let Some(recipe) = recipe {
-        let clock = std::time::Instant::now();
-        let stages =
-            line_stages::compute(&p.results, recipe, &args.recipe).map_err(RunError::problem)?;
-        for n in &stages.notes {
-            tracing::info!("{n}");
-        }
-        let qcs = qc_files::write_qc(&dir.join("qc"), p, &stages, recipe)?;
-        let failed = qcs.iter().filter(|q| !q.verdict.pass).count();
-        tracing::info!(
-            "filter, levelling and QC of {} lines in {:.2} s: {} pass, {failed} fail",
-            qcs.len(),
-            clock.elapsed().as_secs_f64(),
-            qcs.len() - failed
-        );
-        stages.append_to(&mut table);
-        levelled = Some(stages.levelled);
+    let built = survey_results(p, &args.recipe, formats.needs_grids())?;
+    if let (Some(recipe), Some(stages)) = (recipe, &built.stages) {
+        qc_files::write_qc(&dir.join("qc"), p, stages, recipe, &built.qc)?;
     }
+    let table = &built.table;
     let clock = std::time::Instant::now();
     if formats.parquet {
-        lines_file::write_parquet(&table, &dir.join("lines.parquet"), &p.names, p.frame.epsg)
+        lines_file::write_parquet(table, &dir.join("lines.parquet"), &p.names, p.frame.epsg)
             .map_err(failed)?;
     }
     if formats.csv {
-        lines_file::write_csv(&table, &dir.join("lines.csv")).map_err(failed)?;
+        lines_file::write_csv(table, &dir.join("lines.csv")).map_err(failed)?;
     }
     if formats.parquet || formats.csv {
         tracing::info!(
             "line table written in {:.2} s",
             clock.elapsed().as_secs_f64()
-        )
+        );
     }
     let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
-    let grids = match recipe {
-        Some(r) if formats.needs_grids() => {
-            let clock = std::time::Instant::now();
-            let g = grid_stage::grid_survey(r, &p.results, levelled.as_deref(), p.frame.epsg)
-                .map_err(failed)?;
-            grid_files::write(dir, &g, &p.results, &title, formats.grids).map_err(failed)?;
-            tracing::info!(
-                "grids of the {} tensor built and written in {:.2} s: {}",
-                g.stage,
-                clock.elapsed().as_secs_f64(),
-                g.settings()
-            );
-            Some(g)
-        }
-        _ => None,
-    };
+    let grids = built.grids.as_ref();
+    if let Some(g) = grids {
+        let clock = std::time::Instant::now();
+        grid_files::write(dir, g, &p.results, &title, formats.grids).map_err(failed)?;
+        tracing::info!(
+            "grids and maps written in {:.2} s",
+            clock.elapsed().as_secs_f64()
+        );
+    }
     let clock = std::time::Instant::now();
     write_calibrations(p, dir).map_err(failed)?;
     staging::pause_at("built");
     let hashes = inputs.verify().map_err(RunError::Refused)?;
     if formats.hdf5 {
-        write_archive(
-            dir,
-            p,
-            &table,
-            grids.as_ref(),
-            &title,
-            &inputs.recipe_text,
-            &hashes,
-        )
-        .map_err(failed)?;
+        write_archive(dir, p, table, grids, &title, &inputs.recipe_text, &hashes)
+            .map_err(failed)?;
     }
     provenance::write(
         dir,

@@ -37,6 +37,44 @@ pub fn simulate_to_folder(scenario_path: &Path, out: &Path) -> Result<Simulated,
     })
 }
 
+/// The instrument file (layout `instrument/1`) of the simulated instrument: its pairs' geometry,
+/// m, in the sensor frame, each number written so that it reads back to the same bits.
+pub fn instrument_text(sim: &Simulation) -> String {
+    let mut inst = format!(
+        "layout = \"instrument/1\"\nname = \"simulated nine-pair gradiometer\"\nsample_rate_hz = {:?}\n",
+        sim.sample_rate_hz
+    );
+    for p in &sim.pairs {
+        inst.push_str(&format!(
+            "\n[[pair]]\nid = \"{}\"\ncenter_m = [{:?}, {:?}, {:?}]\nbaseline_m = [{:?}, {:?}, {:?}]\naxis = [{:?}, {:?}, {:?}]\n",
+            p.id, p.center[0], p.center[1], p.center[2], p.baseline[0], p.baseline[1], p.baseline[2], p.axis[0], p.axis[1], p.axis[2]
+        ));
+    }
+    inst
+}
+
+/// The simulated DEM as a north-up raster in the survey's UTM frame (m; elevations in m above the
+/// ellipsoid), full precision (the GeoTIFF stores it as float32).
+pub fn dem_raster(sim: &Simulation) -> Result<Raster, String> {
+    let [e0, n0] = sim.projection.false_origin;
+    let dem = &sim.dem;
+    Ok(Raster::new(
+        dem.ncol,
+        dem.nrow,
+        (e0 + dem.east_min, n0 + dem.north_max),
+        (dem.cell_m, dem.cell_m),
+        dem.values.clone(),
+    )
+    .map_err(|e| format!("DEM: {e}"))?
+    .with_epsg(sim.projection.epsg()))
+}
+
+/// The file stem of flight `k` (from 0) of the simulated survey of `scenario_name`, as
+/// `gravgrad simulate` names its log: `<slug>-f01`, `<slug>-f02`, …
+pub fn flight_stem(scenario_name: &str, k: usize) -> String {
+    format!("{}-f{:02}", slug(scenario_name), k + 1)
+}
+
 fn count_lines(sim: &Simulation) -> usize {
     let mut ids: Vec<i64> = sim.line.iter().copied().filter(|l| *l > 0).collect();
     ids.dedup();
@@ -74,7 +112,7 @@ fn write_all(
         .flights
         .iter()
         .enumerate()
-        .map(|(k, f)| (format!("{name}-f{:02}", k + 1), f, false))
+        .map(|(k, f)| (flight_stem(&s.name, k), f, false))
         .collect();
     if let Some(c) = &sim.calibration {
         logs.push((format!("{name}-cal"), &c.log, true));
@@ -102,33 +140,15 @@ fn write_all(
     }
     tracing::info!("{} raw flight log(s) written (Parquet and CSV)", logs.len());
 
-    // Instrument file.
-    let mut inst = format!(
-        "layout = \"instrument/1\"\nname = \"simulated nine-pair gradiometer\"\nsample_rate_hz = {:?}\n",
-        sim.sample_rate_hz
-    );
-    for p in &sim.pairs {
-        inst.push_str(&format!(
-            "\n[[pair]]\nid = \"{}\"\ncenter_m = [{:?}, {:?}, {:?}]\nbaseline_m = [{:?}, {:?}, {:?}]\naxis = [{:?}, {:?}, {:?}]\n",
-            p.id, p.center[0], p.center[1], p.center[2], p.baseline[0], p.baseline[1], p.baseline[2], p.axis[0], p.axis[1], p.axis[2]
-        ));
-    }
-    write_text(&out.join("instrument.toml"), &inst)?;
-
-    // DEM in the survey's UTM zone, float32, north-up.
+    write_text(&out.join("instrument.toml"), &instrument_text(sim))?;
     let [e0, n0] = sim.projection.false_origin;
-    let dem = &sim.dem;
-    let raster = Raster::new(
-        dem.ncol,
-        dem.nrow,
-        (e0 + dem.east_min, n0 + dem.north_max),
-        (dem.cell_m, dem.cell_m),
-        dem.values.clone(),
+    // DEM in the survey's UTM zone, float32, north-up.
+    write_geotiff(
+        &dem_raster(sim)?,
+        &out.join("dem.tif"),
+        &WriteOptions::default(),
     )
-    .map_err(|e| format!("DEM: {e}"))?
-    .with_epsg(sim.projection.epsg());
-    write_geotiff(&raster, &out.join("dem.tif"), &WriteOptions::default())
-        .map_err(|e| e.to_string())?;
+    .map_err(|e| e.to_string())?;
 
     // Recipe that processes the survey. With a calibration flight, the survey recipe reads the
     // survey flights only (`-fNN`), the calibration recipe the calibration flight only, and a third

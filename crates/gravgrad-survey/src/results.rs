@@ -1,0 +1,75 @@
+//! What a processed survey gives after its survey-wide stages, in memory: the line table with
+//! the filtered and levelled stages appended, the line stages themselves, a QC verdict per line,
+//! and the grids. `gravgrad run` writes exactly these; a program can take them as arrays.
+
+use crate::grid_stage::{self, Grids};
+use crate::line_stages::{self, LineStages};
+use crate::line_table::{self, LinesTable};
+use crate::qc::{self, LineQc};
+use crate::{Processed, RunError};
+use std::path::Path;
+
+/// The survey-wide results of a processed survey.
+pub struct SurveyResults {
+    /// One row per sample of every flight (`lines.parquet`'s columns), E for tensors.
+    pub table: LinesTable,
+    /// The filter, crossovers and levelling (`None` without a recipe).
+    pub stages: Option<LineStages>,
+    /// One verdict per line (empty without a recipe).
+    pub qc: Vec<LineQc>,
+    /// The grids (`None` when not asked for, or without a recipe).
+    pub grids: Option<Grids>,
+}
+
+/// The line table, line stages, QC and (with `with_grids`) the grids of `p`; `recipe_path` names
+/// the recipe in messages.
+pub fn survey_results(
+    p: &Processed,
+    recipe_path: &Path,
+    with_grids: bool,
+) -> Result<SurveyResults, RunError> {
+    let mut table = line_table::build(&p.results);
+    let Some(recipe) = p.survey.recipe.as_ref() else {
+        return Ok(SurveyResults {
+            table,
+            stages: None,
+            qc: Vec::new(),
+            grids: None,
+        });
+    };
+    let clock = std::time::Instant::now();
+    let stages =
+        line_stages::compute(&p.results, recipe, recipe_path).map_err(RunError::problem)?;
+    for n in &stages.notes {
+        tracing::info!("{n}");
+    }
+    let qcs = qc::assess_survey(p, &stages, recipe)?;
+    let failed = qcs.iter().filter(|q| !q.verdict.pass).count();
+    tracing::info!(
+        "filter, levelling and QC of {} lines in {:.2} s: {} pass, {failed} fail",
+        qcs.len(),
+        clock.elapsed().as_secs_f64(),
+        qcs.len() - failed
+    );
+    stages.append_to(&mut table);
+    let grids = if with_grids {
+        let clock = std::time::Instant::now();
+        let g = grid_stage::grid_survey(recipe, &p.results, Some(&stages.levelled), p.frame.epsg)
+            .map_err(RunError::Failed)?;
+        tracing::info!(
+            "grids of the {} tensor built in {:.2} s: {}",
+            g.stage,
+            clock.elapsed().as_secs_f64(),
+            g.settings()
+        );
+        Some(g)
+    } else {
+        None
+    };
+    Ok(SurveyResults {
+        table,
+        stages: Some(stages),
+        qc: qcs,
+        grids,
+    })
+}
