@@ -52,6 +52,21 @@ pub(crate) fn write_text(path: &Path, text: &str) -> Result<(), String> {
 
 /// Estimates every pair's calibration from the flights of `recipe` (whatever its
 /// `calibration.mode`) and writes the files, reports and stability report.
+///
+/// ```
+/// # fn main() -> Result<(), Box<dyn std::error::Error>> {
+/// let dir = tempfile::tempdir()?;
+/// let scenario = dir.path().join("scenario.toml");
+/// std::fs::write(&scenario, gravgrad::simulate::SMALL_SCENARIO)?;
+/// let data = dir.path().join("survey");
+/// gravgrad::simulate::simulate_to_folder(&scenario, &data)?;
+/// let out = dir.path().join("calibration.toml");
+/// let made = gravgrad::calibrate::calibrate(&data.join("recipe.toml"), Some(&out))?;
+/// assert_eq!(made.files[0].0, out);
+/// assert!(made.files[0].1.contains("κx ± SE"));
+/// # Ok(())
+/// # }
+/// ```
 pub fn calibrate(recipe: &Path, out: Option<&Path>) -> Result<Calibrated, RunError> {
     let p = process(recipe, CalibrationChoice::Estimate)?;
     if p.results.is_empty() {

@@ -11,6 +11,36 @@
 //!
 //! Products are for geological interpretation only: never for navigation or flight safety,
 //! terrain clearance included.
+//!
+//! From files, end to end: a small survey simulated with known truth, run from its recipe,
+//! checked line by line, and scored against the truth.
+//!
+//! ```
+//! # fn main() -> Result<(), Box<dyn std::error::Error>> {
+//! let dir = tempfile::tempdir()?;
+//! let scenario = dir.path().join("scenario.toml");
+//! std::fs::write(&scenario, gravgrad::simulate::SMALL_SCENARIO)?;
+//! let data = dir.path().join("survey");
+//! let sim = gravgrad::simulate::simulate_to_folder(&scenario, &data)?;
+//! assert!(sim.lines >= 3);
+//!
+//! let options = gravgrad::run::RunOptions {
+//!     recipe: data.join("recipe.toml"),
+//!     out: Some(dir.path().join("products")),
+//!     ..Default::default()
+//! };
+//! let done = gravgrad::run::run(&options)?;
+//! assert_eq!(done.samples, sim.samples);
+//! assert!(done.out.join("lines.parquet").is_file());
+//!
+//! let qc = gravgrad::qc::qc(&options.recipe, options.out.as_deref())?;
+//! assert!(qc.lines.iter().all(|l| l.verdict.pass));
+//!
+//! let score = gravgrad::score::score(&done.out, &data.join("truth"), 300.0)?;
+//! assert_eq!(score.lines.len(), 2);
+//! # Ok(())
+//! # }
+//! ```
 
 pub mod batch_plan;
 pub mod calibrate;

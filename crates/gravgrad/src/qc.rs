@@ -23,7 +23,12 @@ pub struct Checked {
 
 /// Processes the survey of `recipe`, assesses every line and writes the QC files into
 /// `<out>/qc/` (`out`: the recipe's `output.folder` when `None`). The output folder is checked
-/// before any work, as a run's is.
+/// before any work, as a run's is. (The crate's documentation runs it on a simulated survey.)
+///
+/// ```
+/// let e = gravgrad::qc::qc("no/such/recipe.toml".as_ref(), None).err().unwrap();
+/// assert_eq!(e.exit_code(), 2);
+/// ```
 pub fn qc(recipe: &Path, out: Option<&Path>) -> Result<Checked, RunError> {
     let checked = checked_qc_folder(recipe, out)?;
     let p = process(recipe, CalibrationChoice::Recipe)?;

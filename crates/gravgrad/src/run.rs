@@ -513,7 +513,19 @@ fn plan_output(args: &RunOptions) -> Result<Option<OutputPlan>, RunError> {
 /// Runs a survey from its recipe as `options` says, products into the output folder: the recipe's
 /// inputs hashed and the output folder checked before any work, every flight processed (stored
 /// results reused), then every product built in a folder beside the output folder and switched
-/// in at once. With `options.flight`, only the per-flight stages of that flight, stored.
+/// in at once. With `options.flight`, only the per-flight stages of that flight, stored. The
+/// crate's documentation runs a whole survey; a recipe that cannot be read is an input error:
+///
+/// ```
+/// use gravgrad::run::{RunOptions, run};
+/// let options = RunOptions {
+///     recipe: "no/such/recipe.toml".into(),
+///     ..Default::default()
+/// };
+/// let e = run(&options).unwrap_err();
+/// assert_eq!(e.exit_code(), 2);
+/// assert!(e.to_string().contains("no/such/recipe.toml"));
+/// ```
 pub fn run(options: &RunOptions) -> Result<RunSummary, RunError> {
     let pre = plan_output(options)?;
     let out = pre

@@ -27,7 +27,13 @@ fn f64s(c: Owned) -> Vec<f64> {
 }
 
 /// Scores the run in `run` (its `lines.parquet`, and `grids.nc` when written) against the truth of
-/// the simulation in `truth`, lines after a low-pass of `wavelength_m`.
+/// the simulation in `truth`, lines after a low-pass of `wavelength_m`. (The crate's
+/// documentation scores a run of a simulated survey.)
+///
+/// ```
+/// let e = gravgrad::score::score("run".as_ref(), "truth".as_ref(), -1.0).unwrap_err();
+/// assert!(e.to_string().contains("--wavelength"));
+/// ```
 pub fn score(run: &Path, truth: &Path, wavelength_m: f64) -> Result<Scored, RunError> {
     if !(wavelength_m.is_finite() && wavelength_m > 0.0) {
         return Err(RunError::Refused(

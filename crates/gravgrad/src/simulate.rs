@@ -13,6 +13,58 @@ use std::path::Path;
 
 const COMPONENTS: [&str; 6] = ["xx", "xy", "xz", "yy", "yz", "zz"];
 
+/// A small invented scenario (layout `scenario/1`): three 1 km lines and a tie over a gentle hill
+/// and a buried block, one flight, simulated in a few seconds; for examples and tests.
+pub const SMALL_SCENARIO: &str = r#"layout = "scenario/1"
+name = "Small example"
+seed = 7
+
+[area]
+origin_lat_deg = -27.35
+origin_lon_deg = 134.10
+ground_height_m = 120.0
+start_time_s = 1400000000.0
+
+[[geology.prism]]
+north_m = [150.0, 350.0]
+east_m = [400.0, 700.0]
+depth_m = [100.0, 300.0]
+density_kg_m3 = 300.0
+
+[terrain]
+cell_m = 50.0
+margin_m = 600.0
+density_kg_m3 = 2670.0
+
+[[terrain.hill]]
+north_m = 250.0
+east_m = 500.0
+height_m = 20.0
+width_m = 300.0
+
+[plan]
+line_azimuth_deg = 90.0
+line_length_m = 1000.0
+line_spacing_m = 200.0
+lines = 3
+first_line = 101
+ties = 1
+first_tie = 9001
+clearance_m = 100.0
+speed_m_s = 60.0
+sample_rate_hz = 10.0
+turn_rate_deg_s = 3.0
+flights = 1
+
+[dynamics]
+turbulence_m_s2 = 0.3
+turbulence_time_s = 2.0
+
+[instrument]
+baseline_m = 0.2
+noise_e_rt_hz = 5.0
+"#;
+
 /// What a simulation wrote.
 #[derive(Clone, Debug)]
 pub struct Simulated {
@@ -25,6 +77,18 @@ pub struct Simulated {
 /// Simulates the survey of the scenario file `scenario_path` (layout `scenario/1`) and writes
 /// its files into `out` (created; files in it are replaced). Deterministic from the scenario's
 /// seed: the same scenario gives the same bytes.
+///
+/// ```
+/// # fn main() -> Result<(), Box<dyn std::error::Error>> {
+/// let dir = tempfile::tempdir()?;
+/// let scenario = dir.path().join("scenario.toml");
+/// std::fs::write(&scenario, gravgrad::simulate::SMALL_SCENARIO)?;
+/// let s = gravgrad::simulate::simulate_to_folder(&scenario, &dir.path().join("survey"))?;
+/// assert_eq!(s.lines, 4); // three survey lines and a tie
+/// assert!(dir.path().join("survey/truth/lines.parquet").is_file());
+/// # Ok(())
+/// # }
+/// ```
 pub fn simulate_to_folder(scenario_path: &Path, out: &Path) -> Result<Simulated, RunError> {
     let scenario: Scenario = tomlfile::read(scenario_path).map_err(RunError::problem)?;
     tracing::info!("simulating {} (seed {})", scenario.name, scenario.seed);

@@ -85,6 +85,28 @@ pub struct TerrainRequest {
     pub out: PathBuf,
 }
 
+impl Default for TerrainRequest {
+    /// The command's defaults: step 1, 2670 kg/m³, no water, a 5 km margin, the mean reference
+    /// level, 0.1 E, the fast engine; no DEM, points or output named yet.
+    fn default() -> Self {
+        Self {
+            dem: PathBuf::new(),
+            points: None,
+            height: None,
+            clearance: None,
+            step: 1,
+            extent: None,
+            density: 2670.0,
+            water_density: None,
+            margin: 5000.0,
+            reference: None,
+            accuracy: 0.1,
+            exact: false,
+            out: PathBuf::new(),
+        }
+    }
+}
+
 /// Reads `easting,northing,height` from a CSV file (other columns ignored; `#` lines skipped).
 fn read_points(path: &Path) -> Result<Vec<[f64; 3]>, String> {
     let text = gravgrad_ingest::input_file::read_text(path, MAX_TEXT_FILE_BYTES)
@@ -144,6 +166,34 @@ fn read_points(path: &Path) -> Result<Vec<[f64; 3]>, String> {
 }
 
 /// The terrain's tensor at the points or on the surface `args` asks for, written to `args.out`.
+///
+/// ```
+/// # fn main() -> Result<(), Box<dyn std::error::Error>> {
+/// use gravgrad::Raster;
+/// use gravgrad::terrain::{TerrainRequest, terrain};
+/// let dir = tempfile::tempdir()?;
+/// // A DEM of 20 × 20 cells of 50 m in UTM zone 53S: a 30 m step up to the east.
+/// let values = (0..400).map(|k| if k % 20 >= 10 { 130.0 } else { 100.0 }).collect();
+/// let dem = Raster::new(20, 20, (500_000.0, 7_000_000.0), (50.0, 50.0), values)?
+///     .with_epsg(32753);
+/// let dem_path = dir.path().join("dem.tif");
+/// gravgrad_grid::geotiff::write_geotiff(&dem, &dem_path, &Default::default())?;
+/// let points = dir.path().join("points.csv");
+/// std::fs::write(&points, "easting,northing,height\n500500,6999500,250\n")?;
+/// let request = TerrainRequest {
+///     dem: dem_path,
+///     points: Some(points),
+///     exact: true,
+///     margin: 400.0,
+///     out: dir.path().join("terrain.csv"),
+///     ..Default::default()
+/// };
+/// terrain(&request)?;
+/// let table = std::fs::read_to_string(&request.out)?;
+/// assert_eq!(table.lines().filter(|l| l.starts_with("500500")).count(), 1);
+/// # Ok(())
+/// # }
+/// ```
 pub fn terrain(args: &TerrainRequest) -> Result<(), RunError> {
     if !(args.margin.is_finite() && args.margin >= 0.0) {
         return Err(RunError::Refused(format!(
