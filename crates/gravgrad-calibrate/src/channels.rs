@@ -179,6 +179,7 @@ fn bridge(x: &[f64]) -> Vec<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn a_constant_channel_is_dropped_with_its_reason() {
@@ -207,10 +208,10 @@ mod tests {
         match screen("temp", &x, None, 10.0, limits) {
             Screened::Use(s, Some(note)) => {
                 assert!(note.contains("12 empty"), "{note}");
-                assert!((s[100] - 21.0).abs() < 1e-12);
-                assert!((s[205] - 22.05).abs() < 1e-12);
+                assert_abs_diff_eq!(s[100], 21.0, epsilon = 1e-12);
+                assert_abs_diff_eq!(s[205], 22.05, epsilon = 1e-12);
                 // The first cell takes its neighbour's value.
-                assert!((s[0] - 20.01).abs() < 1e-12);
+                assert_abs_diff_eq!(s[0], 20.01, epsilon = 1e-12);
             }
             other => panic!("{other:?}"),
         }

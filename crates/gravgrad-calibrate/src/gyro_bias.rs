@@ -418,6 +418,7 @@ pub fn pair_correction(g: &PairGeometry, beta: &[Coefficient; 3]) -> Option<[Coe
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     /// δM from the definition, ω'ω'ᵀ − |ω'|²I − (ωωᵀ − |ω|²I) with ω' = ω + β, agrees with the
     /// linear trace to second order in β.
@@ -492,7 +493,7 @@ mod tests {
                         .sum::<f64>()
                 })
                 .sum();
-            assert!((cw + ndb).abs() < 1e-15, "{cw} vs {ndb}");
+            assert_abs_diff_eq!(cw, -ndb, epsilon = 1e-15);
         }
     }
 }

@@ -168,6 +168,7 @@ fn sin_cos_deg_in_range(x: f64) -> (f64, f64) {
 mod tests {
     use super::*;
     use crate::mat3::{self, mul, mul_vec};
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn sine_and_cosine_in_degrees_match_the_library() {
@@ -211,14 +212,11 @@ mod tests {
         assert_eq!(mats[17], c_sn_degrees(angles[17], angles[982], angles[17]));
         assert!(sin_cos_deg(f64::INFINITY).0.is_nan());
         let (s, c) = sin_cos_deg(30.0);
-        assert!((s - 0.5).abs() < 1.2e-16 && (c - 0.75f64.sqrt()).abs() < 1.2e-16);
+        assert_abs_diff_eq!(s, 0.5, epsilon = 1.2e-16);
+        assert_abs_diff_eq!(c, 0.75f64.sqrt(), epsilon = 1.2e-16);
         let m = c_sn_degrees(3.0, -7.5, 231.0);
         let l = Attitude::from_degrees(3.0, -7.5, 231.0).c_sn();
-        for r in 0..3 {
-            for k in 0..3 {
-                assert!((m[r][k] - l[r][k]).abs() < 1e-15);
-            }
-        }
+        assert_abs_diff_eq!(m.as_flattened(), l.as_flattened(), epsilon = 1e-15);
     }
 
     fn rz(a: f64) -> Mat3 {
@@ -250,7 +248,7 @@ mod tests {
             &Attitude::from_degrees(0.0, 0.0, 90.0).c_sn(),
             &[1.0, 0.0, 0.0],
         );
-        assert!(v[0].abs() < 1e-15 && (v[1] - 1.0).abs() < 1e-15 && v[2].abs() < 1e-15);
+        assert_abs_diff_eq!(v[..], [0.0, 1.0, 0.0][..], epsilon = 1e-15);
     }
 
     #[test]
@@ -279,12 +277,8 @@ mod tests {
         }
         .c_sn();
         let want = mul(&mul(&rz(h), &ry(p)), &rx(r));
-        for i in 0..3 {
-            for j in 0..3 {
-                assert!((c[i][j] - want[i][j]).abs() < 1e-15);
-            }
-        }
+        assert_abs_diff_eq!(c.as_flattened(), want.as_flattened(), epsilon = 1e-15);
         // Orthonormal with determinant +1.
-        assert!((mat3::det(&c) - 1.0).abs() < 1e-14);
+        assert_abs_diff_eq!(mat3::det(&c), 1.0, epsilon = 1e-14);
     }
 }

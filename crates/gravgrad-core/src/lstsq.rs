@@ -208,6 +208,7 @@ impl PivotedCholesky {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     fn matmul_t(a: &[Vec<f64>]) -> Vec<Vec<f64>> {
         let k = a[0].len();
@@ -233,7 +234,7 @@ mod tests {
         for (i, row) in a.iter().enumerate() {
             for (j, want) in row.iter().enumerate() {
                 let r: f64 = (0..3).map(|q| s.u[i][q] * s.sigma[q] * s.v[j][q]).sum();
-                assert!((r - want).abs() < 1e-12);
+                assert_abs_diff_eq!(r, *want, epsilon = 1e-12);
             }
         }
         let smax = s.sigma.iter().cloned().fold(0.0, f64::max);
@@ -244,7 +245,7 @@ mod tests {
         let want = [1.0, 2.0, -1.0].map(|x: f64| x / 6f64.sqrt());
         let sign = v[0].signum();
         for r in 0..3 {
-            assert!((v[r] * sign - want[r]).abs() < 1e-12);
+            assert_abs_diff_eq!(v[r] * sign, want[r], epsilon = 1e-12);
         }
     }
 
@@ -257,8 +258,8 @@ mod tests {
         let d = svd(&a, 2);
         let mut sv = d.sigma.clone();
         sv.sort_by(f64::total_cmp);
-        assert!((sv[0] - 1e-9).abs() < 1e-22);
-        assert!((sv[1] - 1.0).abs() < 1e-15);
+        assert_abs_diff_eq!(sv[0], 1e-9, epsilon = 1e-22);
+        assert_abs_diff_eq!(sv[1], 1.0, epsilon = 1e-15);
     }
 
     #[test]
@@ -294,6 +295,6 @@ mod tests {
         let f = PivotedCholesky::of(&n, 1e-10);
         assert_eq!(f.kept, vec![0]);
         assert_eq!(f.dependent, vec![1]);
-        assert!((f.inverse_entry(0, 0) - 0.25).abs() < 1e-15);
+        assert_abs_diff_eq!(f.inverse_entry(0, 0), 0.25, epsilon = 1e-15);
     }
 }

@@ -232,6 +232,7 @@ pub fn pseudo_inverse(rows: &[Vec<f64>], k: usize) -> Operator {
 mod tests {
     use super::*;
     use crate::mat3::{self, Mat3};
+    use approx::assert_abs_diff_eq;
 
     fn pair(id: &str, b: Vec3, n: Vec3) -> PairGeometry {
         PairGeometry {
@@ -298,10 +299,7 @@ mod tests {
             g[0][0], g[0][1], g[0][2], g[1][1], g[1][2], g[2][2], alpha[0], alpha[1], alpha[2],
         ];
         let got: f64 = row.iter().zip(u).map(|(r, x)| r * x).sum();
-        assert!(
-            (got - want).abs() < 1e-15 * want.abs().max(1e-9),
-            "{got} vs {want}"
-        );
+        assert_abs_diff_eq!(got, want, epsilon = 1e-15 * want.abs().max(1e-9));
     }
 
     #[test]

@@ -156,25 +156,22 @@ mod tests {
     use super::*;
     use crate::attitude::Attitude;
     use crate::mat3::mul_vec;
+    use approx::{assert_abs_diff_eq, assert_relative_eq};
 
     #[test]
     fn congruences_equal_the_general_rotation() {
         let g = SymTensor::from_array([1200.0, -35.0, 410.0, -900.0, 77.0, -300.0]);
         let c = Attitude::from_degrees(4.0, -9.5, 213.0).c_sn();
         let close = |a: SymTensor, b: SymTensor| {
-            a.to_array()
-                .iter()
-                .zip(b.to_array())
-                .all(|(x, y)| (x - y).abs() < 1e-12)
+            assert_abs_diff_eq!(a.to_array()[..], b.to_array()[..], epsilon = 1e-12);
         };
-        assert!(close(g.congruence(&c), g.rotated(&c)));
-        assert!(close(
-            g.congruence_transposed(&c),
-            g.rotated(&mat3::transpose(&c))
-        ));
-        assert!(close(g.congruence(&c).congruence_transposed(&c), g));
+        close(g.congruence(&c), g.rotated(&c));
+        close(g.congruence_transposed(&c), g.rotated(&mat3::transpose(&c)));
+        close(g.congruence(&c).congruence_transposed(&c), g);
     }
 
+    /// Relative to the larger magnitude plus an absolute floor: the sum, where approx's
+    /// `relative_eq` takes the larger of the two, so the floored checks keep this helper.
     fn rel_close(a: f64, b: f64, rel: f64, abs: f64) -> bool {
         (a - b).abs() <= rel * a.abs().max(b.abs()) + abs
     }
@@ -185,9 +182,9 @@ mod tests {
         // directly below a mass (z down, source above means r_z < 0) Gzz = 2GM/r³.
         let gm = 1.0e9 * crate::units::G;
         let t = point_mass_tensor(gm, [0.0, 0.0, -100.0]);
-        assert!(t.trace().abs() < 1e-25);
-        assert!(rel_close(t.zz, 2.0 * gm / 1.0e6, 1e-14, 0.0));
-        assert!(rel_close(t.xx, -gm / 1.0e6, 1e-14, 0.0));
+        assert_abs_diff_eq!(t.trace(), 0.0, epsilon = 1e-25);
+        assert_relative_eq!(t.zz, 2.0 * gm / 1.0e6, epsilon = 0.0, max_relative = 1e-14);
+        assert_relative_eq!(t.xx, -gm / 1.0e6, epsilon = 0.0, max_relative = 1e-14);
     }
 
     #[test]
@@ -222,7 +219,8 @@ mod tests {
         // With ψ = 90° the sensor x axis points east, so sensor Gxx becomes NED Gyy.
         let t = SymTensor::from_array([5.0, 0.0, 0.0, -2.0, 0.0, -3.0]);
         let u = t.rotated(&Attitude::from_degrees(0.0, 0.0, 90.0).c_sn());
-        assert!((u.yy - 5.0).abs() < 1e-12 && (u.xx + 2.0).abs() < 1e-12);
-        assert!((u.zz + 3.0).abs() < 1e-12);
+        assert_abs_diff_eq!(u.yy, 5.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(u.xx, -2.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(u.zz, -3.0, epsilon = 1e-12);
     }
 }

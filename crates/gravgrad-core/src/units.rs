@@ -45,13 +45,14 @@ pub fn wrap_deg_180(deg: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn eotvos_is_a_tenth_of_a_milligal_per_kilometre() {
         // Definition: 1 E = 0.1 mGal/km.
         let one_e = from_eotvos(1.0);
         let mgal_per_km = to_mgal(one_e * 1000.0);
-        assert!((mgal_per_km - 0.1).abs() < 1e-15);
+        assert_abs_diff_eq!(mgal_per_km, 0.1, epsilon = 1e-15);
     }
 
     #[test]
@@ -61,6 +62,7 @@ mod tests {
         assert_eq!(wrap_deg_180(180.0), -180.0);
         assert_eq!(wrap_deg_180(359.5), -0.5);
         let w = wrap_deg_180(-1e-20);
-        assert!((-180.0..180.0).contains(&w) && w.abs() < 1e-12);
+        assert!((-180.0..180.0).contains(&w));
+        assert_abs_diff_eq!(w, 0.0, epsilon = 1e-12);
     }
 }

@@ -202,6 +202,7 @@ fn end_terms(s2: f64, w: f64, spread: f64) -> [f64; 3] {
 mod tests {
     use super::*;
     use crate::prism::Prism;
+    use approx::assert_abs_diff_eq;
 
     fn col() -> Column {
         Column {
@@ -234,16 +235,9 @@ mod tests {
             }
         }
         let scale = want.iter().fold(0.0f64, |m, v| m.max(v.abs()));
-        for i in 0..6 {
-            // Midpoint rule: relative error (dz/d)²/24 ≈ 1e-12 here.
-            assert!(
-                (t[i] - want[i]).abs() < 1e-9 * scale,
-                "{i}: {} {}",
-                t[i],
-                want[i]
-            );
-        }
-        assert!((t[0] + t[3] + t[5]).abs() < 1e-12 * scale);
+        // Midpoint rule: relative error (dz/d)²/24 ≈ 1e-12 here.
+        assert_abs_diff_eq!(t[..], want[..], epsilon = 1e-9 * scale);
+        assert_abs_diff_eq!(t[0] + t[3] + t[5], 0.0, epsilon = 1e-12 * scale);
     }
 
     #[test]
@@ -287,7 +281,7 @@ mod tests {
                     let slack = 1e-15 * dist.powi(3) * scale;
                     let err = (0..6).fold(0.0f64, |m, i| m.max((t[i] - exact[i]).abs()));
                     assert!(err <= bound + slack, "h {h} at {dist}: {err:e} > {bound:e}");
-                    assert!((t[0] + t[3] + t[5]).abs() < 1e-12 * scale);
+                    assert_abs_diff_eq!(t[0] + t[3] + t[5], 0.0, epsilon = 1e-12 * scale);
                 }
             }
         }

@@ -49,13 +49,14 @@ fn legendre(n: usize, z: f64) -> (f64, f64) {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn rules_integrate_polynomials_exactly() {
         // An n-point rule integrates degree 2n − 1 exactly: ∫ x^k dx over [−1, 1] = 2/(k+1), k even.
         for n in 1..=10 {
             let (x, w) = nodes_weights(n);
-            assert!((w.iter().sum::<f64>() - 2.0).abs() < 1e-14);
+            assert_abs_diff_eq!(w.iter().sum::<f64>(), 2.0, epsilon = 1e-14);
             for k in (0..2 * n).step_by(2) {
                 let s: f64 = x.iter().zip(&w).map(|(x, w)| w * x.powi(k as i32)).sum();
                 assert!(
@@ -66,6 +67,7 @@ mod tests {
         }
         // Published 3-point rule (Abramowitz & Stegun table 25.4): ±√(3/5), weights 5/9, 8/9.
         let (x, w) = nodes_weights(3);
-        assert!((x[2] - 0.6f64.sqrt()).abs() < 1e-15 && (w[1] - 8.0 / 9.0).abs() < 1e-15);
+        assert_abs_diff_eq!(x[2], 0.6f64.sqrt(), epsilon = 1e-15);
+        assert_abs_diff_eq!(w[1], 8.0 / 9.0, epsilon = 1e-15);
     }
 }

@@ -140,6 +140,7 @@ impl Mul<f64> for HyperDual {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn second_derivatives_are_exact() {
@@ -166,7 +167,7 @@ mod tests {
         let fx = ax / r - a * rx / (r * r);
         let fxy = axy / r - ax * ry / (r * r) - ay * rx / (r * r) - a * rxy / (r * r)
             + 2.0 * a * rx * ry / r.powi(3);
-        assert!((f.e1 - fx).abs() < 1e-15);
-        assert!((f.e12 - fxy).abs() < 1e-14, "{} vs {fxy}", f.e12);
+        assert_abs_diff_eq!(f.e1, fx, epsilon = 1e-15);
+        assert_abs_diff_eq!(f.e12, fxy, epsilon = 1e-14);
     }
 }

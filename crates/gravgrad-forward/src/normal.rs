@@ -164,6 +164,7 @@ fn q_of(x: HyperDual) -> HyperDual {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
     use gravgrad_core::ellipsoid::{GRS80, WGS84};
     use gravgrad_core::units::{EOTVOS, G};
 
@@ -173,10 +174,7 @@ mod tests {
         let x = HyperDual::cst(0.45);
         let series = q_of(x).re;
         let closed = 0.5 * ((1.0 + 3.0 / 0.2025) * 0.45f64.atan() - 3.0 / 0.45);
-        assert!(
-            ((series - closed) / closed).abs() < 1e-12,
-            "{series} {closed}"
-        );
+        assert_abs_diff_eq!(series, closed, epsilon = 1e-12 * closed.abs());
     }
 
     #[test]
@@ -201,11 +199,11 @@ mod tests {
         let nf = NormalField::new(&GRS80);
         for (lat, h) in [(0.0, 0.0), (0.6, 350.0), (-1.2, 3000.0), (1.5, 100.0)] {
             let t = nf.gravitational_tensor_ned(lat, h);
-            assert!(t.trace().abs() < 1e-6 * EOTVOS, "{}", t.trace() / EOTVOS);
+            assert_abs_diff_eq!(t.trace(), 0.0, epsilon = 1e-6 * EOTVOS);
             let tg = nf.gravity_tensor_ned(lat, h);
             let two_w2 = 2.0 * GRS80.omega * GRS80.omega;
-            assert!((tg.trace() - two_w2).abs() < 1e-6 * EOTVOS);
-            assert!((two_w2 / EOTVOS - 10.635).abs() < 0.001);
+            assert_abs_diff_eq!(tg.trace(), two_w2, epsilon = 1e-6 * EOTVOS);
+            assert_abs_diff_eq!(two_w2 / EOTVOS, 10.635, epsilon = 0.001);
         }
     }
 
@@ -214,12 +212,12 @@ mod tests {
         // Common textbook value: 0.3086 mGal/m = 3086 E, ± 2 E (docs/physics.md).
         let nf = NormalField::new(&GRS80);
         let gzz = nf.gravity_tensor_ned(45f64.to_radians(), 0.0).zz / EOTVOS;
-        assert!((gzz - 3086.0).abs() < 2.0, "{gzz}");
+        assert_abs_diff_eq!(gzz, 3086.0, epsilon = 2.0);
         // And it is the vertical derivative of the gravity magnitude: (γ(h) − γ(h+1 m))·… by a
         // central difference over ±1 m (truncation ~1e-9 E).
         let lat = 45f64.to_radians();
         let dg = (nf.gravity(lat, -1.0) - nf.gravity(lat, 1.0)) / 2.0 / EOTVOS;
-        assert!((dg - gzz).abs() < 0.01, "{dg} vs {gzz}");
+        assert_abs_diff_eq!(dg, gzz, epsilon = 0.01);
     }
 
     #[test]
@@ -234,9 +232,10 @@ mod tests {
         let r = GRS80.a + 1000.0;
         let t = nf.gravitational_tensor_ned(0.7, 1000.0);
         let k = GRS80.gm / r.powi(3);
-        assert!((t.zz - 2.0 * k).abs() < 1e-6 * k, "{} vs {}", t.zz, 2.0 * k);
-        assert!((t.xx + k).abs() < 1e-6 * k && (t.yy + k).abs() < 1e-6 * k);
-        assert!(t.xz.abs() < 1e-6 * k);
+        assert_abs_diff_eq!(t.zz, 2.0 * k, epsilon = 1e-6 * k);
+        assert_abs_diff_eq!(t.xx, -k, epsilon = 1e-6 * k);
+        assert_abs_diff_eq!(t.yy, -k, epsilon = 1e-6 * k);
+        assert_abs_diff_eq!(t.xz, 0.0, epsilon = 1e-6 * k);
         let _ = G;
     }
 
@@ -249,6 +248,6 @@ mod tests {
         let gxx = nf.gravitational_tensor_ned(lat, 125.0).xx;
         let t2 = 2.0 * 250.0 / nf.gravity(lat, 125.0);
         let closer = 0.5 * gxx.abs() * 25.0 * t2;
-        assert!((closer - 1e-3).abs() < 0.1e-3, "{closer} m");
+        assert_abs_diff_eq!(closer, 1e-3, epsilon = 0.1e-3);
     }
 }

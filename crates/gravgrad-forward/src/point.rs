@@ -63,6 +63,7 @@ pub fn sphere(radius: f64, density: f64, center: [f64; 3], obs: [f64; 3]) -> Fie
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn sphere_is_continuous_at_its_surface_and_obeys_poisson_inside() {
@@ -70,11 +71,11 @@ mod tests {
         let (r, rho) = (100.0, 500.0);
         let out = sphere(r, rho, [0.0; 3], [0.0, 0.0, -r * (1.0 + 1e-12)]);
         let inn = sphere(r, rho, [0.0; 3], [0.0, 0.0, -r * (1.0 - 1e-12)]);
-        assert!((out.potential - inn.potential).abs() < 1e-9 * out.potential);
-        assert!((out.g[2] - inn.g[2]).abs() < 1e-9 * out.g[2].abs());
+        assert_abs_diff_eq!(out.potential, inn.potential, epsilon = 1e-9 * out.potential);
+        assert_abs_diff_eq!(out.g[2], inn.g[2], epsilon = 1e-9 * out.g[2].abs());
         let t = inn.tensor.trace();
-        assert!((t + 4.0 * std::f64::consts::PI * G * rho).abs() < 1e-20);
-        assert!(out.tensor.trace().abs() < 1e-20);
+        assert_abs_diff_eq!(t, -4.0 * std::f64::consts::PI * G * rho, epsilon = 1e-20);
+        assert_abs_diff_eq!(out.tensor.trace(), 0.0, epsilon = 1e-20);
     }
 
     #[test]
@@ -99,7 +100,7 @@ mod tests {
             );
             let dgz = (fa.g[2] - fb.g[2]) / (2.0 * h);
             let want = [f.tensor.xz, f.tensor.yz, f.tensor.zz][i];
-            assert!((dgz - want).abs() < 1e-6 * f.tensor.zz.abs());
+            assert_abs_diff_eq!(dgz, want, epsilon = 1e-6 * f.tensor.zz.abs());
         }
     }
 }

@@ -1,6 +1,7 @@
 //! gravgrad-forward against references from outside its code: harmonica and boule values stored by
 //! tests/reference/make_reference.py, and analytic facts.
 
+use approx::assert_abs_diff_eq;
 use gravgrad_core::units::{EOTVOS, G, MGAL};
 use gravgrad_forward::normal::NormalField;
 use gravgrad_forward::point::point_mass;
@@ -72,11 +73,7 @@ fn prism_agrees_with_harmonica() {
                 );
             }
             let want = f(&case["potential"][k]);
-            assert!(
-                (got.potential - want).abs() <= 1e-9 * want.abs(),
-                "potential {} vs {want}",
-                got.potential
-            );
+            assert_abs_diff_eq!(got.potential, want, epsilon = 1e-9 * want.abs());
             n += 1;
         }
     }
@@ -120,10 +117,12 @@ fn prism_closed_form_equals_dense_point_masses() {
             .to_array()
             .iter()
             .fold(0.0f64, |m, v| m.max(v.abs()));
-        for (x, y) in a.tensor.to_array().iter().zip(b.tensor.to_array()) {
-            assert!((x - y).abs() < 1e-10 * scale, "{x} vs {y}");
-        }
-        assert!((a.potential - b.potential).abs() < 1e-10 * b.potential);
+        assert_abs_diff_eq!(
+            a.tensor.to_array()[..],
+            b.tensor.to_array()[..],
+            epsilon = 1e-10 * scale
+        );
+        assert_abs_diff_eq!(a.potential, b.potential, epsilon = 1e-10 * b.potential);
     }
 }
 
@@ -165,31 +164,23 @@ fn far_field_switch_is_seamless() {
         let a = p.field_closed(obs).tensor.to_array();
         let b = p.field_gauss(obs, FAR_ORDER).tensor.to_array();
         let scale = a.iter().fold(0.0f64, |m, v| m.max(v.abs()));
-        for (x, y) in a.iter().zip(b) {
-            assert!((x - y).abs() < 5e-11 * scale, "{x} vs {y}");
-        }
+        assert_abs_diff_eq!(a[..], b[..], epsilon = 5e-11 * scale);
         let inside = at(FAR_RATIO * size * 0.99);
         let beyond = at(FAR_RATIO * size * 1.01);
         assert_eq!(p.tensor(inside), p.tensor_closed(inside));
         assert_eq!(p.tensor(beyond), p.tensor_gauss(beyond, FAR_ORDER));
         // The tensor-only forms equal the full-field forms within the closed form's own error at
         // this distance (2.3e-11 each, so 5e-11 between two implementations).
-        for (x, y) in p
-            .tensor_closed(inside)
-            .to_array()
-            .iter()
-            .zip(p.field_closed(inside).tensor.to_array())
-        {
-            assert!((x - y).abs() < 5e-11 * scale);
-        }
-        for (x, y) in p
-            .tensor_gauss(beyond, 4)
-            .to_array()
-            .iter()
-            .zip(p.field_gauss(beyond, 4).tensor.to_array())
-        {
-            assert!((x - y).abs() < 1e-13 * scale);
-        }
+        assert_abs_diff_eq!(
+            p.tensor_closed(inside).to_array()[..],
+            p.field_closed(inside).tensor.to_array()[..],
+            epsilon = 5e-11 * scale
+        );
+        assert_abs_diff_eq!(
+            p.tensor_gauss(beyond, 4).to_array()[..],
+            p.field_gauss(beyond, 4).tensor.to_array()[..],
+            epsilon = 1e-13 * scale
+        );
     }
     // At every tier the switched form stays within 3e-11 of the dense rule, and far out it beats
     // the closed form.
@@ -244,7 +235,11 @@ fn laplace_outside_poisson_inside() {
         );
     }
     let inside = p.tensor([-10.0, 5.0, 190.0]);
-    assert!((inside.trace() + 4.0 * PI * G * 2670.0).abs() < 1e-12 * 4.0 * PI * G * 2670.0);
+    assert_abs_diff_eq!(
+        inside.trace(),
+        -4.0 * PI * G * 2670.0,
+        epsilon = 1e-12 * 4.0 * PI * G * 2670.0
+    );
 }
 
 #[test]
@@ -287,8 +282,12 @@ fn bouguer_slab() {
     let slab = Prism::new([-1e5, 1e5], [-1e5, 1e5], [50.0, 60.0], 2670.0);
     let f = slab.field([0.0, 0.0, 0.0]);
     let per = f.g[2] / MGAL / (10.0 * 2.670);
-    assert!((per - 0.04193).abs() < 0.00002, "{per} mGal/m/(g/cm³)");
-    assert!((f.g[2] - 2.0 * PI * G * 2670.0 * 10.0).abs() < 1e-3 * f.g[2]);
+    assert_abs_diff_eq!(per, 0.04193, epsilon = 0.00002);
+    assert_abs_diff_eq!(
+        f.g[2],
+        2.0 * PI * G * 2670.0 * 10.0,
+        epsilon = 1e-3 * f.g[2]
+    );
     assert!(
         f.tensor.zz.abs() / EOTVOS < 0.2,
         "Gzz {} E",
@@ -304,8 +303,8 @@ fn normal_component_jumps_by_four_pi_g_rho_across_a_face() {
     let above = p.tensor([0.0, 0.0, 150.0 - 1e-6]);
     let below = p.tensor([0.0, 0.0, 150.0 + 1e-6]);
     let jump = above.zz - below.zz;
-    assert!((jump - 4.0 * PI * G * 2670.0).abs() < 1e-6 * jump, "{jump}");
-    assert!((above.xx - below.xx).abs() < 1e-6 * jump);
+    assert_abs_diff_eq!(jump, 4.0 * PI * G * 2670.0, epsilon = 1e-6 * jump);
+    assert_abs_diff_eq!(above.xx, below.xx, epsilon = 1e-6 * jump);
 }
 
 #[test]
@@ -331,9 +330,11 @@ fn finite_on_edges_and_corners() {
     let on_line = p.tensor([100.0, 35.0, 150.0]);
     let near = p.tensor([100.0, 35.0 + 1e-7, 150.0 - 1e-7]);
     let scale = near.to_array().iter().fold(0.0f64, |m, v| m.max(v.abs()));
-    for (x, y) in on_line.to_array().iter().zip(near.to_array()) {
-        assert!((x - y).abs() < 1e-5 * scale, "{x} vs {y}");
-    }
+    assert_abs_diff_eq!(
+        on_line.to_array()[..],
+        near.to_array()[..],
+        epsilon = 1e-5 * scale
+    );
 }
 
 /// The body of the grid tests: 1.2 × 0.8 km, 300–800 m below the plane, 300 kg/m³.

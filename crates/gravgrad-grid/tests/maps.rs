@@ -4,6 +4,7 @@
 //! the products test leaves its files in DIR for `tests/reference/grid/check_products.py` (PIL,
 //! xarray, rasterio/GDAL, `gmt grdinfo`).
 
+use approx::assert_abs_diff_eq;
 use gravgrad_core::Raster;
 use gravgrad_grid::png_map::{
     MapOptions, Ramp, encode_png, ramp_colour, ramp_table, render_map, write_map,
@@ -149,7 +150,8 @@ fn ramps_have_monotonic_lightness() {
         .map(oklab_l)
         .collect();
     eprintln!("sequential L {:.3} … {:.3}", seq[0], seq[255]);
-    assert!((seq[0] - 0.27).abs() < 0.01 && (seq[255] - 0.95).abs() < 0.01);
+    assert_abs_diff_eq!(seq[0], 0.27, epsilon = 0.01);
+    assert_abs_diff_eq!(seq[255], 0.95, epsilon = 0.01);
     for w in seq.windows(2) {
         assert!(w[1] > w[0] - 0.002, "{w:?}");
     }
@@ -165,7 +167,8 @@ fn ramps_have_monotonic_lightness() {
         "diverging L {:.3} … {:.3} … {:.3}",
         div[0], div[128], div[255]
     );
-    assert!((div[0] - div[255]).abs() < 0.01, "symmetric ends");
+    // Symmetric ends.
+    assert_abs_diff_eq!(div[0], div[255], epsilon = 0.01);
     for k in 0..118 {
         assert!(div[k + 10] > div[k] + 0.015, "rising to the middle at {k}");
         assert!(

@@ -4,6 +4,7 @@
 //! same points), against analytic surfaces, blanking against a brute-force distance, and
 //! thread-count independence.
 
+use approx::assert_abs_diff_eq;
 use gravgrad_grid::mincurv::{GridError, GridSpec, block_means, grid_points};
 use std::path::PathBuf;
 
@@ -183,14 +184,15 @@ fn block_mean_option() {
     let same = |a: &gravgrad_grid::Gridded, b: &gravgrad_grid::Gridded| {
         assert!(a.report.converged && b.report.converged);
         for (p, q) in a.surface.values.iter().zip(&b.surface.values) {
-            assert!((p - q).abs() < 1e-7, "{p} {q}");
+            assert_abs_diff_eq!(*p, *q, epsilon = 1e-7);
         }
     };
     let means = block_means(&[p1, p2], &s).unwrap();
     assert_eq!(means.len(), 1);
     let (x, y, v) = means[0];
-    assert!((x - 176.5).abs() < 1e-9 && (y - 775.0).abs() < 1e-9);
-    assert!((v - 0.5 * (p1.2 + p2.2)).abs() < 1e-12);
+    assert_abs_diff_eq!(x, 176.5, epsilon = 1e-9);
+    assert_abs_diff_eq!(y, 775.0, epsilon = 1e-9);
+    assert_abs_diff_eq!(v, 0.5 * (p1.2 + p2.2), epsilon = 1e-12);
     let a = with(&[p1, p2], &s);
     assert_eq!((a.report.data_inside, a.report.data_gridded), (401, 400));
     same(&a, &with(&[(176.5, 775.0, v)], &s));
@@ -343,5 +345,7 @@ fn refuses_bad_specs_and_no_data() {
     );
     let g = grid_points(&pts, &s).unwrap();
     assert_eq!(g.report.data_not_finite, 1);
-    assert!(g.surface.values.iter().all(|v| (v - 1.0).abs() < 1e-12));
+    for v in &g.surface.values {
+        assert_abs_diff_eq!(*v, 1.0, epsilon = 1e-12);
+    }
 }

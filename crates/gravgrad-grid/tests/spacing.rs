@@ -1,5 +1,6 @@
 //! Line spacing, default cell and default blanking (`gravgrad_grid::spacing`).
 
+use approx::assert_abs_diff_eq;
 use gravgrad_grid::spacing::{FALLBACK_CELL_M, MIN_BLANKING_M};
 use gravgrad_grid::{default_blanking, default_cell, line_spacing};
 
@@ -40,9 +41,9 @@ fn spacing_of_east_west_lines_flown_both_ways_with_ties() {
         10.0,
     ));
     let s = line_spacing(&lines).expect("spacing");
-    assert!((s - 2300.0).abs() < 1.0, "spacing {s}");
+    assert_abs_diff_eq!(s, 2300.0, epsilon = 1.0);
     assert_eq!(default_cell(Some(s)), 500.0);
-    assert!((default_blanking(Some(s)) - 0.6 * s).abs() < 1e-9);
+    assert_abs_diff_eq!(default_blanking(Some(s)), 0.6 * s, epsilon = 1e-9);
 }
 
 #[test]
@@ -57,7 +58,7 @@ fn spacing_of_oblique_lines_with_a_repeated_and_a_missing_line() {
         lines.push(line(off * nx, off * ny, a, 300, 10.0));
     }
     let s = line_spacing(&lines).expect("spacing");
-    assert!((s - 400.0).abs() < 1e-6, "spacing {s}");
+    assert_abs_diff_eq!(s, 400.0, epsilon = 1e-6);
     assert_eq!(default_cell(Some(s)), 100.0);
     // 0.6 × 400 m = 240 m is under the floor.
     assert_eq!(default_blanking(Some(s)), MIN_BLANKING_M);

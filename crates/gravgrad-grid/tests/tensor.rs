@@ -3,6 +3,7 @@
 //! six, gz, upward continuation, and the combination's gain when each component carries its own
 //! noise.
 
+use approx::assert_abs_diff_eq;
 use gravgrad_core::Raster;
 use gravgrad_forward::prism::Prism;
 use gravgrad_grid::tensor_grid::{GzReference, NAMES, TensorOptions, full_tensor};
@@ -136,7 +137,7 @@ fn from_gzz_alone_and_from_all_six() {
         );
         assert!(e < 0.02, "{label}: gz error {e}");
         let mean = out.gz.values.iter().sum::<f64>() / out.gz.values.len() as f64;
-        assert!(mean.abs() < 1e-9, "gz mean {mean}");
+        assert_abs_diff_eq!(mean, 0.0, epsilon = 1e-9);
     }
 }
 
@@ -186,7 +187,7 @@ fn upward_continuation_matches_the_higher_plane() {
     let e = rel_err(&out.gz, &gz_high, true);
     assert!(e < 0.02, "gz {e}");
     let mean = out.gz.values.iter().sum::<f64>() / out.gz.values.len() as f64;
-    assert!((mean - 3.5).abs() < 1e-9);
+    assert_abs_diff_eq!(mean, 3.5, epsilon = 1e-9);
 }
 
 #[test]

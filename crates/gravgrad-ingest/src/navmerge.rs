@@ -123,6 +123,7 @@ mod tests {
     use super::*;
     use crate::columns::ReadPlan;
     use crate::read::Format;
+    use approx::assert_abs_diff_eq;
     use gravgrad_core::table::FlightTable;
 
     fn flight(cols: &[(&str, Vec<f64>)]) -> Flight {
@@ -152,12 +153,10 @@ mod tests {
         assert!(p.is_empty(), "{p:?}");
         let h = g.table.get("heading").unwrap();
         // Shortest arc: 359.5, 0.0, 0.5 (not 269.5 / 180 / 90.5 as plain linear interpolation gives).
-        assert!(
-            (h[0] - 359.5).abs() < 1e-12 && h[1].abs() < 1e-12 && (h[2] - 0.5).abs() < 1e-12,
-            "{h:?}"
-        );
+        assert_abs_diff_eq!(h, &[359.5, 0.0, 0.5][..], epsilon = 1e-12);
         let r = g.table.get("roll").unwrap();
-        assert!((r[1] + 180.0).abs() < 1e-12 && (r[0] - 179.5).abs() < 1e-12);
+        assert_abs_diff_eq!(r[1], -180.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(r[0], 179.5, epsilon = 1e-12);
         assert_eq!(g.table.get("lat").unwrap(), &[10.25, 10.5, 10.75]);
     }
 

@@ -197,6 +197,7 @@ impl<'a> Geometry<'a> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     /// A flight at 10 Hz and 60 m/s: east for 120 s, a 180° turn at 3°/s, west for 120 s.
     fn racetrack() -> FlightTable {
@@ -229,10 +230,14 @@ mod tests {
         let segs = segment_lines(&racetrack(), &[], &LineRules::default());
         assert_eq!(segs.len(), 2, "{segs:?}");
         // Geometry known from construction: about 120 s east (track 90°), then west (270°).
-        assert!((segs[0].track_deg - 90.0).abs() < 1.0);
-        assert!((segs[1].track_deg - 270.0).abs() < 1.0);
+        assert_abs_diff_eq!(segs[0].track_deg, 90.0, epsilon = 1.0);
+        assert_abs_diff_eq!(segs[1].track_deg, 270.0, epsilon = 1.0);
         assert!(segs[0].end_s - segs[0].start_s > 110.0);
-        assert!((segs[0].length_m - 6.0 * 10.0 * (segs[0].end_s - segs[0].start_s)).abs() < 60.0);
+        assert_abs_diff_eq!(
+            segs[0].length_m,
+            6.0 * 10.0 * (segs[0].end_s - segs[0].start_s),
+            epsilon = 60.0
+        );
     }
 
     #[test]

@@ -1,6 +1,7 @@
 //! Properties of the readers: no panic on arbitrary bytes; any table of finite numbers written as
 //! CSV comes back bit for bit, whatever the piece boundaries; the column map converts units.
 
+use approx::assert_abs_diff_eq;
 use gravgrad_core::Location;
 use gravgrad_ingest::columns::{ColumnMap, ColumnSource, Expectation};
 use gravgrad_ingest::csv::read_csv_from;
@@ -141,7 +142,7 @@ fn the_column_map_renames_and_converts_units() {
         gravgrad_ingest::read::to_table(cols.values, &cols.plan, &Location::file("m.csv"), 2);
     assert!(p.is_empty());
     assert_eq!(table.get("fz").unwrap(), &[-9.80665]);
-    assert!((table.get("temp").unwrap()[0] - 27.0).abs() < 1e-12);
+    assert_abs_diff_eq!(table.get("temp").unwrap()[0], 27.0, epsilon = 1e-12);
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -1096,6 +1097,7 @@ mod mutation {
 
 /// The DEM window a run uses (`dem::prepare_window`): coverage, size, holes and implausible cells.
 mod dem_window {
+    use approx::assert_abs_diff_eq;
     use gravgrad_core::Location;
     use gravgrad_core::raster::Raster;
     use gravgrad_ingest::dem::{MAX_DEM_WINDOW_CELLS, prepare_window};
@@ -1132,7 +1134,7 @@ mod dem_window {
         let w = prepare_window(&r, ALL, Path::new("dem.tif"), &key()).unwrap();
         assert_eq!(w.filled, 2);
         // On a plane, opposite neighbours at equal distances average to the plane itself.
-        assert!((w.raster.values[12 * 40 + 7] - truth).abs() < 1e-9);
+        assert_abs_diff_eq!(w.raster.values[12 * 40 + 7], truth, epsilon = 1e-9);
         assert_eq!(w.raster.nodata, None);
         let text = w.warnings[0].to_string();
         assert!(text.contains("2 cells"), "{text}");

@@ -239,6 +239,7 @@ fn intersect(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn two_diagonals_cross_at_the_centre() {
@@ -265,8 +266,9 @@ mod tests {
         let c = find_crossovers(&[s], &[t]).unwrap();
         // The crossing falls on the shared vertex (5, 5): counted once.
         assert_eq!(c.len(), 1);
-        assert!((c[0].x_m - 5.0).abs() < 1e-12 && (c[0].y_m - 5.0).abs() < 1e-12);
-        assert!((c[0].difference() - (10.0 - 16.0)).abs() < 1e-12);
-        assert!((c[0].survey_time_s - 105.0).abs() < 1e-12);
+        assert_abs_diff_eq!(c[0].x_m, 5.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(c[0].y_m, 5.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(c[0].difference(), 10.0 - 16.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(c[0].survey_time_s, 105.0, epsilon = 1e-12);
     }
 }

@@ -497,6 +497,7 @@ pub fn band_pass(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn sections_have_the_butterworth_magnitude() {
@@ -544,7 +545,7 @@ mod tests {
         let v: Vec<f64> = s.iter().map(|d| 12.0 - 0.02 * d).collect();
         let out = low_pass_along_track(&s, &v, &LowPass::default()).unwrap();
         for (a, b) in out.iter().zip(&v) {
-            assert!((a - b).abs() < 1e-9, "{a} vs {b}");
+            assert_abs_diff_eq!(*a, *b, epsilon = 1e-9);
         }
     }
 

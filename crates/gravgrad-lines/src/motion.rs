@@ -674,6 +674,7 @@ impl PivotedQr {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn pivoted_qr_solves_a_known_system_and_finds_the_collinear_column() {
@@ -694,7 +695,7 @@ mod tests {
                 .zip(&coef)
                 .map(|(&j, k)| k * cols[j][i])
                 .sum();
-            assert!((fitted - want).abs() < 1e-12, "{fitted} vs {want}");
+            assert_abs_diff_eq!(fitted, *want, epsilon = 1e-12);
         }
         let resid: f64 = qr.qty[2..].iter().map(|v| v * v).sum();
         assert!(resid < 1e-24);
@@ -733,7 +734,7 @@ mod tests {
         }
         let a = effective_size(&ar, &[n / 2, n / 2]);
         let b = effective_size(&flipped, &[n / 2, n / 2]);
-        assert!((a - b).abs() < 1e-9 * a, "{a} vs {b}");
+        assert_abs_diff_eq!(a, b, epsilon = 1e-9 * a);
     }
 
     #[test]
@@ -761,10 +762,7 @@ mod tests {
         let b = noise_bandwidth([0.1, 1.0], rate, 4);
         let want = 2.0 * b / rate;
         println!("band-passed white noise keeps {kept:.5}, 2B/fs = {want:.5} (B = {b:.4} Hz)");
-        assert!(
-            (kept / want - 1.0).abs() < 0.03,
-            "{kept} vs {want} (B = {b})"
-        );
+        assert_abs_diff_eq!(kept / want, 1.0, epsilon = 0.03);
         // And the analog limit of a single low-pass, fc(1 − 1/m)(π/m)/sin(π/m) with m = 8, for
         // a band whose low edge is far below: 0.8978 Hz at fc = 1 Hz (the bilinear warping at
         // 1 Hz of 20 Hz shifts it by well under 1 %).
@@ -772,6 +770,6 @@ mod tests {
             / (std::f64::consts::PI / 8.0).sin();
         let b = noise_bandwidth([1e-4, 1.0], rate, 4);
         println!("low edge 1e-4 Hz: B = {b:.4} Hz, analog low-pass {analog:.4} Hz");
-        assert!((b / analog - 1.0).abs() < 0.01, "{b} vs {analog}");
+        assert_abs_diff_eq!(b / analog, 1.0, epsilon = 0.01);
     }
 }

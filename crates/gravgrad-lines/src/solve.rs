@@ -58,6 +58,7 @@ pub(crate) fn conjugate_gradient(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn solves_a_small_system_with_a_known_answer() {
@@ -79,7 +80,7 @@ mod tests {
             "exact in at most n steps up to rounding, took {it}"
         );
         for (g, w) in x.iter().zip(&want) {
-            assert!((g - w).abs() < 1e-12);
+            assert_abs_diff_eq!(*g, *w, epsilon = 1e-12);
         }
     }
 }

@@ -121,6 +121,7 @@ pub fn welch(stretches: &[&[f64]], rate_hz: f64, segment: usize) -> Spectrum {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn a_sinusoid_carries_its_power() {
@@ -137,7 +138,7 @@ mod tests {
             .collect();
         let sp = welch(&[&x], fs, seg);
         let power: f64 = sp.psd.iter().sum::<f64>() * fs / seg as f64;
-        assert!((power - a * a / 2.0).abs() < 1e-3 * a * a, "{power}");
+        assert_abs_diff_eq!(power, a * a / 2.0, epsilon = 1e-3 * a * a);
         assert_eq!(sp.segments, (4000 - 100) / 100);
     }
 }

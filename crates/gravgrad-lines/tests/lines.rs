@@ -10,6 +10,7 @@
 //! two independent filtered samples, so its standard deviation is √2·σ_f, σ_f being the RMS of the
 //! injected noise after the same along-track filter (measured on the noise series alone).
 
+use approx::assert_abs_diff_eq;
 use gravgrad_core::units::{from_eotvos, to_eotvos};
 use gravgrad_lines::crossover::{Track, find_crossovers};
 use gravgrad_lines::filter::{
@@ -284,7 +285,7 @@ fn a_symmetric_bump_stays_centred() {
     }
     let centroid = m1 / m0;
     println!("centroid {centroid:.4} m for s0 = {s0} m, peak {peak:.3}");
-    assert!((centroid - s0).abs() < 0.05, "centroid {centroid}");
+    assert_abs_diff_eq!(centroid, s0, epsilon = 0.05);
     // Symmetry: values at s0 ± d, by linear interpolation between samples.
     let at = |d: f64| {
         let j = s.partition_point(|v| *v <= d);
@@ -393,14 +394,15 @@ fn crossovers_are_found_where_the_lines_cross() {
     assert_eq!(c.len(), s.survey.len() * s.ties.len());
     let mut seen = vec![false; c.len()];
     for x in &c {
-        assert!((x.x_m - s.xs[x.tie]).abs() < 1e-6 && (x.y_m - s.ys[x.survey]).abs() < 1e-6);
+        assert_abs_diff_eq!(x.x_m, s.xs[x.tie], epsilon = 1e-6);
+        assert_abs_diff_eq!(x.y_m, s.ys[x.survey], epsilon = 1e-6);
         let k = x.survey * s.ties.len() + x.tie;
         assert!(!seen[k], "pair counted twice");
         seen[k] = true;
         // Time at the crossing: the line's start time plus distance flown / speed.
         let l = &s.survey[x.survey];
         let flown = (x.x_m - l.x[0]).abs();
-        assert!((x.survey_time_s - (l.t[0] + flown / SPEED)).abs() < 1e-9);
+        assert_abs_diff_eq!(x.survey_time_s, l.t[0] + flown / SPEED, epsilon = 1e-9);
     }
 }
 
@@ -472,10 +474,8 @@ fn zero_mean_levelling_recovers_offsets_up_to_their_mean() {
         .chain(&r.ties)
         .map(|c| c.offset)
         .sum::<f64>();
-    assert!(
-        got_mean.abs() < 1e-9,
-        "offsets must sum to zero, sum {got_mean}"
-    );
+    // The offsets must sum to zero.
+    assert_abs_diff_eq!(got_mean, 0.0, epsilon = 1e-9);
     let worst = r
         .survey
         .iter()
@@ -549,7 +549,7 @@ fn welch_matches_scipy() {
     assert_eq!(sp.psd.len(), p.len());
     let top = p.iter().fold(0.0f64, |m, v| m.max(*v));
     for k in 0..p.len() {
-        assert!((sp.frequency_hz[k] - f[k]).abs() < 1e-12);
+        assert_abs_diff_eq!(sp.frequency_hz[k], f[k], epsilon = 1e-12);
         assert!(
             (sp.psd[k] - p[k]).abs() < 1e-10 * top,
             "bin {k}: {} vs {}",
@@ -585,7 +585,7 @@ fn noise_density_is_recovered_at_constant_and_varying_speed() {
     let (m, verdict) = assess_line(&gzz_inputs(&l, &v), &settings).unwrap();
     let rho = m.components[0].noise_density_e_rt_hz.unwrap();
     println!("constant speed: density {rho:.3} E/√Hz (injected {RHO})");
-    assert!((rho / RHO - 1.0).abs() < 0.2);
+    assert_abs_diff_eq!(rho / RHO, 1.0, epsilon = 0.2);
     assert!(verdict.pass, "{:?}", verdict.reasons);
 
     // Varying speed (40–80 m/s): the density is a property of time, the filter works in distance.
@@ -612,7 +612,7 @@ fn noise_density_is_recovered_at_constant_and_varying_speed() {
         "varying speed: density {rho:.3} E/√Hz (injected {rho_in}), median speed {:.1} m/s",
         m.median_speed_m_s
     );
-    assert!((rho / rho_in - 1.0).abs() < 0.2);
+    assert_abs_diff_eq!(rho / rho_in, 1.0, epsilon = 0.2);
 }
 
 #[test]
@@ -626,7 +626,7 @@ fn noise_after_filtering_follows_the_filter_bandwidth() {
     let lp = LowPass::default();
     let predicted = RHO * lp.noise_bandwidth(SPEED / lp.cutoff_wavelength_m).sqrt();
     println!("noise after filter: measured {measured:.4} E, predicted {predicted:.4} E");
-    assert!((measured / predicted - 1.0).abs() < 0.1);
+    assert_abs_diff_eq!(measured / predicted, 1.0, epsilon = 0.1);
 }
 
 // ---------------------------------------------------------------- QC verdicts
@@ -722,14 +722,18 @@ fn good_lines_pass_with_their_metrics() {
         // 4001 samples at 20 Hz: 200 whole cycles (Σsin² = 2000 at 20 samples a cycle) and a last
         // sample at sin(400π) = 0, so the RMS is 0.4·√(4000/4001).
         let want = 0.4 * (4000.0f64 / 4001.0).sqrt();
-        assert!((m.turbulence_m_s2.unwrap() - want).abs() < 1e-9);
+        assert_abs_diff_eq!(m.turbulence_m_s2.unwrap(), want, epsilon = 1e-9);
         assert!(m.clearance_departure_m.unwrap() <= 3.0);
         assert!(m.line_deviation_m.unwrap() < 1e-9);
-        assert!((m.longest_gap_s - 1.0 / RATE_HZ).abs() < 1e-9);
+        assert_abs_diff_eq!(m.longest_gap_s, 1.0 / RATE_HZ, epsilon = 1e-9);
         // Trace: white noise of 0.5 E, over ~4000 samples (standard error ~1.1%).
-        assert!((m.trace_rms_e.unwrap() / 0.5 - 1.0).abs() < 0.05);
+        assert_abs_diff_eq!(m.trace_rms_e.unwrap() / 0.5, 1.0, epsilon = 0.05);
         // α: x differs by 1e-4 rad/s², y agrees, z unobserved by the pairs.
-        assert!((m.alpha_difference_rms_rad_s2.unwrap() - 1e-4).abs() < 1e-12);
+        assert_abs_diff_eq!(
+            m.alpha_difference_rms_rad_s2.unwrap(),
+            1e-4,
+            epsilon = 1e-12
+        );
     }
 }
 
@@ -774,10 +778,10 @@ fn a_badly_flown_line_fails_for_the_right_reasons() {
             "longest gap 3.05 s exceeds 2.00 s".to_string(),
         ]
     );
-    assert!((m.longest_gap_s - 3.05).abs() < 1e-9);
+    assert_abs_diff_eq!(m.longest_gap_s, 3.05, epsilon = 1e-9);
     // The gap does not spoil the noise estimate: Welch segments do not straddle it.
     let rho = m.components[0].noise_density_e_rt_hz.unwrap();
-    assert!((rho / RHO - 1.0).abs() < 0.2, "density {rho}");
+    assert_abs_diff_eq!(rho / RHO, 1.0, epsilon = 0.2);
 }
 
 #[test]
@@ -805,7 +809,7 @@ fn a_noisy_line_off_its_plan_fails_for_noise_and_deviation() {
     let expected = 20.0 * lp.noise_bandwidth(SPEED / lp.cutoff_wavelength_m).sqrt();
     let got = m.components[0].noise_after_filter_e.unwrap();
     println!("noise after filter {got:.2} E, from the injected density {expected:.2} E");
-    assert!((got / expected - 1.0).abs() < 0.2);
+    assert_abs_diff_eq!(got / expected, 1.0, epsilon = 0.2);
 }
 
 // ---------------------------------------------------------------- bad input
@@ -869,7 +873,9 @@ fn degenerate_input_gives_errors_not_panics() {
     assert!(low_pass_along_track(&xs, &xs, &lp).is_err());
     lp.cutoff_wavelength_m = 1e5;
     let out = low_pass_along_track(&xs, &xs, &lp).unwrap();
-    assert!(out.iter().zip(&xs).all(|(a, b)| (a - b).abs() < 1e-6));
+    for (a, b) in out.iter().zip(&xs) {
+        assert_abs_diff_eq!(*a, *b, epsilon = 1e-6);
+    }
     // Crossovers: empty and NaN tracks find nothing.
     let e: [f64; 0] = [];
     let empty = Track {

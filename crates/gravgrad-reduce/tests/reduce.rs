@@ -2,6 +2,7 @@
 //! against harmonica in gravgrad-forward's tests), the simulator's terrain truth and its
 //! `terrain_tensor`, one prism of Nagy et al., superposition, and the field's trace in air.
 
+use approx::assert_abs_diff_eq;
 use gravgrad_core::SymTensor;
 use gravgrad_core::ellipsoid::GRS80;
 use gravgrad_core::mat3::Mat3;
@@ -513,9 +514,7 @@ fn a_block_expansion_approaches_its_prisms_within_the_bound() {
         centre[1] - other[1],
         centre[2] - other[2],
     ]);
-    for (u, v) in moved.q.iter().zip(m.q) {
-        assert!((u - v).abs() <= 1e-9 * m.abs_m * 1e4);
-    }
+    assert_abs_diff_eq!(moved.q[..], m.q[..], epsilon = 1e-9 * m.abs_m * 1e4);
     let radius = (50.0f64 * 50.0 + 25.0 * 25.0 + 60.0 * 60.0).sqrt();
     let g = m.times_g();
     let mut last = f64::INFINITY;

@@ -81,6 +81,7 @@ pub fn angular_acceleration3(rates: [&[f64]; 3], rate_hz: f64, cutoff_hz: f64) -
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     #[test]
     fn derivative_of_a_slow_sine() {
@@ -98,7 +99,7 @@ mod tests {
                 * std::f64::consts::PI
                 * f
                 * (2.0 * std::f64::consts::PI * f * i as f64 / rate).cos();
-            assert!((ai - want).abs() < 2e-3, "{ai} vs {want}");
+            assert_abs_diff_eq!(*ai, want, epsilon = 2e-3);
         }
     }
 

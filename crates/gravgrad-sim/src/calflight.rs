@@ -261,6 +261,7 @@ pub fn fly(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     /// Second differences against the stated second derivative, first against the first (central
     /// differences, truncation h²/6·f‴ and h²/12·f⁗; the bounds below are those with f‴ and f⁗
@@ -287,7 +288,7 @@ mod tests {
         }
         for tau in [0.0, len] {
             let q = oscillation(tau, len, n);
-            assert!(q.iter().all(|v| v.abs() < 1e-12), "{q:?}");
+            assert_abs_diff_eq!(q[..], [0.0; 3][..], epsilon = 1e-12);
         }
         // Continuous second derivative where the taper ends (τ = one period).
         let t = len / n as f64;
@@ -295,19 +296,19 @@ mod tests {
             oscillation(t - 1e-9, len, n)[2],
             oscillation(t + 1e-9, len, n)[2],
         );
-        assert!((a - c).abs() < 1e-6, "{a} {c}");
+        assert_abs_diff_eq!(a, c, epsilon = 1e-6);
     }
 
     #[test]
     fn climb_profile_peaks_at_one_with_the_stated_slope() {
         let len = 60.0;
-        assert!((climb_profile(30.0, len)[0] - 1.0).abs() < 1e-15);
+        assert_abs_diff_eq!(climb_profile(30.0, len)[0], 1.0, epsilon = 1e-15);
         let steepest = (0..6000)
             .map(|k| climb_profile(k as f64 * 0.01, len)[1])
             .fold(0.0f64, f64::max);
         // d/dτ sin⁴(πτ/L) peaks at (π/L)·3√3/4 (x = 60°).
         let want = PI / len * 3.0 * 3f64.sqrt() / 4.0;
-        assert!((steepest / want - 1.0).abs() < 1e-6, "{steepest} {want}");
-        assert!((CLIMB_PEAK_SLOPE - 3.0 * 3f64.sqrt() / 4.0).abs() < 1e-15);
+        assert_abs_diff_eq!(steepest / want, 1.0, epsilon = 1e-6);
+        assert_abs_diff_eq!(CLIMB_PEAK_SLOPE, 3.0 * 3f64.sqrt() / 4.0, epsilon = 1e-15);
     }
 }

@@ -90,6 +90,7 @@ pub fn flicker(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use approx::assert_abs_diff_eq;
 
     /// One-sided PSD at frequency f by averaging periodograms of Hann-windowed segments (Welch 1967).
     fn psd_at(x: &[f64], rate: f64, seg: usize, f: f64) -> f64 {
@@ -121,9 +122,9 @@ mod tests {
         let mut r = Rng::new(7, 1);
         let x = white(&mut r, 200_000, 3.0, 20.0);
         let var = x.iter().map(|v| v * v).sum::<f64>() / x.len() as f64;
-        assert!((var.sqrt() / (3.0 * 10f64.sqrt()) - 1.0).abs() < 0.01);
+        assert_abs_diff_eq!(var.sqrt() / (3.0 * 10f64.sqrt()), 1.0, epsilon = 0.01);
         let s = psd_at(&x, 20.0, 512, 3.0).sqrt();
-        assert!((s / 3.0 - 1.0).abs() < 0.1, "{s}");
+        assert_abs_diff_eq!(s / 3.0, 1.0, epsilon = 0.1);
     }
 
     #[test]

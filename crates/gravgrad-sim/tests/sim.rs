@@ -1,6 +1,7 @@
 //! The simulator against facts outside its code: an independent inversion of the instrument
 //! equation, determinism, and the statistics it was asked for.
 
+use approx::assert_abs_diff_eq;
 use gravgrad_sim::scenario::Scenario;
 use gravgrad_sim::simulate::{Simulation, simulate};
 
@@ -241,7 +242,7 @@ fn noise_has_the_configured_density_and_seeds_change_only_the_realisation() {
     }
     eprintln!("estimated / configured density: {est:?}");
     for e in &est {
-        assert!((e - 1.0).abs() < 0.1, "{e}");
+        assert_abs_diff_eq!(*e, 1.0, epsilon = 0.1);
     }
     assert!(series[0].iter().zip(&series[1]).any(|(a, b)| a != b));
 }
@@ -278,11 +279,7 @@ fn demo_statistics_are_realistic_and_as_configured() {
         "vertical acceleration RMS {turb}"
     );
     let clear: Vec<f64> = on.iter().map(|&i| clear_all[i]).collect();
-    assert!(
-        (mean(&clear) - s.plan.clearance_m).abs() < 15.0,
-        "mean clearance {}",
-        mean(&clear)
-    );
+    assert_abs_diff_eq!(mean(&clear), s.plan.clearance_m, epsilon = 15.0);
     let dt = 1.0 / s.plan.sample_rate_hz;
     let speeds: Vec<f64> = on
         .windows(2)
@@ -294,10 +291,12 @@ fn demo_statistics_are_realistic_and_as_configured() {
                 / dt
         })
         .collect();
-    assert!(
-        (mean(&speeds) - s.plan.speed_m_s).abs() < 0.01 * s.plan.speed_m_s
-            && (50.0..80.0).contains(&mean(&speeds))
+    assert_abs_diff_eq!(
+        mean(&speeds),
+        s.plan.speed_m_s,
+        epsilon = 0.01 * s.plan.speed_m_s
     );
+    assert!((50.0..80.0).contains(&mean(&speeds)));
     // Noise density as configured: the same scenario with noise as the only instrument error.
     let mut quiet = s.clone();
     quiet.instrument = s.instrument.perfect();
@@ -343,7 +342,11 @@ fn flights_split_the_path_each_with_its_own_clock_and_errors() {
     assert_eq!(f2.line[0], 0);
     let (t1, t2) = (f1.column("time").unwrap(), f2.column("time").unwrap());
     let dt = 1.0 / s.plan.sample_rate_hz;
-    assert!((t2[0] - t1[t1.len() - 1] - dt - s.plan.flight_gap_s).abs() < 1e-6);
+    assert_abs_diff_eq!(
+        t2[0] - t1[t1.len() - 1] - dt,
+        s.plan.flight_gap_s,
+        epsilon = 1e-6
+    );
     // A new take-off: other biases and drifts for every pair.
     for (a, b) in f1.pair_errors.iter().zip(&f2.pair_errors) {
         assert!(a.bias != b.bias && a.drift != b.drift);
@@ -589,7 +592,11 @@ fn temperature_ramp_adds_its_rate_times_elapsed_time() {
     let rate = a.sample_rate_hz;
     for i in 0..ta.len() {
         let rise = 3.6 / 3600.0 * i as f64 / rate;
-        assert!(((tb[i] - ta[i]) - rise).abs() <= 4.0 * f64::EPSILON * tb[i].abs());
+        assert_abs_diff_eq!(
+            tb[i] - ta[i],
+            rise,
+            epsilon = 4.0 * f64::EPSILON * tb[i].abs()
+        );
     }
     assert_eq!(
         a.flights[0].temperature_ref_c,
@@ -633,18 +640,26 @@ fn calibration_flight_excites_every_sensor_axis_with_consistent_kinematics() {
     for (k, leg) in cal.legs.iter().enumerate() {
         assert_eq!(leg.line, 7001 + k as i64);
         assert_eq!(leg.manoeuvre, cf.manoeuvres[k / 4]);
-        assert!((leg.heading.to_degrees() - cf.headings_deg[k % 4]).abs() < 1e-9);
+        assert_abs_diff_eq!(
+            leg.heading.to_degrees(),
+            cf.headings_deg[k % 4],
+            epsilon = 1e-9
+        );
         let count = log.line.iter().filter(|l| **l == leg.line).count();
-        assert!((count as f64 - cf.leg_s * rate).abs() <= 1.0, "{count}");
+        assert_abs_diff_eq!(count as f64, cf.leg_s * rate, epsilon = 1.0);
     }
     // After the survey: the ground time between flights, as between survey flights.
     let survey_end = *sim.flights[0].column("time").unwrap().last().unwrap();
     let t = log.column("time").unwrap();
-    assert!((t[0] - survey_end - dt - s.plan.flight_gap_s).abs() < 1e-6);
+    assert_abs_diff_eq!(t[0] - survey_end - dt, s.plan.flight_gap_s, epsilon = 1e-6);
     // At the altitude asked for above the mean ground.
     let on_roll = |i: usize| log.line[i] > 0 && leg_of(cal, log.line[i]) == Manoeuvre::Roll;
     let h = (0..tr.height.len()).find(|&i| on_roll(i)).unwrap();
-    assert!((tr.height[h] - s.area.ground_height_m - cf.altitude_m).abs() < 1e-9);
+    assert_abs_diff_eq!(
+        tr.height[h] - s.area.ground_height_m,
+        cf.altitude_m,
+        epsilon = 1e-9
+    );
 
     // Amplitudes on the legs' untapered middle (whole periods, one period of taper at each end):
     // a coordinated bank φ turns with lateral acceleration g·tan φ (common textbook relation,
