@@ -11,7 +11,7 @@
 //! Units: m/s² for pair outputs and f, rad/s² for α, seconds, °C. No I/O. Self-gradient: when the aircraft's attitude is logged, its
 //! roll and pitch relative to the platform join bias, drift and temperature as regressors (the
 //! aircraft's own mass moves relative to the sensor as it banks and pitches). A calibration file
-//! ([`file`]) carries the coefficients to later flights.
+//! ([`mod@file`]) carries the coefficients to later flights.
 
 pub mod apply;
 pub mod bandpass;

@@ -124,7 +124,7 @@ impl Column {
 }
 
 /// The line's tensor for Gλ = `gl` at horizontal offset (x, y) (source − observer, m) with its ends
-/// at depths `w` relative to the observer (m, w[0] ≤ w[1]), minus `spread`·∂_zz of it (`spread` =
+/// at depths `w` relative to the observer (m, `w[0] ≤ w[1]`), minus `spread`·∂_zz of it (`spread` =
 /// a²/24 for a square of side a, 0 for the bare line).
 #[inline]
 pub fn line_terms(gl: f64, x: f64, y: f64, w: [f64; 2], spread: f64) -> SymTensor {

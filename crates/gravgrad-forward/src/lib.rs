@@ -4,7 +4,7 @@
 //! - [`prism`]: right rectangular prism (Nagy, Papp & Benedek 2000, J. Geodesy 74:552–560, with the
 //!   2002 erratum), in coordinates relative to the observation point, switching to Gauss–Legendre
 //!   point masses far away where the closed form loses digits.
-//! - [`column`]: a vertical column of square cross-section seen from afar — the finite vertical line
+//! - [`mod@column`]: a vertical column of square cross-section seen from afar — the finite vertical line
 //!   mass and its correction for the square's spread, with a stated error bound.
 //! - [`normal`]: the normal field of GRS80 or WGS84 from the closed-form potential in ellipsoidal
 //!   coordinates (Heiskanen & Moritz 1967, eq. 2-126), with exact second derivatives by hyper-dual

@@ -9,9 +9,9 @@
 //! the file is read; further images (overviews, masks) are ignored.
 //!
 //! Before the `tiff` crate reads the file, every entry of the first image directory is checked
-//! against the file's size ([`check_tag_sizes`]). Before any cell is decoded, the image's declared
+//! against the file's size (`check_tag_sizes`). Before any cell is decoded, the image's declared
 //! bytes (ImageWidth × ImageLength × bytes per sample) are checked against the file's size at the
-//! largest expansion of its Compression tag ([`max_expansion`]; `docs/reliability.md`).
+//! largest expansion of its Compression tag (`max_expansion`; `docs/reliability.md`).
 //!
 //! Two ways to read: [`read_geotiff`] decodes the whole image, which may hold at most
 //! [`MAX_GRID_CELLS`] cells; [`read_geotiff_header`] then [`read_geotiff_block`] read where the
@@ -173,7 +173,7 @@ pub fn read_geotiff_header(path: &Path) -> Result<GridHeader, Vec<Problem>> {
 /// Reads the cells `block` of a GeoTIFF (the north-up grid of [`read_geotiff_header`]) by decoding
 /// only the strips or tiles that meet it, one at a time. [`MAX_GRID_CELLS`] applies to the block
 /// and to each strip or tile; each one's decoded bytes must fit its stored bytes at its
-/// compression's largest expansion ([`max_expansion`]). The raster's corner is the block's.
+/// compression's largest expansion (`max_expansion`). The raster's corner is the block's.
 pub fn read_geotiff_block(path: &Path, block: CellBlock) -> Result<Raster, Vec<Problem>> {
     let Opened {
         mut dec,

@@ -85,12 +85,12 @@ impl ChunkReader for PositionalFile {
 }
 
 thread_local! {
-    /// Whether this thread is inside [`contained`]: a panic hook reads it to stay silent about a
+    /// Whether this thread is inside `contained`: a panic hook reads it to stay silent about a
     /// panic that is caught and reported as a located problem.
     static CONTAINED: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
 }
 
-/// Whether the current thread is decoding inside [`contained`] (for a panic hook: the panic is
+/// Whether the current thread is decoding inside `contained` (for a panic hook: the panic is
 /// caught there and reported as the column's error, so the default message is noise).
 pub fn in_contained_decode() -> bool {
     CONTAINED.with(std::cell::Cell::get)

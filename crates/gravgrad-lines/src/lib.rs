@@ -6,7 +6,7 @@
 //!   wavelength, not by time).
 //! - [`spectrum`]: Welch's averaged-periodogram power spectral density (Welch 1967).
 //! - [`crossover`]: intersections of survey lines with tie lines and the difference survey − tie.
-//! - [`level`]: least-squares levelling from the crossovers (per-line offset, optional linear trend in
+//! - [`mod@level`]: least-squares levelling from the crossovers (per-line offset, optional linear trend in
 //!   time; tie lines held fixed or every line solved with a zero-mean constraint).
 //! - [`motion`]: the motion-correlation test — each component regressed, in the band where the
 //!   aircraft's motion lives, on specific force, its products, angular rate and acceleration.

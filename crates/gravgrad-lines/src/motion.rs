@@ -39,7 +39,7 @@
 //!   where the band's gain is below one);
 //! - the test: the Wald statistic of all p kept coefficients over p, F = bᵀXᵀXb / (p·σ̂²·n/n_eff),
 //!   against Fisher's F with (p, n_eff − p) degrees of freedom; its p-value from
-//!   [`crate::special`]. Each coefficient's t = b_k / SE(b_k); the regressor with the largest |t|
+//!   `crate::special`. Each coefficient's t = b_k / SE(b_k); the regressor with the largest |t|
 //!   (the one whose removal would lose the most of the fit) is reported as the one that explains most;
 //! - the RMS of the motion part: the fitted part's mean square less its expected noise share
 //!   (σ̂²·p/n_eff), square-rooted (0 when negative); standard error σ̂/√n_eff (delta method, for a

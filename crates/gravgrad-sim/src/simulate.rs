@@ -94,7 +94,7 @@ pub struct TruthGrid {
     pub height_m: f64,
     pub north: Vec<f64>,
     pub east: Vec<f64>,
-    /// `values[i * east.len() + j]` at (north[i], east[j]).
+    /// `values[i * east.len() + j]` at (`north[i]`, `east[j]`).
     pub values: Vec<SymTensor>,
 }
 

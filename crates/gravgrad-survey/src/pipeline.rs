@@ -169,7 +169,7 @@ pub enum CalibrationSource<'a> {
 }
 
 /// How the one note summing up the held calibration terms begins: "calibration terms held at
-/// <prior> (…): <series> [<term>, …]; …" (QC tells it from the other notes by this).
+/// \<prior\> (…): \<series\> \[\<term\>, …\]; …" (QC tells it from the other notes by this).
 pub const HELD_SUMMARY: &str = "calibration terms held at";
 
 /// Standard errors of the difference beyond which a coefficient the instrument should keep (κ,

@@ -288,8 +288,8 @@ impl CalibrationHealth {
     }
 }
 
-/// The series and terms of the calibration's summary note "calibration terms held at <prior>
-/// (…): Gxx [fz², drift]; pair xy [κx]"; `None` when `note` is not that summary.
+/// The series and terms of the calibration's summary note "calibration terms held at \<prior\>
+/// (…): Gxx [fz², drift]; pair xy \[κx\]"; `None` when `note` is not that summary.
 pub fn held_terms(note: &str) -> Option<Vec<(String, Vec<String>)>> {
     let rest = note.strip_prefix(crate::pipeline::HELD_SUMMARY)?;
     let (_, list) = rest.split_once("): ")?;

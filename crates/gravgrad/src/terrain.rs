@@ -7,11 +7,11 @@
 //! checked against the DEM's extent from its header before any cell is decoded (the same check
 //! and wording as a run's, `gravgrad_ingest::dem::read_window`), holes filled as a run fills them.
 //!
-//! With `--height` or `--clearance` every `--step`-th cell centre is a point ([`surface`]): of the
+//! With `--height` or `--clearance` every `--step`-th cell centre is a point (`surface.rs`): of the
 //! whole DEM, or, with `--extent`, of the cells inside that rectangle, the DEM then read over it
 //! plus `--margin` as for `--points`. What the command will hold — the DEM cells read and their
 //! terrain model, `gravgrad_ingest::dem::DEM_BYTES_PER_CELL` bytes a cell, and one batch of
-//! [`surface::BATCH_ROWS`] output rows — is stated from the header before any cell is decoded and
+//! `surface::BATCH_ROWS` output rows — is stated from the header before any cell is decoded and
 //! refused past `gravgrad_ingest::dem::MAX_DEM_WINDOW_CELLS` cells (as a run's window is), naming
 //! the flag, the size and what to change; the output rows are written a batch at a time as they
 //! are computed, never all held.
