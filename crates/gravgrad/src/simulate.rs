@@ -163,14 +163,48 @@ fn slug(name: &str) -> String {
     if s.is_empty() { "survey".into() } else { s }
 }
 
+/// Every file of the simulated survey into `out`: flight logs, instrument, DEM, recipes, truth.
 fn write_all(
     scenario_path: &Path,
     s: &Scenario,
     sim: &Simulation,
     out: &Path,
 ) -> Result<(), String> {
+    let logs = write_flight_logs(s, sim, out)?;
+    write_text(&out.join("instrument.toml"), &instrument_text(sim))?;
+    // DEM in the survey's UTM zone, float32, north-up.
+    write_geotiff(
+        &dem_raster(sim)?,
+        &out.join("dem.tif"),
+        &WriteOptions::default(),
+    )
+    .map_err(|e| e.to_string())?;
+    write_recipes(s, sim, out)?;
+    write_truth_lines(sim, out)?;
+    write_truth_grid(sim, out)?;
+    write_line_offsets(sim, out)?;
+    write_text(
+        &out.join("truth/calibration.toml"),
+        &calibration_truth(s, sim, &logs),
+    )?;
+    let scenario_text = std::fs::read_to_string(scenario_path)
+        .map_err(|e| format!("{}: {e}", scenario_path.display()))?;
+    write_text(&out.join("truth/scenario.toml"), &scenario_text)?;
+    tracing::info!(
+        "truth written (truth/lines.parquet, truth/grid.parquet, truth/calibration.toml)"
+    );
+    Ok(())
+}
+
+/// The raw flight logs, one per flight, as Parquet and CSV in `out/flights`: layout columns plus
+/// `line`; the calibration flight last. Each log with its file stem and whether it is the
+/// calibration flight.
+fn write_flight_logs<'s>(
+    s: &Scenario,
+    sim: &'s Simulation,
+    out: &Path,
+) -> Result<Vec<(String, &'s FlightLog, bool)>, String> {
     let name = slug(&s.name);
-    // Raw flight logs, one per flight: layout columns plus `line`; the calibration flight last.
     let flights = out.join("flights");
     let mut logs: Vec<(String, &FlightLog, bool)> = sim
         .flights
@@ -203,71 +237,67 @@ fn write_all(
         .map_err(|e| e.to_string())?;
     }
     tracing::info!("{} raw flight log(s) written (Parquet and CSV)", logs.len());
+    Ok(logs)
+}
 
-    write_text(&out.join("instrument.toml"), &instrument_text(sim))?;
-    let [e0, n0] = sim.projection.false_origin;
-    // DEM in the survey's UTM zone, float32, north-up.
-    write_geotiff(
-        &dem_raster(sim)?,
-        &out.join("dem.tif"),
-        &WriteOptions::default(),
-    )
-    .map_err(|e| e.to_string())?;
-
-    // Recipe that processes the survey. With a calibration flight, the survey recipe reads the
-    // survey flights only (`-fNN`), the calibration recipe the calibration flight only, and a third
-    // recipe processes the survey with the calibration estimated from the calibration flight.
+/// The recipes that process the survey. With a calibration flight, the survey recipe reads the
+/// survey flights only (`-fNN`), the calibration recipe the calibration flight only, and a third
+/// recipe processes the survey with the calibration estimated from the calibration flight.
+fn write_recipes(s: &Scenario, sim: &Simulation, out: &Path) -> Result<(), String> {
+    let name = slug(&s.name);
     let head = format!(
         "# Processes the simulated survey `{}` (seed {}).\n",
         s.name, s.seed
     );
-    match &sim.calibration {
-        None => write_text(
+    let Some(_) = &sim.calibration else {
+        return write_text(
             &out.join("recipe.toml"),
             &recipe(s, sim, &head, "flights/*.parquet", ""),
-        )?,
-        Some(_) => {
-            let survey_glob = format!("flights/{name}-f*.parquet");
-            write_text(
-                &out.join("recipe.toml"),
-                &recipe(s, sim, &head, &survey_glob, ""),
-            )?;
-            let cal_head = format!(
-                "# Estimates the calibration of the simulated survey `{}` (seed {}) from its \
-                 calibration flight:\n# `gravgrad calibrate recipe-calibration.toml` writes \
-                 calibration.toml.\n",
-                s.name, s.seed
-            );
-            write_text(
-                &out.join("recipe-calibration.toml"),
-                &recipe(
-                    s,
-                    sim,
-                    &cal_head,
-                    &format!("flights/{name}-cal.parquet"),
-                    "[calibration]\nmode = \"estimate\"\nfile = \"calibration.toml\"\n\n",
-                ),
-            )?;
-            let with_head = format!(
-                "# Processes the simulated survey `{}` (seed {}) with the calibration that \
-                 recipe-calibration.toml estimates\n# from the calibration flight (run \
-                 `gravgrad calibrate recipe-calibration.toml` first).\n",
-                s.name, s.seed
-            );
-            write_text(
-                &out.join("recipe-with-calibration.toml"),
-                &recipe(
-                    s,
-                    sim,
-                    &with_head,
-                    &survey_glob,
-                    "[calibration]\nmode = \"file\"\nfile = \"calibration.toml\"\n\n",
-                ),
-            )?;
-        }
-    }
+        );
+    };
+    let survey_glob = format!("flights/{name}-f*.parquet");
+    write_text(
+        &out.join("recipe.toml"),
+        &recipe(s, sim, &head, &survey_glob, ""),
+    )?;
+    let cal_head = format!(
+        "# Estimates the calibration of the simulated survey `{}` (seed {}) from its \
+         calibration flight:\n# `gravgrad calibrate recipe-calibration.toml` writes \
+         calibration.toml.\n",
+        s.name, s.seed
+    );
+    write_text(
+        &out.join("recipe-calibration.toml"),
+        &recipe(
+            s,
+            sim,
+            &cal_head,
+            &format!("flights/{name}-cal.parquet"),
+            "[calibration]\nmode = \"estimate\"\nfile = \"calibration.toml\"\n\n",
+        ),
+    )?;
+    let with_head = format!(
+        "# Processes the simulated survey `{}` (seed {}) with the calibration that \
+         recipe-calibration.toml estimates\n# from the calibration flight (run \
+         `gravgrad calibrate recipe-calibration.toml` first).\n",
+        s.name, s.seed
+    );
+    write_text(
+        &out.join("recipe-with-calibration.toml"),
+        &recipe(
+            s,
+            sim,
+            &with_head,
+            &survey_glob,
+            "[calibration]\nmode = \"file\"\nfile = \"calibration.toml\"\n\n",
+        ),
+    )
+}
 
-    // Truth along the path (NED, Eötvös) and on the grid (map frame, Eötvös).
+/// `truth/lines.parquet`: the truth along the path, every flight's samples in flying order —
+/// position (map frame, m), then the geology, terrain, normal and total tensors (NED, E).
+fn write_truth_lines(sim: &Simulation, out: &Path) -> Result<(), String> {
+    let [e0, n0] = sim.projection.false_origin;
     let t = &sim.truth;
     let n = t.north.len();
     let e_abs: Vec<f64> = t.east.iter().map(|v| v + e0).collect();
@@ -304,8 +334,12 @@ fn write_all(
     for (name, v) in total_names.iter().zip(&total) {
         tc.push((name.as_str(), Column::F64(v)));
     }
-    write_parquet(&out.join("truth/lines.parquet"), &tc).map_err(|e| e.to_string())?;
+    write_parquet(&out.join("truth/lines.parquet"), &tc).map_err(|e| e.to_string())
+}
 
+/// `truth/grid.parquet`: the geology's tensor (map frame, E) on the truth grid at its height.
+fn write_truth_grid(sim: &Simulation, out: &Path) -> Result<(), String> {
+    let [e0, n0] = sim.projection.false_origin;
     let g = &sim.grid;
     let (mut ge, mut gn) = (Vec::new(), Vec::new());
     for nn in &g.north {
@@ -333,40 +367,35 @@ fn write_all(
     for (name, v) in &gcols {
         gc.push((name.as_str(), Column::F64(v)));
     }
-    write_parquet(&out.join("truth/grid.parquet"), &gc).map_err(|e| e.to_string())?;
-    if !sim.line_offsets.is_empty() {
-        let lines: Vec<i64> = sim.line_offsets.iter().map(|(l, _)| *l).collect();
-        let offsets: Vec<Vec<f64>> = (0..6)
-            .map(|k| {
-                sim.line_offsets
-                    .iter()
-                    .map(|(_, o)| o.to_array()[k] / EOTVOS)
-                    .collect()
-            })
-            .collect();
-        let names: Vec<String> = COMPONENTS.iter().map(|c| format!("offset_{c}")).collect();
-        let mut oc: Vec<(&str, Column<'_>)> = vec![("line", Column::I64(&lines))];
-        for (name, v) in names.iter().zip(&offsets) {
-            oc.push((name.as_str(), Column::F64(v)));
-        }
-        write_csv(
-            &out.join("truth/line_offsets.csv"),
-            "injected offset per line, NED, E (added to the sensed tensor)",
-            &oc,
-        )
-        .map_err(|e| e.to_string())?;
+    write_parquet(&out.join("truth/grid.parquet"), &gc).map_err(|e| e.to_string())
+}
+
+/// `truth/line_offsets.csv`: the offset injected on each line (NED, E), when the scenario asks for
+/// any.
+fn write_line_offsets(sim: &Simulation, out: &Path) -> Result<(), String> {
+    if sim.line_offsets.is_empty() {
+        return Ok(());
     }
-    write_text(
-        &out.join("truth/calibration.toml"),
-        &calibration_truth(s, sim, &logs),
-    )?;
-    let scenario_text = std::fs::read_to_string(scenario_path)
-        .map_err(|e| format!("{}: {e}", scenario_path.display()))?;
-    write_text(&out.join("truth/scenario.toml"), &scenario_text)?;
-    tracing::info!(
-        "truth written (truth/lines.parquet, truth/grid.parquet, truth/calibration.toml)"
-    );
-    Ok(())
+    let lines: Vec<i64> = sim.line_offsets.iter().map(|(l, _)| *l).collect();
+    let offsets: Vec<Vec<f64>> = (0..6)
+        .map(|k| {
+            sim.line_offsets
+                .iter()
+                .map(|(_, o)| o.to_array()[k] / EOTVOS)
+                .collect()
+        })
+        .collect();
+    let names: Vec<String> = COMPONENTS.iter().map(|c| format!("offset_{c}")).collect();
+    let mut oc: Vec<(&str, Column<'_>)> = vec![("line", Column::I64(&lines))];
+    for (name, v) in names.iter().zip(&offsets) {
+        oc.push((name.as_str(), Column::F64(v)));
+    }
+    write_csv(
+        &out.join("truth/line_offsets.csv"),
+        "injected offset per line, NED, E (added to the sensed tensor)",
+        &oc,
+    )
+    .map_err(|e| e.to_string())
 }
 
 /// A recipe for the simulated survey: `head` (comment lines), the flights `flights` (a file or glob)
