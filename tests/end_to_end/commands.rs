@@ -60,7 +60,15 @@ fn a_recipe_checks_its_instrument_and_flights() {
 fn the_demo_runs_end_to_end_and_scores_itself() {
     let tmp = tempfile::tempdir().unwrap();
     let products = tmp.path().join("demo");
-    let out = gravgrad(&["demo", "--quiet", "--out", products.to_str().unwrap()]);
+    // The committed survey (tests/end_to_end/install.rs runs the one built into the binary).
+    let out = gravgrad(&[
+        "demo",
+        "--quiet",
+        "--data",
+        "data/demo",
+        "--out",
+        products.to_str().unwrap(),
+    ]);
     assert_eq!(
         out.status.code(),
         Some(0),

@@ -5,6 +5,7 @@ mod calibration;
 mod commands;
 mod corpus;
 mod inputs;
+mod install;
 mod interrupt;
 mod motion;
 mod output_folder;

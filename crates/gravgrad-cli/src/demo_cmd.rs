@@ -1,8 +1,12 @@
 //! `gravgrad demo`: the bundled demo survey end to end: the check of raw logs, instrument and
-//! recipe; the calibration flight's calibration (`gravgrad calibrate`, into a temporary folder);
-//! the survey's run with that calibration file (rotation removal, normal and terrain reduction,
-//! levelling, grids, QC) into an output folder; and the score of the result against the demo's
-//! truth.
+//! recipe; the calibration flight's calibration (`gravgrad calibrate`, into a folder beside the
+//! products); the survey's run with that calibration file (rotation removal, normal and terrain
+//! reduction, levelling, grids, QC) into an output folder; and the score of the result against the
+//! demo's truth.
+//!
+//! The survey is the one `--data DIR` names, or else the one the binary carries: regenerated from
+//! its built-in scenario into a folder beside the products (`demo_data`), so that an installed
+//! binary needs no source tree.
 
 use crate::calibrate_cmd::{self, CalibrateArgs};
 use crate::check_cmd::{self, CheckArgs};
@@ -10,25 +14,50 @@ use crate::logging::Log;
 use crate::run_cmd::{self, RunArgs};
 use crate::score_cmd::{self, ScoreArgs};
 use crate::{EXIT_BAD_INPUT, EXIT_FAILURE};
-use std::path::PathBuf;
-
-/// The demo folder inside the source tree.
-fn default_demo_dir() -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../data/demo")
-}
+use gravgrad::demo_data::{self, Prepared};
+use gravgrad::products::output_folder;
+use std::path::{Path, PathBuf};
 
 pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -> u8 {
-    let dir = data.unwrap_or_else(default_demo_dir);
-    let dir = std::fs::canonicalize(&dir).unwrap_or(dir);
+    let out = out.unwrap_or_else(|| PathBuf::from("gravgrad-demo"));
+    // The output folder is checked before anything is written beside it.
+    let resolved = match output_folder::check(&out, "--out", &[]) {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return EXIT_BAD_INPUT;
+        }
+    };
+    let dir = match data {
+        Some(dir) => {
+            let dir = std::fs::canonicalize(&dir).unwrap_or(dir);
+            if !dir.join("recipe.toml").is_file() {
+                eprintln!(
+                    "error: {}: no demo recipe here (--data); expected the folder of a demo \
+                     survey, or leave --data out to use the survey built into gravgrad",
+                    dir.join("recipe.toml").display()
+                );
+                return EXIT_BAD_INPUT;
+            }
+            log.info(&format!("demo survey: {}", dir.display()));
+            dir
+        }
+        None => {
+            let dir = sibling(&resolved, "data");
+            match demo_data::prepare(&dir) {
+                Ok(Prepared::Reused) => log.info(&format!(
+                    "demo survey: {} (regenerated earlier; every file matches its checksum)",
+                    dir.display()
+                )),
+                Ok(Prepared::Regenerated) => {
+                    log.info(&format!("demo survey: {} (regenerated)", dir.display()))
+                }
+                Err(e) => return crate::run_cmd::report_error(&e, log),
+            }
+            dir
+        }
+    };
     let recipe = dir.join("recipe.toml");
-    if !recipe.is_file() {
-        eprintln!(
-            "error: {}: no demo recipe here; give the demo folder with --data DIR",
-            recipe.display()
-        );
-        return EXIT_BAD_INPUT;
-    }
-    log.info(&format!("demo survey: {}", dir.display()));
     let args = CheckArgs {
         files: vec![recipe.clone()],
         instrument: None,
@@ -40,11 +69,10 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
     if code != 0 {
         return code;
     }
-    let out = out.unwrap_or_else(|| PathBuf::from("gravgrad-demo"));
     // The calibration flight first: its calibration file, in a folder beside the products, is what
     // the survey's run applies (and refines with what the survey's own data see).
     let cal_recipe = dir.join("recipe-calibration.toml");
-    let cal_dir = calibration_folder(&out);
+    let cal_dir = sibling(&resolved, "calibration-flight");
     let has_calibration_flight = cal_recipe.is_file();
     let calibration = if has_calibration_flight {
         log.info("the calibration flight: estimating every pair's calibration from its manoeuvres");
@@ -90,8 +118,10 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
     };
     log.info(&format!(
         "products in {}: lines.parquet, grids.nc, grids/*.tif, maps/*.png, qc/report.html, \
-         survey.h5, calibration/, provenance.json{cal_note}; the result against the demo's truth:",
+         survey.h5, calibration/, provenance.json{cal_note}; the survey in {}; the result \
+         against the demo's truth:",
         out.display(),
+        dir.display(),
     ));
     score_cmd::run(
         &ScoreArgs {
@@ -104,11 +134,13 @@ pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -
     )
 }
 
-/// The folder of the calibration flight's calibration: beside the products, named after them
-/// (`gravgrad-demo` → `gravgrad-demo-calibration-flight`).
-fn calibration_folder(out: &std::path::Path) -> PathBuf {
+/// A folder beside the output folder `out` (absolute, as `output_folder::check` returns it),
+/// named after it: `/x/gravgrad-demo` → `/x/gravgrad-demo-<suffix>` (the calibration flight's
+/// calibration in `-calibration-flight`, the survey regenerated from the built-in scenario in
+/// `-data`).
+fn sibling(out: &Path, suffix: &str) -> PathBuf {
     let name = out
         .file_name()
         .map_or("gravgrad-demo".into(), |n| n.to_string_lossy().into_owned());
-    out.with_file_name(format!("{name}-calibration-flight"))
+    out.with_file_name(format!("{name}-{suffix}"))
 }

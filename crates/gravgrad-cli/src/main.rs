@@ -4,8 +4,10 @@
 mod batch_cmd;
 mod calibrate_cmd;
 mod check_cmd;
+mod completions_cmd;
 mod demo_cmd;
 mod logging;
+mod manual_cmd;
 mod qc_cmd;
 mod report;
 mod run_cmd;
@@ -61,13 +63,18 @@ enum Command {
     Calibrate(calibrate_cmd::CalibrateArgs),
     /// Process the bundled demo survey end to end and show how far the result is from its truth.
     Demo {
-        /// Folder of the demo survey (default: the repository's data/demo).
+        /// Folder of a demo survey (default: the survey built into gravgrad, regenerated from its
+        /// scenario into <OUT>-data beside the products, once, and reused while its checksums hold).
         #[arg(long, value_name = "DIR")]
         data: Option<PathBuf>,
         /// Output folder of the products (default: ./gravgrad-demo).
         #[arg(long, value_name = "DIR")]
         out: Option<PathBuf>,
     },
+    /// Print the completion script for a shell on stdout.
+    Completions(completions_cmd::CompletionsArgs),
+    /// Write the manual pages (roff, for `man`): gravgrad.1 and one page per command.
+    Manual(manual_cmd::ManualArgs),
 }
 
 /// A reusing allocator: decoders allocate and free large page buffers, which the system allocator
@@ -131,6 +138,8 @@ fn main() -> ExitCode {
         Command::Calibrate(args) => calibrate_cmd::run(&args, &log),
         Command::Terrain(args) => terrain_cmd::run(&args, &log),
         Command::Score(args) => score_cmd::run(&args, &log, cli.json),
+        Command::Completions(args) => completions_cmd::run(&args),
+        Command::Manual(args) => manual_cmd::run(&args, &log),
     };
     ExitCode::from(code)
 }

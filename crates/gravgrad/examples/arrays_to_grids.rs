@@ -21,7 +21,6 @@ use ndarray::{Array1, Array2};
 use std::path::Path;
 use std::process::ExitCode;
 
-const SCENARIO: &str = include_str!("../../../data/demo/scenario.toml");
 const RECIPE: &str = include_str!("../../../data/demo/recipe.toml");
 
 /// The grids `gravgrad run` writes into `survey.h5`.
@@ -83,7 +82,8 @@ fn main() -> ExitCode {
 
 fn run(compare: Option<&Path>) -> Result<bool, String> {
     // The survey, simulated in memory.
-    let scenario: Scenario = toml::from_str(SCENARIO).map_err(|e| e.to_string())?;
+    let scenario: Scenario =
+        toml::from_str(gravgrad::demo_data::SCENARIO).map_err(|e| e.to_string())?;
     let sim = gravgrad_sim::simulate::simulate(&scenario).map_err(|e| e.to_string())?;
     // The recipe and instrument, built in code.
     let recipe = parse_recipe(Path::new("demo recipe"), RECIPE, Path::new("."))

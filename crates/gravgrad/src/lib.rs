@@ -44,6 +44,7 @@
 
 pub mod batch_plan;
 pub mod calibrate;
+pub mod demo_data;
 pub mod flight_units;
 pub mod memory;
 pub mod qc;
