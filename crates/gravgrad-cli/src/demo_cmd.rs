@@ -4,9 +4,10 @@
 //! reduction, levelling, grids, QC) into an output folder; and the score of the result against the
 //! demo's truth.
 //!
-//! The survey is the one `--data DIR` names, or else the one the binary carries: regenerated from
-//! its built-in scenario into a folder beside the products (`demo_data`), so that an installed
-//! binary needs no source tree.
+//! The survey is the one `--data DIR` names; else, at the top of a source checkout, `data/demo`
+//! (when its scenario is the built-in one); else the one the binary carries, regenerated from its
+//! built-in scenario into a folder beside the products (`gravgrad::demo_data`), so that an
+//! installed binary needs no source tree.
 
 use crate::calibrate_cmd::{self, CalibrateArgs};
 use crate::check_cmd::{self, CheckArgs};
@@ -18,7 +19,16 @@ use gravgrad::demo_data::{self, Prepared};
 use gravgrad::products::output_folder;
 use std::path::{Path, PathBuf};
 
+/// `./data/demo` when the command runs at the top of a source checkout (`cargo run --release --
+/// demo`) and that folder holds the built-in scenario's survey: then nothing is regenerated.
+fn checkout_demo() -> Option<PathBuf> {
+    let dir = PathBuf::from("data/demo");
+    let scenario = std::fs::read_to_string(dir.join("scenario.toml")).ok()?;
+    (scenario == demo_data::SCENARIO && dir.join("recipe.toml").is_file()).then_some(dir)
+}
+
 pub fn run(data: Option<PathBuf>, out: Option<PathBuf>, log: &Log, json: bool) -> u8 {
+    let data = data.or_else(checkout_demo);
     let out = out.unwrap_or_else(|| PathBuf::from("gravgrad-demo"));
     // The output folder is checked before anything is written beside it.
     let resolved = match output_folder::check(&out, "--out", &[]) {

@@ -63,8 +63,9 @@ enum Command {
     Calibrate(calibrate_cmd::CalibrateArgs),
     /// Process the bundled demo survey end to end and show how far the result is from its truth.
     Demo {
-        /// Folder of a demo survey (default: the survey built into gravgrad, regenerated from its
-        /// scenario into <OUT>-data beside the products, once, and reused while its checksums hold).
+        /// Folder of a demo survey (default: ./data/demo at the top of a source checkout; else the
+        /// survey built into gravgrad, regenerated from its scenario into <OUT>-data beside the
+        /// products, once, and reused while its checksums hold).
         #[arg(long, value_name = "DIR")]
         data: Option<PathBuf>,
         /// Output folder of the products (default: ./gravgrad-demo).
