@@ -42,6 +42,7 @@
 //! # }
 //! ```
 
+pub mod batch_local;
 pub mod batch_plan;
 pub mod calibrate;
 pub mod demo_data;
