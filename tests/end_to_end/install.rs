@@ -112,9 +112,11 @@ fn the_demo_regenerates_the_committed_survey_bit_for_bit_outside_the_source_tree
     // byte for byte.
     let committed: BTreeSet<String> = files_below(&committed_dir)
         .into_iter()
-        .filter(|f| f != "README.md" && f != ".gitignore")
+        // The calibration flight's CSV copy is ignored by data/demo/.gitignore: a working copy
+        // may hold a stale one, a clean clone none.
+        .filter(|f| f != "README.md" && f != ".gitignore" && !f.ends_with("-cal.csv"))
         .collect();
-    assert!(committed.len() >= 15, "{committed:?}");
+    assert!(committed.len() >= 14, "{committed:?}");
     for f in &committed {
         let a = std::fs::read(committed_dir.join(f)).unwrap();
         let b = std::fs::read(data.join(f)).unwrap_or_else(|e| panic!("{f}: {e}"));
