@@ -1,15 +1,25 @@
-//! A single-band, north-up raster: terrain models read from files and gridded products.
+//! A single-band, north-up raster: the one grid type of the workspace — terrain models read from
+//! files, gridded products, and the grids of the wavenumber-domain operators.
 //!
 //! Frame: a map frame given by an EPSG code, either projected (eastings and northings in metres)
-//! or geographic (longitude and latitude in degrees). Cells are areas: `x_min` and `y_max` are the
-//! outer west and north edges of the grid, not cell centres. Rows run from north to south, columns
-//! from west to east, so the centre of cell (column `c`, row `r`) is at
-//! `x = x_min + (c + 0.5)·dx`, `y = y_max − (r + 0.5)·dy`. Values carry the unit of whatever the
-//! raster holds (m for heights, s⁻² for gradients inside the code); the raster does not record it.
+//! or geographic (longitude and latitude in degrees). Registration: cell-centre (pixel-is-area).
+//! Cells are areas: `x_min` and `y_max` are the outer west and north edges of the grid, not cell
+//! centres. Rows run from north to south, columns from west to east, so the centre of cell
+//! (column `c`, row `r`) is at `x = x_min + (c + 0.5)·dx`, `y = y_max − (r + 0.5)·dy`
+//! ([`Raster::cell_centre`]); a value stands for its cell's centre. In the map frame m of the
+//! physics notes (x grid north, y grid east, z down), a raster's row index therefore counts
+//! *against* m's x and its column index *along* m's y. Values carry the unit of whatever the raster
+//! holds (m for heights, s⁻² for gradients inside the code); the raster does not record it.
+//!
+//! Arrays: [`Raster::view`] (no copy) and [`Raster::to_array2`] give the values as a 2-D array of
+//! shape (`ny`, `nx`) indexed `[[row, col]]`, row 0 the northernmost; [`Raster::from_array2`] and
+//! [`Raster::with_array2`] take one back.
 
+use ndarray::{Array2, ArrayView2};
 use thiserror::Error;
 
-/// A single-band north-up raster (see the module documentation for the frame).
+/// A single-band north-up raster, cell-centre registered (see the module documentation for the
+/// frame, the registration and the array conversions).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Raster {
     /// Number of columns, counted eastwards.
@@ -94,19 +104,7 @@ impl Raster {
     /// Checks the invariants [`Raster::new`] establishes; the fields are public, so writers call
     /// this again before using them.
     pub fn check(&self) -> Result<(), RasterError> {
-        let (nx, ny) = (self.nx, self.ny);
-        if nx == 0 || ny == 0 {
-            return Err(RasterError::Empty { nx, ny });
-        }
-        let expected = nx.checked_mul(ny).ok_or(RasterError::TooLarge { nx, ny })?;
-        if self.values.len() != expected {
-            return Err(RasterError::Shape {
-                nx,
-                ny,
-                expected,
-                got: self.values.len(),
-            });
-        }
+        self.check_shape()?;
         let size_ok = |d: f64| d.is_finite() && d > 0.0;
         if !size_ok(self.dx) || !size_ok(self.dy) {
             return Err(RasterError::CellSize {
@@ -123,8 +121,136 @@ impl Raster {
         Ok(())
     }
 
+    /// Checks that `values` holds `nx·ny` values and that there is at least one cell.
+    fn check_shape(&self) -> Result<(), RasterError> {
+        let (nx, ny) = (self.nx, self.ny);
+        if nx == 0 || ny == 0 {
+            return Err(RasterError::Empty { nx, ny });
+        }
+        let expected = nx.checked_mul(ny).ok_or(RasterError::TooLarge { nx, ny })?;
+        if self.values.len() != expected {
+            return Err(RasterError::Shape {
+                nx,
+                ny,
+                expected,
+                got: self.values.len(),
+            });
+        }
+        Ok(())
+    }
+
+    /// A raster whose values are the 2-D array `values` of shape (`ny`, `nx`), indexed
+    /// `[[row, col]]` with row 0 the northernmost and column 0 the westernmost, with its north-west
+    /// corner at `corner` = (`x_min`, `y_max`) and cells of `cell` = (`dx`, `dy`), both in the
+    /// frame's units (m or degrees). Cell-centre registration, as [`Raster::new`]; no EPSG code and
+    /// no nodata value. The array's memory order does not matter (a transposed or sliced array is
+    /// copied into row-major order).
+    ///
+    /// ```
+    /// use gravgrad_core::Raster;
+    /// use ndarray::array;
+    ///
+    /// // Two rows of three 10 m cells; the north-west corner at (500 000 E, 7 000 000 N).
+    /// let heights = array![[1.0, 2.0, 3.0], [4.0, 5.0, 6.0]];
+    /// let r = Raster::from_array2(heights, (500_000.0, 7_000_000.0), (10.0, 10.0)).unwrap();
+    /// assert_eq!((r.nx, r.ny), (3, 2));
+    /// // Row 0 is the northern row: cell (column 2, row 0) is the north-east cell.
+    /// assert_eq!(r.get(2, 0), Some(3.0));
+    /// assert_eq!(r.cell_centre(2, 0), (500_025.0, 6_999_995.0));
+    /// ```
+    pub fn from_array2(
+        values: Array2<f64>,
+        corner: (f64, f64),
+        cell: (f64, f64),
+    ) -> Result<Self, RasterError> {
+        let (ny, nx) = values.dim();
+        Self::new(nx, ny, corner, cell, row_major(values))
+    }
+
+    /// A raster on the same cells as this one (size, corner, cell size and EPSG code kept; no nodata
+    /// value) holding `values`, of shape (`ny`, `nx`) with row 0 the northernmost; an error if
+    /// the shape differs from this raster's.
+    ///
+    /// ```
+    /// use gravgrad_core::Raster;
+    ///
+    /// let gzz = Raster::new(2, 2, (0.0, 100.0), (50.0, 50.0), vec![1.0, 2.0, 3.0, 4.0])
+    ///     .unwrap()
+    ///     .with_epsg(32753);
+    /// let doubled = gzz.with_array2(gzz.view().unwrap().mapv(|v| 2.0 * v)).unwrap();
+    /// assert_eq!(doubled.values, [2.0, 4.0, 6.0, 8.0]);
+    /// assert_eq!((doubled.x_min, doubled.y_max, doubled.epsg), (0.0, 100.0, Some(32753)));
+    /// ```
+    pub fn with_array2(&self, values: Array2<f64>) -> Result<Self, RasterError> {
+        let (ny, nx) = values.dim();
+        if (nx, ny) != (self.nx, self.ny) {
+            return Err(RasterError::Shape {
+                nx: self.nx,
+                ny: self.ny,
+                expected: self.nx.saturating_mul(self.ny),
+                got: values.len(),
+            });
+        }
+        let r = Self {
+            nx: self.nx,
+            ny: self.ny,
+            x_min: self.x_min,
+            y_max: self.y_max,
+            dx: self.dx,
+            dy: self.dy,
+            epsg: self.epsg,
+            nodata: None,
+            values: row_major(values),
+        };
+        r.check()?;
+        Ok(r)
+    }
+
+    /// The values as a 2-D array view of shape (`ny`, `nx`), indexed `[[row, col]]` with row 0 the
+    /// northernmost and column 0 the westernmost; no copy. An error if `values` does not hold
+    /// `nx·ny` values (the fields are public).
+    ///
+    /// ```
+    /// use gravgrad_core::Raster;
+    ///
+    /// // Three columns, two rows; values row-major from the north-west cell.
+    /// let r = Raster::new(3, 2, (0.0, 20.0), (10.0, 10.0), vec![1.0, 2.0, 3.0, 4.0, 5.0, 6.0])
+    ///     .unwrap();
+    /// let v = r.view().unwrap();
+    /// assert_eq!(v.dim(), (2, 3));
+    /// assert_eq!(v[[1, 0]], 4.0); // the south-west cell
+    /// assert_eq!(v.as_ptr(), r.values.as_ptr()); // the raster's own memory
+    /// ```
+    pub fn view(&self) -> Result<ArrayView2<'_, f64>, RasterError> {
+        self.check_shape()?;
+        ArrayView2::from_shape((self.ny, self.nx), &self.values).map_err(|_| RasterError::Shape {
+            nx: self.nx,
+            ny: self.ny,
+            expected: self.nx.saturating_mul(self.ny),
+            got: self.values.len(),
+        })
+    }
+
+    /// The values copied into a 2-D array of shape (`ny`, `nx`), indexed `[[row, col]]` with row 0
+    /// the northernmost; see [`Raster::view`] for the errors.
+    ///
+    /// ```
+    /// use gravgrad_core::Raster;
+    ///
+    /// let r = Raster::new(2, 2, (0.0, 20.0), (10.0, 10.0), vec![1.0, 2.0, 3.0, 4.0]).unwrap();
+    /// let a = r.to_array2().unwrap();
+    /// assert_eq!(a.row(0).to_vec(), [1.0, 2.0]); // the northern row, west to east
+    /// // A round trip keeps values and geometry.
+    /// let back = Raster::from_array2(a, (r.x_min, r.y_max), (r.dx, r.dy)).unwrap();
+    /// assert_eq!(back, r);
+    /// ```
+    pub fn to_array2(&self) -> Result<Array2<f64>, RasterError> {
+        self.view().map(|v| v.to_owned())
+    }
+
     /// The value of cell (`col` eastwards, `row` southwards), or `None` outside the grid.
     /// A missing cell returns its nodata value; use [`Raster::is_missing`] to tell.
+    #[inline]
     pub fn get(&self, col: usize, row: usize) -> Option<f64> {
         if col >= self.nx || row >= self.ny {
             return None;
@@ -143,12 +269,26 @@ impl Raster {
 
     /// Centre of cell (`col`, `row`) in the frame's units: (easting m, northing m) or
     /// (longitude deg, latitude deg).
+    #[inline]
     pub fn cell_centre(&self, col: usize, row: usize) -> (f64, f64) {
         (
             self.x_min + (col as f64 + 0.5) * self.dx,
             self.y_max - (row as f64 + 0.5) * self.dy,
         )
     }
+}
+
+/// The values of `a` in row-major order, without a copy when `a` is already laid out so.
+fn row_major(a: Array2<f64>) -> Vec<f64> {
+    if !a.is_standard_layout() {
+        return a.iter().copied().collect();
+    }
+    let n = a.len();
+    let (mut v, offset) = a.into_raw_vec_and_offset();
+    // A standard-layout array is one contiguous block of `n` values starting at `offset`.
+    v.drain(..offset.unwrap_or(0).min(v.len()));
+    v.truncate(n);
+    v
 }
 
 /// Whether an EPSG code names a projected or a geographic frame.
@@ -227,6 +367,74 @@ mod tests {
         for code in [32753, 28353, 25832] {
             assert_eq!(frame_kind_of_epsg(code), FrameKind::Projected, "{code}");
         }
+    }
+
+    #[test]
+    fn arrays_are_indexed_row_then_column_from_the_north_west() {
+        // 3 columns × 2 rows: the array has shape (rows, columns) and [[row, col]] is the value
+        // `get(col, row)` returns, row 0 northernmost.
+        let r = Raster::new(
+            3,
+            2,
+            (0.0, 20.0),
+            (10.0, 10.0),
+            (0..6).map(f64::from).collect(),
+        )
+        .unwrap();
+        let v = r.view().unwrap();
+        assert_eq!(v.dim(), (2, 3));
+        for row in 0..2 {
+            for col in 0..3 {
+                assert_eq!(Some(v[[row, col]]), r.get(col, row));
+            }
+        }
+        assert_eq!(r.to_array2().unwrap(), v);
+    }
+
+    #[test]
+    fn arrays_in_any_memory_order_come_back_row_major() {
+        // A transposed array (column-major memory) and a sliced one (an offset into a larger
+        // buffer) both give the values in row-major order of their logical index.
+        let a = ndarray::array![[1.0, 2.0], [3.0, 4.0], [5.0, 6.0]];
+        let t = a.reversed_axes(); // logically [[1, 3, 5], [2, 4, 6]]
+        assert!(!t.is_standard_layout());
+        let r = Raster::from_array2(t, (0.0, 0.0), (1.0, 1.0)).unwrap();
+        assert_eq!((r.nx, r.ny), (3, 2));
+        assert_eq!(r.values, [1.0, 3.0, 5.0, 2.0, 4.0, 6.0]);
+        let mut b = ndarray::Array2::from_shape_fn((4, 2), |(i, j)| (10 * i + j) as f64);
+        b.slice_axis_inplace(ndarray::Axis(0), ndarray::Slice::from(1..3));
+        assert!(b.is_standard_layout());
+        let r = Raster::from_array2(b, (0.0, 0.0), (1.0, 1.0)).unwrap();
+        assert_eq!(r.values, [10.0, 11.0, 20.0, 21.0]);
+    }
+
+    #[test]
+    fn array_shapes_and_geometry_are_checked() {
+        let r = Raster::new(2, 2, (0.0, 0.0), (1.0, 1.0), vec![0.0; 4]).unwrap();
+        assert!(matches!(
+            r.with_array2(ndarray::Array2::zeros((2, 3))),
+            Err(RasterError::Shape { .. })
+        ));
+        let broken = Raster {
+            values: vec![0.0; 3],
+            ..r.clone()
+        };
+        assert!(matches!(
+            broken.view(),
+            Err(RasterError::Shape { got: 3, .. })
+        ));
+        assert!(matches!(
+            Raster::from_array2(ndarray::Array2::zeros((0, 2)), (0.0, 0.0), (1.0, 1.0)),
+            Err(RasterError::Empty { .. })
+        ));
+        assert!(matches!(
+            Raster::from_array2(ndarray::Array2::zeros((1, 1)), (0.0, 0.0), (0.0, 1.0)),
+            Err(RasterError::CellSize { .. })
+        ));
+        // with_array2 keeps the frame and drops the nodata value.
+        let tagged = r.clone().with_epsg(32753).with_nodata(-9999.0);
+        let out = tagged.with_array2(ndarray::Array2::ones((2, 2))).unwrap();
+        assert_eq!((out.epsg, out.nodata), (Some(32753), None));
     }
 
     #[test]

@@ -2,11 +2,12 @@
 //! tests/reference/make_reference.py, and analytic facts.
 
 use approx::assert_abs_diff_eq;
+use gravgrad_core::Raster;
 use gravgrad_core::units::{EOTVOS, G, MGAL};
 use gravgrad_forward::normal::NormalField;
 use gravgrad_forward::point::point_mass;
 use gravgrad_forward::prism::{FAR_ORDER, FAR_RATIO, Prism, far_order};
-use gravgrad_forward::spectral::{Component, Grid, from_gzz, upward_continue};
+use gravgrad_forward::spectral::{Component, Direction, derivative, from_gzz, upward_continue};
 use std::f64::consts::PI;
 
 fn reference() -> serde_json::Value {
@@ -342,33 +343,35 @@ fn body() -> Prism {
     Prism::new([-600.0, 600.0], [-400.0, 400.0], [300.0, 800.0], 300.0)
 }
 
-/// The analytic g_z (m/s², down) of [`body`] at the nodes of `grid`, on the plane z = 0.
-fn analytic_gz(grid: &Grid) -> Vec<f64> {
+/// The analytic g_z (m/s², down) of [`body`] at the cell centres of `grid`, on the plane z = 0, in
+/// the raster's row-major order (row 0 northernmost).
+fn analytic_gz(grid: &Raster) -> Vec<f64> {
     let b = body();
     (0..grid.nx * grid.ny)
         .map(|k| {
-            let (x, y) = grid.node(k / grid.ny, k % grid.ny);
-            b.field([x, y, 0.0]).g[2]
+            let (east, north) = grid.cell_centre(k % grid.nx, k / grid.nx);
+            b.field([north, east, 0.0]).g[2]
         })
         .collect()
 }
 
-/// An n × n grid at 40 m over a body 1.2 × 0.8 km, 300–800 m below the plane, at the centre.
-fn analytic_grid(n: usize, height_above: f64) -> (Grid, Vec<[f64; 6]>) {
+/// An n × n north-up raster of 40 m cells centred over a body 1.2 × 0.8 km (north × east),
+/// 300–800 m below the plane: its Gzz, and the analytic tensor (NED) `height_above` the plane at
+/// each cell centre, in the raster's row-major order.
+fn analytic_grid(n: usize, height_above: f64) -> (Raster, Vec<[f64; 6]>) {
     let d = 40.0;
     let body = body();
-    let x0 = -(n as f64 - 1.0) * d / 2.0;
+    let half = n as f64 * d / 2.0;
+    let mut grid = Raster::new(n, n, (-half, half), (d, d), vec![0.0; n * n]).unwrap();
     let mut comps = Vec::with_capacity(n * n);
-    for i in 0..n {
-        for j in 0..n {
-            comps.push(
-                body.tensor([x0 + i as f64 * d, x0 + j as f64 * d, -height_above])
-                    .to_array(),
-            );
+    for row in 0..n {
+        for col in 0..n {
+            let (east, north) = grid.cell_centre(col, row);
+            comps.push(body.tensor([north, east, -height_above]).to_array());
         }
     }
-    let gzz = comps.iter().map(|c| c[5]).collect();
-    (Grid::new(n, n, d, d, x0, x0, gzz).unwrap(), comps)
+    grid.values = comps.iter().map(|c| c[5]).collect();
+    (grid, comps)
 }
 
 fn rms_rel(a: &[f64], b: &[f64]) -> f64 {
@@ -448,14 +451,18 @@ fn first_derivatives_of_gz_are_gxz_and_gzz() {
     // ∂g_z/∂x = Gxz and ∂g_z/∂z = Gzz (G symmetric, docs/physics.md): the derivative operators on an
     // analytic gz grid against the analytic tensor, 1% RMS over a 20.5 km grid.
     let (gzz, comps) = analytic_grid(512, 0.0);
-    let gz = Grid {
+    let gz = Raster {
         values: analytic_gz(&gzz),
         ..gzz.clone()
     };
-    for (axis, k) in [(0usize, 2usize), (1, 4), (2, 5)] {
-        let got = gravgrad_forward::spectral::derivative(&gz, axis).unwrap();
+    for (direction, k) in [
+        (Direction::North, 2usize),
+        (Direction::East, 4),
+        (Direction::Down, 5),
+    ] {
+        let got = derivative(&gz, direction).unwrap();
         let want: Vec<f64> = comps.iter().map(|t| t[k]).collect();
         let e = rms_rel(&got.values, &want);
-        assert!(e < 0.01, "axis {axis}: {:.3}% RMS", 100.0 * e);
+        assert!(e < 0.01, "{direction:?}: {:.3}% RMS", 100.0 * e);
     }
 }

@@ -25,8 +25,9 @@
 //! upward by e^(−|k|·Δh). A wavenumber that no measured component sees (k = 0; kx = 0 for Gxx
 //! alone) gets Φ = 0.
 //!
-//! - **Padding**: as `gravgrad_forward::spectral`, each grid is mirrored to twice its size in both
-//!   directions, so that the periodic extension is continuous; a component odd in a direction
+//! - **Padding and transform**: those of `gravgrad_forward::spectral` (`mirror_pad`, `fft2`,
+//!   `ifft2`): each grid is mirrored to twice its size in both directions, so that the periodic
+//!   extension is continuous; a component odd in a direction
 //!   (Gxy and Gxz in x, Gxy and Gyz in y) is mirrored with its sign reversed in that direction —
 //!   the even mirror of the potential makes its derivatives odd there — so that all components
 //!   describe one mirrored potential. At the Nyquist wavenumber of an axis, components odd along
@@ -39,8 +40,9 @@
 //!   (body / window)² (`docs/methods/forward.md`), so grids should extend well beyond the targets.
 
 use gravgrad_core::Raster;
+use gravgrad_forward::spectral::{fft2, ifft2, mirror_pad, signed_bin};
+use ndarray::{Array2, Axis, Slice};
 use rayon::prelude::*;
-use rustfft::FftPlanner;
 use rustfft::num_complex::Complex64;
 use thiserror::Error;
 
@@ -189,30 +191,30 @@ pub fn full_tensor(
     {
         return Err(TensorError::TooLarge { nx, ny });
     }
-    let mut fft = Fft2::new(pr, pc);
-
-    // Spectra of the measured components, mirror-padded with their parity.
-    let spectra: Vec<Option<Vec<Complex64>>> = (0..6)
-        .map(|c| {
-            measured[c].map(|r| {
-                let mut buf = pad(r, ODD[c]);
-                fft.run(&mut buf, false);
-                buf
-            })
-        })
-        .collect();
+    // Spectra of the measured components, mirror-padded with their parity (x = north = rows,
+    // y = east = columns).
+    let mut spectra: Vec<Option<Array2<Complex64>>> = Vec::with_capacity(6);
+    for c in 0..6 {
+        spectra.push(match measured[c] {
+            Some(r) => {
+                let mut buf = mirror_pad(
+                    r.view()
+                        .map_err(|_| TensorError::TooSmall { name: NAMES[c] })?,
+                    ODD[c].0,
+                    ODD[c].1,
+                );
+                fft2(&mut buf);
+                Some(buf)
+            }
+            None => None,
+        });
+    }
     let weights: Vec<f64> = (0..6).map(|c| 1.0 / (opts.noise_e[c].powi(2))).collect();
 
     // Wavenumbers: rows run southwards, so north kx = −k_row; columns run eastwards.
     let dk_row = 2.0 * std::f64::consts::PI / (pr as f64 * base.dy);
     let dk_col = 2.0 * std::f64::consts::PI / (pc as f64 * base.dx);
-    let signed = |i: usize, n: usize| -> f64 {
-        if i <= n / 2 {
-            i as f64
-        } else {
-            i as f64 - n as f64
-        }
-    };
+    let signed = signed_bin;
     let dh = opts.upward_m;
     // Potential spectrum, row-major over (row, column) of the padded grid.
     let mut phi = vec![Complex64::new(0.0, 0.0); pr * pc];
@@ -229,7 +231,7 @@ pub fn full_tensor(
                     continue;
                 }
                 let m = multiplier(c, kx, ky);
-                num += m.conj() * f[p * pc + q] * weights[c];
+                num += m.conj() * f[[p, q]] * weights[c];
                 den += m.norm_sqr() * weights[c];
             }
             *out = if den > 0.0 {
@@ -240,38 +242,42 @@ pub fn full_tensor(
         }
     });
 
-    let derive = |fft: &mut Fft2, c: Option<usize>| -> Vec<f64> {
-        let mut buf = vec![Complex64::new(0.0, 0.0); pr * pc];
-        buf.par_chunks_mut(pc).enumerate().for_each(|(p, row)| {
-            let kx = -signed(p, pr) * dk_row;
-            let nyq_x = p == pr / 2;
-            for (q, out) in row.iter_mut().enumerate() {
-                let ky = signed(q, pc) * dk_col;
-                let nyq_y = q == pc / 2;
-                let v = phi[p * pc + q];
-                *out = match c {
-                    Some(c) if (nyq_x && ODD[c].0) || (nyq_y && ODD[c].1) => {
-                        Complex64::new(0.0, 0.0)
-                    }
-                    Some(c) => multiplier(c, kx, ky) * v,
-                    None => v * (kx * kx + ky * ky).sqrt(),
-                };
-            }
-        });
+    let derive = |c: Option<usize>| -> Vec<f64> {
+        let mut buf = Array2::<Complex64>::zeros((pr, pc));
+        buf.axis_iter_mut(Axis(0))
+            .into_par_iter()
+            .enumerate()
+            .for_each(|(p, mut row)| {
+                let kx = -signed(p, pr) * dk_row;
+                let nyq_x = p == pr / 2;
+                for (q, out) in row.iter_mut().enumerate() {
+                    let ky = signed(q, pc) * dk_col;
+                    let nyq_y = q == pc / 2;
+                    let v = phi[p * pc + q];
+                    *out = match c {
+                        Some(c) if (nyq_x && ODD[c].0) || (nyq_y && ODD[c].1) => {
+                            Complex64::new(0.0, 0.0)
+                        }
+                        Some(c) => multiplier(c, kx, ky) * v,
+                        None => v * (kx * kx + ky * ky).sqrt(),
+                    };
+                }
+            });
         // k = 0: a measured even component keeps its own mean.
         if let Some(c) = c
             && let Some(f) = &spectra[c]
             && ODD[c] == (false, false)
         {
-            buf[0] = f[0];
+            buf[[0, 0]] = f[[0, 0]];
         }
-        fft.run(&mut buf, true);
-        let norm = 1.0 / (pr * pc) as f64;
-        let mut out = Vec::with_capacity(nx * ny);
-        for r in 0..ny {
-            out.extend(buf[r * pc..r * pc + nx].iter().map(|z| z.re * norm));
-        }
-        out
+        // Normalised by 1/(pr·pc), so the real parts are those of the unnormalised transform times
+        // that factor.
+        ifft2(&mut buf);
+        buf.slice_axis(Axis(0), Slice::from(..ny))
+            .slice_axis(Axis(1), Slice::from(..nx))
+            .iter()
+            .map(|z| z.re)
+            .collect()
     };
     let raster = |values: Vec<f64>| Raster {
         values,
@@ -280,9 +286,9 @@ pub fn full_tensor(
     };
     let mut comps: Vec<Raster> = Vec::with_capacity(6);
     for c in 0..6 {
-        comps.push(raster(derive(&mut fft, Some(c))));
+        comps.push(raster(derive(Some(c))));
     }
-    let mut gz = derive(&mut fft, None);
+    let mut gz = derive(None);
     let mean = gz.iter().sum::<f64>() / gz.len() as f64;
     let target = match opts.gz_reference {
         GzReference::MeanZero => 0.0,
@@ -299,80 +305,4 @@ pub fn full_tensor(
         components,
         gz: raster(gz),
     })
-}
-
-/// The raster mirrored to twice its size in both directions (rows i and 2n−1−i hold the same
-/// data), with the sign reversed in the mirrored halves along the directions where `odd`
-/// (x = north = rows, y = east = columns).
-fn pad(r: &Raster, odd: (bool, bool)) -> Vec<Complex64> {
-    let (nx, ny) = (r.nx, r.ny);
-    let (pc, pr) = (2 * nx, 2 * ny);
-    let mut buf = vec![Complex64::new(0.0, 0.0); pr * pc];
-    buf.par_chunks_mut(pc).enumerate().for_each(|(p, row)| {
-        let (sr, flip_r) = if p < ny {
-            (p, false)
-        } else {
-            (pr - 1 - p, odd.0)
-        };
-        let src = &r.values[sr * nx..(sr + 1) * nx];
-        for (q, z) in row.iter_mut().enumerate() {
-            let (sc, flip_c) = if q < nx {
-                (q, false)
-            } else {
-                (pc - 1 - q, odd.1)
-            };
-            let v = src[sc];
-            *z = Complex64::new(if flip_r ^ flip_c { -v } else { v }, 0.0);
-        }
-    });
-    buf
-}
-
-/// Two-dimensional FFT of a row-major `rows × cols` array, rows in parallel.
-struct Fft2 {
-    rows: usize,
-    cols: usize,
-    planner: FftPlanner<f64>,
-}
-
-impl Fft2 {
-    fn new(rows: usize, cols: usize) -> Self {
-        Self {
-            rows,
-            cols,
-            planner: FftPlanner::new(),
-        }
-    }
-
-    /// In place; unnormalised in both directions.
-    fn run(&mut self, buf: &mut [Complex64], inverse: bool) {
-        let (r, c) = (self.rows, self.cols);
-        let (along_row, along_col) = if inverse {
-            (
-                self.planner.plan_fft_inverse(c),
-                self.planner.plan_fft_inverse(r),
-            )
-        } else {
-            (
-                self.planner.plan_fft_forward(c),
-                self.planner.plan_fft_forward(r),
-            )
-        };
-        buf.par_chunks_mut(c).for_each(|row| along_row.process(row));
-        let mut t = transpose(buf, r, c);
-        t.par_chunks_mut(r).for_each(|col| along_col.process(col));
-        let back = transpose(&t, c, r);
-        buf.copy_from_slice(&back);
-    }
-}
-
-/// Transposes an r × c row-major array.
-fn transpose(a: &[Complex64], r: usize, c: usize) -> Vec<Complex64> {
-    let mut out = vec![Complex64::new(0.0, 0.0); r * c];
-    out.par_chunks_mut(r).enumerate().for_each(|(j, row)| {
-        for (i, v) in row.iter_mut().enumerate() {
-            *v = a[i * c + j];
-        }
-    });
-    out
 }

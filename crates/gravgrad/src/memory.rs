@@ -186,11 +186,6 @@ impl SurveyOutput {
     /// A grid by its product name (`gzz`, `measured_gzz`, `gz`, …) as an array of shape
     /// (rows, columns), row 0 the northernmost, column 0 the westernmost; `None` when not made.
     pub fn grid(&self, name: &str) -> Option<Array2<f64>> {
-        self.results.grids.as_ref()?.by_name(name).map(to_array2)
+        self.results.grids.as_ref()?.by_name(name)?.to_array2().ok()
     }
-}
-
-/// A raster's values as an array of shape (rows, columns), row 0 the northernmost.
-fn to_array2(r: &Raster) -> Array2<f64> {
-    Array2::from_shape_fn((r.ny, r.nx), |(row, col)| r.values[row * r.nx + col])
 }

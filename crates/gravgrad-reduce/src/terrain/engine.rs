@@ -12,7 +12,7 @@
 //! that point (apart from the prism kernel's own ~1e-11 relative error); the walk is sequential per
 //! point, in a fixed order, so results do not depend on the thread count.
 
-use super::grid::Grid;
+use super::dem::DemMass;
 use super::pyramid::Pyramid;
 
 /// The smallest distance-to-radius ratio at which a block may be taken as its expansion.
@@ -20,10 +20,11 @@ pub const MIN_RATIO: f64 = 2.0;
 
 /// The all-exact sum at `obs`: every cell's prisms, rows from the north, columns from the west,
 /// each by `Prism::tensor` (closed form near, Gauss–Legendre point masses beyond ten sizes).
-pub fn exact_at(grid: &Grid, obs: [f64; 3]) -> [f64; 6] {
+pub fn exact_at(grid: &DemMass, obs: [f64; 3]) -> [f64; 6] {
     let mut acc = [0.0; 6];
-    for row in 0..grid.ny {
-        for col in 0..grid.nx {
+    let (nx, ny) = grid.size();
+    for row in 0..ny {
+        for col in 0..nx {
             for p in grid.pieces(col, row).iter() {
                 for (a, v) in acc.iter_mut().zip(p.tensor(obs).to_array()) {
                     *a += v;
@@ -36,7 +37,7 @@ pub fn exact_at(grid: &Grid, obs: [f64; 3]) -> [f64; 6] {
 
 /// The fast engine at `obs` with per-block budget `tau` (s⁻²): the tensor and the sum of the
 /// bounds of the blocks taken as expansions (s⁻²).
-pub fn fast_at(grid: &Grid, pyramid: &Pyramid, tau: f64, obs: [f64; 3]) -> ([f64; 6], f64) {
+pub fn fast_at(grid: &DemMass, pyramid: &Pyramid, tau: f64, obs: [f64; 3]) -> ([f64; 6], f64) {
     let mut acc = [0.0; 6];
     let mut bound = 0.0;
     let Some(top) = pyramid.levels.last() else {
@@ -75,8 +76,9 @@ pub fn fast_at(grid: &Grid, pyramid: &Pyramid, tau: f64, obs: [f64; 3]) -> ([f64
             }
         }
         if li == 0 {
-            for row in 2 * j..(2 * j + 2).min(grid.ny) {
-                for col in 2 * i..(2 * i + 2).min(grid.nx) {
+            let (nx, ny) = grid.size();
+            for row in 2 * j..(2 * j + 2).min(ny) {
+                for col in 2 * i..(2 * i + 2).min(nx) {
                     for p in grid.pieces(col, row).iter() {
                         for (a, v) in acc.iter_mut().zip(p.tensor(obs).to_array()) {
                             *a += v;

@@ -18,17 +18,17 @@
 //! the measured errors.
 
 pub mod coverage;
+pub mod dem;
 pub mod engine;
-pub mod grid;
 pub mod mass;
 pub mod multipole;
 pub mod pyramid;
 
 use coverage::Coverage;
+use dem::DemMass;
 use gravgrad_core::SymTensor;
 use gravgrad_core::raster::{FrameKind, Raster, RasterError, frame_kind_of_epsg};
 use gravgrad_core::units::EOTVOS;
-use grid::Grid;
 use mass::MassModel;
 use pyramid::Pyramid;
 use rayon::prelude::*;
@@ -89,7 +89,7 @@ pub enum TerrainError {
 /// A DEM's terrain mass, ready to be evaluated at points.
 #[derive(Clone, Debug)]
 pub struct TerrainModel {
-    grid: Grid,
+    grid: DemMass,
     pyramid: Pyramid,
     tau: f64,
     missing: usize,
@@ -137,13 +137,17 @@ impl TerrainModel {
             Some(r) => return Err(TerrainError::Reference(r)),
             None => elevation.iter().filter(|v| v.is_finite()).sum::<f64>() / valid as f64,
         };
-        let grid = Grid {
-            nx: raster.nx,
-            ny: raster.ny,
-            x_min: raster.x_min,
-            y_max: raster.y_max,
-            dx: raster.dx,
-            dy: raster.dy,
+        // The DEM's cells with missing ones as NaN; `check` above makes this raster valid too.
+        let mut elevation = Raster::new(
+            raster.nx,
+            raster.ny,
+            (raster.x_min, raster.y_max),
+            (raster.dx, raster.dy),
+            elevation,
+        )?
+        .with_nodata(f64::NAN);
+        elevation.epsg = raster.epsg;
+        let grid = DemMass {
             elevation,
             mass: MassModel {
                 density: settings.density_kg_m3,

@@ -8,7 +8,7 @@
 //! children moved to the parent's centre ([`Moments::shifted`]), both in a fixed order, so the
 //! pyramid is the same whatever the thread count.
 
-use super::grid::Grid;
+use super::dem::DemMass;
 use super::multipole::{BOUND_FACTOR, Moments};
 use rayon::prelude::*;
 
@@ -50,19 +50,14 @@ pub struct Pyramid {
 }
 
 /// Box of a block: cell ranges [col0, col1) × [row0, row1) → NED extents x (north) and y (east).
-fn footprint(grid: &Grid, level: u32, i: usize, j: usize) -> ([f64; 2], [f64; 2]) {
+fn footprint(grid: &DemMass, level: u32, i: usize, j: usize) -> ([f64; 2], [f64; 2]) {
     let side = 1usize << level;
-    let (c0, c1) = (i * side, ((i + 1) * side).min(grid.nx));
-    let (r0, r1) = (j * side, ((j + 1) * side).min(grid.ny));
+    let r = &grid.elevation;
+    let (c0, c1) = (i * side, ((i + 1) * side).min(r.nx));
+    let (r0, r1) = (j * side, ((j + 1) * side).min(r.ny));
     (
-        [
-            grid.y_max - r1 as f64 * grid.dy,
-            grid.y_max - r0 as f64 * grid.dy,
-        ],
-        [
-            grid.x_min + c0 as f64 * grid.dx,
-            grid.x_min + c1 as f64 * grid.dx,
-        ],
+        [r.y_max - r1 as f64 * r.dy, r.y_max - r0 as f64 * r.dy],
+        [r.x_min + c0 as f64 * r.dx, r.x_min + c1 as f64 * r.dx],
     )
 }
 
@@ -85,14 +80,15 @@ fn finish(x: [f64; 2], y: [f64; 2], z: [f64; 2], centre: [f64; 3], g: Moments) -
 }
 
 impl Pyramid {
-    /// Builds the pyramid over `grid` (cells and their prisms from [`Grid::pieces`]).
-    pub fn build(grid: &Grid) -> Self {
+    /// Builds the pyramid over `grid` (cells and their prisms from [`DemMass::pieces`]).
+    pub fn build(grid: &DemMass) -> Self {
         let mut levels: Vec<Level> = Vec::new();
         let mut level = 1u32;
+        let (cols, rows) = grid.size();
         loop {
             let side = 1usize << level;
-            let nx = grid.nx.div_ceil(side);
-            let ny = grid.ny.div_ceil(side);
+            let nx = cols.div_ceil(side);
+            let ny = rows.div_ceil(side);
             let blocks: Vec<Block> = (0..nx * ny)
                 .into_par_iter()
                 .map(|k| {
@@ -119,10 +115,11 @@ impl Pyramid {
     }
 
     /// A level-1 block from its (up to) 2 × 2 cells.
-    fn from_cells(grid: &Grid, i: usize, j: usize, x: [f64; 2], y: [f64; 2]) -> Block {
+    fn from_cells(grid: &DemMass, i: usize, j: usize, x: [f64; 2], y: [f64; 2]) -> Block {
+        let (nx, ny) = grid.size();
         let cells = || {
-            (2 * j..(2 * j + 2).min(grid.ny))
-                .flat_map(move |row| (2 * i..(2 * i + 2).min(grid.nx)).map(move |col| (col, row)))
+            (2 * j..(2 * j + 2).min(ny))
+                .flat_map(move |row| (2 * i..(2 * i + 2).min(nx)).map(move |col| (col, row)))
         };
         let mut z = [f64::INFINITY, f64::NEG_INFINITY];
         for (col, row) in cells() {
