@@ -145,6 +145,71 @@ pub fn full_tensor(
     measured: &[Option<&Raster>; 6],
     opts: &TensorOptions,
 ) -> Result<TensorGrids, TensorError> {
+    let base = check_inputs(measured, opts)?;
+    let (nx, ny) = (base.nx, base.ny);
+    let (pc, pr) = (2 * nx, 2 * ny);
+    if pc
+        .checked_mul(pr)
+        .and_then(|n| n.checked_mul(16 * 8))
+        .is_none()
+    {
+        return Err(TensorError::TooLarge { nx, ny });
+    }
+    let mut fft = Fft2::new(pr, pc);
+    // Spectra of the measured components, mirror-padded with their parity.
+    let spectra: Vec<Option<Vec<Complex64>>> = (0..6)
+        .map(|c| {
+            measured[c].map(|r| {
+                let mut buf = pad(r, ODD[c]);
+                fft.run(&mut buf, false);
+                buf
+            })
+        })
+        .collect();
+    let waves = Wavenumbers::of(base, pr, pc);
+    let phi = potential_spectrum(&spectra, &opts.noise_e, &waves, opts.upward_m);
+    let derivation = Derivation {
+        spectra: &spectra,
+        phi: &phi,
+        waves: &waves,
+        nx,
+        ny,
+    };
+    let raster = |values: Vec<f64>| Raster {
+        values,
+        nodata: None,
+        ..base.clone()
+    };
+    let mut comps: Vec<Raster> = Vec::with_capacity(6);
+    for c in 0..6 {
+        comps.push(raster(derivation.derive(&mut fft, Some(c))));
+    }
+    let mut gz = derivation.derive(&mut fft, None);
+    let mean = gz.iter().sum::<f64>() / gz.len() as f64;
+    let target = match opts.gz_reference {
+        GzReference::MeanZero => 0.0,
+        GzReference::Mean(v) => v,
+    };
+    for v in &mut gz {
+        *v = (*v - mean) * E_METRE_TO_MGAL + target;
+    }
+    let components: [Raster; 6] = match comps.try_into() {
+        Ok(a) => a,
+        Err(_) => return Err(TensorError::NothingMeasured),
+    };
+    Ok(TensorGrids {
+        components,
+        gz: raster(gz),
+    })
+}
+
+/// Checks the measured components and the options: at least one component; each at least 2 × 2
+/// cells, valid, of the first one's geometry, every cell finite, with a finite positive noise (E);
+/// a finite, non-negative upward continuation (m). Returns the first measured raster.
+fn check_inputs<'r>(
+    measured: &[Option<&'r Raster>; 6],
+    opts: &TensorOptions,
+) -> Result<&'r Raster, TensorError> {
     let first = (0..6)
         .find(|&c| measured[c].is_some())
         .ok_or(TensorError::NothingMeasured)?;
@@ -180,48 +245,67 @@ pub fn full_tensor(
             upward: opts.upward_m,
         });
     }
-    let (nx, ny) = (base.nx, base.ny);
-    let (pc, pr) = (2 * nx, 2 * ny);
-    if pc
-        .checked_mul(pr)
-        .and_then(|n| n.checked_mul(16 * 8))
-        .is_none()
-    {
-        return Err(TensorError::TooLarge { nx, ny });
-    }
-    let mut fft = Fft2::new(pr, pc);
+    Ok(base)
+}
 
-    // Spectra of the measured components, mirror-padded with their parity.
-    let spectra: Vec<Option<Vec<Complex64>>> = (0..6)
-        .map(|c| {
-            measured[c].map(|r| {
-                let mut buf = pad(r, ODD[c]);
-                fft.run(&mut buf, false);
-                buf
-            })
-        })
-        .collect();
-    let weights: Vec<f64> = (0..6).map(|c| 1.0 / (opts.noise_e[c].powi(2))).collect();
+/// The wavenumbers of the padded grid of `pr` rows and `pc` columns, rad/m: rows run southwards,
+/// so north kx = −k_row; columns run eastwards.
+struct Wavenumbers {
+    pr: usize,
+    pc: usize,
+    /// Wavenumber step along rows and along columns, rad/m.
+    dk_row: f64,
+    dk_col: f64,
+}
 
-    // Wavenumbers: rows run southwards, so north kx = −k_row; columns run eastwards.
-    let dk_row = 2.0 * std::f64::consts::PI / (pr as f64 * base.dy);
-    let dk_col = 2.0 * std::f64::consts::PI / (pc as f64 * base.dx);
-    let signed = |i: usize, n: usize| -> f64 {
-        if i <= n / 2 {
-            i as f64
-        } else {
-            i as f64 - n as f64
+impl Wavenumbers {
+    /// The wavenumbers of the padded grid of `base`'s cells (dx, dy in m).
+    fn of(base: &Raster, pr: usize, pc: usize) -> Self {
+        Self {
+            pr,
+            pc,
+            dk_row: 2.0 * std::f64::consts::PI / (pr as f64 * base.dy),
+            dk_col: 2.0 * std::f64::consts::PI / (pc as f64 * base.dx),
         }
-    };
-    let dh = opts.upward_m;
-    // Potential spectrum, row-major over (row, column) of the padded grid.
+    }
+
+    /// kx (north, rad/m) of row `p`, and whether it is the Nyquist row.
+    fn north(&self, p: usize) -> (f64, bool) {
+        (-signed(p, self.pr) * self.dk_row, p == self.pr / 2)
+    }
+
+    /// ky (east, rad/m) of column `q`, and whether it is the Nyquist column.
+    fn east(&self, q: usize) -> (f64, bool) {
+        (signed(q, self.pc) * self.dk_col, q == self.pc / 2)
+    }
+}
+
+/// Index `i` of an FFT of length `n` as a signed frequency index.
+fn signed(i: usize, n: usize) -> f64 {
+    if i <= n / 2 {
+        i as f64
+    } else {
+        i as f64 - n as f64
+    }
+}
+
+/// The potential's spectrum, row-major over (row, column) of the padded grid: at each wavenumber
+/// the least-squares combination of the measured `spectra`, each weighted by 1/σ² (σ in `noise_e`,
+/// E), continued upwards by `dh` m; components odd along an axis are left out at its Nyquist
+/// wavenumber. Zero where nothing is left.
+fn potential_spectrum(
+    spectra: &[Option<Vec<Complex64>>],
+    noise_e: &[f64; 6],
+    waves: &Wavenumbers,
+    dh: f64,
+) -> Vec<Complex64> {
+    let weights: Vec<f64> = (0..6).map(|c| 1.0 / (noise_e[c].powi(2))).collect();
+    let (pr, pc) = (waves.pr, waves.pc);
     let mut phi = vec![Complex64::new(0.0, 0.0); pr * pc];
     phi.par_chunks_mut(pc).enumerate().for_each(|(p, row)| {
-        let kx = -signed(p, pr) * dk_row;
-        let nyq_x = p == pr / 2;
+        let (kx, nyq_x) = waves.north(p);
         for (q, out) in row.iter_mut().enumerate() {
-            let ky = signed(q, pc) * dk_col;
-            let nyq_y = q == pc / 2;
+            let (ky, nyq_y) = waves.east(q);
             let (mut num, mut den) = (Complex64::new(0.0, 0.0), 0.0);
             for c in 0..6 {
                 let Some(f) = &spectra[c] else { continue };
@@ -239,15 +323,29 @@ pub fn full_tensor(
             };
         }
     });
+    phi
+}
 
-    let derive = |fft: &mut Fft2, c: Option<usize>| -> Vec<f64> {
+/// What a derived grid is formed from: the measured spectra, the potential's spectrum, the
+/// wavenumbers and the size of the unpadded grid (`nx` columns, `ny` rows).
+struct Derivation<'a> {
+    spectra: &'a [Option<Vec<Complex64>>],
+    phi: &'a [Complex64],
+    waves: &'a Wavenumbers,
+    nx: usize,
+    ny: usize,
+}
+
+impl Derivation<'_> {
+    /// Component `c` (E, order of [`NAMES`]), or with `None` the vertical derivative's integral
+    /// |k|·φ (E·m, before gz's reference), on the unpadded grid, row-major.
+    fn derive(&self, fft: &mut Fft2, c: Option<usize>) -> Vec<f64> {
+        let (pr, pc, phi) = (self.waves.pr, self.waves.pc, self.phi);
         let mut buf = vec![Complex64::new(0.0, 0.0); pr * pc];
         buf.par_chunks_mut(pc).enumerate().for_each(|(p, row)| {
-            let kx = -signed(p, pr) * dk_row;
-            let nyq_x = p == pr / 2;
+            let (kx, nyq_x) = self.waves.north(p);
             for (q, out) in row.iter_mut().enumerate() {
-                let ky = signed(q, pc) * dk_col;
-                let nyq_y = q == pc / 2;
+                let (ky, nyq_y) = self.waves.east(q);
                 let v = phi[p * pc + q];
                 *out = match c {
                     Some(c) if (nyq_x && ODD[c].0) || (nyq_y && ODD[c].1) => {
@@ -260,45 +358,19 @@ pub fn full_tensor(
         });
         // k = 0: a measured even component keeps its own mean.
         if let Some(c) = c
-            && let Some(f) = &spectra[c]
+            && let Some(f) = &self.spectra[c]
             && ODD[c] == (false, false)
         {
             buf[0] = f[0];
         }
         fft.run(&mut buf, true);
         let norm = 1.0 / (pr * pc) as f64;
-        let mut out = Vec::with_capacity(nx * ny);
-        for r in 0..ny {
-            out.extend(buf[r * pc..r * pc + nx].iter().map(|z| z.re * norm));
+        let mut out = Vec::with_capacity(self.nx * self.ny);
+        for r in 0..self.ny {
+            out.extend(buf[r * pc..r * pc + self.nx].iter().map(|z| z.re * norm));
         }
         out
-    };
-    let raster = |values: Vec<f64>| Raster {
-        values,
-        nodata: None,
-        ..base.clone()
-    };
-    let mut comps: Vec<Raster> = Vec::with_capacity(6);
-    for c in 0..6 {
-        comps.push(raster(derive(&mut fft, Some(c))));
     }
-    let mut gz = derive(&mut fft, None);
-    let mean = gz.iter().sum::<f64>() / gz.len() as f64;
-    let target = match opts.gz_reference {
-        GzReference::MeanZero => 0.0,
-        GzReference::Mean(v) => v,
-    };
-    for v in &mut gz {
-        *v = (*v - mean) * E_METRE_TO_MGAL + target;
-    }
-    let components: [Raster; 6] = match comps.try_into() {
-        Ok(a) => a,
-        Err(_) => return Err(TensorError::NothingMeasured),
-    };
-    Ok(TensorGrids {
-        components,
-        gz: raster(gz),
-    })
 }
 
 /// The raster mirrored to twice its size in both directions (rows i and 2n−1−i hold the same
