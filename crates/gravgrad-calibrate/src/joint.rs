@@ -12,7 +12,7 @@
 //!
 //! Units: m/s² for differences, s⁻² for S, rad/s² for α.
 
-use crate::crossings::Crossing;
+use crate::crossings::{ComponentDrift, Crossing};
 use crate::estimate::{
     Coefficient, Design, HeldTerm, PRODUCTS, PairCalibration, PairData, Settings, fit_with_band,
 };
@@ -1136,43 +1136,8 @@ fn drift_from_crossings(
     s: &Settings,
     fitted: &mut [Option<(PairCalibration, Vec<HeldTerm>)>],
 ) -> Option<String> {
-    let (g, block, tb) = (x.design, x.block, x.time);
-    let xs = x.flight.crossings.unwrap_or(&[]);
-    let crossings: Vec<Crossing> = match x.flight.samples.known.as_ref() {
-        Some(kf) => {
-            let [roll, pitch, heading] = kf.attitude_deg;
-            let c = |i: usize| c_sn_degrees(roll[i], pitch[i], heading[i]);
-            xs.iter()
-                .filter(|(a, b)| *a < roll.len() && *b < roll.len())
-                .map(|&(a, b)| Crossing {
-                    blocks: (a / block, b / block),
-                    c_sn: (c(a), c(b)),
-                })
-                .collect()
-        }
-        None => Vec::new(),
-    };
-    // Each tensor row with its coupling and quadratic parts taken off (with a file, the file's came
-    // off with its other fixed parts already; these are the flight's changes).
-    let rest: Vec<Vec<f64>> = (0..6)
-        .map(|j| match &fitted[j] {
-            Some((c, _)) => x.targets[j]
-                .iter()
-                .enumerate()
-                .map(|(i, y)| {
-                    let mut v = y
-                        - (0..3)
-                            .map(|m| c.kappa[m].value * x.force[m][i])
-                            .sum::<f64>();
-                    if let (Some(q), Some(p)) = (c.quadratic, x.products) {
-                        v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
-                    }
-                    v
-                })
-                .collect(),
-            None => vec![0.0; tb.len()],
-        })
-        .collect();
+    let crossings = crossings_in_blocks(x.flight, x.block);
+    let rest = rows_less_coupling(x, fitted);
     let r6: [&[f64]; 6] = std::array::from_fn(|j| &rest[j][..]);
     let t_mid = fitted[0].as_ref().map_or(0.0, |c| c.0.t_mid);
     let temp_mean = fitted[0].as_ref().map_or(0.0, |c| c.0.temperature_mean);
@@ -1184,7 +1149,7 @@ fn drift_from_crossings(
     };
     let Some(cf) = crate::crossings::fit_drift(
         &r6,
-        tb,
+        x.time,
         t_mid,
         temp_fit,
         x.usable,
@@ -1217,25 +1182,10 @@ fn drift_from_crossings(
                 || h.term == "temperature"
                 || h.term.starts_with("self-gradient"))
         });
-        let level: Vec<f64> = g
-            .line_rows()
-            .iter()
-            .map(|&i| {
-                let dt = tb[i] - t_mid;
-                let mut v = rest[j][i]
-                    - comp
-                        .drift
-                        .iter()
-                        .enumerate()
-                        .map(|(q, co)| co.value * dt.powi(q as i32 + 1))
-                        .sum::<f64>();
-                if let (Some(tc), Some(t)) = (comp.temperature, x.temperature) {
-                    v -= tc.value * (t[i] - temp_mean);
-                }
-                v
-            })
-            .collect();
-        let (bias, sg, held_level) = g.refit_level(&level, !x.with_file, s.min_significance);
+        let level = level_less_drift(x, &rest[j], comp, (t_mid, temp_mean));
+        let (bias, sg, held_level) = x
+            .design
+            .refit_level(&level, !x.with_file, s.min_significance);
         held.extend(held_level);
         c.polynomial = std::iter::once(bias)
             .chain(comp.drift.iter().copied())
@@ -1254,6 +1204,84 @@ fn drift_from_crossings(
         );
     }
     None
+}
+
+/// The flight's crossings (sample pairs of a survey and a tie pass) as blocks of `block` samples,
+/// with the sensor attitude C_sn at each pass; none without the known field's attitude, and a
+/// crossing beyond the attitude series is dropped.
+fn crossings_in_blocks(flight: &FlightData<'_>, block: usize) -> Vec<Crossing> {
+    let xs = flight.crossings.unwrap_or(&[]);
+    match flight.samples.known.as_ref() {
+        Some(kf) => {
+            let [roll, pitch, heading] = kf.attitude_deg;
+            let c = |i: usize| c_sn_degrees(roll[i], pitch[i], heading[i]);
+            xs.iter()
+                .filter(|(a, b)| *a < roll.len() && *b < roll.len())
+                .map(|&(a, b)| Crossing {
+                    blocks: (a / block, b / block),
+                    c_sn: (c(a), c(b)),
+                })
+                .collect()
+        }
+        None => Vec::new(),
+    }
+}
+
+/// Each tensor row's target (block means, s⁻²) with its fitted coupling and quadratic parts taken
+/// off (with a file, the file's came off with its other fixed parts already; these are the
+/// flight's changes); zeros for a row not fitted.
+fn rows_less_coupling(
+    x: &CrossingInputs<'_>,
+    fitted: &[Option<(PairCalibration, Vec<HeldTerm>)>],
+) -> Vec<Vec<f64>> {
+    (0..6)
+        .map(|j| match &fitted[j] {
+            Some((c, _)) => x.targets[j]
+                .iter()
+                .enumerate()
+                .map(|(i, y)| {
+                    let mut v = y
+                        - (0..3)
+                            .map(|m| c.kappa[m].value * x.force[m][i])
+                            .sum::<f64>();
+                    if let (Some(q), Some(p)) = (c.quadratic, x.products) {
+                        v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
+                    }
+                    v
+                })
+                .collect(),
+            None => vec![0.0; x.time.len()],
+        })
+        .collect()
+}
+
+/// A tensor row's level on the design's line blocks (s⁻²): `rest` less the crossings' drift
+/// polynomial in t − t_mid (s) and, when fitted, the temperature term about the mean temperature
+/// (°C); `(t_mid, temp_mean)`.
+fn level_less_drift(
+    x: &CrossingInputs<'_>,
+    rest: &[f64],
+    comp: &ComponentDrift,
+    (t_mid, temp_mean): (f64, f64),
+) -> Vec<f64> {
+    x.design
+        .line_rows()
+        .iter()
+        .map(|&i| {
+            let dt = x.time[i] - t_mid;
+            let mut v = rest[i]
+                - comp
+                    .drift
+                    .iter()
+                    .enumerate()
+                    .map(|(q, co)| co.value * dt.powi(q as i32 + 1))
+                    .sum::<f64>();
+            if let (Some(tc), Some(t)) = (comp.temperature, x.temperature) {
+                v -= tc.value * (t[i] - temp_mean);
+            }
+            v
+        })
+        .collect()
 }
 
 /// A file's coefficient updated by a flight's estimate of its change (`delta`, zero where held):
