@@ -867,7 +867,8 @@ fn flight_log(
         rate,
     };
     let (mut pair_cols, fs_all) = pair_outputs(&sensor, &readings, part.pairs);
-    let mut columns = navigation_columns(ie, &path, &att, &omega, &fs_all, streams);
+    let mut columns = navigation_columns(ie, &path, &att, streams);
+    columns.extend(inertial_columns(ie, &omega, &fs_all, streams));
     columns.extend(temperature_column(
         ie.temperature_log,
         &temperature,
@@ -1367,15 +1368,12 @@ fn pair_outputs(
     (pair_cols, fs_all)
 }
 
-/// The logged navigation with its errors (streams 200 + channel): time (s), position (degrees,
-/// m), attitude (degrees; heading in [0, 360)), gyro rates (sensor axes, rad/s, with a bias and
-/// white noise) and specific force (sensor axes, m/s², with white noise).
+/// The logged navigation with its errors (streams 200 + channel 0–5): time (s), position
+/// (degrees, m) and attitude (degrees; heading in [0, 360)).
 fn navigation_columns(
     ie: &InstrumentErrors,
     path: &FlightPath<'_>,
     att: &[Attitude],
-    omega: &[Vec3],
-    fs_all: &[Vec3],
     streams: FlightStreams,
 ) -> Vec<(String, Vec<f64>)> {
     let (track, lat, lon) = (path.track, path.lat, path.lon);
@@ -1391,24 +1389,7 @@ fn navigation_columns(
     let att_noise: Vec<Vec<f64>> = (0..3)
         .map(|k| pos_noise(&mut nav_rng(3 + k), ie.attitude_noise_deg))
         .collect();
-    let gyro: Vec<Vec<f64>> = (0..3)
-        .map(|k| {
-            let mut r = nav_rng(10 + k);
-            let bias = ie.gyro_bias_rad_s * r.normal();
-            (0..n)
-                .map(|i| omega[i][k as usize] + bias + ie.gyro_noise_rad_s * r.normal())
-                .collect()
-        })
-        .collect();
-    let accel: Vec<Vec<f64>> = (0..3)
-        .map(|k| {
-            let mut r = nav_rng(20 + k);
-            (0..n)
-                .map(|i| fs_all[i][k as usize] + ie.accel_noise_m_s2 * r.normal())
-                .collect()
-        })
-        .collect();
-    let mut columns: Vec<(String, Vec<f64>)> = vec![
+    vec![
         ("time".into(), track.time_s.clone()),
         (
             "lat".into(),
@@ -1446,7 +1427,38 @@ fn navigation_columns(
                 .map(|i| (att[i].heading.to_degrees() + att_noise[2][i]).rem_euclid(360.0))
                 .collect(),
         ),
-    ];
+    ]
+}
+
+/// The logged inertial channels with their errors (streams 200 + channel 10–12 and 20–22): the
+/// gyro rates (sensor axes, rad/s, the true `omega` with a bias and white noise) and the specific
+/// force (sensor axes, m/s², the true `fs_all` with white noise).
+fn inertial_columns(
+    ie: &InstrumentErrors,
+    omega: &[Vec3],
+    fs_all: &[Vec3],
+    streams: FlightStreams,
+) -> Vec<(String, Vec<f64>)> {
+    let n = omega.len();
+    let nav_rng = |channel: u64| streams.rng(200 + channel);
+    let gyro: Vec<Vec<f64>> = (0..3)
+        .map(|k| {
+            let mut r = nav_rng(10 + k);
+            let bias = ie.gyro_bias_rad_s * r.normal();
+            (0..n)
+                .map(|i| omega[i][k as usize] + bias + ie.gyro_noise_rad_s * r.normal())
+                .collect()
+        })
+        .collect();
+    let accel: Vec<Vec<f64>> = (0..3)
+        .map(|k| {
+            let mut r = nav_rng(20 + k);
+            (0..n)
+                .map(|i| fs_all[i][k as usize] + ie.accel_noise_m_s2 * r.normal())
+                .collect()
+        })
+        .collect();
+    let mut columns = Vec::with_capacity(6);
     for (k, name) in ["wx", "wy", "wz"].iter().enumerate() {
         columns.push((name.to_string(), gyro[k].clone()));
     }
