@@ -302,87 +302,14 @@ pub(crate) fn regress_with(
     min_z: f64,
     batch: Option<usize>,
 ) -> Fit {
-    let k = columns.len();
     let n = y.len();
-    let scale = &normal.scale;
-    let rhs: Vec<f64> = (0..k)
-        .map(|i| {
-            if scale[i] > 0.0 {
-                dot(&columns[i], y) / scale[i]
-            } else {
-                0.0
-            }
-        })
-        .collect();
-    let yy: f64 = sum_of_squares(y);
-    let mut held: Vec<HeldTerm> = normal
-        .chol
-        .dependent
-        .iter()
-        .map(|&c| HeldTerm {
-            term: names[c].clone(),
-            estimate: None,
-            effect_rms: None,
-            reason: if scale[c] == 0.0 {
-                "its regressor is zero on the lines".into()
-            } else {
-                "its regressor is not resolved from the others (collinear)".into()
-            },
-        })
-        .collect();
+    let mut held = dependent_terms(normal, names);
     let mut active: Vec<usize> = normal.chol.kept_sorted().to_vec();
-    // Solve on a set of active columns: scaled β̃ and the inverse's diagonal.
-    let solve = |act: &[usize]| -> (Vec<f64>, Vec<f64>) {
-        let sub: Vec<Vec<f64>> = act
-            .iter()
-            .map(|&i| act.iter().map(|&j| normal.a[i][j]).collect())
-            .collect();
-        let f = PivotedCholesky::of(&sub, COLLINEAR_TOLERANCE);
-        let ks = f.kept_sorted();
-        let mut beta = vec![0.0; act.len()];
-        let mut diag = vec![f64::INFINITY; act.len()];
-        for (a, &ia) in ks.iter().enumerate() {
-            beta[ia] = ks
-                .iter()
-                .enumerate()
-                .map(|(b, &ib)| f.inverse_entry(a, b) * rhs[act[ib]])
-                .sum();
-            diag[ia] = f.inverse_entry(a, a);
-        }
-        (beta, diag)
-    };
-    let residual = |act: &[usize], beta: &[f64]| -> Vec<f64> {
-        let mut r = y.to_vec();
-        for (b, &c) in beta.iter().zip(act) {
-            let w = b / scale[c];
-            for (rv, v) in r.iter_mut().zip(&columns[c]) {
-                *rv -= w * v;
-            }
-        }
-        r
-    };
-    let (mut beta, mut diag) = solve(&active);
-    let full_residual = residual(&active, &beta);
-    let inflation = n as f64 / effective_size(&full_residual);
-    // Per column, the factor the classical variance is raised by: n/n_eff, or the cluster-robust
-    // variance's ratio to the classical where that is larger (from the full model, like n_eff).
-    let mut factor = vec![inflation; k];
-    if let Some(b) = batch {
-        let ratios = batch_variance_ratios(normal, columns, &active, &full_residual, b);
-        for (&c, r) in active.iter().zip(ratios) {
-            factor[c] = factor[c].max(r);
-        }
-    }
-    let sigma = |act: &[usize], beta: &[f64], diag: &[f64]| -> Vec<f64> {
-        // RSS = yᵀy − β̃ᵀ·X̃ᵀy at the least-squares solution.
-        let rss = (yy - beta.iter().zip(act).map(|(b, &c)| b * rhs[c]).sum::<f64>()).max(0.0);
-        let var = rss / (n as f64 - act.len() as f64).max(1.0);
-        diag.iter()
-            .zip(act)
-            .map(|(d, &c)| (var * d * factor[c]).sqrt())
-            .collect()
-    };
-    let mut se = sigma(&active, &beta, &diag);
+    let mut r = Regression::new(normal, columns, y);
+    let (mut beta, mut diag) = r.solve(&active);
+    let full_residual = r.residual(&active, &beta);
+    r.set_variance_factors(&active, &full_residual, batch);
+    let mut se = r.sigma(&active, &beta, &diag);
     // With fewer than three degrees of freedom the residual says nothing of the errors: every
     // tested term is held.
     if n < active.len() + 3 {
@@ -403,33 +330,79 @@ pub(crate) fn regress_with(
             });
             active.retain(|x| *x != c);
         }
-        (beta, diag) = solve(&active);
-        se = sigma(&active, &beta, &diag);
+        (beta, diag) = r.solve(&active);
+        se = r.sigma(&active, &beta, &diag);
     }
-    loop {
-        let weakest = active
-            .iter()
-            .enumerate()
-            .filter(|(_, c)| !always.contains(c))
-            .map(|(a, &c)| (a, c, (beta[a] / se[a]).abs()))
-            .filter(|x| x.2.is_nan() || x.2 < min_z)
-            .min_by(|x, y| x.2.total_cmp(&y.2));
-        let Some((a, c, z)) = weakest else { break };
+    while let Some((a, c, z)) = weakest(&active, always, &beta, &se, min_z) {
         held.push(HeldTerm {
             term: names[c].clone(),
             estimate: Some(Coefficient {
-                value: beta[a] / scale[c],
-                std_error: se[a] / scale[c],
+                value: beta[a] / normal.scale[c],
+                std_error: se[a] / normal.scale[c],
             }),
             // The scaled standard error is already σ times the column's RMS.
             effect_rms: Some(se[a]),
             reason: format!("not significant (|estimate| {z:.1} standard errors, {min_z} needed)"),
         });
         active.remove(a);
-        (beta, diag) = solve(&active);
-        se = sigma(&active, &beta, &diag);
+        (beta, diag) = r.solve(&active);
+        se = r.sigma(&active, &beta, &diag);
     }
-    let resid = residual(&active, &beta);
+    let resid = r.residual(&active, &beta);
+    let coefs = coefficients(normal, names, columns.len(), &active, (&beta, &se), &held);
+    Fit { coefs, resid, held }
+}
+
+/// The columns the normal equations' pivoted Cholesky factor found dependent, as held terms: a
+/// regressor zero on the lines, or one not resolved from the others.
+fn dependent_terms(normal: &Normal, names: &[String]) -> Vec<HeldTerm> {
+    normal
+        .chol
+        .dependent
+        .iter()
+        .map(|&c| HeldTerm {
+            term: names[c].clone(),
+            estimate: None,
+            effect_rms: None,
+            reason: if normal.scale[c] == 0.0 {
+                "its regressor is zero on the lines".into()
+            } else {
+                "its regressor is not resolved from the others (collinear)".into()
+            },
+        })
+        .collect()
+}
+
+/// The active column that is the least significant, as (position in `active`, column, |β/σ|),
+/// when it is below `min_z` (or NaN) and not among the columns always kept.
+fn weakest(
+    active: &[usize],
+    always: &[usize],
+    beta: &[f64],
+    se: &[f64],
+    min_z: f64,
+) -> Option<(usize, usize, f64)> {
+    active
+        .iter()
+        .enumerate()
+        .filter(|(_, c)| !always.contains(c))
+        .map(|(a, &c)| (a, c, (beta[a] / se[a]).abs()))
+        .filter(|x| x.2.is_nan() || x.2 < min_z)
+        .min_by(|x, y| x.2.total_cmp(&y.2))
+}
+
+/// Each of the `k` columns' coefficient in the units of y per unit of its regressor: the `active` columns'
+/// scaled estimates and standard errors (`beta`, `se`) unscaled, zero elsewhere; a held term's
+/// standard error is the one it had when held, infinite when it had none.
+fn coefficients(
+    normal: &Normal,
+    names: &[String],
+    k: usize,
+    active: &[usize],
+    (beta, se): (&[f64], &[f64]),
+    held: &[HeldTerm],
+) -> Vec<Coefficient> {
+    let scale = &normal.scale;
     let mut coefs: Vec<Coefficient> = (0..k)
         .map(|_| Coefficient {
             value: 0.0,
@@ -442,12 +415,124 @@ pub(crate) fn regress_with(
             std_error: se[a] / scale[c],
         };
     }
-    for h in &held {
+    for h in held {
         if let Some(c) = names.iter().position(|x| *x == h.term) {
             coefs[c].std_error = h.estimate.map_or(f64::INFINITY, |e| e.std_error);
         }
     }
-    Fit { coefs, resid, held }
+    coefs
+}
+
+/// One regression of y on the columns, on scaled columns X̃ = X/scale (the normal equations'
+/// scale, each column's RMS), solved on any set of active columns.
+struct Regression<'a> {
+    normal: &'a Normal,
+    columns: &'a [Vec<f64>],
+    y: &'a [f64],
+    /// X̃ᵀy per column (0 for a zero column).
+    rhs: Vec<f64>,
+    /// yᵀy.
+    yy: f64,
+    /// Per column, the factor the classical variance is raised by (1 until set).
+    factor: Vec<f64>,
+}
+
+impl<'a> Regression<'a> {
+    /// The regression of `y` on `columns` with their normal equations `normal`.
+    fn new(normal: &'a Normal, columns: &'a [Vec<f64>], y: &'a [f64]) -> Self {
+        let k = columns.len();
+        let scale = &normal.scale;
+        let rhs: Vec<f64> = (0..k)
+            .map(|i| {
+                if scale[i] > 0.0 {
+                    dot(&columns[i], y) / scale[i]
+                } else {
+                    0.0
+                }
+            })
+            .collect();
+        Self {
+            normal,
+            columns,
+            y,
+            rhs,
+            yy: sum_of_squares(y),
+            factor: vec![1.0; k],
+        }
+    }
+
+    /// Solves on the active columns `act`: the scaled β̃ and the inverse normal matrix's diagonal
+    /// (infinite for a column the factor drops).
+    fn solve(&self, act: &[usize]) -> (Vec<f64>, Vec<f64>) {
+        let sub: Vec<Vec<f64>> = act
+            .iter()
+            .map(|&i| act.iter().map(|&j| self.normal.a[i][j]).collect())
+            .collect();
+        let f = PivotedCholesky::of(&sub, COLLINEAR_TOLERANCE);
+        let ks = f.kept_sorted();
+        let mut beta = vec![0.0; act.len()];
+        let mut diag = vec![f64::INFINITY; act.len()];
+        for (a, &ia) in ks.iter().enumerate() {
+            beta[ia] = ks
+                .iter()
+                .enumerate()
+                .map(|(b, &ib)| f.inverse_entry(a, b) * self.rhs[act[ib]])
+                .sum();
+            diag[ia] = f.inverse_entry(a, a);
+        }
+        (beta, diag)
+    }
+
+    /// y − X·β for the active columns `act` and their scaled coefficients `beta`, in y's unit.
+    fn residual(&self, act: &[usize], beta: &[f64]) -> Vec<f64> {
+        let scale = &self.normal.scale;
+        let mut r = self.y.to_vec();
+        for (b, &c) in beta.iter().zip(act) {
+            let w = b / scale[c];
+            for (rv, v) in r.iter_mut().zip(&self.columns[c]) {
+                *rv -= w * v;
+            }
+        }
+        r
+    }
+
+    /// Per column, the factor the classical variance is raised by: n/n_eff of the full model's
+    /// residual `full_residual`, or with `batch` the cluster-robust variance's ratio to the
+    /// classical where that is larger (for the `active` columns, from the full model too).
+    fn set_variance_factors(
+        &mut self,
+        active: &[usize],
+        full_residual: &[f64],
+        batch: Option<usize>,
+    ) {
+        let inflation = self.y.len() as f64 / effective_size(full_residual);
+        self.factor = vec![inflation; self.columns.len()];
+        if let Some(b) = batch {
+            let ratios = batch_variance_ratios(self.normal, self.columns, active, full_residual, b);
+            for (&c, r) in active.iter().zip(ratios) {
+                self.factor[c] = self.factor[c].max(r);
+            }
+        }
+    }
+
+    /// The scaled standard errors of the active columns `act` (scaled estimates `beta`, inverse
+    /// diagonal `diag`): √(σ²·d·factor) with σ² = RSS/(n − active), RSS = yᵀy − β̃ᵀ·X̃ᵀy at the
+    /// least-squares solution.
+    fn sigma(&self, act: &[usize], beta: &[f64], diag: &[f64]) -> Vec<f64> {
+        let n = self.y.len();
+        let rss = (self.yy
+            - beta
+                .iter()
+                .zip(act)
+                .map(|(b, &c)| b * self.rhs[c])
+                .sum::<f64>())
+        .max(0.0);
+        let var = rss / (n as f64 - act.len() as f64).max(1.0);
+        diag.iter()
+            .zip(act)
+            .map(|(d, &c)| (var * d * self.factor[c]).sqrt())
+            .collect()
+    }
 }
 
 /// For each `active` column, the ratio of its coefficient's cluster-robust variance to its

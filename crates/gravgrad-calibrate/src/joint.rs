@@ -12,14 +12,14 @@
 //!
 //! Units: m/s² for differences, s⁻² for S, rad/s² for α.
 
-use crate::crossings::Crossing;
+use crate::crossings::{ComponentDrift, Crossing};
 use crate::estimate::{
     Coefficient, Design, HeldTerm, PRODUCTS, PairCalibration, PairData, Settings, fit_with_band,
 };
 use gravgrad_core::SymTensor;
 use gravgrad_core::attitude::{c_sn_degrees, c_sn_degrees_span};
 use gravgrad_core::pairs::UNKNOWNS;
-use gravgrad_core::pairs::{PairGeometry, pseudo_inverse};
+use gravgrad_core::pairs::{Operator, PairGeometry, pseudo_inverse};
 use rayon::prelude::*;
 
 /// The known gravitational field along a flight, whose part −nᵀ·G_s·b every pair difference carries
@@ -351,319 +351,526 @@ pub fn estimate_flight(
 
 /// [`estimate_flight`] from the block means of `d`'s pair samples formed already (with the same
 /// settings). `d`'s pair samples are not read again, only their geometry.
+///
+/// The steps: the solve's operator for the pair set; the regressors' block means; each pair's
+/// target z_p; the unknowns' and residuals' targets beside the fits' shared design; every target
+/// band-passed; the gyro bias taken off; every target fitted; the tensor's drift refitted from the
+/// crossings; and every pair's calibration combined from the fits of its rows.
 pub fn estimate_from_blocks(
     d: &FlightData<'_>,
     blocks: &PairBlocks,
     s: &Settings,
     fixed: Option<&[PairCalibration]>,
 ) -> FlightCalibration {
-    let pairs = d.samples.pairs;
-    let np = pairs.len();
-    let alpha_from_pairs = d.alpha_from_pairs;
-    let k = if alpha_from_pairs { 9 } else { 6 };
-    let rows: Vec<[f64; 9]> = pairs.iter().map(PairGeometry::design_row).collect();
-    let a: Vec<Vec<f64>> = rows.iter().map(|r| r[..k].to_vec()).collect();
-    let op = pseudo_inverse(&a, k);
-    // z_p = −(d_p − n_pᵀ·M·b_p − fixed part), less the gyro α term when the solve uses it.
-    // Everything here is linear in the samples, so the model holds as well for block means as for
-    // samples; and z is linear in d_p and in M's components, so its block means come from theirs.
-    let block = blocks.block;
-    let mean = |x: &[f64]| block_means(x, block);
-    // The fixed part (κ·f, temperature and self-gradient terms; bias and drift are fitted) is linear
-    // too: taken off at block level, from the block means of its regressors.
-    let fixed_parts: Option<Vec<PairCalibration>> = fixed.map(|fx| {
-        fx.iter()
-            .map(|c| {
-                let mut c = c.clone();
-                c.polynomial.clear();
-                // Taken off below from the products' block means.
-                c.quadratic = None;
-                c
+    let unknowns = Unknowns::of(d.samples.pairs, d.alpha_from_pairs);
+    let reg = BlockRegressors::of(d, blocks, s, fixed);
+    let z = pair_targets(&unknowns, blocks, &reg, fixed);
+    // The gyro bias is fitted once for the instrument (below), not per row.
+    let fit_gyro_bias = s.gyro_rate;
+    let settings_b = Settings {
+        rate_hz: s.rate_hz / reg.block as f64,
+        gyro_rate: false,
+        ..s.clone()
+    };
+    let s = &settings_b;
+    let pa = unknowns.gyro_prediction();
+    let has_residual = unknowns.has_residual();
+    let with_file = fixed.is_some();
+    let (design, mut targets) = rayon::join(
+        || block_design(&reg, with_file, s),
+        || solve_targets(&unknowns, &z, &pa, &has_residual, &reg),
+    );
+    let mut band_targets = band_pass_targets(&design, &targets);
+    // The gyros' bias from the tensor rows, jointly; its trace taken off every unknown's target.
+    let gyro_bias = fit_gyro_bias.then(|| {
+        crate::gyro_bias::take_off(
+            &design,
+            &pa,
+            reg.rates(),
+            (&mut targets, &mut band_targets),
+            s.min_significance,
+        )
+    });
+    let mut fitted = fit_targets(&design, &targets, &band_targets, &reg, with_file, s);
+    let crossing_note = tensor_drift(&design, d, &reg, &targets, with_file, s, &mut fitted);
+    let mut notes: Vec<String> = crossing_note.into_iter().collect();
+    notes.extend(gyro_bias.as_ref().and_then(crate::gyro_bias::note));
+    let mut health = flight_health(&unknowns, &fitted, gyro_bias.as_ref(), &design, notes, s);
+    let combination = PairCombination {
+        unknowns: &unknowns,
+        held: held_estimates(&fitted),
+        fits: fitted.into_iter().map(|f| f.map(|x| x.0)).collect(),
+        gyro_bias: gyro_bias.as_ref(),
+        f0: reg.f0,
+    };
+    let np = unknowns.pairs.len();
+    let mut pairs = Vec::with_capacity(np);
+    for p in 0..np {
+        let (cal, change) = combination.pair(p, fixed);
+        pairs.push(cal);
+        health
+            .file_change
+            .extend(change.into_iter().map(|(term, z)| (p, term, z)));
+    }
+    FlightCalibration { pairs, health }
+}
+
+/// A fitted series' calibration with the terms it held (with their estimates then); `None` for a
+/// series that was not fitted (a pair without a residual of its own).
+type Fitted = Option<(PairCalibration, Vec<HeldTerm>)>;
+
+/// The solve's view of the pair set: each pair's design row and the pseudo-inverse P with which the
+/// solve forms the unknowns û = P·(−d) (`docs/physics.md`). A pair's difference is −A·u, m/s², for
+/// u = [S (s⁻², sensor frame); α (rad/s², sensor axes)], so A's entries are in m and P's in m⁻¹.
+struct Unknowns<'a> {
+    pairs: &'a [PairGeometry],
+    /// Each pair's full design row [Sxx Sxy Sxz Syy Syz Szz αx αy αz], m.
+    rows: Vec<[f64; 9]>,
+    /// A: the rows cut to the `k` unknowns the solve forms, m.
+    a: Vec<Vec<f64>>,
+    /// P, k × pairs, m⁻¹.
+    op: Operator,
+    /// Number of unknowns: 9 when the pairs give α, else 6.
+    k: usize,
+    /// True when the solve takes α from the pairs; false: from the gyros.
+    alpha_from_pairs: bool,
+}
+
+impl<'a> Unknowns<'a> {
+    /// The design rows of `pairs` and their pseudo-inverse, α among the unknowns when
+    /// `alpha_from_pairs`.
+    fn of(pairs: &'a [PairGeometry], alpha_from_pairs: bool) -> Self {
+        let k = if alpha_from_pairs { 9 } else { 6 };
+        let rows: Vec<[f64; 9]> = pairs.iter().map(PairGeometry::design_row).collect();
+        let a: Vec<Vec<f64>> = rows.iter().map(|r| r[..k].to_vec()).collect();
+        let op = pseudo_inverse(&a, k);
+        Self {
+            pairs,
+            rows,
+            a,
+            op,
+            k,
+            alpha_from_pairs,
+        }
+    }
+
+    /// P·A (k × k, dimensionless), to predict the α the unknown rows carry from the gyros.
+    fn gyro_prediction(&self) -> Vec<Vec<f64>> {
+        let (k, np, op, a) = (self.k, self.pairs.len(), &self.op, &self.a);
+        (0..k)
+            .map(|j| {
+                (0..k)
+                    .map(|m| (0..np).map(|p| op.p[j][p] * a[p][m]).sum())
+                    .collect()
             })
             .collect()
-    });
-    let m_b = &blocks.m;
-    // The block means of what the fits read: force, gyro α, time, temperature, relative attitude.
-    let ab: Vec<Vec<f64>> = d.alpha.iter().map(|v| mean(v)).collect();
-    // The angular rate's block means: the regressors of the gyro bias's trace.
-    let wb: Vec<Vec<f64>> = d.samples.omega.iter().map(|v| mean(v)).collect();
-    // The axis errors' regressors: the gyro α's block means, and M = ΩΩ − G's (formed already for
-    // the known part of every difference; the G part is m̄ᵀ·G·b, the normal gradient times 1e-5).
-    let use_rotation = s.rotation_coupling;
-    let tb = mean(d.time);
-    // The quadratic terms' regressors: block means of the products of the force's deviations from
-    // its mean over the lines (products of block means would miss the power inside a block).
-    // With a file whose quadratic terms are centred on its own force origin, the products are
-    // formed about that origin, so that the flight's refinement of them adds to the file's.
-    let fixed_quadratic = fixed.is_some_and(|fx| fx.iter().any(|c| c.quadratic.is_some()));
-    let f0 = match fixed.and_then(|fx| fx.iter().find(|c| c.quadratic.is_some())) {
-        Some(c) => c.force_mean,
-        None => crate::estimate::force_mean(d.f, d.usable),
-    };
-    let (fb, pb) = force_block_means(d.f, (s.quadratic || fixed_quadratic).then_some(f0), block);
-    let temp_b = d.temperature.map(mean);
-    let rel_b: Option<Vec<Vec<f64>>> = d
-        .relative_attitude
-        .map(|r| r.iter().map(|v| mean(v)).collect());
-    let usable_b: Option<Vec<bool>> = d
-        .usable
-        .map(|u| u.chunks(block).map(|c| c.iter().all(|x| *x)).collect());
-    // A series at block level with the regressors' block means (pair geometry not read by the fits
-    // or the corrections).
-    let block_series = |y| PairData {
-        geometry: &pairs[0],
-        difference: y,
-        omega: [&wb[0], &wb[1], &wb[2]],
-        f: [&fb[0], &fb[1], &fb[2]],
-        alpha: [&ab[0], &ab[1], &ab[2]],
-        time: &tb,
-        temperature: temp_b.as_deref(),
-        usable: usable_b.as_deref(),
-        expected: None,
-        relative_attitude: rel_b.as_ref().map(|r| [&r[0][..], &r[1][..]]),
-    };
-    // z_p per block: the pair's difference less n_pᵀ·M·b_p, M's components one at a time across
-    // the blocks (vectorised), less the gyro α term when the solve takes α from the gyros. The
-    // coefficients of n_pᵀ·M·b_p on M's components xx xy xz yy yz zz are those of S in the pair's
-    // design row.
-    let z: Vec<Vec<f64>> = (0..np)
+    }
+
+    /// Per pair, whether its row of the residual projector I − A·P carries anything; a pair whose
+    /// row vanishes has no residual of its own to fit.
+    fn has_residual(&self) -> Vec<bool> {
+        let (k, np, op, a) = (self.k, self.pairs.len(), &self.op, &self.a);
+        (0..np)
+            .map(|p| {
+                (0..np).any(|q| {
+                    let ap: f64 = (0..k).map(|j| a[p][j] * op.p[j][q]).sum();
+                    let v = if p == q { 1.0 - ap } else { -ap };
+                    v.abs() > 1e-9
+                })
+            })
+            .collect()
+    }
+
+    /// The name of fitted series `t`: the unknowns (`Gxx` … `αz`), then each pair's own residual
+    /// (`pair <id>`).
+    fn target_name(&self, t: usize) -> String {
+        if t < self.k {
+            UNKNOWNS[t].to_string()
+        } else {
+            format!("pair {}", self.pairs[t - self.k].id)
+        }
+    }
+}
+
+/// What the fits read besides their targets, as block means over blocks of `block` samples: the
+/// model is linear in the samples, so it holds as well for block means as for samples.
+struct BlockRegressors<'a> {
+    /// The pair set (a series' geometry, which the fits and corrections do not read).
+    pairs: &'a [PairGeometry],
+    /// Samples per block.
+    block: usize,
+    /// M = ΩΩ − G_s's components xx xy xz yy yz zz, sensor frame, s⁻² ([`PairBlocks`]).
+    m: &'a [Vec<f64>],
+    /// Angular acceleration from the gyros, sensor axes, rad/s².
+    alpha: Vec<Vec<f64>>,
+    /// Angular rate, sensor axes, rad/s: the regressors of the gyro bias's trace.
+    omega: Vec<Vec<f64>>,
+    /// Time, s.
+    time: Vec<f64>,
+    /// The origin of the force's deviations in the quadratic terms, sensor axes, m/s².
+    f0: [f64; 3],
+    /// Specific force, sensor axes, m/s².
+    force: [Vec<f64>; 3],
+    /// Products of the force's deviations from `f0`, m²/s⁴, in the order of [`PRODUCTS`], when the
+    /// quadratic terms are fitted or a file's are taken off.
+    products: Option<[Vec<f64>; 6]>,
+    /// Sensor temperature, °C, when logged.
+    temperature: Option<Vec<f64>>,
+    /// Aircraft attitude relative to the platform, radians, [roll, pitch], when logged.
+    relative_attitude: Option<Vec<Vec<f64>>>,
+    /// True for a block whose samples are all usable; `None`: all.
+    usable: Option<Vec<bool>>,
+}
+
+impl<'a> BlockRegressors<'a> {
+    /// The block means of what the fits read of flight `d`, on the blocks of `blocks`.
+    fn of(
+        d: &FlightData<'a>,
+        blocks: &'a PairBlocks,
+        s: &Settings,
+        fixed: Option<&[PairCalibration]>,
+    ) -> Self {
+        let block = blocks.block;
+        let mean = |x: &[f64]| block_means(x, block);
+        let alpha = d.alpha.iter().map(|v| mean(v)).collect();
+        let omega = d.samples.omega.iter().map(|v| mean(v)).collect();
+        let time = mean(d.time);
+        // The quadratic terms' regressors: block means of the products of the force's deviations
+        // from its mean over the lines (products of block means would miss the power inside a
+        // block). With a file whose quadratic terms are centred on its own force origin, the
+        // products are formed about that origin, so that the flight's refinement of them adds to
+        // the file's.
+        let fixed_quadratic = fixed.is_some_and(|fx| fx.iter().any(|c| c.quadratic.is_some()));
+        let f0 = match fixed.and_then(|fx| fx.iter().find(|c| c.quadratic.is_some())) {
+            Some(c) => c.force_mean,
+            None => crate::estimate::force_mean(d.f, d.usable),
+        };
+        let (force, products) =
+            force_block_means(d.f, (s.quadratic || fixed_quadratic).then_some(f0), block);
+        Self {
+            pairs: d.samples.pairs,
+            block,
+            m: &blocks.m,
+            alpha,
+            omega,
+            time,
+            f0,
+            force,
+            products,
+            temperature: d.temperature.map(mean),
+            relative_attitude: d
+                .relative_attitude
+                .map(|r| r.iter().map(|v| mean(v)).collect()),
+            usable: d
+                .usable
+                .map(|u| u.chunks(block).map(|c| c.iter().all(|x| *x)).collect()),
+        }
+    }
+
+    /// A series at block level with difference `y` (m/s² or s⁻², whatever the target is) and the
+    /// regressors' block means; its pair geometry is not read by the fits or the corrections.
+    fn series<'s>(&'s self, y: &'s [f64]) -> PairData<'s> {
+        PairData {
+            geometry: &self.pairs[0],
+            difference: y,
+            omega: self.rates(),
+            f: [&self.force[0], &self.force[1], &self.force[2]],
+            alpha: [&self.alpha[0], &self.alpha[1], &self.alpha[2]],
+            time: &self.time,
+            temperature: self.temperature.as_deref(),
+            usable: self.usable.as_deref(),
+            expected: None,
+            relative_attitude: self
+                .relative_attitude
+                .as_ref()
+                .map(|r| [&r[0][..], &r[1][..]]),
+        }
+    }
+
+    /// The angular rate's block means, sensor axes, rad/s.
+    fn rates(&self) -> [&[f64]; 3] {
+        [&self.omega[0], &self.omega[1], &self.omega[2]]
+    }
+}
+
+/// Each pair's target z_p per block, m/s²: z_p = −(d_p − n_pᵀ·M·b_p − fixed part), less the gyro
+/// α term when the solve takes α from the gyros. z is linear in d_p and in M's components, so its
+/// block means come from theirs. The fixed part (a file's κ·f, temperature and self-gradient
+/// terms, and its quadratic terms from the products' block means; bias and drift are fitted) is
+/// linear too and comes off at block level. Pairs in parallel.
+fn pair_targets(
+    u: &Unknowns<'_>,
+    blocks: &PairBlocks,
+    reg: &BlockRegressors<'_>,
+    fixed: Option<&[PairCalibration]>,
+) -> Vec<Vec<f64>> {
+    let fixed_parts = fixed.map(without_fitted_terms);
+    (0..u.pairs.len())
         .into_par_iter()
         .map(|p| {
-            let (cp, rw) = (&rows[p][..6], &rows[p]);
+            let rw = &u.rows[p];
             let db = &blocks.d[p];
-            let mut known = vec![-0.0; db.len()];
-            for (cc, mc) in cp.iter().zip(m_b) {
-                for (kv, m) in known.iter_mut().zip(mc) {
-                    *kv += cc * m;
-                }
-            }
-            let mut zp: Vec<f64> = match &fixed_parts {
-                None => db.iter().zip(&known).map(|(v, k)| -(v - k)).collect(),
-                Some(c) => {
-                    let bd = block_series(&[]);
-                    // The file's quadratic part about its own origin m, from the products about
-                    // this flight's f0: (f_a − m_a)(f_b − m_b) = P_ab + δ_a(f_b − f0_b) +
-                    // δ_b(f_a − f0_a) + δ_a·δ_b with δ = f0 − m.
-                    let quad = |i: usize| -> f64 {
-                        match (fixed.and_then(|fx| fx[p].quadratic), &pb) {
-                            (Some(q), Some(pb)) => {
-                                let m = fixed.map_or([0.0; 3], |fx| fx[p].force_mean);
-                                let dl: [f64; 3] = std::array::from_fn(|k| f0[k] - m[k]);
-                                let dev: [f64; 3] = std::array::from_fn(|k| fb[k][i] - f0[k]);
-                                PRODUCTS
-                                    .iter()
-                                    .zip(q)
-                                    .enumerate()
-                                    .map(|(j, ((a, b), qm))| {
-                                        qm.value
-                                            * (pb[j][i]
-                                                + dl[*a] * dev[*b]
-                                                + dl[*b] * dev[*a]
-                                                + dl[*a] * dl[*b])
-                                    })
-                                    .sum()
-                            }
-                            _ => 0.0,
-                        }
-                    };
+            let known = known_part(&rw[..6], reg.m, db.len());
+            let mut zp: Vec<f64> = match (&fixed_parts, fixed) {
+                (Some(c), Some(fx)) => {
+                    let bd = reg.series(&[]);
                     db.iter()
                         .zip(&known)
                         .enumerate()
-                        .map(|(i, (v, k))| -((v - c[p].correction_at(&bd, i) - quad(i)) - k))
+                        .map(|(i, (v, k))| {
+                            -((v - c[p].correction_at(&bd, i) - file_quadratic(&fx[p], reg, i)) - k)
+                        })
                         .collect()
                 }
+                _ => db.iter().zip(&known).map(|(v, k)| -(v - k)).collect(),
             };
-            if !alpha_from_pairs {
+            if !u.alpha_from_pairs {
+                let ab = &reg.alpha;
                 for (i, zv) in zp.iter_mut().enumerate() {
                     *zv -= rw[6] * ab[0][i] + rw[7] * ab[1][i] + rw[8] * ab[2][i];
                 }
             }
             zp
         })
-        .collect();
-    // The gyro bias is fitted once for the instrument (below), not per row.
-    let fit_gyro_bias = s.gyro_rate;
-    let settings_b = Settings {
-        rate_hz: s.rate_hz / block as f64,
-        gyro_rate: false,
-        ..s.clone()
+        .collect()
+}
+
+/// A file's coefficients without the terms a flight with the file fits or takes off elsewhere: bias
+/// and drift (fitted) and the quadratic terms ([`file_quadratic`]).
+fn without_fitted_terms(fixed: &[PairCalibration]) -> Vec<PairCalibration> {
+    fixed
+        .iter()
+        .map(|c| {
+            let mut c = c.clone();
+            c.polynomial.clear();
+            c.quadratic = None;
+            c
+        })
+        .collect()
+}
+
+/// n_pᵀ·M·b_p per block (m/s²) of `len` blocks: M's components (s⁻², sensor frame) one at a time
+/// across the blocks (vectorised), summed from −0. `coefficients` are the S part of the pair's
+/// design row (m), which are those of n_pᵀ·M·b_p on M's components xx xy xz yy yz zz.
+fn known_part(coefficients: &[f64], m: &[Vec<f64>], len: usize) -> Vec<f64> {
+    let mut known = vec![-0.0; len];
+    for (cc, mc) in coefficients.iter().zip(m) {
+        for (kv, m) in known.iter_mut().zip(mc) {
+            *kv += cc * m;
+        }
+    }
+    known
+}
+
+/// A file's quadratic part of a pair's difference at block `i`, m/s², about the file's own force
+/// origin m, from the products' block means about this flight's f0 (sensor axes, m/s²):
+/// (f_a − m_a)(f_b − m_b) = P_ab + δ_a(f_b − f0_b) + δ_b(f_a − f0_a) + δ_a·δ_b with δ = f0 − m.
+/// Zero when the file has no quadratic terms or no products were formed.
+fn file_quadratic(file: &PairCalibration, reg: &BlockRegressors<'_>, i: usize) -> f64 {
+    match (file.quadratic, &reg.products) {
+        (Some(q), Some(pb)) => {
+            let (f0, fb, m) = (reg.f0, &reg.force, file.force_mean);
+            let dl: [f64; 3] = std::array::from_fn(|k| f0[k] - m[k]);
+            let dev: [f64; 3] = std::array::from_fn(|k| fb[k][i] - f0[k]);
+            PRODUCTS
+                .iter()
+                .zip(q)
+                .enumerate()
+                .map(|(j, ((a, b), qm))| {
+                    qm.value * (pb[j][i] + dl[*a] * dev[*b] + dl[*b] * dev[*a] + dl[*a] * dl[*b])
+                })
+                .sum()
+        }
+        _ => 0.0,
+    }
+}
+
+/// The fits' regressors at block level (the force band-passed, the polynomial, temperature,
+/// quadratic and axis-error columns) and their normal equations, formed once for all targets.
+/// With a file (`with_file`), the flight refines what its own data see: coupling, quadratic and
+/// temperature terms, bias and drift (the file's self-gradient is kept: no relative attitude).
+fn block_design(reg: &BlockRegressors<'_>, with_file: bool, s: &Settings) -> Design {
+    let products = if s.quadratic {
+        reg.products.as_ref()
+    } else {
+        None
     };
-    let s = &settings_b;
-    let n = tb.len();
-    // PA, to predict the α the unknown rows carry from the gyros.
-    let pa: Vec<Vec<f64>> = (0..k)
+    let mut series = reg.series(&reg.time);
+    if with_file {
+        series.relative_attitude = None;
+    }
+    // The axis errors' regressors: the gyro α's block means, and M = ΩΩ − G's (formed already for
+    // the known part of every difference; the G part is m̄ᵀ·G·b, the normal gradient times 1e-5).
+    let (ab, m_b) = (&reg.alpha, reg.m);
+    let rotation: Option<[&[f64]; 9]> = s.rotation_coupling.then(|| {
+        [
+            &ab[0][..],
+            &ab[1][..],
+            &ab[2][..],
+            &m_b[0][..],
+            &m_b[1][..],
+            &m_b[2][..],
+            &m_b[3][..],
+            &m_b[4][..],
+            &m_b[5][..],
+        ]
+    });
+    Design::new(&series, false, products.map(|p| (p, reg.f0)), rotation, s)
+}
+
+/// The series the fits read, per block: first −û_j for each unknown (s⁻² or rad/s²; plus the gyro
+/// prediction P·A (`pa`) of its α content from the gyro α's block means, when the pairs give α),
+/// then −r_p for each pair (m/s²; empty where `has_residual` is false), with û = P·z and
+/// r_p = z_p − A_p·û.
+fn solve_targets(
+    u: &Unknowns<'_>,
+    z: &[Vec<f64>],
+    pa: &[Vec<f64>],
+    has_residual: &[bool],
+    reg: &BlockRegressors<'_>,
+) -> Vec<Vec<f64>> {
+    let (n, alpha) = (reg.time.len(), &reg.alpha);
+    let uh = unknowns_of(&u.op, z, n);
+    let mut targets: Vec<Vec<f64>> = (0..u.k)
+        .into_par_iter()
         .map(|j| {
-            (0..k)
-                .map(|m| (0..np).map(|p| op.p[j][p] * a[p][m]).sum())
-                .collect()
-        })
-        .collect();
-    // The residual projector I − A·P; rows that vanish carry nothing.
-    let has_residual: Vec<bool> = (0..np)
-        .map(|p| {
-            (0..np).any(|q| {
-                let ap: f64 = (0..k).map(|j| a[p][j] * op.p[j][q]).sum();
-                let v = if p == q { 1.0 - ap } else { -ap };
-                v.abs() > 1e-9
-            })
-        })
-        .collect();
-    // The fits' regressors (the force band-passed, the polynomial and temperature columns) and
-    // their normal equations, formed once for all targets, beside the targets: −û_j (+ the gyro
-    // prediction of its α content) and −r_p.
-    let (design, mut targets) = rayon::join(
-        || {
-            // With a file, the flight refines what its own data see: coupling, quadratic and
-            // temperature terms, bias and drift (the file's self-gradient is kept).
-            let products = if s.quadratic { pb.as_ref() } else { None };
-            let mut series = block_series(&tb);
-            if fixed.is_some() {
-                series.relative_attitude = None;
+            let mut t: Vec<f64> = uh[j].iter().map(|v| -v).collect();
+            if u.alpha_from_pairs {
+                for (i, tv) in t.iter_mut().enumerate() {
+                    *tv += (0..3).map(|m| pa[j][6 + m] * alpha[m][i]).sum::<f64>();
+                }
             }
-            let rotation: Option<[&[f64]; 9]> = use_rotation.then(|| {
-                [
-                    &ab[0][..],
-                    &ab[1][..],
-                    &ab[2][..],
-                    &m_b[0][..],
-                    &m_b[1][..],
-                    &m_b[2][..],
-                    &m_b[3][..],
-                    &m_b[4][..],
-                    &m_b[5][..],
-                ]
-            });
-            Some(Design::new(
-                &series,
-                false,
-                products.map(|p| (p, f0)),
-                rotation,
-                s,
-            ))
-        },
-        || {
-            // û_j = Σ_p P_jp·z_p, whole series at a time (vectorised), terms added in pair order.
-            let u: Vec<Vec<f64>> = (0..k)
-                .into_par_iter()
-                .map(|j| {
-                    let mut uj = vec![-0.0; n];
-                    for (pjp, zp) in op.p[j].iter().zip(&z) {
-                        for (x, zv) in uj.iter_mut().zip(zp) {
-                            *x += pjp * zv;
-                        }
-                    }
-                    uj
-                })
-                .collect();
-            let mut targets: Vec<Vec<f64>> = (0..k)
-                .into_par_iter()
-                .map(|j| {
-                    let mut t: Vec<f64> = u[j].iter().map(|v| -v).collect();
-                    if alpha_from_pairs {
-                        for (i, tv) in t.iter_mut().enumerate() {
-                            *tv += (0..3).map(|m| pa[j][6 + m] * ab[m][i]).sum::<f64>();
-                        }
-                    }
-                    t
-                })
-                .collect();
-            targets.par_extend((0..np).into_par_iter().map(|p| {
-                if has_residual[p] {
-                    (0..n)
-                        .map(|i| -(z[p][i] - (0..k).map(|j| a[p][j] * u[j][i]).sum::<f64>()))
-                        .collect()
-                } else {
-                    Vec::new()
+            t
+        })
+        .collect();
+    targets.par_extend((0..u.pairs.len()).into_par_iter().map(|p| {
+        if has_residual[p] {
+            (0..n)
+                .map(|i| -(z[p][i] - (0..u.k).map(|j| u.a[p][j] * uh[j][i]).sum::<f64>()))
+                .collect()
+        } else {
+            Vec::new()
+        }
+    }));
+    targets
+}
+
+/// û_j = Σ_p P_jp·z_p over `n` blocks (s⁻² or rad/s² from z in m/s²), whole series at a time
+/// (vectorised), the terms added in pair order from −0.
+fn unknowns_of(op: &Operator, z: &[Vec<f64>], n: usize) -> Vec<Vec<f64>> {
+    op.p.par_iter()
+        .map(|row| {
+            let mut uj = vec![-0.0; n];
+            for (pjp, zp) in row.iter().zip(z) {
+                for (x, zv) in uj.iter_mut().zip(zp) {
+                    *x += pjp * zv;
                 }
-            }));
-            targets
-        },
-    );
-    // Every target band-passed once, for the gyro bias and the rows' band fits.
-    let mut band_targets: Vec<Vec<f64>> = match design.as_ref() {
-        Some(g) => targets
-            .par_iter()
-            .map(|t| {
-                if t.is_empty() {
-                    Vec::new()
-                } else {
-                    g.band_pass(t)
-                }
-            })
-            .collect(),
-        None => Vec::new(),
-    };
-    // The gyros' bias from the tensor rows, jointly; its trace taken off every unknown's target.
-    let gyro_bias = match design.as_ref() {
-        Some(g) if fit_gyro_bias => Some(crate::gyro_bias::take_off(
-            g,
-            &pa,
-            [&wb[0], &wb[1], &wb[2]],
-            (&mut targets, &mut band_targets),
-            s.min_significance,
-        )),
-        _ => None,
-    };
-    // Fit each target: the full model, or bias and drift only.
-    let products = if s.quadratic { pb.as_ref() } else { None };
-    let fitted: Vec<Option<(PairCalibration, Vec<HeldTerm>)>> = targets
+            }
+            uj
+        })
+        .collect()
+}
+
+/// Every target band-passed once in `design`'s band and runs, for the gyro bias and the band fits;
+/// an empty target stays empty.
+fn band_pass_targets(design: &Design, targets: &[Vec<f64>]) -> Vec<Vec<f64>> {
+    targets
         .par_iter()
-        .zip(&band_targets)
+        .map(|t| {
+            if t.is_empty() {
+                Vec::new()
+            } else {
+                design.band_pass(t)
+            }
+        })
+        .collect()
+}
+
+/// Every target fitted against `design` (the full model, or bias and drift only as the settings
+/// say), in parallel; an empty target is not fitted. With a file in force (`with_file`) the targets
+/// have the file's parts taken off already: what is fitted is the flight's change to them.
+fn fit_targets(
+    design: &Design,
+    targets: &[Vec<f64>],
+    band_targets: &[Vec<f64>],
+    reg: &BlockRegressors<'_>,
+    with_file: bool,
+    s: &Settings,
+) -> Vec<Fitted> {
+    let products = if s.quadratic {
+        reg.products.as_ref()
+    } else {
+        None
+    };
+    targets
+        .par_iter()
+        .zip(band_targets)
         .map(|(y, y_band)| {
             if y.is_empty() {
                 return None;
             }
-            let mut data = block_series(y);
-            if fixed.is_some() {
+            let mut data = reg.series(y);
+            if with_file {
                 data.relative_attitude = None;
             }
-            // With a file in force the targets have the file's parts taken off already: what is
-            // fitted here is the flight's change to them, combined with the file below.
-            design
-                .as_ref()
-                .map(|g| fit_with_band(g, y, y_band, &data, products, s))
+            Some(fit_with_band(design, y, y_band, &data, products, s))
         })
-        .collect();
-    // The series' names: the unknowns, then each pair's own residual.
-    let target_name = |t: usize| -> String {
-        if t < k {
-            UNKNOWNS[t].to_string()
-        } else {
-            format!("pair {}", pairs[t - k].id)
-        }
+        .collect()
+}
+
+/// The tensor's drift and temperature terms from the flight's crossings, not from time (a regional
+/// across the lines reads like a drift in time), the bias and self-gradient refitted after them
+/// ([`drift_from_crossings`]), when the flight has such terms to fit: a drift, or a temperature
+/// term without a file, and with a file only when drift is fitted. Returns the note for the log.
+fn tensor_drift(
+    design: &Design,
+    d: &FlightData<'_>,
+    reg: &BlockRegressors<'_>,
+    targets: &[Vec<f64>],
+    with_file: bool,
+    s: &Settings,
+    fitted: &mut [Fitted],
+) -> Option<String> {
+    if !((s.drift_order >= 1 || reg.temperature.is_some()) && !(with_file && s.drift_order == 0)) {
+        return None;
+    }
+    let products = if s.quadratic {
+        reg.products.as_ref()
+    } else {
+        None
     };
-    // The tensor's drift and temperature terms from crossings, not from time (a regional across
-    // the lines reads like a drift in time); the bias and self-gradient refitted after them.
-    let mut fitted = fitted;
-    let crossing_note = match design.as_ref() {
-        Some(g)
-            if (s.drift_order >= 1 || temp_b.is_some())
-                && !(fixed.is_some() && s.drift_order == 0) =>
-        {
-            drift_from_crossings(
-                &CrossingInputs {
-                    design: g,
-                    flight: d,
-                    block,
-                    targets: &targets,
-                    force: &fb,
-                    products,
-                    time: &tb,
-                    temperature: temp_b.as_deref(),
-                    usable: usable_b.as_deref(),
-                    with_file: fixed.is_some(),
-                },
-                s,
-                &mut fitted,
-            )
-        }
-        _ => None,
-    };
-    let mut notes: Vec<String> = crossing_note.into_iter().collect();
-    notes.extend(gyro_bias.as_ref().and_then(crate::gyro_bias::note));
+    drift_from_crossings(
+        &CrossingInputs {
+            design,
+            flight: d,
+            block: reg.block,
+            targets,
+            force: &reg.force,
+            products,
+            time: &reg.time,
+            temperature: reg.temperature.as_deref(),
+            usable: reg.usable.as_deref(),
+            with_file,
+        },
+        s,
+        fitted,
+    )
+}
+
+/// The flight's [`Health`] but for the file changes: the `notes`, the design's conditions, the band
+/// (Hz), per fitted series what it held and, for the unknowns, its band residual (s⁻²), then what the
+/// gyro bias held.
+fn flight_health(
+    u: &Unknowns<'_>,
+    fitted: &[Fitted],
+    gyro_bias: Option<&crate::gyro_bias::GyroBias>,
+    design: &Design,
+    notes: Vec<String>,
+    s: &Settings,
+) -> Health {
     let mut health = Health {
         notes,
-        condition: design.as_ref().map_or([0.0; 2], Design::conditions),
+        condition: design.conditions(),
         band_hz: s.band_hz,
         ..Health::default()
     };
@@ -671,21 +878,25 @@ pub fn estimate_from_blocks(
         if let Some((c, held)) = f {
             health
                 .held
-                .extend(held.iter().map(|h| (target_name(t), h.clone())));
-            if t < k {
+                .extend(held.iter().map(|h| (u.target_name(t), h.clone())));
+            if t < u.k {
                 health
                     .band_residual
-                    .push((target_name(t), c.band_residual_rms));
+                    .push((u.target_name(t), c.band_residual_rms));
             }
         }
     }
-    if let Some(gb) = &gyro_bias {
+    if let Some(gb) = gyro_bias {
         health
             .held
             .extend(gb.held.iter().map(|h| ("gyros".to_string(), h.clone())));
     }
-    // What each target held, by term, with the estimate it had when held.
-    let held_estimates: Vec<Vec<(String, Coefficient)>> = fitted
+    health
+}
+
+/// What each fitted series held, by term, with the estimate it had when held.
+fn held_estimates(fitted: &[Fitted]) -> Vec<Vec<(String, Coefficient)>> {
+    fitted
         .iter()
         .map(|f| {
             f.as_ref().map_or(Vec::new(), |(_, held)| {
@@ -694,126 +905,174 @@ pub fn estimate_from_blocks(
                     .collect()
             })
         })
+        .collect()
+}
+
+/// A coefficient of zero with no error: what a term no part has is applied as.
+const ZERO: Coefficient = Coefficient {
+    value: 0.0,
+    std_error: 0.0,
+};
+
+/// Σ w·c of the coefficient `get` reads from each of `parts` (weight, fit) that has it, errors
+/// combined as independent; `None` when none has it.
+fn pick(
+    parts: &[(f64, &PairCalibration)],
+    get: &dyn Fn(&PairCalibration) -> Option<Coefficient>,
+) -> Option<Coefficient> {
+    let v: Vec<(f64, Coefficient)> = parts
+        .iter()
+        .filter_map(|(w, c)| get(c).map(|x| (*w, x)))
         .collect();
-    let fits: Vec<Option<PairCalibration>> = fitted.into_iter().map(|f| f.map(|x| x.0)).collect();
-    let band_term = |p: usize,
-                     rows: &[(f64, usize)],
-                     name: &str,
-                     get: &dyn Fn(&PairCalibration) -> Option<Coefficient>| {
-        let parts = rows.iter().copied().chain(std::iter::once((1.0, k + p)));
-        band_term(parts, &fits, &held_estimates, name, get)
-    };
-    let pair_cals = (0..np)
-        .map(|p| {
-            // Weights: A_pj for the unknown rows, 1 for the pair's own residual row.
-            let mut parts: Vec<(f64, &PairCalibration)> = (0..k)
-                .filter_map(|j| fits[j].as_ref().map(|c| (a[p][j], c)))
-                .collect();
-            if let Some(c) = &fits[k + p] {
-                parts.push((1.0, c));
+    (!v.is_empty()).then(|| combine(&v))
+}
+
+/// What every pair's calibration is combined from: the fits of the unknowns' rows (weight A_pj)
+/// and of the pair's own residual row (weight 1), per pair κ = A·K + (I − A·P)·κ.
+struct PairCombination<'a> {
+    unknowns: &'a Unknowns<'a>,
+    /// Each fitted series' calibration: the unknowns first, then the pairs' residuals.
+    fits: Vec<Option<PairCalibration>>,
+    /// What each fitted series held, with its estimate then ([`held_estimates`]).
+    held: Vec<Vec<(String, Coefficient)>>,
+    gyro_bias: Option<&'a crate::gyro_bias::GyroBias>,
+    /// The origin of the quadratic terms' force deviations, sensor axes, m/s².
+    f0: [f64; 3],
+}
+
+impl PairCombination<'_> {
+    /// Pair `p`'s calibration, with the file's (`fixed`) refined by the flight's estimate when
+    /// given, and the estimated changes to the file's coefficients in standard errors
+    /// ([`change_from_file`]). The rotation term is geometry: d carries (b × n)·α.
+    fn pair(
+        &self,
+        p: usize,
+        fixed: Option<&[PairCalibration]>,
+    ) -> (PairCalibration, Vec<(String, f64)>) {
+        let parts = self.parts(p);
+        let first = parts.first().map(|x| x.1);
+        let n_poly = first.map_or(0, |c| c.polynomial.len());
+        let mut polynomial: Vec<Coefficient> = (0..n_poly)
+            .map(|q| pick(&parts, &|c| c.polynomial.get(q).copied()).unwrap_or(ZERO))
+            .collect();
+        let estimated = self.estimated(p, &parts);
+        let (base, bias_shift, change) = match fixed {
+            Some(fx) => {
+                let change = change_from_file(&fx[p], &estimated);
+                let (base, shift) = refine(&fx[p], &estimated);
+                (base, shift, change)
             }
-            let pick =
-                |get: &dyn Fn(&PairCalibration) -> Option<Coefficient>| -> Option<Coefficient> {
-                    let v: Vec<(f64, Coefficient)> = parts
-                        .iter()
-                        .filter_map(|(w, c)| get(c).map(|x| (*w, x)))
-                        .collect();
-                    (!v.is_empty()).then(|| combine(&v))
-                };
-            let zero = Coefficient {
-                value: 0.0,
-                std_error: 0.0,
-            };
-            let first = parts.first().map(|x| x.1);
-            let n_poly = first.map_or(0, |c| c.polynomial.len());
-            let polynomial: Vec<Coefficient> = (0..n_poly)
-                .map(|q| pick(&|c| c.polynomial.get(q).copied()).unwrap_or(zero))
-                .collect();
-            // The band residual the pair's calibration leaves in the tensor: its tensor rows'
-            // (weighted by A_pj) and its own residual row. The α rows' residual is the gyros'
-            // differentiated noise, not a misfit of the pair, and stays out.
-            let band = (0..6)
-                .filter_map(|j| fits[j].as_ref().map(|c| (a[p][j], c)))
-                .chain(fits[k + p].as_ref().map(|c| (1.0, c)))
-                .map(|(w, c)| (w * c.band_residual_rms).powi(2))
-                .sum::<f64>()
-                .sqrt();
-            let unknown_rows: Vec<(f64, usize)> = (0..k).map(|j| (a[p][j], j)).collect();
-            let estimated = PairCalibration {
-                kappa: std::array::from_fn(|m| {
-                    let name = ["κx", "κy", "κz"][m];
-                    band_term(p, &unknown_rows, name, &|c| Some(c.kappa[m])).unwrap_or(zero)
-                }),
-                rotation: [zero; 3],
-                polynomial: vec![],
-                temperature: pick(&|c| c.temperature),
-                quadratic: first.and_then(|c| c.quadratic).map(|_| {
-                    std::array::from_fn(|m| {
-                        let name = crate::estimate::PRODUCT_NAMES[m];
-                        band_term(p, &unknown_rows, name, &|c| c.quadratic.map(|q| q[m]))
-                            .unwrap_or(zero)
-                    })
-                }),
-                force_mean: f0,
-                gyro_rate: gyro_bias
-                    .as_ref()
-                    .and_then(|gb| crate::gyro_bias::pair_correction(&pairs[p], &gb.beta)),
-                // From the tensor rows and the pair's own residual row only: an α row's coefficient
-                // of the gyro α is the gyros' differentiated noise against the pairs', not an axis
-                // error, and would put that noise into the pair.
-                rotation_coupling: first.and_then(|c| c.rotation_coupling).map(|_| {
-                    let tensor_rows: Vec<(f64, usize)> = (0..6).map(|j| (a[p][j], j)).collect();
-                    std::array::from_fn(|m| {
-                        let name = format!("axis error: {}", crate::estimate::ROTATION_NAMES[m]);
-                        band_term(p, &tensor_rows, &name, &|c| {
-                            c.rotation_coupling.map(|r| r[m])
-                        })
-                        .unwrap_or(zero)
-                    })
-                }),
-                self_gradient: {
-                    let r = pick(&|c| c.self_gradient.map(|x| x[0]));
-                    let q = pick(&|c| c.self_gradient.map(|x| x[1]));
-                    r.zip(q).map(|(r, q)| [r, q])
-                },
-                t_mid: 0.0,
-                temperature_mean: first.map_or(0.0, |c| c.temperature_mean),
-                band_residual_rms: band,
-            };
-            let (base, bias_shift, change) = match fixed {
-                Some(fx) => {
-                    let change = change_from_file(&fx[p], &estimated);
-                    let (base, shift) = refine(&fx[p], &estimated);
-                    (base, shift, change)
-                }
-                None => (estimated, 0.0, Vec::new()),
-            };
-            let mut polynomial = polynomial;
-            if let Some(b) = polynomial.first_mut() {
-                b.value += bias_shift;
-            }
-            // The rotation term is geometry: d carries (b × n)·α.
-            let rotation = std::array::from_fn(|m| Coefficient {
-                value: -rows[p][6 + m],
-                std_error: 0.0,
-            });
-            let cal = PairCalibration {
-                rotation,
-                polynomial,
-                t_mid: first.map_or(0.0, |c| c.t_mid),
-                ..base
-            };
-            (cal, change)
-        })
-        .collect::<Vec<_>>();
-    let mut pairs = Vec::with_capacity(pair_cals.len());
-    for (p, (cal, change)) in pair_cals.into_iter().enumerate() {
-        pairs.push(cal);
-        health
-            .file_change
-            .extend(change.into_iter().map(|(term, z)| (p, term, z)));
+            None => (estimated, 0.0, Vec::new()),
+        };
+        if let Some(b) = polynomial.first_mut() {
+            b.value += bias_shift;
+        }
+        let rotation = std::array::from_fn(|m| Coefficient {
+            value: -self.unknowns.rows[p][6 + m],
+            std_error: 0.0,
+        });
+        let cal = PairCalibration {
+            rotation,
+            polynomial,
+            t_mid: first.map_or(0.0, |c| c.t_mid),
+            ..base
+        };
+        (cal, change)
     }
-    FlightCalibration { pairs, health }
+
+    /// Pair `p`'s parts: (A_pj, fit) for each unknown row fitted, then (1, fit) of its own residual
+    /// row when fitted.
+    fn parts(&self, p: usize) -> Vec<(f64, &PairCalibration)> {
+        let (k, a) = (self.unknowns.k, &self.unknowns.a);
+        let mut parts: Vec<(f64, &PairCalibration)> = (0..k)
+            .filter_map(|j| self.fits[j].as_ref().map(|c| (a[p][j], c)))
+            .collect();
+        if let Some(c) = &self.fits[k + p] {
+            parts.push((1.0, c));
+        }
+        parts
+    }
+
+    /// Pair `p`'s band term `name` from `rows` (weight, unknown row) and its own residual row
+    /// ([`band_term`]).
+    fn band_term(
+        &self,
+        p: usize,
+        rows: &[(f64, usize)],
+        name: &str,
+        get: &dyn Fn(&PairCalibration) -> Option<Coefficient>,
+    ) -> Option<Coefficient> {
+        let parts = rows
+            .iter()
+            .copied()
+            .chain(std::iter::once((1.0, self.unknowns.k + p)));
+        band_term(parts, &self.fits, &self.held, name, get)
+    }
+
+    /// The band residual pair `p`'s calibration leaves in the tensor, m/s²: its tensor rows'
+    /// (weighted by A_pj) and its own residual row's, combined as independent. The α rows' residual
+    /// is the gyros' differentiated noise, not a misfit of the pair, and stays out.
+    fn band_residual(&self, p: usize) -> f64 {
+        let (k, a) = (self.unknowns.k, &self.unknowns.a);
+        (0..6)
+            .filter_map(|j| self.fits[j].as_ref().map(|c| (a[p][j], c)))
+            .chain(self.fits[k + p].as_ref().map(|c| (1.0, c)))
+            .map(|(w, c)| (w * c.band_residual_rms).powi(2))
+            .sum::<f64>()
+            .sqrt()
+    }
+
+    /// Pair `p`'s estimate from its `parts` (bias and drift left empty, rotation zero): κ
+    /// (dimensionless), temperature (m/s² per °C), quadratic terms (per m/s²), the gyro bias's
+    /// correction, axis errors, self-gradient (m/s² per radian) and band residual.
+    fn estimated(&self, p: usize, parts: &[(f64, &PairCalibration)]) -> PairCalibration {
+        let (k, a) = (self.unknowns.k, &self.unknowns.a);
+        let first = parts.first().map(|x| x.1);
+        let band = self.band_residual(p);
+        let unknown_rows: Vec<(f64, usize)> = (0..k).map(|j| (a[p][j], j)).collect();
+        PairCalibration {
+            kappa: std::array::from_fn(|m| {
+                let name = ["κx", "κy", "κz"][m];
+                self.band_term(p, &unknown_rows, name, &|c| Some(c.kappa[m]))
+                    .unwrap_or(ZERO)
+            }),
+            rotation: [ZERO; 3],
+            polynomial: vec![],
+            temperature: pick(parts, &|c| c.temperature),
+            quadratic: first.and_then(|c| c.quadratic).map(|_| {
+                std::array::from_fn(|m| {
+                    let name = crate::estimate::PRODUCT_NAMES[m];
+                    self.band_term(p, &unknown_rows, name, &|c| c.quadratic.map(|q| q[m]))
+                        .unwrap_or(ZERO)
+                })
+            }),
+            force_mean: self.f0,
+            gyro_rate: self.gyro_bias.and_then(|gb| {
+                crate::gyro_bias::pair_correction(&self.unknowns.pairs[p], &gb.beta)
+            }),
+            // From the tensor rows and the pair's own residual row only: an α row's coefficient
+            // of the gyro α is the gyros' differentiated noise against the pairs', not an axis
+            // error, and would put that noise into the pair.
+            rotation_coupling: first.and_then(|c| c.rotation_coupling).map(|_| {
+                let tensor_rows: Vec<(f64, usize)> = (0..6).map(|j| (a[p][j], j)).collect();
+                std::array::from_fn(|m| {
+                    let name = format!("axis error: {}", crate::estimate::ROTATION_NAMES[m]);
+                    self.band_term(p, &tensor_rows, &name, &|c| {
+                        c.rotation_coupling.map(|r| r[m])
+                    })
+                    .unwrap_or(ZERO)
+                })
+            }),
+            self_gradient: {
+                let r = pick(parts, &|c| c.self_gradient.map(|x| x[0]));
+                let q = pick(parts, &|c| c.self_gradient.map(|x| x[1]));
+                r.zip(q).map(|(r, q)| [r, q])
+            },
+            t_mid: 0.0,
+            temperature_mean: first.map_or(0.0, |c| c.temperature_mean),
+            band_residual_rms: band,
+        }
+    }
 }
 
 /// The flight's estimated change `delta` to each of the file's coefficients an instrument keeps (κ,
@@ -877,43 +1136,8 @@ fn drift_from_crossings(
     s: &Settings,
     fitted: &mut [Option<(PairCalibration, Vec<HeldTerm>)>],
 ) -> Option<String> {
-    let (g, block, tb) = (x.design, x.block, x.time);
-    let xs = x.flight.crossings.unwrap_or(&[]);
-    let crossings: Vec<Crossing> = match x.flight.samples.known.as_ref() {
-        Some(kf) => {
-            let [roll, pitch, heading] = kf.attitude_deg;
-            let c = |i: usize| c_sn_degrees(roll[i], pitch[i], heading[i]);
-            xs.iter()
-                .filter(|(a, b)| *a < roll.len() && *b < roll.len())
-                .map(|&(a, b)| Crossing {
-                    blocks: (a / block, b / block),
-                    c_sn: (c(a), c(b)),
-                })
-                .collect()
-        }
-        None => Vec::new(),
-    };
-    // Each tensor row with its coupling and quadratic parts taken off (with a file, the file's came
-    // off with its other fixed parts already; these are the flight's changes).
-    let rest: Vec<Vec<f64>> = (0..6)
-        .map(|j| match &fitted[j] {
-            Some((c, _)) => x.targets[j]
-                .iter()
-                .enumerate()
-                .map(|(i, y)| {
-                    let mut v = y
-                        - (0..3)
-                            .map(|m| c.kappa[m].value * x.force[m][i])
-                            .sum::<f64>();
-                    if let (Some(q), Some(p)) = (c.quadratic, x.products) {
-                        v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
-                    }
-                    v
-                })
-                .collect(),
-            None => vec![0.0; tb.len()],
-        })
-        .collect();
+    let crossings = crossings_in_blocks(x.flight, x.block);
+    let rest = rows_less_coupling(x, fitted);
     let r6: [&[f64]; 6] = std::array::from_fn(|j| &rest[j][..]);
     let t_mid = fitted[0].as_ref().map_or(0.0, |c| c.0.t_mid);
     let temp_mean = fitted[0].as_ref().map_or(0.0, |c| c.0.temperature_mean);
@@ -925,7 +1149,7 @@ fn drift_from_crossings(
     };
     let Some(cf) = crate::crossings::fit_drift(
         &r6,
-        tb,
+        x.time,
         t_mid,
         temp_fit,
         x.usable,
@@ -958,25 +1182,10 @@ fn drift_from_crossings(
                 || h.term == "temperature"
                 || h.term.starts_with("self-gradient"))
         });
-        let level: Vec<f64> = g
-            .line_rows()
-            .iter()
-            .map(|&i| {
-                let dt = tb[i] - t_mid;
-                let mut v = rest[j][i]
-                    - comp
-                        .drift
-                        .iter()
-                        .enumerate()
-                        .map(|(q, co)| co.value * dt.powi(q as i32 + 1))
-                        .sum::<f64>();
-                if let (Some(tc), Some(t)) = (comp.temperature, x.temperature) {
-                    v -= tc.value * (t[i] - temp_mean);
-                }
-                v
-            })
-            .collect();
-        let (bias, sg, held_level) = g.refit_level(&level, !x.with_file, s.min_significance);
+        let level = level_less_drift(x, &rest[j], comp, (t_mid, temp_mean));
+        let (bias, sg, held_level) = x
+            .design
+            .refit_level(&level, !x.with_file, s.min_significance);
         held.extend(held_level);
         c.polynomial = std::iter::once(bias)
             .chain(comp.drift.iter().copied())
@@ -995,6 +1204,84 @@ fn drift_from_crossings(
         );
     }
     None
+}
+
+/// The flight's crossings (sample pairs of a survey and a tie pass) as blocks of `block` samples,
+/// with the sensor attitude C_sn at each pass; none without the known field's attitude, and a
+/// crossing beyond the attitude series is dropped.
+fn crossings_in_blocks(flight: &FlightData<'_>, block: usize) -> Vec<Crossing> {
+    let xs = flight.crossings.unwrap_or(&[]);
+    match flight.samples.known.as_ref() {
+        Some(kf) => {
+            let [roll, pitch, heading] = kf.attitude_deg;
+            let c = |i: usize| c_sn_degrees(roll[i], pitch[i], heading[i]);
+            xs.iter()
+                .filter(|(a, b)| *a < roll.len() && *b < roll.len())
+                .map(|&(a, b)| Crossing {
+                    blocks: (a / block, b / block),
+                    c_sn: (c(a), c(b)),
+                })
+                .collect()
+        }
+        None => Vec::new(),
+    }
+}
+
+/// Each tensor row's target (block means, s⁻²) with its fitted coupling and quadratic parts taken
+/// off (with a file, the file's came off with its other fixed parts already; these are the
+/// flight's changes); zeros for a row not fitted.
+fn rows_less_coupling(
+    x: &CrossingInputs<'_>,
+    fitted: &[Option<(PairCalibration, Vec<HeldTerm>)>],
+) -> Vec<Vec<f64>> {
+    (0..6)
+        .map(|j| match &fitted[j] {
+            Some((c, _)) => x.targets[j]
+                .iter()
+                .enumerate()
+                .map(|(i, y)| {
+                    let mut v = y
+                        - (0..3)
+                            .map(|m| c.kappa[m].value * x.force[m][i])
+                            .sum::<f64>();
+                    if let (Some(q), Some(p)) = (c.quadratic, x.products) {
+                        v -= (0..6).map(|m| q[m].value * p[m][i]).sum::<f64>();
+                    }
+                    v
+                })
+                .collect(),
+            None => vec![0.0; x.time.len()],
+        })
+        .collect()
+}
+
+/// A tensor row's level on the design's line blocks (s⁻²): `rest` less the crossings' drift
+/// polynomial in t − t_mid (s) and, when fitted, the temperature term about the mean temperature
+/// (°C); `(t_mid, temp_mean)`.
+fn level_less_drift(
+    x: &CrossingInputs<'_>,
+    rest: &[f64],
+    comp: &ComponentDrift,
+    (t_mid, temp_mean): (f64, f64),
+) -> Vec<f64> {
+    x.design
+        .line_rows()
+        .iter()
+        .map(|&i| {
+            let dt = x.time[i] - t_mid;
+            let mut v = rest[i]
+                - comp
+                    .drift
+                    .iter()
+                    .enumerate()
+                    .map(|(q, co)| co.value * dt.powi(q as i32 + 1))
+                    .sum::<f64>();
+            if let (Some(tc), Some(t)) = (comp.temperature, x.temperature) {
+                v -= tc.value * (t[i] - temp_mean);
+            }
+            v
+        })
+        .collect()
 }
 
 /// A file's coefficient updated by a flight's estimate of its change (`delta`, zero where held):

@@ -161,7 +161,64 @@ pub fn level(
     tie_lines: usize,
     settings: &LevelSettings,
 ) -> Result<Levelling, LinesError> {
+    check_crossovers(crossovers, survey_lines, tie_lines)?;
+    if settings.trend && settings.min_crossings_for_trend < 2 {
+        return Err(LinesError::Setting {
+            name: "min_crossings_for_trend".into(),
+            value: settings.min_crossings_for_trend as f64,
+            why: "a trend needs at least 2 crossings".into(),
+        });
+    }
+    let lines = LineUnknowns::of(crossovers, survey_lines, tie_lines, settings);
+    let normal = NormalEquations {
+        rows: lines.rows(crossovers),
+        groups: if settings.mode == LevelMode::ZeroMean {
+            lines.connected_offsets(crossovers)
+        } else {
+            Vec::new()
+        },
+    };
+    let d: Vec<f64> = crossovers.iter().map(Crossover::difference).collect();
+    let n_unknowns = lines.n_unknowns;
+    let (rhs, diagonal) = normal.rhs_and_diagonal(&d, n_unknowns);
+    let (x, iterations) = conjugate_gradient(
+        |v, out| normal.apply(v, out),
+        &diagonal,
+        &rhs,
+        1e-13,
+        20 * n_unknowns + 100,
+    );
     let nl = survey_lines + tie_lines;
+    let survey: Vec<LineCorrection> = (0..survey_lines).map(|l| lines.correction(l, &x)).collect();
+    let ties: Vec<LineCorrection> = (survey_lines..nl)
+        .map(|l| lines.correction(l, &x))
+        .collect();
+    let residuals: Vec<f64> = crossovers
+        .iter()
+        .zip(&d)
+        .map(|(c, di)| di - survey[c.survey].at(c.survey_time_s) + ties[c.tie].at(c.tie_time_s))
+        .collect();
+    Ok(Levelling {
+        before: CrossoverStats::of(&d),
+        after: CrossoverStats::of(&residuals),
+        survey_without_crossings: (0..survey_lines)
+            .filter(|&l| survey[l].crossings == 0)
+            .collect(),
+        ties_without_crossings: (0..tie_lines).filter(|&l| ties[l].crossings == 0).collect(),
+        survey,
+        ties,
+        residuals,
+        iterations,
+    })
+}
+
+/// Checks that every crossover names an existing survey and tie line and has finite times (s) and
+/// values.
+fn check_crossovers(
+    crossovers: &[Crossover],
+    survey_lines: usize,
+    tie_lines: usize,
+) -> Result<(), LinesError> {
     for (i, c) in crossovers.iter().enumerate() {
         if c.survey >= survey_lines {
             return Err(LinesError::LineIndex {
@@ -193,119 +250,127 @@ pub fn level(
             }
         }
     }
-    if settings.trend && settings.min_crossings_for_trend < 2 {
-        return Err(LinesError::Setting {
-            name: "min_crossings_for_trend".into(),
-            value: settings.min_crossings_for_trend as f64,
-            why: "a trend needs at least 2 crossings".into(),
-        });
-    }
-    // Line l: survey lines 0..ns, tie lines ns..ns+nt. Times at which each line is crossed.
-    let mut times: Vec<Vec<f64>> = vec![Vec::new(); nl];
-    for c in crossovers {
-        times[c.survey].push(c.survey_time_s);
-        times[survey_lines + c.tie].push(c.tie_time_s);
-    }
-    let solve_line = |l: usize| l < survey_lines || settings.mode == LevelMode::ZeroMean;
-    let mut columns: Vec<Option<Columns>> = vec![None; nl];
-    let mut reference = vec![0.0; nl];
-    let mut n_unknowns = 0usize;
-    for l in 0..nl {
-        let t = &times[l];
-        if t.is_empty() {
-            continue;
+    Ok(())
+}
+
+/// The lines and their unknowns. Line l: survey lines 0..ns, tie lines ns..ns+nt.
+struct LineUnknowns {
+    /// Number of survey lines.
+    survey_lines: usize,
+    /// Per line, the times at which it is crossed, s.
+    times: Vec<Vec<f64>>,
+    /// Per line, its columns when solved.
+    columns: Vec<Option<Columns>>,
+    /// Per line, t_l: the middle of its crossing times, s (0 without crossings).
+    reference: Vec<f64>,
+    /// Number of unknowns.
+    n_unknowns: usize,
+}
+
+impl LineUnknowns {
+    /// The crossing times of every line, and the columns of each line solved (every line in
+    /// zero-mean mode, survey lines only in reference mode) that has crossings: an offset, and a
+    /// trend when the settings ask for one, the line has enough crossings and they span time.
+    fn of(
+        crossovers: &[Crossover],
+        survey_lines: usize,
+        tie_lines: usize,
+        settings: &LevelSettings,
+    ) -> Self {
+        let nl = survey_lines + tie_lines;
+        let mut times: Vec<Vec<f64>> = vec![Vec::new(); nl];
+        for c in crossovers {
+            times[c.survey].push(c.survey_time_s);
+            times[survey_lines + c.tie].push(c.tie_time_s);
         }
-        let lo = t.iter().copied().fold(f64::INFINITY, f64::min);
-        let hi = t.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        reference[l] = 0.5 * (lo + hi);
-        if !solve_line(l) {
-            continue;
+        let solve_line = |l: usize| l < survey_lines || settings.mode == LevelMode::ZeroMean;
+        let mut columns: Vec<Option<Columns>> = vec![None; nl];
+        let mut reference = vec![0.0; nl];
+        let mut n_unknowns = 0usize;
+        for l in 0..nl {
+            let t = &times[l];
+            if t.is_empty() {
+                continue;
+            }
+            let lo = t.iter().copied().fold(f64::INFINITY, f64::min);
+            let hi = t.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            reference[l] = 0.5 * (lo + hi);
+            if !solve_line(l) {
+                continue;
+            }
+            let offset = n_unknowns;
+            n_unknowns += 1;
+            let half = 0.5 * (hi - lo);
+            let trend = (settings.trend
+                && t.len() >= settings.min_crossings_for_trend
+                && half > 0.0)
+                .then(|| {
+                    n_unknowns += 1;
+                    (offset + 1, half)
+                });
+            columns[l] = Some(Columns { offset, trend });
         }
-        let offset = n_unknowns;
-        n_unknowns += 1;
-        let half = 0.5 * (hi - lo);
-        let trend = (settings.trend && t.len() >= settings.min_crossings_for_trend && half > 0.0)
-            .then(|| {
-                n_unknowns += 1;
-                (offset + 1, half)
-            });
-        columns[l] = Some(Columns { offset, trend });
+        Self {
+            survey_lines,
+            times,
+            columns,
+            reference,
+            n_unknowns,
+        }
     }
-    // Sparse rows: (column, coefficient) for the survey side (+) and the tie side (−).
-    let rows: Vec<Vec<(usize, f64)>> = crossovers
-        .iter()
-        .map(|c| {
-            let mut row = Vec::with_capacity(4);
-            for (l, t, sign) in [
-                (c.survey, c.survey_time_s, 1.0),
-                (survey_lines + c.tie, c.tie_time_s, -1.0),
-            ] {
-                if let Some(col) = columns[l] {
-                    row.push((col.offset, sign));
-                    if let Some((k, h)) = col.trend {
-                        row.push((k, sign * (t - reference[l]) / h));
+
+    /// Each crossover's sparse row of the design: (column, coefficient) for the survey side (+)
+    /// and the tie side (−), a trend's coefficient τ = (t − t_l)/h.
+    fn rows(&self, crossovers: &[Crossover]) -> Vec<Vec<(usize, f64)>> {
+        crossovers
+            .iter()
+            .map(|c| {
+                let mut row = Vec::with_capacity(4);
+                for (l, t, sign) in [
+                    (c.survey, c.survey_time_s, 1.0),
+                    (self.survey_lines + c.tie, c.tie_time_s, -1.0),
+                ] {
+                    if let Some(col) = self.columns[l] {
+                        row.push((col.offset, sign));
+                        if let Some((k, h)) = col.trend {
+                            row.push((k, sign * (t - self.reference[l]) / h));
+                        }
                     }
                 }
-            }
-            row
-        })
-        .collect();
-    // Connected groups for the zero-mean constraint.
-    let groups: Vec<Vec<usize>> = if settings.mode == LevelMode::ZeroMean {
+                row
+            })
+            .collect()
+    }
+
+    /// The offset columns of each group of lines connected by crossovers, for the zero-mean
+    /// constraint.
+    fn connected_offsets(&self, crossovers: &[Crossover]) -> Vec<Vec<usize>> {
+        let nl = self.columns.len();
         let mut parent: Vec<usize> = (0..nl).collect();
         for c in crossovers {
             let (a, b) = (
                 find(&mut parent, c.survey),
-                find(&mut parent, survey_lines + c.tie),
+                find(&mut parent, self.survey_lines + c.tie),
             );
             parent[a] = b;
         }
         let mut by_root: Vec<Vec<usize>> = vec![Vec::new(); nl];
-        for (l, col) in columns.iter().enumerate() {
+        for (l, col) in self.columns.iter().enumerate() {
             if let Some(col) = col {
                 let r = find(&mut parent, l);
                 by_root[r].push(col.offset);
             }
         }
         by_root.into_iter().filter(|g| !g.is_empty()).collect()
-    } else {
-        Vec::new()
-    };
-    let d: Vec<f64> = crossovers.iter().map(Crossover::difference).collect();
-    let mut rhs = vec![0.0; n_unknowns];
-    let mut diagonal = vec![0.0; n_unknowns];
-    for (row, di) in rows.iter().zip(&d) {
-        for &(k, a) in row {
-            rhs[k] += a * di;
-            diagonal[k] += a * a;
-        }
     }
-    for g in &groups {
-        for &k in g {
-            diagonal[k] += 1.0;
-        }
-    }
-    let apply = |v: &[f64], out: &mut [f64]| {
-        out.iter_mut().for_each(|o| *o = 0.0);
-        for row in &rows {
-            let rv: f64 = row.iter().map(|&(k, a)| a * v[k]).sum();
-            for &(k, a) in row {
-                out[k] += a * rv;
-            }
-        }
-        for g in &groups {
-            let s: f64 = g.iter().map(|&k| v[k]).sum();
-            for &k in g {
-                out[k] += s;
-            }
-        }
-    };
-    let (x, iterations) = conjugate_gradient(apply, &diagonal, &rhs, 1e-13, 20 * n_unknowns + 100);
-    let correction = |l: usize| -> LineCorrection {
-        let crossings = times[l].len();
-        match columns[l] {
+
+    /// Line `l`'s correction from the solution `x` (offset in the values' unit, trend per s); zero
+    /// for a line not solved.
+    fn correction(&self, l: usize, x: &[f64]) -> LineCorrection {
+        let crossings = self.times[l].len();
+        match self.columns[l] {
             None => LineCorrection {
-                reference_time_s: reference[l],
+                reference_time_s: self.reference[l],
                 crossings,
                 ..LineCorrection::default()
             },
@@ -317,31 +382,57 @@ pub fn level(
                 LineCorrection {
                     offset: x[col.offset],
                     trend_per_s,
-                    reference_time_s: reference[l],
+                    reference_time_s: self.reference[l],
                     crossings,
                     solved: true,
                     trend_fitted,
                 }
             }
         }
-    };
-    let survey: Vec<LineCorrection> = (0..survey_lines).map(correction).collect();
-    let ties: Vec<LineCorrection> = (survey_lines..nl).map(correction).collect();
-    let residuals: Vec<f64> = crossovers
-        .iter()
-        .zip(&d)
-        .map(|(c, di)| di - survey[c.survey].at(c.survey_time_s) + ties[c.tie].at(c.tie_time_s))
-        .collect();
-    Ok(Levelling {
-        before: CrossoverStats::of(&d),
-        after: CrossoverStats::of(&residuals),
-        survey_without_crossings: (0..survey_lines)
-            .filter(|&l| survey[l].crossings == 0)
-            .collect(),
-        ties_without_crossings: (0..tie_lines).filter(|&l| ties[l].crossings == 0).collect(),
-        survey,
-        ties,
-        residuals,
-        iterations,
-    })
+    }
+}
+
+/// The normal equations AᵀA·x = Aᵀd of the crossovers' sparse rows, plus the zero-mean penalty
+/// (Σ offsets)² of each connected group, applied from the rows without forming AᵀA.
+struct NormalEquations {
+    rows: Vec<Vec<(usize, f64)>>,
+    groups: Vec<Vec<usize>>,
+}
+
+impl NormalEquations {
+    /// Aᵀd for the crossover differences `d` and the diagonal of the system (the preconditioner),
+    /// over `n` unknowns.
+    fn rhs_and_diagonal(&self, d: &[f64], n: usize) -> (Vec<f64>, Vec<f64>) {
+        let mut rhs = vec![0.0; n];
+        let mut diagonal = vec![0.0; n];
+        for (row, di) in self.rows.iter().zip(d) {
+            for &(k, a) in row {
+                rhs[k] += a * di;
+                diagonal[k] += a * a;
+            }
+        }
+        for g in &self.groups {
+            for &k in g {
+                diagonal[k] += 1.0;
+            }
+        }
+        (rhs, diagonal)
+    }
+
+    /// out = (AᵀA + penalty)·v.
+    fn apply(&self, v: &[f64], out: &mut [f64]) {
+        out.iter_mut().for_each(|o| *o = 0.0);
+        for row in &self.rows {
+            let rv: f64 = row.iter().map(|&(k, a)| a * v[k]).sum();
+            for &(k, a) in row {
+                out[k] += a * rv;
+            }
+        }
+        for g in &self.groups {
+            let s: f64 = g.iter().map(|&k| v[k]).sum();
+            for &k in g {
+                out[k] += s;
+            }
+        }
+    }
 }

@@ -258,6 +258,33 @@ fn check_settings(s: &QcSettings) -> Result<(), LinesError> {
 pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics, LinesError> {
     check_settings(s)?;
     let n = inp.time_s.len();
+    check_inputs(inp, n)?;
+    let timing = LineTiming::of(inp)?;
+    let mut pass = ComponentPass::new(inp, s, &timing);
+    let components = inp
+        .components
+        .iter()
+        .map(|c| pass.metrics(c))
+        .collect::<Result<Vec<_>, _>>()?;
+    Ok(LineMetrics {
+        samples: n,
+        duration_s: timing.duration,
+        median_speed_m_s: timing.median_speed,
+        components,
+        trace_rms_e: inp.trace.and_then(|t| rms(t.iter().map(|v| to_eotvos(*v)))),
+        alpha_difference_rms_rad_s2: alpha_difference_rms(inp.alpha_pairs, inp.alpha_gyro),
+        turbulence_m_s2: inp
+            .vertical_acceleration_m_s2
+            .and_then(|a| rms(a.iter().copied())),
+        clearance_departure_m: clearance_departure(inp.clearance_m, inp.planned_clearance_m),
+        line_deviation_m: line_deviation(inp, &timing.located_idx),
+        longest_gap_s: longest_gap(inp, &timing),
+    })
+}
+
+/// Checks that every series of `inp` has `n` samples, that there are at least 3, and that the
+/// plan's ends are finite.
+fn check_inputs(inp: &LineInputs<'_>, n: usize) -> Result<(), LinesError> {
     check_len("x", inp.x_m, n)?;
     check_len("y", inp.y_m, n)?;
     for c in &inp.components {
@@ -303,69 +330,136 @@ pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics,
             &[p.start_m[0], p.start_m[1], p.end_m[0], p.end_m[1]],
         )?;
     }
-    // Usable for the line: finite time and position.
-    let located: Vec<bool> = (0..n)
-        .map(|i| inp.time_s[i].is_finite() && inp.x_m[i].is_finite() && inp.y_m[i].is_finite())
-        .collect();
-    let located_idx: Vec<usize> = (0..n).filter(|&i| located[i]).collect();
-    if let Some(w) = located_idx
-        .windows(2)
-        .find(|w| inp.time_s[w[1]] <= inp.time_s[w[0]])
-    {
-        return Err(LinesError::Setting {
-            name: "time".into(),
-            value: inp.time_s[w[1]],
-            why: format!("time does not increase at sample {}", w[1]),
-        });
-    }
-    let mut intervals: Vec<f64> = located_idx
-        .windows(2)
-        .map(|w| inp.time_s[w[1]] - inp.time_s[w[0]])
-        .collect();
-    let mut speeds: Vec<f64> = located_idx
-        .windows(2)
-        .map(|w| {
-            let d = (inp.x_m[w[1]] - inp.x_m[w[0]]).hypot(inp.y_m[w[1]] - inp.y_m[w[0]]);
-            d / (inp.time_s[w[1]] - inp.time_s[w[0]])
-        })
-        .collect();
-    let Some(dt) = median(&mut intervals) else {
-        return Err(LinesError::TooShort {
-            what: "line QC (samples with finite time and position)".into(),
-            got: located_idx.len(),
-            need: 3,
-        });
-    };
-    let median_speed = median(&mut speeds).unwrap_or(0.0);
-    let duration = match (located_idx.first(), located_idx.last()) {
-        (Some(&a), Some(&b)) => inp.time_s[b] - inp.time_s[a],
-        _ => 0.0,
-    };
-    let rate = 1.0 / dt;
-    let segment = (s.welch_segment_s * rate).round() as usize;
-    let band = [s.noise_band_hz[0], s.noise_band_hz[1].min(rate / 2.0)];
-    let fc = median_speed / s.low_pass.cutoff_wavelength_m;
+    Ok(())
+}
 
-    // Samples where the motion is known; the band-passed regressors are formed once per set of
-    // usable samples (components observed together share it).
-    let moving: Option<Vec<bool>> = inp.motion.as_ref().map(|m| {
-        let series = [
-            m.specific_force_m_s2,
-            m.angular_rate_rad_s,
-            m.angular_acceleration_rad_s2,
-        ];
-        (0..n)
-            .map(|i| located[i] && series.iter().flatten().all(|v| v[i].is_finite()))
-            .collect()
-    });
-    let mut design: Option<(Vec<bool>, Option<Design>)> = None;
+/// Where and when a line was flown: the samples with finite time and position (map frame, m), and
+/// what their time base gives.
+struct LineTiming {
+    /// Per sample, whether time and position are finite.
+    located: Vec<bool>,
+    /// The located samples' indices.
+    located_idx: Vec<usize>,
+    /// Median sample interval, s.
+    dt: f64,
+    /// Median ground speed, m/s.
+    median_speed: f64,
+    /// From the first located sample to the last, s.
+    duration: f64,
+}
 
-    let mut components = Vec::with_capacity(inp.components.len());
-    for c in &inp.components {
-        let usable: Vec<bool> = (0..n)
-            .map(|i| located[i] && c.values[i].is_finite())
+impl LineTiming {
+    /// The timing of `inp`'s line. Errors: time not strictly increasing over the located samples,
+    /// or fewer than two of them.
+    fn of(inp: &LineInputs<'_>) -> Result<Self, LinesError> {
+        let n = inp.time_s.len();
+        let located: Vec<bool> = (0..n)
+            .map(|i| inp.time_s[i].is_finite() && inp.x_m[i].is_finite() && inp.y_m[i].is_finite())
             .collect();
-        let pieces = runs(&usable, inp.time_s, dt);
+        let located_idx: Vec<usize> = (0..n).filter(|&i| located[i]).collect();
+        if let Some(w) = located_idx
+            .windows(2)
+            .find(|w| inp.time_s[w[1]] <= inp.time_s[w[0]])
+        {
+            return Err(LinesError::Setting {
+                name: "time".into(),
+                value: inp.time_s[w[1]],
+                why: format!("time does not increase at sample {}", w[1]),
+            });
+        }
+        let mut intervals: Vec<f64> = located_idx
+            .windows(2)
+            .map(|w| inp.time_s[w[1]] - inp.time_s[w[0]])
+            .collect();
+        let mut speeds: Vec<f64> = located_idx
+            .windows(2)
+            .map(|w| {
+                let d = (inp.x_m[w[1]] - inp.x_m[w[0]]).hypot(inp.y_m[w[1]] - inp.y_m[w[0]]);
+                d / (inp.time_s[w[1]] - inp.time_s[w[0]])
+            })
+            .collect();
+        let Some(dt) = median(&mut intervals) else {
+            return Err(LinesError::TooShort {
+                what: "line QC (samples with finite time and position)".into(),
+                got: located_idx.len(),
+                need: 3,
+            });
+        };
+        let median_speed = median(&mut speeds).unwrap_or(0.0);
+        let duration = match (located_idx.first(), located_idx.last()) {
+            (Some(&a), Some(&b)) => inp.time_s[b] - inp.time_s[a],
+            _ => 0.0,
+        };
+        Ok(Self {
+            located,
+            located_idx,
+            dt,
+            median_speed,
+            duration,
+        })
+    }
+}
+
+/// The per-component metrics of a line, one component after another: the spectral settings at
+/// the line's rate, the samples where the motion is known, and the motion test's design, formed
+/// once per set of usable samples (components observed together share it).
+struct ComponentPass<'a> {
+    inp: &'a LineInputs<'a>,
+    s: &'a QcSettings,
+    timing: &'a LineTiming,
+    /// Sample rate, Hz.
+    rate: f64,
+    /// Welch segment, samples.
+    segment: usize,
+    /// Noise band, Hz, its top at most the Nyquist frequency.
+    band: [f64; 2],
+    /// The low-pass's cutoff in time at the median speed, Hz.
+    fc: f64,
+    /// Per sample, whether the line is located there and every motion series is finite.
+    moving: Option<Vec<bool>>,
+    /// The motion design last built, with the usable samples it was built for.
+    design: Option<(Vec<bool>, Option<Design>)>,
+}
+
+impl<'a> ComponentPass<'a> {
+    /// The pass over `inp`'s components with settings `s`.
+    fn new(inp: &'a LineInputs<'a>, s: &'a QcSettings, timing: &'a LineTiming) -> Self {
+        let n = inp.time_s.len();
+        let rate = 1.0 / timing.dt;
+        let located = &timing.located;
+        let moving: Option<Vec<bool>> = inp.motion.as_ref().map(|m| {
+            let series = [
+                m.specific_force_m_s2,
+                m.angular_rate_rad_s,
+                m.angular_acceleration_rad_s2,
+            ];
+            (0..n)
+                .map(|i| located[i] && series.iter().flatten().all(|v| v[i].is_finite()))
+                .collect()
+        });
+        Self {
+            inp,
+            s,
+            timing,
+            rate,
+            segment: (s.welch_segment_s * rate).round() as usize,
+            band: [s.noise_band_hz[0], s.noise_band_hz[1].min(rate / 2.0)],
+            fc: timing.median_speed / s.low_pass.cutoff_wavelength_m,
+            moving,
+            design: None,
+        }
+    }
+
+    /// Component `c`'s metrics: the RMS (E) of its residual from the along-track low-pass over each
+    /// run of usable samples, its Welch noise density in the band (E/√Hz) and what the low-pass
+    /// leaves of it (E), its spikes, and the motion-correlation test.
+    fn metrics(&mut self, c: &Component<'_>) -> Result<ComponentMetrics, LinesError> {
+        let (inp, s, band) = (self.inp, self.s, self.band);
+        let n = inp.time_s.len();
+        let usable: Vec<bool> = (0..n)
+            .map(|i| self.timing.located[i] && c.values[i].is_finite())
+            .collect();
+        let pieces = runs(&usable, inp.time_s, self.timing.dt);
         let mut residual = Vec::new();
         let mut stretches: Vec<Vec<f64>> = Vec::new();
         for r in &pieces {
@@ -378,26 +472,14 @@ pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics,
         }
         let views: Vec<&[f64]> = stretches.iter().map(Vec::as_slice).collect();
         let density = if band[1] > band[0] {
-            welch(&views, rate, segment).band_density(band[0], band[1])
+            welch(&views, self.rate, self.segment).band_density(band[0], band[1])
         } else {
             None
         };
         let spikes = count_spikes(&residual, s.spike_threshold);
-        let motion = match (&inp.motion, &moving) {
-            (Some(m), Some(moving)) => {
-                let use_: Vec<bool> = (0..n).map(|i| moving[i] && usable[i]).collect();
-                if design.as_ref().is_none_or(|(u, _)| *u != use_) {
-                    let d = Design::build(inp.time_s, dt, &use_, m, &s.motion)?;
-                    design = Some((use_, d));
-                }
-                match &design {
-                    Some((_, Some(d))) => d.fit(c.values)?,
-                    _ => None,
-                }
-            }
-            _ => None,
-        };
-        components.push(ComponentMetrics {
+        let motion = self.motion_fit(c, &usable)?;
+        let fc = self.fc;
+        Ok(ComponentMetrics {
             name: c.name.to_string(),
             residual_rms_e: rms(residual.iter().copied()),
             noise_density_e_rt_hz: density,
@@ -406,10 +488,39 @@ pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics,
                 .map(|rho| rho * s.low_pass.noise_bandwidth(fc).sqrt()),
             spikes,
             motion,
-        });
+        })
     }
 
-    // Longest gap over samples usable for every component.
+    /// The motion-correlation test of component `c` over the samples where it is `usable` and the
+    /// motion is known; the design rebuilt only when those samples differ from the last
+    /// component's. `None` without motion series or when the line is too short for it.
+    fn motion_fit(
+        &mut self,
+        c: &Component<'_>,
+        usable: &[bool],
+    ) -> Result<Option<MotionFit>, LinesError> {
+        let (Some(m), Some(moving)) = (&self.inp.motion, &self.moving) else {
+            return Ok(None);
+        };
+        let n = self.inp.time_s.len();
+        let use_: Vec<bool> = (0..n).map(|i| moving[i] && usable[i]).collect();
+        if self.design.as_ref().is_none_or(|(u, _)| *u != use_) {
+            let d = Design::build(self.inp.time_s, self.timing.dt, &use_, m, &self.s.motion)?;
+            self.design = Some((use_, d));
+        }
+        match &self.design {
+            Some((_, Some(d))) => d.fit(c.values),
+            _ => Ok(None),
+        }
+    }
+}
+
+/// The longest gap, s, over the samples usable for every component, counting a stretch at either
+/// end of the located samples that no usable sample reaches (the line's duration when none is
+/// usable).
+fn longest_gap(inp: &LineInputs<'_>, timing: &LineTiming) -> f64 {
+    let n = inp.time_s.len();
+    let (located, located_idx) = (&timing.located, &timing.located_idx);
     let all_usable: Vec<usize> = (0..n)
         .filter(|&i| located[i] && inp.components.iter().all(|c| c.values[i].is_finite()))
         .collect();
@@ -417,71 +528,62 @@ pub fn line_metrics(inp: &LineInputs<'_>, s: &QcSettings) -> Result<LineMetrics,
         .windows(2)
         .map(|w| inp.time_s[w[1]] - inp.time_s[w[0]])
         .fold(0.0, f64::max);
-    // A line whose usable samples do not reach its ends has gaps there too.
     let edge_gap = match (all_usable.first(), all_usable.last()) {
         (Some(&a), Some(&b)) => (inp.time_s[a] - inp.time_s[located_idx[0]])
             .max(inp.time_s[located_idx[located_idx.len() - 1]] - inp.time_s[b]),
-        _ => duration,
+        _ => timing.duration,
     };
-    let longest_gap_s = longest_gap_s.max(edge_gap);
+    longest_gap_s.max(edge_gap)
+}
 
-    let alpha_difference_rms_rad_s2 = match (inp.alpha_pairs, inp.alpha_gyro) {
-        (Some(p), Some(g)) => {
-            let (sum, count) = p.iter().zip(g).fold((0.0, 0usize), |(s, c), (a, b)| {
-                let d: Vec<f64> = (0..3)
-                    .map(|k| a[k] - b[k])
-                    .filter(|d| d.is_finite())
-                    .collect();
-                if d.is_empty() {
-                    (s, c)
-                } else {
-                    (s + d.iter().map(|x| x * x).sum::<f64>(), c + 1)
-                }
-            });
-            (count > 0).then(|| (sum / count as f64).sqrt())
-        }
-        _ => None,
-    };
-    let clearance_departure_m = match (inp.clearance_m, inp.planned_clearance_m) {
-        (Some(c), Some(p)) => c
-            .iter()
-            .zip(p)
-            .map(|(a, b)| (a - b).abs())
+/// RMS over the samples of the difference between α from the pairs and from the gyros (sensor
+/// axes, rad/s²), each sample's mean square over its finite axes; `None` without both or without
+/// a finite difference.
+fn alpha_difference_rms(pairs: Option<&[Vec3]>, gyro: Option<&[Vec3]>) -> Option<f64> {
+    let (p, g) = pairs.zip(gyro)?;
+    let (sum, count) = p.iter().zip(g).fold((0.0, 0usize), |(s, c), (a, b)| {
+        let d: Vec<f64> = (0..3)
+            .map(|k| a[k] - b[k])
             .filter(|d| d.is_finite())
-            .reduce(f64::max),
-        _ => None,
-    };
-    let line_deviation_m = inp.plan.and_then(|p| {
-        let (ax, ay) = (p.start_m[0], p.start_m[1]);
-        let (ux, uy) = (p.end_m[0] - ax, p.end_m[1] - ay);
-        let len = ux.hypot(uy);
-        located_idx
-            .iter()
-            .map(|&i| {
-                let (dx, dy) = (inp.x_m[i] - ax, inp.y_m[i] - ay);
-                if len > 0.0 {
-                    (dx * uy - dy * ux).abs() / len
-                } else {
-                    dx.hypot(dy)
-                }
-            })
-            .reduce(f64::max)
+            .collect();
+        if d.is_empty() {
+            (s, c)
+        } else {
+            (s + d.iter().map(|x| x * x).sum::<f64>(), c + 1)
+        }
     });
+    (count > 0).then(|| (sum / count as f64).sqrt())
+}
 
-    Ok(LineMetrics {
-        samples: n,
-        duration_s: duration,
-        median_speed_m_s: median_speed,
-        components,
-        trace_rms_e: inp.trace.and_then(|t| rms(t.iter().map(|v| to_eotvos(*v)))),
-        alpha_difference_rms_rad_s2,
-        turbulence_m_s2: inp
-            .vertical_acceleration_m_s2
-            .and_then(|a| rms(a.iter().copied())),
-        clearance_departure_m,
-        line_deviation_m,
-        longest_gap_s,
-    })
+/// The largest departure of the clearance flown from the planned one, m, over finite samples;
+/// `None` without both.
+fn clearance_departure(flown: Option<&[f64]>, planned: Option<&[f64]>) -> Option<f64> {
+    let (c, p) = flown.zip(planned)?;
+    c.iter()
+        .zip(p)
+        .map(|(a, b)| (a - b).abs())
+        .filter(|d| d.is_finite())
+        .reduce(f64::max)
+}
+
+/// The largest distance of a located sample from the planned line (map frame, m; from its start
+/// when the plan has no length); `None` without a plan.
+fn line_deviation(inp: &LineInputs<'_>, located_idx: &[usize]) -> Option<f64> {
+    let p = inp.plan?;
+    let (ax, ay) = (p.start_m[0], p.start_m[1]);
+    let (ux, uy) = (p.end_m[0] - ax, p.end_m[1] - ay);
+    let len = ux.hypot(uy);
+    located_idx
+        .iter()
+        .map(|&i| {
+            let (dx, dy) = (inp.x_m[i] - ax, inp.y_m[i] - ay);
+            if len > 0.0 {
+                (dx * uy - dy * ux).abs() / len
+            } else {
+                dx.hypot(dy)
+            }
+        })
+        .reduce(f64::max)
 }
 
 /// Number of spikes in `residual`: runs of samples beyond `k` robust standard deviations.

@@ -9,7 +9,7 @@ use crate::calflight::{self, CalibrationLeg};
 use crate::flights;
 use crate::noise::{self, Rng};
 use crate::path::{self, Track};
-use crate::scenario::{CalibrationFlight, LAYOUT, Scenario, TemperatureLog};
+use crate::scenario::{CalibrationFlight, InstrumentErrors, LAYOUT, Scenario, TemperatureLog};
 use crate::terrain::{Dem, Surface};
 use crate::terrain_truth::TerrainTruth;
 use gravgrad_core::SymTensor;
@@ -823,29 +823,126 @@ fn flight_log(
     time_shift_s: f64,
 ) -> FlightLog {
     let s = part.s;
-    let seed = s.seed;
     let rate = s.plan.sample_rate_hz;
-    let first_sample = range.start;
+    let streams = FlightStreams {
+        seed: s.seed,
+        flight,
+    };
     let track = &part.track.slice(range.clone(), time_shift_s);
     let n = track.time_s.len();
     let f = part.fields;
-    let (lat, lon, gamma) = (
-        &f.lat[range.clone()],
-        &f.lon[range.clone()],
-        &f.gamma[range.clone()],
-    );
-    let gravity_n = &f.gravity_n[range.clone()];
-    let total: Vec<SymTensor> = range.map(|i| f.truth.total(i)).collect();
-    let (pairs, line_offsets, surface) = (part.pairs, part.line_offsets, part.surface);
-    // Flight 0 draws from the streams a single-flight survey always used.
-    let stream = |x: u64| x + flights::STREAMS_PER_FLIGHT * flight as u64;
+    let path = FlightPath {
+        track,
+        lat: &f.lat[range.clone()],
+        lon: &f.lon[range.clone()],
+        gamma: &f.gamma[range.clone()],
+        gravity_n: &f.gravity_n[range.clone()],
+        total: range.clone().map(|i| f.truth.total(i)).collect(),
+    };
+    let waves = platform_waves(s, &mut streams.rng(1));
+    let turb = turbulence(s, track, streams, rate);
+    let (att, omega) = platform_motion(s, &path, &waves, rate);
+    let alpha = angular_acceleration(&omega, rate);
+    let ie = &s.instrument;
+    let temperature = sensor_temperature(ie, &mut streams.rng(20), n, rate);
+    let t0 = temperature.first().copied().unwrap_or(31.0);
+    let accels = draw_accelerometers(part, streams, n, rate);
+    let pair_errors = pair_errors(part.pairs, &accels);
+    let aircraft = AircraftAttitude::draw(s, track, streams, rate);
+    let sensor = SensorMotion {
+        path: &path,
+        turb: &turb,
+        att: &att,
+        omega: &omega,
+        alpha: &alpha,
+        aircraft: &aircraft,
+        line_offsets: part.line_offsets,
+        self_gradient_e: ie.self_gradient_e,
+    };
+    let readings = Readings {
+        temperature: &temperature,
+        t0,
+        accels: &accels,
+        nonlinear: ie.quadratic_rms_per_m_s2 != 0.0 || ie.cross_axis_rms_per_m_s2 != 0.0,
+        rate,
+    };
+    let (mut pair_cols, fs_all) = pair_outputs(&sensor, &readings, part.pairs);
+    let mut columns = navigation_columns(ie, &path, &att, streams);
+    columns.extend(inertial_columns(ie, &omega, &fs_all, streams));
+    columns.extend(temperature_column(
+        ie.temperature_log,
+        &temperature,
+        streams,
+    ));
+    columns.push(clearance_column(track, part.surface, streams));
+    if ie.self_gradient_e != 0.0 {
+        columns.extend(aircraft.columns(&att));
+    }
+    for (k, p) in part.pairs.iter().enumerate() {
+        columns.push((format!("{}_a", p.id), std::mem::take(&mut pair_cols[2 * k])));
+        columns.push((
+            format!("{}_b", p.id),
+            std::mem::take(&mut pair_cols[2 * k + 1]),
+        ));
+    }
+    FlightLog {
+        columns,
+        line: track.line.clone(),
+        first_sample: range.start,
+        pair_errors,
+        accelerometers: accels.iter().map(|[a, b]| [a.e, b.e]).collect(),
+        time_ref_s: track.time_s.first().copied().unwrap_or(0.0),
+        temperature_ref_c: t0,
+    }
+}
+
+/// A flight's random streams: flight k draws stream `x + k × STREAMS_PER_FLIGHT`, so flight 0 draws
+/// from the streams a single-flight survey always used.
+#[derive(Clone, Copy)]
+struct FlightStreams {
+    seed: u64,
+    flight: usize,
+}
+
+impl FlightStreams {
+    /// A generator on the flight's stream `x`.
+    fn rng(&self, x: u64) -> Rng {
+        Rng::new(
+            self.seed,
+            x + flights::STREAMS_PER_FLIGHT * self.flight as u64,
+        )
+    }
+}
+
+/// A flight's part of the survey's path: the track and, per sample, its geodetic position
+/// (radians), grid convergence γ (rad), normal gravity (NED, m/s²) and the total true tensor (NED,
+/// s⁻²).
+struct FlightPath<'a> {
+    track: &'a Track,
+    lat: &'a [f64],
+    lon: &'a [f64],
+    gamma: &'a [f64],
+    gravity_n: &'a [[f64; 3]],
+    total: Vec<SymTensor>,
+}
+
+/// Radius of curvature in the prime vertical of GRS80 at geodetic latitude `la` (rad), m.
+fn radius_prime_vertical(la: f64) -> f64 {
     let e2 = GRS80.e2();
-    let r_n = |la: f64| GRS80.a / (1.0 - e2 * la.sin().powi(2)).sqrt();
-    let r_m = |la: f64| GRS80.a * (1.0 - e2) / (1.0 - e2 * la.sin().powi(2)).powf(1.5);
-    // Residual platform rotation: sinusoids in the platform band, analytic rate and acceleration.
-    let mut rng = Rng::new(seed, stream(1));
+    GRS80.a / (1.0 - e2 * la.sin().powi(2)).sqrt()
+}
+
+/// Radius of curvature in the meridian of GRS80 at geodetic latitude `la` (rad), m.
+fn radius_meridian(la: f64) -> f64 {
+    let e2 = GRS80.e2();
+    GRS80.a * (1.0 - e2) / (1.0 - e2 * la.sin().powi(2)).powf(1.5)
+}
+
+/// The residual platform rotation: eight sinusoids in the scenario's platform band, each as
+/// (amplitude per sensor axis, rad/s; frequency, Hz; phase, rad), drawn from `rng`.
+fn platform_waves(s: &Scenario, rng: &mut Rng) -> Vec<(Vec3, f64, f64)> {
     let [f_lo, f_hi] = s.dynamics.platform_band_hz;
-    let waves: Vec<(Vec3, f64, f64)> = (0..8)
+    (0..8)
         .map(|_| {
             let a = s.dynamics.platform_rate_rad_s / 2.0;
             (
@@ -854,36 +951,48 @@ fn flight_log(
                 2.0 * std::f64::consts::PI * rng.uniform(),
             )
         })
-        .collect();
+        .collect()
+}
+
+/// Turbulence along the track, NED, m/s², one Gauss–Markov series per axis (streams 10–12; the
+/// vertical three times the horizontal), plus the badly flown line's extra vertical turbulence
+/// from its own stream (40), so that every other series is as without the bad line.
+fn turbulence(s: &Scenario, track: &Track, streams: FlightStreams, rate: f64) -> Vec<Vec<f64>> {
+    let n = track.time_s.len();
     let tau = s.dynamics.turbulence_time_s;
-    let turb: Vec<Vec<f64>> = (0..3)
+    let mut turb: Vec<Vec<f64>> = (0..3)
         .map(|k| {
             let sigma = if k == 2 {
                 s.dynamics.turbulence_m_s2
             } else {
                 s.dynamics.turbulence_m_s2 / 3.0
             };
-            noise::gauss_markov(&mut Rng::new(seed, stream(10 + k)), n, sigma, tau, rate)
+            noise::gauss_markov(&mut streams.rng(10 + k), n, sigma, tau, rate)
         })
         .collect();
-    let mut turb = turb;
     if let Some(b) = s.badly_flown.as_ref().filter(|b| b.turbulence_m_s2 > 0.0) {
-        // Its own stream, so every other series is as without the bad line.
-        let extra = noise::gauss_markov(
-            &mut Rng::new(seed, stream(40)),
-            n,
-            b.turbulence_m_s2,
-            tau,
-            rate,
-        );
+        let extra = noise::gauss_markov(&mut streams.rng(40), n, b.turbulence_m_s2, tau, rate);
         for i in 0..n {
             if track.line[i] == b.line {
                 turb[2][i] += extra[i];
             }
         }
     }
+    turb
+}
 
-    // Attitude of the stabilised platform and its angular rate in the sensor frame.
+/// The attitude of the stabilised platform in NED (true heading = grid track + convergence + crab
+/// (+ sideslip of a yaw manoeuvre), roll and pitch the residual rotation's angles, rad) and its
+/// inertial angular rate in the sensor frame, rad/s: Earth rate, transport rate and turn rate
+/// turned into the sensor frame, plus the residual rotation `waves`.
+fn platform_motion(
+    s: &Scenario,
+    path: &FlightPath<'_>,
+    waves: &[(Vec3, f64, f64)],
+    rate: f64,
+) -> (Vec<Attitude>, Vec<Vec3>) {
+    let (track, lat, gamma) = (path.track, path.lat, path.gamma);
+    let n = track.time_s.len();
     let mut att = Vec::with_capacity(n);
     let mut omega = Vec::with_capacity(n);
     #[allow(clippy::needless_range_loop)] // i indexes six parallel series
@@ -891,14 +1000,13 @@ fn flight_log(
         let t = i as f64 / rate;
         let mut w_res = [0.0; 3];
         let mut ang = [0.0; 3];
-        for (a, f, ph) in &waves {
+        for (a, f, ph) in waves {
             let arg = 2.0 * std::f64::consts::PI * f * t + ph;
             for k in 0..3 {
                 w_res[k] += a[k] * arg.sin();
                 ang[k] -= a[k] * arg.cos() / (2.0 * std::f64::consts::PI * f);
             }
         }
-        // True heading = grid track + convergence + crab (+ sideslip of a yaw manoeuvre).
         let mut heading =
             (track.track_deg[i] + s.dynamics.crab_deg).to_radians() + gamma[i] + ang[2];
         if let Some(b) = track.sideslip.get(i) {
@@ -915,9 +1023,10 @@ fn flight_log(
         let (sl, cl) = lat[i].sin_cos();
         let h = track.height[i];
         let mut w_n = [
-            GRS80.omega * cl + ve / (r_n(lat[i]) + h),
-            -vn / (r_m(lat[i]) + h),
-            -GRS80.omega * sl - ve * sl / cl / (r_n(lat[i]) + h) + track.track_rate[i],
+            GRS80.omega * cl + ve / (radius_prime_vertical(lat[i]) + h),
+            -vn / (radius_meridian(lat[i]) + h),
+            -GRS80.omega * sl - ve * sl / cl / (radius_prime_vertical(lat[i]) + h)
+                + track.track_rate[i],
         ];
         if let Some(rate_b) = track.sideslip_rate.get(i) {
             w_n[2] += rate_b;
@@ -926,8 +1035,14 @@ fn flight_log(
         omega.push([w_s[0] + w_res[0], w_s[1] + w_res[1], w_s[2] + w_res[2]]);
         att.push(a);
     }
-    // Angular acceleration: central differences of the sensor-frame rate.
-    let alpha: Vec<Vec3> = (0..n)
+    (att, omega)
+}
+
+/// Angular acceleration, sensor frame, rad/s²: central differences of the sensor-frame rate
+/// `omega` (rad/s) sampled at `rate` Hz, one-sided at the ends.
+fn angular_acceleration(omega: &[Vec3], rate: f64) -> Vec<Vec3> {
+    let n = omega.len();
+    (0..n)
         .map(|i| {
             let (a, b) = (i.saturating_sub(1), (i + 1).min(n - 1));
             let span = (b - a) as f64 / rate;
@@ -937,39 +1052,49 @@ fn flight_log(
                 [0.0; 3]
             }
         })
-        .collect();
+        .collect()
+}
 
-    // Instrument errors, per accelerometer.
-    let ie = &s.instrument;
-
-    let white_density = ie.noise_e_rt_hz * EOTVOS * ie.baseline_m / std::f64::consts::SQRT_2;
-    let temp_rng = &mut Rng::new(seed, stream(20));
-    let temperature: Vec<f64> = {
-        let slow = noise::gauss_markov(temp_rng, n, ie.temperature_swing_c, 600.0, rate);
-        if ie.temperature_ramp_c_h != 0.0 {
-            let per_sample = ie.temperature_ramp_c_h / 3600.0 / rate;
-            slow.iter()
-                .enumerate()
-                .map(|(i, v)| 31.0 + v + per_sample * i as f64)
-                .collect()
-        } else {
-            slow.iter().map(|v| 31.0 + v).collect()
-        }
-    };
-    let t0 = temperature.first().copied().unwrap_or(31.0);
-    let per_instrument = s.linear_errors_per_instrument();
-
-    struct Acc {
-        e: AccelerometerErrors,
-        noise: Vec<f64>,
+/// The sensor's true temperature, °C: the set-point plus a slow Gauss–Markov wander (600 s) drawn
+/// from `rng`, plus the scenario's ramp.
+fn sensor_temperature(ie: &InstrumentErrors, rng: &mut Rng, n: usize, rate: f64) -> Vec<f64> {
+    let slow = noise::gauss_markov(rng, n, ie.temperature_swing_c, 600.0, rate);
+    if ie.temperature_ramp_c_h != 0.0 {
+        let per_sample = ie.temperature_ramp_c_h / 3600.0 / rate;
+        slow.iter()
+            .enumerate()
+            .map(|(i, v)| 31.0 + v + per_sample * i as f64)
+            .collect()
+    } else {
+        slow.iter().map(|v| 31.0 + v).collect()
     }
-    let accels: Vec<[Acc; 2]> = pairs
+}
+
+/// One accelerometer of a flight: its errors and its noise series, m/s².
+struct Acc {
+    e: AccelerometerErrors,
+    noise: Vec<f64>,
+}
+
+/// Every pair's two accelerometers for the flight, one stream each (100 + 2k + j for pair k,
+/// accelerometer j): misalignment (perpendicular to the axis), white plus flicker noise, scale,
+/// bias, drift and temperature coefficient drawn afresh; the nonlinear terms, and with linear
+/// errors per instrument scale, misalignment and temperature coefficient, the instrument's own.
+fn draw_accelerometers(
+    part: &SurveyPart<'_>,
+    streams: FlightStreams,
+    n: usize,
+    rate: f64,
+) -> Vec<[Acc; 2]> {
+    let ie = &part.s.instrument;
+    let white_density = ie.noise_e_rt_hz * EOTVOS * ie.baseline_m / std::f64::consts::SQRT_2;
+    let per_instrument = part.s.linear_errors_per_instrument();
+    part.pairs
         .iter()
         .enumerate()
         .map(|(k, p)| {
             std::array::from_fn(|j| {
-                let mut r = Rng::new(seed, stream(100 + 2 * k as u64 + j as u64));
-                // Misalignment perpendicular to the axis.
+                let mut r = streams.rng(100 + 2 * k as u64 + j as u64);
                 let (u, v) = perpendicular_axes(&p.axis);
                 let (m1, m2) = (
                     ie.misalignment_rms_rad * r.normal(),
@@ -1004,11 +1129,16 @@ fn flight_log(
                 Acc { e, noise: nz }
             })
         })
-        .collect();
+        .collect()
+}
 
-    let pair_errors: Vec<PairErrors> = pairs
+/// The injected errors of each pair's difference a − b, from its accelerometers' errors (κ and the
+/// common-mode axis in the sensor frame, bias m/s², drift m/s²/s, temperature m/s²/°C, quadratic
+/// form (m/s²)⁻¹).
+fn pair_errors(pairs: &[PairGeometry], accels: &[[Acc; 2]]) -> Vec<PairErrors> {
+    pairs
         .iter()
-        .zip(&accels)
+        .zip(accels)
         .map(|(p, [a, b])| {
             let (ea, eb) = (&a.e, &b.e);
             PairErrors {
@@ -1026,84 +1156,202 @@ fn flight_log(
                 quadratic: quadratic_form(&p.axis, ea, eb),
             }
         })
-        .collect();
+        .collect()
+}
 
-    // Self-gradient: a fixed trace-free pattern scaled by the aircraft's attitude relative to the
-    // platform (bank in turns, gusts on lines).
-    let mut sg_rng = Rng::new(seed, stream(30));
-    let pattern = |r: &mut Rng| -> SymTensor {
-        let mut t = SymTensor::from_array(std::array::from_fn(|_| r.normal()));
-        let tr = t.trace() / 3.0;
-        t.xx -= tr;
-        t.yy -= tr;
-        t.zz -= tr;
-        t
-    };
-    let (pat_roll, pat_pitch) = (pattern(&mut sg_rng), pattern(&mut sg_rng));
-    // Aircraft attitude relative to the level platform: bank in turns plus gusts (1.5° RMS in roll,
-    // 0.5° in pitch about a 2° cruise pitch), independent streams.
-    const ROLL_GUST: f64 = 1.5;
-    const PITCH_GUST: f64 = 0.5;
-    let gust = noise::gauss_markov(
-        &mut Rng::new(seed, stream(31)),
-        n,
-        ROLL_GUST.to_radians(),
-        3.0,
-        rate,
-    );
-    let gust_pitch = noise::gauss_markov(
-        &mut Rng::new(seed, stream(32)),
-        n,
-        PITCH_GUST.to_radians(),
-        3.0,
-        rate,
-    );
-    let ac_roll: Vec<f64> = (0..n)
-        .map(|i| (track.track_rate[i] * s.plan.speed_m_s / 9.81).atan() + gust[i])
-        .collect();
-    let ac_pitch: Vec<f64> = (0..n).map(|i| 2f64.to_radians() + gust_pitch[i]).collect();
+/// RMS of the gusts in the aircraft's roll relative to the level platform, degrees.
+const ROLL_GUST: f64 = 1.5;
+/// RMS of the gusts in the aircraft's pitch about its cruise pitch, degrees.
+const PITCH_GUST: f64 = 0.5;
 
-    // Pair outputs.
-    let nonlinear = ie.quadratic_rms_per_m_s2 != 0.0 || ie.cross_axis_rms_per_m_s2 != 0.0;
+/// The aircraft's attitude relative to the level platform and the self-gradient it causes: bank in
+/// turns plus gusts (1.5° RMS in roll, 0.5° in pitch about a 2° cruise pitch, streams 31 and 32),
+/// and a fixed trace-free pattern per axis (stream 30) scaled by them.
+struct AircraftAttitude {
+    /// Self-gradient pattern per unit of relative roll and of relative pitch (in gust RMS),
+    /// sensor frame, dimensionless (scaled by the scenario's amplitude).
+    pattern: (SymTensor, SymTensor),
+    /// Relative roll and pitch per sample, rad.
+    roll: Vec<f64>,
+    pitch: Vec<f64>,
+}
+
+impl AircraftAttitude {
+    /// The patterns and the relative attitude along `track`.
+    fn draw(s: &Scenario, track: &Track, streams: FlightStreams, rate: f64) -> Self {
+        let n = track.time_s.len();
+        let mut sg_rng = streams.rng(30);
+        let pattern = |r: &mut Rng| -> SymTensor {
+            let mut t = SymTensor::from_array(std::array::from_fn(|_| r.normal()));
+            let tr = t.trace() / 3.0;
+            t.xx -= tr;
+            t.yy -= tr;
+            t.zz -= tr;
+            t
+        };
+        let (pat_roll, pat_pitch) = (pattern(&mut sg_rng), pattern(&mut sg_rng));
+        let gust = noise::gauss_markov(&mut streams.rng(31), n, ROLL_GUST.to_radians(), 3.0, rate);
+        let gust_pitch =
+            noise::gauss_markov(&mut streams.rng(32), n, PITCH_GUST.to_radians(), 3.0, rate);
+        let roll: Vec<f64> = (0..n)
+            .map(|i| (track.track_rate[i] * s.plan.speed_m_s / 9.81).atan() + gust[i])
+            .collect();
+        let pitch: Vec<f64> = (0..n).map(|i| 2f64.to_radians() + gust_pitch[i]).collect();
+        Self {
+            pattern: (pat_roll, pat_pitch),
+            roll,
+            pitch,
+        }
+    }
+
+    /// `g_s` (s⁻², sensor frame) plus the self-gradient at sample `i` for amplitude `amp` (s⁻²): the
+    /// contribution of one gust-RMS of relative roll (or pitch) per unit pattern component,
+    /// G_self = A·(Δφ/σφ)·P_roll + A·(Δθ/σθ)·P_pitch.
+    fn add_self_gradient(&self, g_s: SymTensor, i: usize, amp: f64) -> SymTensor {
+        let d_roll = self.roll[i] / ROLL_GUST.to_radians();
+        let d_pitch = (self.pitch[i] - 2f64.to_radians()) / PITCH_GUST.to_radians();
+        g_s + self.pattern.0.scaled(amp * d_roll) + self.pattern.1.scaled(amp * d_pitch)
+    }
+
+    /// The log's aircraft attitude channels, degrees: relative roll and pitch, and the heading
+    /// (the platform's, which follows the aircraft).
+    fn columns(&self, att: &[Attitude]) -> [(String, Vec<f64>); 3] {
+        [
+            (
+                "ac_roll".into(),
+                self.roll.iter().map(|v| v.to_degrees()).collect(),
+            ),
+            (
+                "ac_pitch".into(),
+                self.pitch.iter().map(|v| v.to_degrees()).collect(),
+            ),
+            (
+                "ac_heading".into(),
+                att.iter()
+                    .map(|a| a.heading.to_degrees().rem_euclid(360.0))
+                    .collect(),
+            ),
+        ]
+    }
+}
+
+/// What the sensor undergoes per sample: the path, turbulence (NED, m/s²), platform attitude and
+/// rate (rad/s, sensor frame), angular acceleration (rad/s²), relative aircraft attitude, line
+/// offsets (NED, s⁻²) and the self-gradient amplitude (E).
+struct SensorMotion<'a> {
+    path: &'a FlightPath<'a>,
+    turb: &'a [Vec<f64>],
+    att: &'a [Attitude],
+    omega: &'a [Vec3],
+    alpha: &'a [Vec3],
+    aircraft: &'a AircraftAttitude,
+    line_offsets: &'a [(i64, SymTensor)],
+    self_gradient_e: f64,
+}
+
+impl SensorMotion<'_> {
+    /// Specific force at the sensor origin at sample `i`, sensor frame, m/s²: the kinematic
+    /// acceleration (grid to true north) plus turbulence, less gravity, turned by `ct` = C_snᵀ.
+    fn specific_force(&self, i: usize, ct: &Mat3) -> Vec3 {
+        let p = self.path;
+        let acc_true = mat3::mul_vec(&rz(p.gamma[i]), &p.track.accel[i]);
+        let a_kin = [
+            acc_true[0] + self.turb[0][i],
+            acc_true[1] + self.turb[1][i],
+            acc_true[2] + self.turb[2][i],
+        ];
+        let f_n = [
+            a_kin[0] - p.gravity_n[i][0],
+            a_kin[1] - p.gravity_n[i][1],
+            a_kin[2] - p.gravity_n[i][2],
+        ];
+        mat3::mul_vec(ct, &f_n)
+    }
+
+    /// The gradient the sensor sees at sample `i`, sensor frame, s⁻²: the total true tensor turned
+    /// by `ct` = C_snᵀ, plus the self-gradient and the line's injected offset.
+    fn gradient(&self, i: usize, ct: &Mat3) -> SymTensor {
+        let mut g_s = self.path.total[i].rotated(ct);
+        if self.self_gradient_e != 0.0 {
+            g_s = self
+                .aircraft
+                .add_self_gradient(g_s, i, self.self_gradient_e * EOTVOS);
+        }
+        let line = self.path.track.line[i];
+        if line > 0
+            && let Some((_, o)) = self.line_offsets.iter().find(|(l, _)| *l == line)
+        {
+            g_s = g_s + o.rotated(ct);
+        }
+        g_s
+    }
+
+    /// Ω̇ + ΩΩ − G at sample `i` (sensor frame, s⁻²) for the gradient `g_s`: f(r) = f(O) + this·r.
+    fn lever_matrix(&self, i: usize, g_s: &SymTensor) -> Mat3 {
+        let w = self.omega[i];
+        let wd = skew(&self.alpha[i]);
+        let ww = mat3::mul(&skew(&w), &skew(&w));
+        let gm = g_s.to_matrix();
+        std::array::from_fn(|a| std::array::from_fn(|b| wd[a][b] + ww[a][b] - gm[a][b]))
+    }
+}
+
+/// What turns the force at an accelerometer into its reading: the true temperature (°C) and its
+/// value at the first sample, the accelerometers, whether the nonlinear terms are on, the sample
+/// rate (Hz).
+struct Readings<'a> {
+    temperature: &'a [f64],
+    t0: f64,
+    accels: &'a [[Acc; 2]],
+    nonlinear: bool,
+    rate: f64,
+}
+
+impl Readings<'_> {
+    /// The reading of accelerometer `acc` (pair axis `axis`) at sample `i` for the specific force
+    /// `f` at it (sensor frame, m/s²), m/s²: a = (1 + ε)(n + δ)·f + β + β̇·t + τ·(T − T0) + noise,
+    /// plus the second-order and cross-coupling terms of the input (misaligned) axis with the two
+    /// axes across it (IEEE Std 1293-2018) when on.
+    fn reading(&self, acc: &Acc, axis: &Vec3, i: usize, f: &Vec3) -> f64 {
+        let (e, noise) = (&acc.e, &acc.noise);
+        let t = i as f64 / self.rate;
+        let axis = [
+            axis[0] + e.misalignment[0],
+            axis[1] + e.misalignment[1],
+            axis[2] + e.misalignment[2],
+        ];
+        let mut out = (1.0 + e.scale) * mat3::dot(&axis, f)
+            + e.bias
+            + e.drift * t
+            + e.tempco * (self.temperature[i] - self.t0)
+            + noise[i];
+        if self.nonlinear {
+            let fi = mat3::dot(&axis, f);
+            out += e.quadratic * fi * fi
+                + fi * (e.cross_u * mat3::dot(&e.u_axis, f) + e.cross_v * mat3::dot(&e.v_axis, f));
+        }
+        out
+    }
+}
+
+/// Every accelerometer's reading per sample (m/s², columns a then b per pair, in the order of
+/// `pairs`), from f(r) = f(O) + (Ω̇ + ΩΩ − G)·r at its position r = centre ± baseline/2 (sensor
+/// frame, m); and the specific force at the sensor origin per sample (sensor frame, m/s²).
+fn pair_outputs(
+    sensor: &SensorMotion<'_>,
+    readings: &Readings<'_>,
+    pairs: &[PairGeometry],
+) -> (Vec<Vec<f64>>, Vec<Vec3>) {
+    let n = sensor.att.len();
     let mut pair_cols: Vec<Vec<f64>> = vec![Vec::with_capacity(n); 2 * pairs.len()];
     let mut fs_all = Vec::with_capacity(n);
     for i in 0..n {
-        let c = att[i].c_sn();
+        let c = sensor.att[i].c_sn();
         let ct = mat3::transpose(&c);
-        let acc_true = mat3::mul_vec(&rz(gamma[i]), &track.accel[i]);
-        let a_kin = [
-            acc_true[0] + turb[0][i],
-            acc_true[1] + turb[1][i],
-            acc_true[2] + turb[2][i],
-        ];
-        let f_n = [
-            a_kin[0] - gravity_n[i][0],
-            a_kin[1] - gravity_n[i][1],
-            a_kin[2] - gravity_n[i][2],
-        ];
-        let f_s = mat3::mul_vec(&ct, &f_n);
+        let f_s = sensor.specific_force(i, &ct);
         fs_all.push(f_s);
-        let mut g_s = total[i].rotated(&ct);
-        if ie.self_gradient_e != 0.0 {
-            // The amplitude is the contribution of one gust-RMS of relative roll (or pitch) per unit
-            // pattern component: G_self = A·(Δφ/σφ)·P_roll + A·(Δθ/σθ)·P_pitch.
-            let amp = ie.self_gradient_e * EOTVOS;
-            let d_roll = ac_roll[i] / ROLL_GUST.to_radians();
-            let d_pitch = (ac_pitch[i] - 2f64.to_radians()) / PITCH_GUST.to_radians();
-            g_s = g_s + pat_roll.scaled(amp * d_roll) + pat_pitch.scaled(amp * d_pitch);
-        }
-        if track.line[i] > 0
-            && let Some((_, o)) = line_offsets.iter().find(|(l, _)| *l == track.line[i])
-        {
-            g_s = g_s + o.rotated(&ct);
-        }
-        let w = omega[i];
-        let wd = skew(&alpha[i]);
-        let ww = mat3::mul(&skew(&w), &skew(&w));
-        let gm = g_s.to_matrix();
-        let m: Mat3 =
-            std::array::from_fn(|a| std::array::from_fn(|b| wd[a][b] + ww[a][b] - gm[a][b]));
-        let t = i as f64 / rate;
+        let g_s = sensor.gradient(i, &ct);
+        let m = sensor.lever_matrix(i, &g_s);
         for (k, p) in pairs.iter().enumerate() {
             for (j, sign) in [(0usize, 0.5), (1usize, -0.5)] {
                 let r = [
@@ -1113,32 +1361,24 @@ fn flight_log(
                 ];
                 let mr = mat3::mul_vec(&m, &r);
                 let f = [f_s[0] + mr[0], f_s[1] + mr[1], f_s[2] + mr[2]];
-                let (e, noise) = (&accels[k][j].e, &accels[k][j].noise);
-                let axis = [
-                    p.axis[0] + e.misalignment[0],
-                    p.axis[1] + e.misalignment[1],
-                    p.axis[2] + e.misalignment[2],
-                ];
-                let mut out = (1.0 + e.scale) * mat3::dot(&axis, &f)
-                    + e.bias
-                    + e.drift * t
-                    + e.tempco * (temperature[i] - t0)
-                    + noise[i];
-                if nonlinear {
-                    // IEEE Std 1293-2018: second-order and cross-coupling terms of the input
-                    // (misaligned) axis with the two axes across it.
-                    let fi = mat3::dot(&axis, &f);
-                    out += e.quadratic * fi * fi
-                        + fi * (e.cross_u * mat3::dot(&e.u_axis, &f)
-                            + e.cross_v * mat3::dot(&e.v_axis, &f));
-                }
-                pair_cols[2 * k + j].push(out);
+                pair_cols[2 * k + j].push(readings.reading(&readings.accels[k][j], &p.axis, i, &f));
             }
         }
     }
+    (pair_cols, fs_all)
+}
 
-    // Logged navigation with its errors.
-    let nav_rng = |channel: u64| Rng::new(seed, stream(200 + channel));
+/// The logged navigation with its errors (streams 200 + channel 0–5): time (s), position
+/// (degrees, m) and attitude (degrees; heading in [0, 360)).
+fn navigation_columns(
+    ie: &InstrumentErrors,
+    path: &FlightPath<'_>,
+    att: &[Attitude],
+    streams: FlightStreams,
+) -> Vec<(String, Vec<f64>)> {
+    let (track, lat, lon) = (path.track, path.lat, path.lon);
+    let n = track.time_s.len();
+    let nav_rng = |channel: u64| streams.rng(200 + channel);
     let pos_noise =
         |r: &mut Rng, sd: f64| -> Vec<f64> { (0..n).map(|_| sd * r.normal()).collect() };
     let (dn, de, dh) = (
@@ -1149,37 +1389,20 @@ fn flight_log(
     let att_noise: Vec<Vec<f64>> = (0..3)
         .map(|k| pos_noise(&mut nav_rng(3 + k), ie.attitude_noise_deg))
         .collect();
-    let gyro: Vec<Vec<f64>> = (0..3)
-        .map(|k| {
-            let mut r = nav_rng(10 + k);
-            let bias = ie.gyro_bias_rad_s * r.normal();
-            (0..n)
-                .map(|i| omega[i][k as usize] + bias + ie.gyro_noise_rad_s * r.normal())
-                .collect()
-        })
-        .collect();
-    let accel: Vec<Vec<f64>> = (0..3)
-        .map(|k| {
-            let mut r = nav_rng(20 + k);
-            (0..n)
-                .map(|i| fs_all[i][k as usize] + ie.accel_noise_m_s2 * r.normal())
-                .collect()
-        })
-        .collect();
-    let mut clear_rng = nav_rng(30);
-
-    let mut columns: Vec<(String, Vec<f64>)> = vec![
+    vec![
         ("time".into(), track.time_s.clone()),
         (
             "lat".into(),
             (0..n)
-                .map(|i| (lat[i] + dn[i] / r_m(lat[i])).to_degrees())
+                .map(|i| (lat[i] + dn[i] / radius_meridian(lat[i])).to_degrees())
                 .collect(),
         ),
         (
             "lon".into(),
             (0..n)
-                .map(|i| (lon[i] + de[i] / (r_n(lat[i]) * lat[i].cos())).to_degrees())
+                .map(|i| {
+                    (lon[i] + de[i] / (radius_prime_vertical(lat[i]) * lat[i].cos())).to_degrees()
+                })
                 .collect(),
         ),
         (
@@ -1204,67 +1427,86 @@ fn flight_log(
                 .map(|i| (att[i].heading.to_degrees() + att_noise[2][i]).rem_euclid(360.0))
                 .collect(),
         ),
-    ];
+    ]
+}
+
+/// The logged inertial channels with their errors (streams 200 + channel 10–12 and 20–22): the
+/// gyro rates (sensor axes, rad/s, the true `omega` with a bias and white noise) and the specific
+/// force (sensor axes, m/s², the true `fs_all` with white noise).
+fn inertial_columns(
+    ie: &InstrumentErrors,
+    omega: &[Vec3],
+    fs_all: &[Vec3],
+    streams: FlightStreams,
+) -> Vec<(String, Vec<f64>)> {
+    let n = omega.len();
+    let nav_rng = |channel: u64| streams.rng(200 + channel);
+    let gyro: Vec<Vec<f64>> = (0..3)
+        .map(|k| {
+            let mut r = nav_rng(10 + k);
+            let bias = ie.gyro_bias_rad_s * r.normal();
+            (0..n)
+                .map(|i| omega[i][k as usize] + bias + ie.gyro_noise_rad_s * r.normal())
+                .collect()
+        })
+        .collect();
+    let accel: Vec<Vec<f64>> = (0..3)
+        .map(|k| {
+            let mut r = nav_rng(20 + k);
+            (0..n)
+                .map(|i| fs_all[i][k as usize] + ie.accel_noise_m_s2 * r.normal())
+                .collect()
+        })
+        .collect();
+    let mut columns = Vec::with_capacity(6);
     for (k, name) in ["wx", "wy", "wz"].iter().enumerate() {
         columns.push((name.to_string(), gyro[k].clone()));
     }
     for (k, name) in ["fx", "fy", "fz"].iter().enumerate() {
         columns.push((name.to_string(), accel[k].clone()));
     }
-    match ie.temperature_log {
-        TemperatureLog::True => columns.push(("temp".into(), temperature.clone())),
-        TemperatureLog::Constant => columns.push(("temp".into(), vec![SET_POINT_C; n])),
+    columns
+}
+
+/// The logged temperature channel (°C) as the scenario logs it: the true temperature, the
+/// set-point throughout, the true one with gaps (NaN; stream 50), or none.
+fn temperature_column(
+    log: TemperatureLog,
+    temperature: &[f64],
+    streams: FlightStreams,
+) -> Option<(String, Vec<f64>)> {
+    let n = temperature.len();
+    match log {
+        TemperatureLog::True => Some(("temp".into(), temperature.to_vec())),
+        TemperatureLog::Constant => Some(("temp".into(), vec![SET_POINT_C; n])),
         TemperatureLog::Gaps => {
-            let mut logged = temperature.clone();
-            for i in gap_samples(&mut Rng::new(seed, stream(50)), n) {
+            let mut logged = temperature.to_vec();
+            for i in gap_samples(&mut streams.rng(50), n) {
                 logged[i] = f64::NAN;
             }
-            columns.push(("temp".into(), logged));
+            Some(("temp".into(), logged))
         }
-        TemperatureLog::Absent => {}
+        TemperatureLog::Absent => None,
     }
-    columns.push((
+}
+
+/// The logged clearance over the terrain, m: height less the surface, plus 0.5 m of white noise
+/// (stream 230).
+fn clearance_column(
+    track: &Track,
+    surface: &Surface,
+    streams: FlightStreams,
+) -> (String, Vec<f64>) {
+    let mut clear_rng = streams.rng(230);
+    (
         "clearance".into(),
-        (0..n)
+        (0..track.time_s.len())
             .map(|i| {
                 track.height[i] - surface.height(track.north[i], track.east[i])
                     + 0.5 * clear_rng.normal()
             })
             .collect(),
-    ));
-    if ie.self_gradient_e != 0.0 {
-        columns.push((
-            "ac_roll".into(),
-            ac_roll.iter().map(|v| v.to_degrees()).collect(),
-        ));
-        columns.push((
-            "ac_pitch".into(),
-            ac_pitch.iter().map(|v| v.to_degrees()).collect(),
-        ));
-        columns.push((
-            "ac_heading".into(),
-            (0..n)
-                .map(|i| att[i].heading.to_degrees().rem_euclid(360.0))
-                .collect(),
-        ));
-    }
-    for (k, p) in pairs.iter().enumerate() {
-        columns.push((format!("{}_a", p.id), std::mem::take(&mut pair_cols[2 * k])));
-        columns.push((
-            format!("{}_b", p.id),
-            std::mem::take(&mut pair_cols[2 * k + 1]),
-        ));
-    }
-
-    FlightLog {
-        columns,
-        line: track.line.clone(),
-        first_sample,
-        pair_errors,
-        accelerometers: accels.iter().map(|[a, b]| [a.e, b.e]).collect(),
-        time_ref_s: track.time_s.first().copied().unwrap_or(0.0),
-        temperature_ref_c: t0,
-    }
+    )
 }
 
 /// The set-point of the thermostatted sensor and the mean of its wandering temperature, °C.
