@@ -6,6 +6,7 @@ mod commands;
 mod corpus;
 mod inputs;
 mod interrupt;
+mod logs;
 mod motion;
 mod output_folder;
 mod qc;
