@@ -18,10 +18,13 @@ const FLIGHT_STAGES: [&str; 4] = [
 ];
 
 /// The survey-wide stages of a run, in order, and the last step.
-const SURVEY_STAGES: [&str; 4] = [
+const SURVEY_STAGES: [&str; 7] = [
     "filter, levelling and QC",
     "grids",
-    "writing products",
+    "writing the QC files and the line table",
+    "writing grids and maps",
+    "writing calibration files, checking the inputs",
+    "writing survey.h5 and provenance",
     "products written",
 ];
 
@@ -94,7 +97,7 @@ fn off_a_terminal_a_run_prints_progress_lines_for_each_flight_its_stages_and_the
     }
     expected.push((n, n, "flights processed".to_string()));
     for (s, stage) in SURVEY_STAGES.iter().enumerate() {
-        expected.push((s, 3, stage.to_string()));
+        expected.push((s, SURVEY_STAGES.len() - 1, stage.to_string()));
     }
     let seen: Vec<(usize, usize, String)> = progress
         .iter()
@@ -102,7 +105,10 @@ fn off_a_terminal_a_run_prints_progress_lines_for_each_flight_its_stages_and_the
         .collect();
     assert_eq!(seen, expected, "{lines:#?}");
     // The messages are plain lines beside them, no terminal control characters.
-    assert!(lines.iter().any(|l| l.starts_with("reading ")), "{lines:#?}");
+    assert!(
+        lines.iter().any(|l| l.starts_with("reading ")),
+        "{lines:#?}"
+    );
     assert!(!lines.iter().any(|l| l.contains('\x1b') || l.contains('\r')));
 }
 
@@ -116,12 +122,10 @@ fn with_json_every_stderr_line_is_json_and_progress_lines_carry_done_and_total()
         .iter()
         .map(|l| serde_json::from_str(l).unwrap_or_else(|e| panic!("not JSON ({e}): {l}")))
         .collect();
-    let progress: Vec<&serde_json::Value> = values
-        .iter()
-        .filter(|v| v["level"] == "progress")
-        .collect();
-    // Flights (2 or more, each with its 4 stages and the final count) and the 4 survey steps.
-    assert!(progress.len() >= 2 * 5 + 1 + 4, "{lines:#?}");
+    let progress: Vec<&serde_json::Value> =
+        values.iter().filter(|v| v["level"] == "progress").collect();
+    // Flights (2 or more, each with its 4 stages and the final count) and the 7 survey steps.
+    assert!(progress.len() >= 2 * 5 + 1 + 7, "{lines:#?}");
     for p in &progress {
         let done = p["done"].as_u64().unwrap_or_else(|| panic!("done: {p}"));
         let total = p["total"].as_u64().unwrap_or_else(|| panic!("total: {p}"));
@@ -135,13 +139,18 @@ fn with_json_every_stderr_line_is_json_and_progress_lines_carry_done_and_total()
         .collect();
     assert!(terrain.len() >= 2, "{lines:#?}");
     for p in terrain {
-        let flight = p["flight"].as_str().unwrap_or_else(|| panic!("flight: {p}"));
+        let flight = p["flight"]
+            .as_str()
+            .unwrap_or_else(|| panic!("flight: {p}"));
         assert_eq!(p["item"], format!("{flight}: terrain"), "{p}");
-        assert_eq!((p["done"].as_u64(), p["total"].as_u64()), (Some(1), Some(4)));
+        assert_eq!(
+            (p["done"].as_u64(), p["total"].as_u64()),
+            (Some(1), Some(4))
+        );
     }
     let grids = progress.iter().find(|p| p["stage"] == "grids");
     assert!(
-        grids.is_some_and(|p| p.get("flight").is_none() && p["total"] == 3),
+        grids.is_some_and(|p| p.get("flight").is_none() && p["total"] == 6),
         "{lines:#?}"
     );
     assert!(
@@ -170,10 +179,7 @@ fn rust_log_warn_drops_information_and_progress_and_keeps_the_warnings() {
     let tmp = tempfile::tempdir().unwrap();
     let recipe = survey(tmp.path());
     let all = stderr_lines(&run_with(&[], &recipe, &tmp.path().join("all"), &[]));
-    let warnings: Vec<&String> = all
-        .iter()
-        .filter(|l| l.starts_with("warning: "))
-        .collect();
+    let warnings: Vec<&String> = all.iter().filter(|l| l.starts_with("warning: ")).collect();
     assert!(!warnings.is_empty(), "the survey gives warnings: {all:#?}");
     let o = run_with(
         &[],

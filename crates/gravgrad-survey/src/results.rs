@@ -12,8 +12,16 @@ use std::path::Path;
 
 /// The survey-wide stages of a run, in order: each reports its start as progress under the target
 /// [`PROGRESS`] (`done` = its index, `total` = their count, `stage` = its name), the line stages
-/// and grids here, the writing by the caller ([`survey_stage_started`]).
-pub const SURVEY_STAGES: [&str; 3] = ["filter, levelling and QC", "grids", "writing products"];
+/// and grids here, the writing by the caller ([`survey_stage_started`]). Writing a million-sample
+/// survey's archive is the longest of them (about 10 s).
+pub const SURVEY_STAGES: [&str; 6] = [
+    "filter, levelling and QC",
+    "grids",
+    "writing the QC files and the line table",
+    "writing grids and maps",
+    "writing calibration files, checking the inputs",
+    "writing survey.h5 and provenance",
+];
 
 /// Reports the start of the survey-wide stage `k` of [`SURVEY_STAGES`]; `k` = their count reports
 /// that all are done.

@@ -617,6 +617,7 @@ fn write_products(
     }
     let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
     let grids = built.grids.as_ref();
+    survey_stage_started(3);
     if let Some(g) = grids {
         let clock = std::time::Instant::now();
         grid_files::write(dir, g, &p.results, &title, formats.grids).map_err(failed)?;
@@ -625,10 +626,12 @@ fn write_products(
             clock.elapsed().as_secs_f64()
         );
     }
+    survey_stage_started(4);
     let clock = std::time::Instant::now();
     write_calibrations(p, dir).map_err(failed)?;
     staging::pause_at("built");
     let hashes = inputs.verify().map_err(RunError::Refused)?;
+    survey_stage_started(5);
     if formats.hdf5 {
         write_archive(dir, p, table, grids, &title, &inputs.recipe_text, &hashes)
             .map_err(failed)?;
