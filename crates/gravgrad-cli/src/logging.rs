@@ -40,7 +40,7 @@ impl Step<'_> {
 /// under it, the stage of the current flight.
 struct Bars {
     multi: MultiProgress,
-    counter: ProgressBar,
+    counter: Option<ProgressBar>,
     stage: Option<ProgressBar>,
 }
 
@@ -61,20 +61,17 @@ fn style(template: &str) -> ProgressStyle {
 /// whose lengths differ too much for one).
 fn counter_style(done: usize, stages: bool) -> ProgressStyle {
     if stages || done == 0 {
-        style("[{bar:24}] {pos}/{len} {msg} ({elapsed})")
+        style("[{bar:24}] {pos}/{len} {elapsed:>4}  {wide_msg}")
     } else {
-        style("[{bar:24}] {pos}/{len} {msg} ({elapsed}, about {eta} left)")
+        style("[{bar:24}] {pos}/{len} {elapsed:>4}, about {eta} left  {wide_msg}")
     }
 }
 
 impl Bars {
     fn new() -> Self {
-        let multi = MultiProgress::new();
-        let counter = multi.add(ProgressBar::new(0));
-        counter.enable_steady_tick(TICK);
         Self {
-            multi,
-            counter,
+            multi: MultiProgress::new(),
+            counter: None,
             stage: None,
         }
     }
@@ -83,28 +80,43 @@ impl Bars {
     fn count(&mut self, step: &Step<'_>) {
         self.end_stage();
         let (done, total) = (step.done as u64, step.total as u64);
-        let c = &self.counter;
-        if c.length() != Some(total) || c.position() > done {
-            c.reset();
-            c.set_length(total);
+        let look = counter_style(step.done, step.stage.is_some());
+        if let Some(c) = &self.counter {
+            if c.length() != Some(total) || c.position() > done {
+                c.reset();
+                c.set_length(total);
+            }
+            c.set_style(look);
+            c.set_position(done);
+            c.set_message(step.text());
+        } else {
+            let c = ProgressBar::new(total)
+                .with_style(look)
+                .with_position(done)
+                .with_message(step.text());
+            let c = self.multi.insert(0, c);
+            c.enable_steady_tick(TICK);
+            self.counter = Some(c);
         }
-        c.set_style(counter_style(step.done, step.stage.is_some()));
-        c.set_position(done);
-        c.set_message(step.text());
     }
 
     /// The line under the counter at the per-flight `step`.
     fn stage(&mut self, step: &Step<'_>) {
-        let line = self.stage.get_or_insert_with(|| {
-            let b = self.multi.add(ProgressBar::new_spinner());
-            b.set_style(style("  {spinner} [{pos}/{len}] {msg} ({elapsed})"));
-            b.enable_steady_tick(TICK);
-            b
-        });
-        line.set_length(step.total as u64);
-        line.set_position(step.done as u64);
-        line.set_message(step.text());
-        line.reset_elapsed();
+        let (done, total) = (step.done as u64, step.total as u64);
+        if let Some(line) = &self.stage {
+            line.set_length(total);
+            line.set_position(done);
+            line.set_message(step.text());
+            line.reset_elapsed();
+        } else {
+            let line = ProgressBar::new(total)
+                .with_style(style("  {spinner} [{pos}/{len}] {elapsed:>4}  {wide_msg}"))
+                .with_position(done)
+                .with_message(step.text());
+            let line = self.multi.add(line);
+            line.enable_steady_tick(TICK);
+            self.stage = Some(line);
+        }
     }
 
     fn end_stage(&mut self) {
@@ -116,7 +128,9 @@ impl Bars {
 
     fn clear(mut self) {
         self.end_stage();
-        self.counter.finish_and_clear();
+        if let Some(c) = self.counter.take() {
+            c.finish_and_clear();
+        }
         let _ = self.multi.clear();
     }
 }
