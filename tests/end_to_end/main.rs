@@ -7,6 +7,7 @@ mod corpus;
 mod inputs;
 mod install;
 mod interrupt;
+mod logs;
 mod motion;
 mod output_folder;
 mod qc;

@@ -27,6 +27,26 @@ use gravgrad_rotation::gyro::angular_acceleration3;
 use gravgrad_rotation::solve::{Inputs, PairSeries, SolveSettings, SpanCorrection, solve};
 use rayon::prelude::*;
 
+/// The `tracing` target of progress events, the same as `gravgrad::run::PROGRESS`: fields `done`
+/// and `total`; a stage's event names the stage in the field `stage` as well.
+pub const PROGRESS: &str = "gravgrad::progress";
+
+/// The per-flight stages of [`process_flight`], in order: each reports its start as progress
+/// (`done` = its index, `total` = their count; the caller's span names the flight) and its
+/// duration in [`FlightResult::timings`].
+pub const FLIGHT_STAGES: [&str; 4] = [
+    "positions and normal field",
+    "terrain",
+    "calibration",
+    "solve and rotation",
+];
+
+/// Reports the start of the per-flight stage `k` of [`FLIGHT_STAGES`].
+fn stage_started(k: usize) {
+    let stage = FLIGHT_STAGES.get(k).copied().unwrap_or_default();
+    tracing::info!(target: PROGRESS, done = k, total = FLIGHT_STAGES.len(), stage, "{stage}");
+}
+
 /// The survey's map projection: UTM, with its EPSG code.
 #[derive(Clone, Copy, Debug)]
 pub struct MapFrame {
@@ -297,7 +317,8 @@ pub fn alpha_source(recipe: &Recipe, pairs: &[PairGeometry]) -> AlphaSource {
 }
 
 /// Processes one flight: calibration, solve and rotation, normal field; the terrain tensor (NED,
-/// true north) is supplied by the caller when the recipe has a DEM.
+/// true north) is supplied by the caller when the recipe has a DEM. Each stage's start is reported
+/// as progress ([`FLIGHT_STAGES`]).
 pub fn process_flight(
     recipe: &Recipe,
     instrument: &Instrument,
@@ -328,6 +349,7 @@ pub fn process_flight(
     let omega = get3(["wx", "wy", "wz"])?;
     let f = get3(["fx", "fy", "fz"])?;
     let [roll, pitch, heading] = get3(["roll", "pitch", "heading"])?;
+    stage_started(0);
     let mut timings = Vec::new();
     let mut clock = std::time::Instant::now();
     let mut lap = |name: &'static str, t: &mut Vec<(&'static str, f64)>| {
@@ -347,8 +369,10 @@ pub fn process_flight(
         .params();
     let normal = normal_tensor(ell, &pos);
     lap("positions and normal field", &mut timings);
+    stage_started(1);
     let terrain = terrain(&pos)?;
     lap("terrain", &mut timings);
+    stage_started(2);
 
     let mut line = vec![0i64; n];
     for s in &flight.lines {
@@ -549,6 +573,7 @@ pub fn process_flight(
     // With a file, terms the file has but the flight cannot use (e.g. temperature) are not
     // applied: the correction below reads only what the flight has.
     lap("calibration", &mut timings);
+    stage_started(3);
     // The calibration is applied as the solve reads each span of `a` (b as logged): no corrected
     // series is kept.
     drop(data);

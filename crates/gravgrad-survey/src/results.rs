@@ -5,9 +5,30 @@
 use crate::grid_stage::{self, Grids};
 use crate::line_stages::{self, LineStages};
 use crate::line_table::{self, LinesTable};
+use crate::pipeline::PROGRESS;
 use crate::qc::{self, LineQc};
 use crate::{Processed, RunError};
 use std::path::Path;
+
+/// The survey-wide stages of a run, in order: each reports its start as progress under the target
+/// [`PROGRESS`] (`done` = its index, `total` = their count, `stage` = its name), the line stages
+/// and grids here, the writing by the caller ([`survey_stage_started`]). Writing a million-sample
+/// survey's archive is the longest of them (about 10 s).
+pub const SURVEY_STAGES: [&str; 6] = [
+    "filter, levelling and QC",
+    "grids",
+    "writing the QC files and the line table",
+    "writing grids and maps",
+    "writing calibration files, checking the inputs",
+    "writing survey.h5 and provenance",
+];
+
+/// Reports the start of the survey-wide stage `k` of [`SURVEY_STAGES`]; `k` = their count reports
+/// that all are done.
+pub fn survey_stage_started(k: usize) {
+    let stage = SURVEY_STAGES.get(k).copied().unwrap_or("products written");
+    tracing::info!(target: PROGRESS, done = k, total = SURVEY_STAGES.len(), stage, "{stage}");
+}
 
 /// The survey-wide results of a processed survey.
 pub struct SurveyResults {
@@ -37,6 +58,7 @@ pub fn survey_results(
             grids: None,
         });
     };
+    survey_stage_started(0);
     let clock = std::time::Instant::now();
     let stages =
         line_stages::compute(&p.results, recipe, recipe_path).map_err(RunError::problem)?;
@@ -53,6 +75,7 @@ pub fn survey_results(
     );
     stages.append_to(&mut table);
     let grids = if with_grids {
+        survey_stage_started(1);
         let clock = std::time::Instant::now();
         let g = grid_stage::grid_survey(recipe, &p.results, Some(&stages.levelled), p.frame.epsg)
             .map_err(RunError::Failed)?;

@@ -24,7 +24,7 @@ use gravgrad_survey::line_table::LinesTable;
 use gravgrad_survey::pipeline::{self, CalibrationSource};
 use gravgrad_survey::preflight::{Preflight, preflight};
 use gravgrad_survey::processed::{Processed, flight_name};
-use gravgrad_survey::results::survey_results;
+use gravgrad_survey::results::{SURVEY_STAGES, survey_results, survey_stage_started};
 use gravgrad_survey::terrain_stage::TerrainStage;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -285,10 +285,13 @@ pub(crate) fn process_checked(
             (CalibrationMode::None, _) => CalibrationSource::None,
             _ => CalibrationSource::Estimate,
         };
+        let in_flight = tracing::info_span!(target: PROGRESS, "flight", flight = name.as_str());
+        let entered = in_flight.enter();
         let r = pipeline::process_flight(recipe, instrument, flight, &frame, source, |p| {
             terrain.as_ref().map(|t| t.tensor_true_north(p)).transpose()
         })
         .map_err(RunError::problem)?;
+        drop(entered);
         if let Some(w) = terrain
             .as_ref()
             .and_then(|t| t.coverage_warning(&r.positions))
@@ -559,6 +562,7 @@ pub fn run(options: &RunOptions) -> Result<RunSummary, RunError> {
     let clock = std::time::Instant::now();
     write_products(options, &p, staging.dir(), &pre.inputs)?;
     staging.commit(&p.reused).map_err(failed)?;
+    survey_stage_started(SURVEY_STAGES.len());
     let samples: usize = p.results.iter().map(|r| r.time.len()).sum();
     tracing::info!(
         "products built and written in {:.2} s",
@@ -592,6 +596,7 @@ fn write_products(
         |r| ProductFormats::of(&r.output),
     );
     let built = survey_results(p, &args.recipe, formats.needs_grids())?;
+    survey_stage_started(2);
     if let (Some(recipe), Some(stages)) = (recipe, &built.stages) {
         qc_files::write_qc(&dir.join("qc"), p, stages, recipe, &built.qc)?;
     }
@@ -612,6 +617,7 @@ fn write_products(
     }
     let title = recipe.map_or("survey".to_string(), |r| r.survey.name.clone());
     let grids = built.grids.as_ref();
+    survey_stage_started(3);
     if let Some(g) = grids {
         let clock = std::time::Instant::now();
         grid_files::write(dir, g, &p.results, &title, formats.grids).map_err(failed)?;
@@ -620,10 +626,12 @@ fn write_products(
             clock.elapsed().as_secs_f64()
         );
     }
+    survey_stage_started(4);
     let clock = std::time::Instant::now();
     write_calibrations(p, dir).map_err(failed)?;
     staging::pause_at("built");
     let hashes = inputs.verify().map_err(RunError::Refused)?;
+    survey_stage_started(5);
     if formats.hdf5 {
         write_archive(dir, p, table, grids, &title, &inputs.recipe_text, &hashes)
             .map_err(failed)?;
