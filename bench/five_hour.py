@@ -32,8 +32,9 @@ STAGES = [
     ("solve and rotation", r"solve and rotation ([0-9.]+) s"),
     ("filter, levelling and QC", r"filter, levelling and QC of \d+ lines in ([0-9.]+) s"),
     ("line table (lines.parquet)", r"line table written in ([0-9.]+) s"),
-    ("grids and maps", r"tensor built in ([0-9.]+) s"),
-    ("calibration files, survey.h5, provenance", r"survey.h5 and provenance.json written in ([0-9.]+) s"),
+    ("grids", r"tensor built in ([0-9.]+) s"),
+    ("grid files and maps", r"grids and maps written in ([0-9.]+) s"),
+    ("calibration files, survey.h5, provenance", r"archive and provenance.json written in ([0-9.]+) s"),
 ]
 
 
