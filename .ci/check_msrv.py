@@ -10,7 +10,9 @@ import sys
 
 
 def version(text):
-    return tuple(int(x) for x in text.split("."))
+    # Padded to three parts: "1.89.0" and "1.89" are the same version.
+    parts = [int(x) for x in text.split(".")]
+    return tuple(parts + [0] * (3 - len(parts)))
 
 
 root = os.path.join(os.path.dirname(__file__), "..")

@@ -19,6 +19,8 @@
 pub mod calibration_report;
 pub mod error;
 pub mod grid_stage;
+#[cfg(feature = "polars")]
+pub mod line_frame;
 pub mod line_stages;
 pub mod line_table;
 pub mod pipeline;
