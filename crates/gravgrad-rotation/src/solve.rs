@@ -92,7 +92,7 @@ pub struct Solution {
 ///
 /// The steps: the series' lengths checked; the components asked for checked observable; the
 /// pseudo-inverses of the (constrained and free) design; the gyro angular acceleration; then
-/// every span of samples solved ([`SpanSolver`]).
+/// every span of samples solved (`SpanSolver`).
 pub fn solve(inp: &Inputs<'_>, s: &SolveSettings) -> Result<Solution, RotationError> {
     if inp.pairs.is_empty() {
         return Err(RotationError::NoPairs);
