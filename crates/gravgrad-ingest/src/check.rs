@@ -457,6 +457,19 @@ impl Survey {
     }
 }
 
+/// Whether the instrument's pairs can see what the recipe's `[rotation]` asks for, into the
+/// recipe's report (problems located at `rotation.` keys).
+pub(crate) fn observe(report: &mut FileReport, r: &Recipe, instrument: &Instrument) {
+    let needs = Needs {
+        components: r.rotation.components.clone(),
+        alpha: r.rotation.alpha_source(),
+        trace_constraint: r.rotation.trace_constraint,
+    };
+    let (obs, p) = check_observability(instrument, &needs, "rotation.");
+    report.problems.extend(p);
+    report.observability = Some(obs);
+}
+
 /// Reads and checks a recipe, its instrument, navigation table and every flight file it names.
 pub fn load_recipe(path: &Path) -> Survey {
     let mut report = FileReport::new(path, FileKind::Recipe);
@@ -473,14 +486,7 @@ pub fn load_recipe(path: &Path) -> Survey {
     let inst_path = r.resolve(&r.instrument.path);
     let inst = match read_instrument(&inst_path) {
         Ok(i) => {
-            let needs = Needs {
-                components: r.rotation.components.clone(),
-                alpha: r.rotation.alpha_source(),
-                trace_constraint: r.rotation.trace_constraint,
-            };
-            let (obs, p) = check_observability(&i, &needs, "rotation.");
-            report.problems.extend(p);
-            report.observability = Some(obs);
+            observe(&mut report, &r, &i);
             Some(i)
         }
         Err(p) => {

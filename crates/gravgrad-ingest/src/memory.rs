@@ -4,10 +4,11 @@
 //! the flight, the column and the row (the index into the arrays, from 0).
 
 use crate::check::{
-    CheckSettings, FileKind, FileReport, LoadedFlight, Survey, check_read_flight, processable,
+    CheckSettings, FileKind, FileReport, LoadedFlight, Survey, check_read_flight, observe,
+    processable,
 };
 use crate::columns::{self, Expectation};
-use crate::instrument::{Instrument, Needs, check_observability};
+use crate::instrument::Instrument;
 use crate::read::{Flight, Format, to_table};
 use crate::recipe::Recipe;
 use gravgrad_core::{Location, Problem};
@@ -80,14 +81,7 @@ pub fn survey_from_memory(
     flights: Vec<FlightColumns>,
 ) -> Survey {
     let mut report = FileReport::new(name, FileKind::Recipe);
-    let needs = Needs {
-        components: recipe.rotation.components.clone(),
-        alpha: recipe.rotation.alpha_source(),
-        trace_constraint: recipe.rotation.trace_constraint,
-    };
-    let (obs, p) = check_observability(&instrument, &needs, "rotation.");
-    report.problems.extend(p);
-    report.observability = Some(obs);
+    observe(&mut report, &recipe, &instrument);
     if recipe.input.navigation.is_some() {
         report.problems.push(
             Problem::error(

@@ -3,13 +3,12 @@
 //! (`report_html.rs`). The verdicts themselves are `gravgrad_survey::qc`.
 
 use crate::report_html;
-use crate::tables::write_atomic;
+use crate::tables::write_text;
 use gravgrad_survey::RunError;
 use gravgrad_survey::calibration_report::{baseline_of, baselines, figures};
 use gravgrad_survey::line_stages::LineStages;
 use gravgrad_survey::processed::Processed;
 use gravgrad_survey::qc::{CalibrationHealth, LineQc, NAMES, calibration_health, settings};
-use std::io::Write;
 use std::path::Path;
 
 /// `v` with `digits` decimals; empty when absent or not finite (a CSV cell, a table cell).
@@ -164,13 +163,6 @@ pub fn lines_csv(st: &LineStages, qcs: &[LineQc], health: &[CalibrationHealth]) 
         out.push('\n');
     }
     out
-}
-
-fn write_text(path: &Path, text: &str) -> Result<(), String> {
-    write_atomic(path, |f| {
-        f.write_all(text.as_bytes()).map_err(|e| e.to_string())
-    })
-    .map_err(|e| e.to_string())
 }
 
 /// Writes the QC of every line, `qcs` (`gravgrad_survey::qc::assess_survey`), as

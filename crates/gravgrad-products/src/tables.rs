@@ -75,6 +75,15 @@ pub fn write_atomic(
     std::fs::rename(&tmp, path).map_err(|e| err(path, e))
 }
 
+/// Writes `text` to `path` through a temporary file and a rename ([`write_atomic`]); the error
+/// names the path.
+pub fn write_text(path: &Path, text: &str) -> Result<(), String> {
+    write_atomic(path, |f| {
+        f.write_all(text.as_bytes()).map_err(|e| e.to_string())
+    })
+    .map_err(|e| e.to_string())
+}
+
 /// Parquet: REQUIRED DOUBLE / INT64 columns, zstd, row groups of 128k rows.
 pub fn write_parquet(path: &Path, columns: &[(&str, Column<'_>)]) -> Result<(), WriteError> {
     write_parquet_with_metadata(path, columns, &[])

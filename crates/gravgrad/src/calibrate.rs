@@ -4,11 +4,10 @@
 
 use crate::run::{CalibrationChoice, process};
 use gravgrad_calibrate::file::CalibrationFile;
-use gravgrad_products::tables::write_atomic;
+use gravgrad_products::tables::write_text;
 use gravgrad_survey::calibration_report::{baselines, previous_file, report, stability_report};
 use gravgrad_survey::{Processed, RunError};
 use std::fmt::Write as _;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 
 /// What a calibration wrote.
@@ -40,14 +39,6 @@ fn target_paths(p: &Processed, out: Option<&Path>) -> Vec<PathBuf> {
         .iter()
         .map(|n| base.with_file_name(format!("{stem}-{n}.toml")))
         .collect()
-}
-
-/// Writes `text` to `path` through a temporary name.
-pub(crate) fn write_text(path: &Path, text: &str) -> Result<(), String> {
-    write_atomic(path, |f| {
-        f.write_all(text.as_bytes()).map_err(|e| e.to_string())
-    })
-    .map_err(|e| e.to_string())
 }
 
 /// Estimates every pair's calibration from the flights of `recipe` (whatever its

@@ -16,7 +16,7 @@ use gravgrad_ingest::tomlfile;
 use gravgrad_products::product_formats::ProductFormats;
 use gravgrad_products::provenance::{self, Inputs};
 use gravgrad_products::staging::{self, Staging};
-use gravgrad_products::tables::write_atomic;
+use gravgrad_products::tables::write_text;
 use gravgrad_products::{archive, grid_files, lines_file, output_folder, qc_files};
 use gravgrad_survey::RunError;
 use gravgrad_survey::grid_stage;
@@ -26,7 +26,6 @@ use gravgrad_survey::preflight::{Preflight, preflight};
 use gravgrad_survey::processed::{Processed, flight_name};
 use gravgrad_survey::results::{SURVEY_STAGES, survey_results, survey_stage_started};
 use gravgrad_survey::terrain_stage::TerrainStage;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 
 /// The `tracing` target of progress events: fields `done` and `total`, the message says what.
@@ -366,11 +365,7 @@ pub fn write_calibrations(p: &Processed, dir: &Path) -> Result<Vec<PathBuf>, Str
         }
         let file = CalibrationFile::new(name, band, &r.calibration);
         let path = dir.join("calibration").join(format!("{name}.toml"));
-        write_atomic(&path, |f| {
-            f.write_all(file.to_toml().as_bytes())
-                .map_err(|e| e.to_string())
-        })
-        .map_err(|e| e.to_string())?;
+        write_text(&path, &file.to_toml())?;
         written.push(path);
     }
     Ok(written)

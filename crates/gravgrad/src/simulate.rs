@@ -5,7 +5,7 @@ use gravgrad_core::raster::Raster;
 use gravgrad_core::units::EOTVOS;
 use gravgrad_grid::geotiff::{WriteOptions, write_geotiff};
 use gravgrad_ingest::tomlfile;
-use gravgrad_products::tables::{Column, write_csv, write_parquet};
+use gravgrad_products::tables::{Column, write_csv, write_parquet, write_text};
 use gravgrad_sim::scenario::Scenario;
 use gravgrad_sim::simulate::{FlightLog, Simulation, simulate};
 use gravgrad_survey::RunError;
@@ -464,12 +464,4 @@ fn calibration_truth(
         }
     }
     t
-}
-
-fn write_text(path: &Path, text: &str) -> Result<(), String> {
-    gravgrad_products::tables::write_atomic(path, |f| {
-        use std::io::Write;
-        f.write_all(text.as_bytes()).map_err(|e| e.to_string())
-    })
-    .map_err(|e| e.to_string())
 }
